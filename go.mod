@@ -1,0 +1,3 @@
+module github.com/leqnode/leqnode
+
+go 1.26
