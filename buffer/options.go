@@ -1,0 +1,135 @@
+package buffer
+
+import (
+	"log/slog"
+	"time"
+)
+
+// Defaults. The commit interval and freelist choice come from the write-volume measurements in
+// the README (BenchmarkWriteVolume).
+const (
+	// DefaultCommitInterval is the group-commit period: at most this much is lost in a crash.
+	DefaultCommitInterval = 30 * time.Second
+	// DefaultMaxHeld is the number of records held in memory that forces a commit.
+	DefaultMaxHeld = 4096
+	// DefaultLockTimeout is how long Open and OpenReadOnly wait for another process's lock.
+	DefaultLockTimeout = time.Second
+	// DefaultMaxBytes is the total size cap: 1 GiB where pointers have 64 bits, 512 MiB on
+	// 32-bit builds, where bbolt must map the whole file into a 4 GiB address space.
+	DefaultMaxBytes int64 = 512 << 20 << (^uint(0) >> 63)
+
+	day  = 24 * time.Hour
+	year = 365*day + 6*time.Hour
+)
+
+// DefaultRetention returns the default retention per kind: seconds 30 days, health 90 days,
+// everything else 5 years.
+func DefaultRetention() map[Kind]time.Duration {
+	return map[Kind]time.Duration{
+		KindSecond:      30 * day,
+		KindHealth:      90 * day,
+		KindMinute:      5 * year,
+		KindEvent:       5 * year,
+		KindCalibration: 5 * year,
+		KindAnnotation:  5 * year,
+		KindSession:     5 * year,
+		KindGap:         5 * year,
+	}
+}
+
+// Options tune a Store. A nil *Options, and every zero field, means the default.
+type Options struct {
+	// CommitInterval is the group-commit period (default DefaultCommitInterval). Records
+	// appended within one interval are committed in one transaction.
+	//
+	// Trade-off: every commit rewrites the tail pages of several B+trees plus a meta page and
+	// costs two fsyncs, so the bytes written to flash per hour fall almost in proportion to the
+	// interval. Danger: a crash or power cut loses up to one interval of results, and consumers
+	// (Pending) see records only once they are committed, so a long interval also delays
+	// publication.
+	CommitInterval time.Duration
+
+	// MaxHeld forces a commit when this many records are held in memory (default
+	// DefaultMaxHeld). It bounds memory when records arrive in bursts.
+	MaxHeld int
+
+	// Retention sets how long records of each kind are kept, measured from their Time against
+	// Now. Kinds not in the map keep their DefaultRetention; a negative duration keeps the
+	// kind until the size cap removes it.
+	//
+	// Danger: age retention trusts the wall clock. A clock that jumps years ahead deletes the
+	// records it then believes too old; a node should not start writing before its clock is
+	// plausible.
+	Retention map[Kind]time.Duration
+
+	// MaxBytes caps the space the records use (default DefaultMaxBytes). When the used space
+	// passes 90 % of the cap, the oldest records of the kinds with the shortest retention are
+	// deleted until it falls to 85 %; the file itself stays within a few percent of the cap.
+	//
+	// Danger: a cap larger than the free space on the card lets the file fill the card, and on
+	// 32-bit builds a cap near 1 GiB can fail to map.
+	MaxBytes int64
+
+	// LockTimeout is how long Open waits for another process to release the file (default
+	// DefaultLockTimeout). Zero means the default, never "wait forever".
+	LockTimeout time.Duration
+
+	// SyncFreelist makes every commit also write bbolt's list of free pages.
+	//
+	// Trade-off: without it (the default) each commit writes fewer pages, but opening the
+	// store after a crash or restart scans the whole file to rebuild the list, which takes
+	// seconds on a large file on a slow card. With it, opening is instant and every commit
+	// writes the list (a page or more, growing with fragmentation).
+	SyncFreelist bool
+
+	// CheckOnOpen runs a full consistency check when the store is opened for writing; a store
+	// that fails is moved aside like a file bbolt cannot open.
+	//
+	// Trade-off: it reads the whole file (seconds to minutes for a large store on a slow card);
+	// without it, damage in pages that are never read goes unnoticed until Check is run.
+	CheckOnOpen bool
+
+	// NoSync skips fsync on commit.
+	//
+	// Danger: a power cut can then leave a corrupt file and lose everything since the last
+	// open. For tests and benchmarks only.
+	NoSync bool
+
+	// Now is the clock for retention and commit timing (default time.Now). Tests inject one.
+	Now func() time.Time
+
+	// Logger receives the store's rare log lines: recovery from a damaged file, commit failures
+	// (default slog.Default()).
+	Logger *slog.Logger
+}
+
+func (o *Options) resolved() Options {
+	var r Options
+	if o != nil {
+		r = *o
+	}
+	if r.CommitInterval <= 0 {
+		r.CommitInterval = DefaultCommitInterval
+	}
+	if r.MaxHeld <= 0 {
+		r.MaxHeld = DefaultMaxHeld
+	}
+	ret := DefaultRetention()
+	for k, d := range r.Retention {
+		ret[k] = d
+	}
+	r.Retention = ret
+	if r.MaxBytes <= 0 {
+		r.MaxBytes = DefaultMaxBytes
+	}
+	if r.LockTimeout <= 0 {
+		r.LockTimeout = DefaultLockTimeout
+	}
+	if r.Now == nil {
+		r.Now = time.Now
+	}
+	if r.Logger == nil {
+		r.Logger = slog.Default()
+	}
+	return r
+}

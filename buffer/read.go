@@ -1,0 +1,547 @@
+package buffer
+
+import (
+	"bytes"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"os"
+	"slices"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+)
+
+// view runs fn in a read transaction, turning a bbolt panic on a damaged page into an error.
+func (s *Store) view(fn func(tx *bolt.Tx) error) (err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, p)
+		}
+	}()
+	return s.db.View(fn)
+}
+
+func checkStream(stream string) error {
+	if stream == "" || len(stream) > 128 || bytes.IndexByte([]byte(stream), 0) >= 0 {
+		return fmt.Errorf("stream name %q: use 1 to 128 bytes without NUL", stream)
+	}
+	return nil
+}
+
+// Pending returns up to limit committed records of kind k that stream has not acknowledged, in
+// sequence order. A stream seen for the first time starts before the oldest stored record. The
+// records are copies; no transaction is held after Pending returns.
+func (s *Store) Pending(stream string, k Kind, limit int) ([]Record, error) {
+	if err := checkStream(stream); err != nil {
+		return nil, err
+	}
+	if !k.Valid() {
+		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	if limit <= 0 {
+		return nil, nil
+	}
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return nil, ErrClosed
+	}
+	sk := streamKind{stream, k}
+	c := s.cursors[sk]
+	if c == nil {
+		c = &cursor{}
+		if !s.readOnly {
+			c.dirty = true
+			s.cursors[sk] = c
+		}
+	}
+	after, upto := c.acked, s.committed[k]
+	s.mu.Unlock()
+
+	var out []Record
+	err := s.view(func(tx *bolt.Tx) error {
+		cur := tx.Bucket(recBucket(k)).Cursor()
+		for key, v := cur.Seek(seqKey(after + 1)); key != nil && len(out) < limit; key, v = cur.Next() {
+			seq := binary.BigEndian.Uint64(key)
+			if seq > upto {
+				break
+			}
+			r, err := Decode(k, v)
+			if err != nil {
+				return fmt.Errorf("store %s: %s record %d: %w", s.path, k, seq, err)
+			}
+			r.setSeq(seq)
+			out = append(out, r)
+		}
+		return nil
+	})
+	return out, err
+}
+
+// Ack records that stream has delivered every record of kind k up to and including seq. The
+// cursor never moves back: an older seq is ignored. The cursor is persisted with the next commit,
+// so after a crash a stream may see up to one commit interval of records again; consumers
+// de-duplicate by (store id, kind, seq).
+func (s *Store) Ack(stream string, k Kind, seq uint64) error {
+	if err := checkStream(stream); err != nil {
+		return err
+	}
+	if !k.Valid() {
+		return fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if err := s.writable(); err != nil {
+		return err
+	}
+	if seq > s.committed[k] {
+		return fmt.Errorf("store %s: ack of %s record %d beyond the last committed one (%d)", s.path, k, seq, s.committed[k])
+	}
+	sk := streamKind{stream, k}
+	c := s.cursors[sk]
+	if c == nil {
+		c = &cursor{}
+		s.cursors[sk] = c
+	}
+	if seq > c.acked {
+		c.acked = seq
+		c.dirty = true
+	}
+	return s.maybeCommit()
+}
+
+// LastSeq returns the last sequence number assigned to kind k (committed or held), 0 if none.
+func (s *Store) LastSeq(k Kind) uint64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if !k.Valid() {
+		return 0
+	}
+	return s.nextSeq[k] - 1
+}
+
+// Last returns the record of kind k with the highest sequence number (held or committed), or nil
+// when the kind holds none.
+func (s *Store) Last(k Kind) (Record, error) {
+	if !k.Valid() {
+		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	s.mu.Lock()
+	for i := len(s.held) - 1; i >= 0; i-- {
+		if h := s.held[i]; h.kind == k {
+			s.mu.Unlock()
+			r, err := Decode(k, h.value)
+			if err == nil {
+				r.setSeq(h.seq)
+			}
+			return r, err
+		}
+	}
+	s.mu.Unlock()
+	var out Record
+	err := s.view(func(tx *bolt.Tx) error {
+		key, v := tx.Bucket(recBucket(k)).Cursor().Last()
+		if key == nil {
+			return nil
+		}
+		r, err := Decode(k, v)
+		if err != nil {
+			return fmt.Errorf("store %s: %s record %d: %w", s.path, k, binary.BigEndian.Uint64(key), err)
+		}
+		r.setSeq(binary.BigEndian.Uint64(key))
+		out = r
+		return nil
+	})
+	return out, err
+}
+
+// rangeChunk is the number of records a Range reads per read transaction.
+const rangeChunk = 1024
+
+type keyed struct {
+	tkey, seq uint64
+	rec       Record
+}
+
+func (a keyed) less(b keyed) bool { return a.tkey < b.tkey || a.tkey == b.tkey && a.seq < b.seq }
+
+// Range calls fn for each record of kind k whose Time lies in [from, to), in time order (records
+// with equal times in sequence order), through the time index: a record written late with an
+// early time, or written after the clock stepped back, is found where its time puts it. Records
+// held in memory and not yet committed are included. The flags of annotations overlapping a
+// second, minute or event record are ORed into the copy passed to fn.
+//
+// Range reads in chunks, each in its own short read transaction, and calls fn outside any
+// transaction with a copy; fn may call other methods of the store. An error from fn stops the
+// iteration and is returned.
+func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
+	if !k.Valid() {
+		return fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	lo, hi := timeKey(from), timeKey(to)
+	if !from.Before(to) {
+		return nil
+	}
+	// Snapshot the held records; committed records from this snapshot on are skipped in the
+	// file, so a commit during the iteration neither repeats nor loses one.
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return ErrClosed
+	}
+	memFirst := s.nextSeq[k]
+	var mem []keyed
+	var memAnn []Record
+	for _, h := range s.held {
+		if h.kind == KindAnnotation && (k == KindSecond || k == KindMinute || k == KindEvent) {
+			r, err := Decode(h.kind, h.value)
+			if err == nil {
+				memAnn = append(memAnn, r)
+			}
+		}
+		if h.kind != k {
+			continue
+		}
+		memFirst = min(memFirst, h.seq)
+		if h.tkey < lo || h.tkey >= hi {
+			continue
+		}
+		r, err := Decode(k, h.value)
+		if err != nil {
+			s.mu.Unlock()
+			return err
+		}
+		r.setSeq(h.seq)
+		mem = append(mem, keyed{h.tkey, h.seq, r})
+	}
+	s.mu.Unlock()
+	slices.SortFunc(mem, func(a, b keyed) int {
+		if a.less(b) {
+			return -1
+		}
+		if b.less(a) {
+			return 1
+		}
+		return 0
+	})
+
+	var anns []*Annotation
+	if k == KindSecond || k == KindMinute || k == KindEvent {
+		var err error
+		if anns, err = s.annotations(); err != nil {
+			return err
+		}
+		for _, r := range memAnn {
+			anns = append(anns, r.(*Annotation))
+		}
+	}
+	emit := func(r Record) error {
+		applyAnnotations(r, anns)
+		return fn(r)
+	}
+
+	start := indexKey(lo, 0)
+	for {
+		var chunk []keyed
+		err := s.view(func(tx *bolt.Tx) error {
+			rb := tx.Bucket(recBucket(k))
+			c := tx.Bucket(timeBucket(k)).Cursor()
+			for ik, _ := c.Seek(start); ik != nil && len(chunk) < rangeChunk; ik, _ = c.Next() {
+				tk, seq := binary.BigEndian.Uint64(ik), binary.BigEndian.Uint64(ik[8:])
+				if tk >= hi {
+					break
+				}
+				if seq >= memFirst {
+					continue
+				}
+				v := rb.Get(seqKey(seq))
+				if v == nil {
+					return fmt.Errorf("store %s: %w: time index names %s record %d, which is missing", s.path, ErrDamaged, k, seq)
+				}
+				r, err := Decode(k, v)
+				if err != nil {
+					return fmt.Errorf("store %s: %s record %d: %w", s.path, k, seq, err)
+				}
+				r.setSeq(seq)
+				chunk = append(chunk, keyed{tk, seq, r})
+			}
+			return nil
+		})
+		if err != nil {
+			return err
+		}
+		for _, kr := range chunk {
+			for len(mem) > 0 && mem[0].less(kr) {
+				if err := emit(mem[0].rec); err != nil {
+					return err
+				}
+				mem = mem[1:]
+			}
+			if err := emit(kr.rec); err != nil {
+				return err
+			}
+		}
+		if len(chunk) < rangeChunk {
+			break
+		}
+		lastKey := chunk[len(chunk)-1]
+		start = indexKey(lastKey.tkey, lastKey.seq+1)
+	}
+	for _, m := range mem {
+		if err := emit(m.rec); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// annotations reads every committed annotation. Annotations are few (a handful a month).
+func (s *Store) annotations() ([]*Annotation, error) {
+	var out []*Annotation
+	err := s.view(func(tx *bolt.Tx) error {
+		return tx.Bucket(recBucket(KindAnnotation)).ForEach(func(key, v []byte) error {
+			a := new(Annotation)
+			if err := a.UnmarshalBinary(v); err != nil {
+				return fmt.Errorf("store %s: annotation %d: %w", s.path, binary.BigEndian.Uint64(key), err)
+			}
+			out = append(out, a)
+			return nil
+		})
+	})
+	return out, err
+}
+
+// applyAnnotations ORs into r the flags of the annotations whose range overlaps r's interval.
+func applyAnnotations(r Record, anns []*Annotation) {
+	if len(anns) == 0 {
+		return
+	}
+	var start, end time.Time
+	var flags *Flags
+	switch v := r.(type) {
+	case *Second:
+		start, end, flags = v.Start, v.Start.Add(v.Duration), &v.Flags
+	case *Minute:
+		start, end, flags = v.Start, v.Start.Add(time.Minute), &v.Flags
+	case *Event:
+		start, end, flags = v.Start, v.End, &v.Flags
+	default:
+		return
+	}
+	if !end.After(start) {
+		end = start.Add(time.Microsecond)
+	}
+	for _, a := range anns {
+		if a.From.Before(end) && start.Before(a.To) {
+			*flags |= a.Flags
+		}
+	}
+}
+
+// KindStats describes the records of one kind.
+type KindStats struct {
+	Count          uint64    // records stored (committed)
+	Bytes          uint64    // bytes of their encoded values
+	FirstSeq       uint64    // lowest stored sequence number (0 if none)
+	LastSeq        uint64    // highest committed sequence number
+	Oldest, Newest time.Time // earliest and latest record time (zero if none)
+	RemovedByAge   uint64    // records deleted by retention since the store was created
+	RemovedBySize  uint64    // records deleted by the size cap since the store was created
+}
+
+// StreamStats describes one consumer stream's cursor on one kind.
+type StreamStats struct {
+	Acked   uint64 // last acknowledged sequence number
+	Pending uint64 // committed records after the cursor (at most this many, if records were removed)
+	Dropped uint64 // unacknowledged records deleted by retention or the size cap
+}
+
+// Stats describes a store.
+type Stats struct {
+	ID        string
+	Path      string
+	FileBytes int64 // size of the file
+	UsedBytes int64 // bytes the data occupies (file high-water mark less free pages)
+	MaxBytes  int64 // size cap
+	Kinds     map[Kind]KindStats
+	Streams   map[string]map[Kind]StreamStats
+	Held      int    // records held in memory, not yet committed
+	Commits   uint64 // commits since Open
+	// WrittenBytes counts the bytes bbolt wrote to the file since Open: dirty pages plus one meta
+	// page per commit.
+	WrittenBytes int64
+	Recovered    string // see Store.Recovered
+}
+
+// Stats returns the store's statistics. It reads only the ends of each index.
+func (s *Store) Stats() (Stats, error) {
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return Stats{}, ErrClosed
+	}
+	st := Stats{
+		ID: s.id, Path: s.path, MaxBytes: s.opts.MaxBytes, Held: len(s.held), Commits: s.commits,
+		Recovered: s.recovered, Kinds: map[Kind]KindStats{}, Streams: map[string]map[Kind]StreamStats{},
+	}
+	for _, k := range Kinds() {
+		st.Kinds[k] = KindStats{Count: s.kstat[k].count, Bytes: s.kstat[k].bytes, LastSeq: s.committed[k],
+			RemovedByAge: s.kstat[k].removedAge, RemovedBySize: s.kstat[k].removedSize}
+	}
+	cursors := map[streamKind]cursor{}
+	for sk, c := range s.cursors {
+		cursors[sk] = *c
+	}
+	s.mu.Unlock()
+
+	dbs := s.db.Stats()
+	st.WrittenBytes = dbs.TxStats.GetPageAlloc() + int64(s.commits)*int64(s.db.Info().PageSize)
+	err := s.view(func(tx *bolt.Tx) error {
+		st.UsedBytes = s.usedBytes(tx)
+		for _, k := range Kinds() {
+			ks := st.Kinds[k]
+			if key, _ := tx.Bucket(recBucket(k)).Cursor().First(); key != nil {
+				ks.FirstSeq = binary.BigEndian.Uint64(key)
+			}
+			c := tx.Bucket(timeBucket(k)).Cursor()
+			if key, _ := c.First(); key != nil {
+				ks.Oldest = time.UnixMicro(int64(binary.BigEndian.Uint64(key) ^ 1<<63)).UTC()
+			}
+			if key, _ := c.Last(); key != nil {
+				ks.Newest = time.UnixMicro(int64(binary.BigEndian.Uint64(key) ^ 1<<63)).UTC()
+			}
+			st.Kinds[k] = ks
+		}
+		return nil
+	})
+	if err != nil {
+		return st, err
+	}
+	for sk, c := range cursors {
+		ks := st.Kinds[sk.kind]
+		ss := StreamStats{Acked: c.acked, Dropped: c.dropped}
+		switch {
+		case ks.Count == 0 || c.acked >= ks.LastSeq:
+		case c.acked < ks.FirstSeq:
+			ss.Pending = ks.Count
+		default:
+			ss.Pending = min(ks.LastSeq-c.acked, ks.Count)
+		}
+		if st.Streams[sk.stream] == nil {
+			st.Streams[sk.stream] = map[Kind]StreamStats{}
+		}
+		st.Streams[sk.stream][sk.kind] = ss
+	}
+	if fi, err := os.Stat(s.path); err == nil {
+		st.FileBytes = fi.Size()
+	}
+	return st, nil
+}
+
+// Check verifies the store: bbolt's page-level consistency check, then that every record
+// decodes, that the time index and the records match one to one, and that the per-kind counts
+// agree. It reads the whole file. It returns nil or an error joining what it found (at most 20
+// problems).
+func (s *Store) Check() error {
+	s.mu.Lock()
+	closed := s.closed
+	s.mu.Unlock()
+	if closed {
+		return ErrClosed
+	}
+	return s.check()
+}
+
+func (s *Store) check() error {
+	var errs []error
+	add := func(err error) bool {
+		errs = append(errs, err)
+		return len(errs) < 20
+	}
+	err := s.view(func(tx *bolt.Tx) error {
+		for cerr := range tx.Check() {
+			if !add(fmt.Errorf("bbolt: %w", cerr)) {
+				return nil
+			}
+		}
+		if len(errs) > 0 {
+			return nil // the B+trees themselves are unsound: walking them could panic
+		}
+		for _, k := range Kinds() {
+			rb, tb := tx.Bucket(recBucket(k)), tx.Bucket(timeBucket(k))
+			if rb == nil || tb == nil {
+				add(fmt.Errorf("buckets of kind %s missing", k))
+				continue
+			}
+			var n uint64
+			times := map[uint64]uint64{}
+			err := rb.ForEach(func(key, v []byte) error {
+				n++
+				seq := binary.BigEndian.Uint64(key)
+				if seq > rb.Sequence() {
+					if !add(fmt.Errorf("%s record %d beyond the kind's sequence %d", k, seq, rb.Sequence())) {
+						return errStop
+					}
+				}
+				r, err := Decode(k, v)
+				if err != nil {
+					if !add(fmt.Errorf("%s record %d: %w", k, seq, err)) {
+						return errStop
+					}
+					return nil
+				}
+				times[seq] = timeKey(r.Time())
+				return nil
+			})
+			if err != nil {
+				return nil
+			}
+			var ni uint64
+			err = tb.ForEach(func(key, _ []byte) error {
+				ni++
+				if len(key) != 16 {
+					if !add(fmt.Errorf("%s time index key of %d bytes", k, len(key))) {
+						return errStop
+					}
+					return nil
+				}
+				tk, seq := binary.BigEndian.Uint64(key), binary.BigEndian.Uint64(key[8:])
+				want, ok := times[seq]
+				switch {
+				case !ok && rb.Get(seqKey(seq)) == nil:
+					if !add(fmt.Errorf("%s time index names record %d, which is missing", k, seq)) {
+						return errStop
+					}
+				case ok && want != tk:
+					if !add(fmt.Errorf("%s time index entry of record %d has the wrong time", k, seq)) {
+						return errStop
+					}
+				}
+				return nil
+			})
+			if err != nil {
+				return nil
+			}
+			if ni != n && !add(fmt.Errorf("%s: %d records but %d time index entries", k, n, ni)) {
+				return nil
+			}
+			s.mu.Lock()
+			want := s.kstat[k].count
+			s.mu.Unlock()
+			if want != n && !add(fmt.Errorf("%s: %d records but the counter says %d", k, n, want)) {
+				return nil
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	if len(errs) > 0 {
+		return fmt.Errorf("store %s: %w: %w", s.path, ErrDamaged, errors.Join(errs...))
+	}
+	return nil
+}
+
+var errStop = errors.New("stop")

@@ -1,0 +1,738 @@
+package buffer
+
+import (
+	"fmt"
+	"math"
+	"time"
+)
+
+// Record is one stored result. The concrete types are *Second, *Minute, *Event, *Calibration,
+// *Health, *Gap, *Annotation and *Session; the set is closed (a new kind is one type, one encoder
+// and one decoder in this package).
+type Record interface {
+	// Kind returns the record's kind.
+	Kind() Kind
+	// Seq returns the record's sequence number within its kind, or 0 before Append.
+	Seq() uint64
+	// Time returns the time the record is indexed under: the start of the interval it covers,
+	// or the moment it describes.
+	Time() time.Time
+	// AppendBinary appends the record's encoding (version byte first) to b.
+	AppendBinary(b []byte) ([]byte, error)
+
+	setSeq(uint64)
+}
+
+// header holds the sequence number that a store assigns; every record type embeds it.
+type header struct{ seq uint64 }
+
+func (h *header) Seq() uint64     { return h.seq }
+func (h *header) setSeq(s uint64) { h.seq = s }
+func checkTime(t time.Time) error {
+	if y := t.Year(); y < 1970 || y > 2200 {
+		return fmt.Errorf("time %s outside the years 1970 to 2200", t.Format(time.RFC3339))
+	}
+	return nil
+}
+
+// Second holds the results of one measurement interval, normally one second. Levels are in
+// decibels; NaN means no level (digital silence, or not measured). Stored levels keep 0.01 dB
+// resolution.
+type Second struct {
+	header
+	Start    time.Time     // start of the interval (stored in UTC, microsecond resolution)
+	Duration time.Duration // length of the interval: its sample count divided by the sample rate
+
+	LAeq, LCeq, LZeq float64
+	LAFmax, LAFmin   float64
+	LASmax, LASmin   float64
+	LAImax           float64
+	LCpeak, LZpeak   float64
+	LAE              float64
+
+	// Spectrum holds one-third-octave band levels LZeq; Spectrum[i] is the band with IEC
+	// 61260-1 band number FirstBand+i (band 0 is 1 kHz, band -19 is 12.5 Hz). Nil when the
+	// node does not compute spectra.
+	Spectrum  []float64
+	FirstBand int
+
+	Flags          Flags
+	DroppedSamples uint64 // samples lost in the interval (see the Dropped flag)
+}
+
+// Minute holds the statistics of one minute built from its Fast level samples.
+type Minute struct {
+	header
+	Start time.Time
+
+	LAeq, LCeq, LZeq float64
+	LAFmax, LAFmin   float64
+	// LAF1 ... LAF99: the A-weighted Fast level exceeded for N % of the minute.
+	LAF1, LAF5, LAF10, LAF50, LAF90, LAF95, LAF99 float64
+	LAE                                           float64
+	LCpeak                                        float64
+	LAImax                                        float64
+
+	Spectrum  []float64 // one-third-octave LZeq over the minute, as in Second
+	FirstBand int
+
+	// Histogram counts the minute's A-weighted Fast level samples in 0.1 dB bins, so that
+	// percentile levels over any period merge exactly.
+	Histogram LevelHistogram
+
+	ValidSeconds int // seconds of the minute that carried valid data (0 to 60)
+	Flags        Flags
+}
+
+// LevelHistogram counts level samples in 0.1 dB bins: Counts[i] is the number of samples with
+// levels in [k/10, (k+1)/10) dB, where k = First + i. It is stored with its zero ends trimmed and
+// runs of empty bins compressed.
+type LevelHistogram struct {
+	First  int32
+	Counts []uint32
+}
+
+// Total returns the number of samples counted.
+func (h LevelHistogram) Total() uint64 {
+	var n uint64
+	for _, c := range h.Counts {
+		n += uint64(c)
+	}
+	return n
+}
+
+// Merge returns the bin-by-bin sum of h and o (exact: percentiles of the merged histogram are
+// those of the pooled samples, to the bin).
+func (h LevelHistogram) Merge(o LevelHistogram) LevelHistogram {
+	if len(o.Counts) == 0 {
+		return LevelHistogram{First: h.First, Counts: append([]uint32(nil), h.Counts...)}
+	}
+	if len(h.Counts) == 0 {
+		return LevelHistogram{First: o.First, Counts: append([]uint32(nil), o.Counts...)}
+	}
+	lo := min(int64(h.First), int64(o.First))
+	hi := max(int64(h.First)+int64(len(h.Counts)), int64(o.First)+int64(len(o.Counts)))
+	out := LevelHistogram{First: int32(lo), Counts: make([]uint32, hi-lo)}
+	for i, c := range h.Counts {
+		out.Counts[int64(h.First)-lo+int64(i)] += c
+	}
+	for i, c := range o.Counts {
+		out.Counts[int64(o.First)-lo+int64(i)] += c
+	}
+	return out
+}
+
+// Event describes a noise event: a period in which the level passed the node's event trigger.
+type Event struct {
+	header
+	Start, End time.Time
+	LAFmax     float64
+	LAeq       float64
+	LAE        float64
+	LCpeak     float64
+	Spectrum   []float64 // one-third-octave LZeq over the event, as in Second
+	FirstBand  int
+	Flags      Flags
+}
+
+// Calibration records one check against a sound calibrator.
+type Calibration struct {
+	header
+	At                time.Time // when the check ended
+	Reference         float64   // the calibrator's stated level, dB
+	Measured          float64   // the level measured with the sensitivity in use before the check, dB
+	Deviation         float64   // Measured - Reference, dB
+	Frequency         float64   // the detected tone frequency, Hz
+	Stability         float64   // spread of the level during the check, dB
+	SensitivityBefore float64   // microphone sensitivity in use before the check, dBFS at 94 dB
+	SensitivityAfter  float64   // sensitivity in use after the check, dBFS at 94 dB
+	Applied           bool      // whether the new sensitivity was put into use
+	OK                bool      // whether the check passed
+	Flags             Flags
+}
+
+// Health is a snapshot of the node's condition. Float fields are NaN when not measured.
+// New fields may be added in later versions without breaking older files or older readers (the
+// encoding is tagged; unknown tags are skipped).
+type Health struct {
+	header
+	At                time.Time // when the snapshot was taken
+	Flags             Flags
+	Clipped           uint64  // clipped samples since the previous snapshot
+	DCOffset          float64 // DC offset as a fraction of full scale
+	Silent            bool    // the input was digital silence
+	Stuck             bool    // the input repeated one value
+	UnderRangeSeconds uint64  // seconds under the measuring range since the previous snapshot
+	DroppedSamples    uint64  // samples lost since the previous snapshot
+	QueueOverflows    uint64  // audio blocks lost to a full queue since the previous snapshot
+	CPU               float64 // process CPU use, percent of one core
+	MemoryMB          float64 // resident memory, MB
+	DiskFreeMB        float64 // free space on the store's file system, MB
+	StoreBytes        uint64  // size of the store file
+	ClockSynced       bool    // the system clock reports synchronisation
+	ClockErrorMs      float64 // estimated clock error, ms
+	TemperatureC      float64 // board temperature, °C
+}
+
+// Gap states that no data exists from From to To, and why (device lost, start after a crash,
+// clock step, ...), so that a report can tell silence from missing data.
+type Gap struct {
+	header
+	From, To time.Time
+	Reason   string
+}
+
+// Annotation records something learnt after the fact about the time range [From, To): the
+// flags apply, when reading, to every second, minute and event record overlapping the range.
+type Annotation struct {
+	header
+	From, To time.Time
+	Flags    Flags
+	Reason   string
+}
+
+// Session is written at every start and at every change of a setting that affects the numbers.
+type Session struct {
+	header
+	At              time.Time // when the session started or its settings changed
+	SoftwareVersion string
+	ConfigHash      string
+	SensitivityDBFS float64 // microphone sensitivity in use: dBFS for 94 dB at 1 kHz
+	SampleRate      int     // Hz
+	Device          string
+	TimeZone        string // IANA name of the node's configured zone, e.g. "Europe/Paris"
+}
+
+func (*Second) Kind() Kind      { return KindSecond }
+func (*Minute) Kind() Kind      { return KindMinute }
+func (*Event) Kind() Kind       { return KindEvent }
+func (*Calibration) Kind() Kind { return KindCalibration }
+func (*Health) Kind() Kind      { return KindHealth }
+func (*Gap) Kind() Kind         { return KindGap }
+func (*Annotation) Kind() Kind  { return KindAnnotation }
+func (*Session) Kind() Kind     { return KindSession }
+
+func (r *Second) Time() time.Time      { return r.Start }
+func (r *Minute) Time() time.Time      { return r.Start }
+func (r *Event) Time() time.Time       { return r.Start }
+func (r *Calibration) Time() time.Time { return r.At }
+func (r *Health) Time() time.Time      { return r.At }
+func (r *Gap) Time() time.Time         { return r.From }
+func (r *Annotation) Time() time.Time  { return r.From }
+func (r *Session) Time() time.Time     { return r.At }
+
+// NewRecord returns a new zero record of kind k.
+func NewRecord(k Kind) (Record, error) {
+	switch k {
+	case KindSecond:
+		return new(Second), nil
+	case KindMinute:
+		return new(Minute), nil
+	case KindEvent:
+		return new(Event), nil
+	case KindCalibration:
+		return new(Calibration), nil
+	case KindHealth:
+		return new(Health), nil
+	case KindGap:
+		return new(Gap), nil
+	case KindAnnotation:
+		return new(Annotation), nil
+	case KindSession:
+		return new(Session), nil
+	}
+	return nil, fmt.Errorf("unknown record kind %d", uint8(k))
+}
+
+// Decode decodes a record of kind k from data (as written by AppendBinary). A truncated or
+// garbled value gives an error wrapping ErrCorruptRecord; a value from a newer format version
+// gives an error wrapping ErrNewerRecord.
+func Decode(k Kind, data []byte) (Record, error) {
+	r, err := NewRecord(k)
+	if err != nil {
+		return nil, err
+	}
+	if err := r.(interface{ UnmarshalBinary([]byte) error }).UnmarshalBinary(data); err != nil {
+		return nil, err
+	}
+	return r, nil
+}
+
+func checkSpectrum(first int, s []float64) error {
+	if len(s) > 1000 {
+		return fmt.Errorf("spectrum of %d bands is too long (at most 1000)", len(s))
+	}
+	if first < -1000 || first > 1000 {
+		return fmt.Errorf("first band number %d out of range", first)
+	}
+	return nil
+}
+
+// Format versions of the record encodings.
+const (
+	secondVersion      = 1
+	minuteVersion      = 1
+	eventVersion       = 1
+	calibrationVersion = 1
+	healthVersion      = 1
+	gapVersion         = 1
+	annotationVersion  = 1
+	sessionVersion     = 1
+)
+
+// AppendBinary encodes r: version, flags, start, duration, the eleven levels (int16 centi-dB),
+// dropped samples, spectrum.
+func (r *Second) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.Start); err != nil {
+		return b, fmt.Errorf("second record: %w", err)
+	}
+	if err := checkSpectrum(r.FirstBand, r.Spectrum); err != nil {
+		return b, fmt.Errorf("second record: %w", err)
+	}
+	e := enc{b}
+	e.byte1(secondVersion)
+	e.flags(r.Flags)
+	e.time(r.Start)
+	e.dur(r.Duration)
+	for _, l := range [...]float64{r.LAeq, r.LCeq, r.LZeq, r.LAFmax, r.LAFmin, r.LASmax, r.LASmin, r.LAImax, r.LCpeak, r.LZpeak, r.LAE} {
+		e.level(l)
+	}
+	e.uvarint(r.DroppedSamples)
+	e.spectrum(r.FirstBand, r.Spectrum)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Second) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "second"}
+	d.version(secondVersion)
+	*r = Second{header: r.header}
+	r.Flags = d.flags()
+	r.Start = d.time()
+	r.Duration = d.dur()
+	for _, p := range [...]*float64{&r.LAeq, &r.LCeq, &r.LZeq, &r.LAFmax, &r.LAFmin, &r.LASmax, &r.LASmin, &r.LAImax, &r.LCpeak, &r.LZpeak, &r.LAE} {
+		*p = d.level()
+	}
+	r.DroppedSamples = d.uvarint()
+	r.FirstBand, r.Spectrum = d.spectrum()
+	return d.end()
+}
+
+func (r *Minute) levels() [15]*float64 {
+	return [...]*float64{&r.LAeq, &r.LCeq, &r.LZeq, &r.LAFmax, &r.LAFmin, &r.LAF1, &r.LAF5, &r.LAF10,
+		&r.LAF50, &r.LAF90, &r.LAF95, &r.LAF99, &r.LAE, &r.LCpeak, &r.LAImax}
+}
+
+// maxHistogramBins bounds a stored histogram: 0.1 dB bins over the whole storable level range.
+const maxHistogramBins = 2 * math.MaxInt16 / 10
+
+// AppendBinary encodes r: version, flags, start, valid seconds, fifteen levels, spectrum, then
+// the histogram with zero ends trimmed: first bin, bin count, and a run-length stream in which
+// uvarint(c<<1) is one bin of count c > 0 and uvarint(n<<1|1) is n empty bins.
+func (r *Minute) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.Start); err != nil {
+		return b, fmt.Errorf("minute record: %w", err)
+	}
+	if err := checkSpectrum(r.FirstBand, r.Spectrum); err != nil {
+		return b, fmt.Errorf("minute record: %w", err)
+	}
+	if r.ValidSeconds < 0 || r.ValidSeconds > 1<<20 {
+		return b, fmt.Errorf("minute record: valid seconds %d out of range", r.ValidSeconds)
+	}
+	counts, first := r.Histogram.Counts, int64(r.Histogram.First)
+	for len(counts) > 0 && counts[0] == 0 {
+		counts, first = counts[1:], first+1
+	}
+	for len(counts) > 0 && counts[len(counts)-1] == 0 {
+		counts = counts[:len(counts)-1]
+	}
+	if len(counts) > maxHistogramBins {
+		return b, fmt.Errorf("minute record: histogram of %d bins is too wide (at most %d)", len(counts), maxHistogramBins)
+	}
+	if len(counts) == 0 {
+		first = 0
+	}
+	e := enc{b}
+	e.byte1(minuteVersion)
+	e.flags(r.Flags)
+	e.time(r.Start)
+	e.uvarint(uint64(r.ValidSeconds))
+	for _, p := range r.levels() {
+		e.level(*p)
+	}
+	e.spectrum(r.FirstBand, r.Spectrum)
+	e.varint(first)
+	e.uvarint(uint64(len(counts)))
+	for i := 0; i < len(counts); {
+		if counts[i] != 0 {
+			e.uvarint(uint64(counts[i]) << 1)
+			i++
+			continue
+		}
+		j := i
+		for j < len(counts) && counts[j] == 0 {
+			j++
+		}
+		e.uvarint(uint64(j-i)<<1 | 1)
+		i = j
+	}
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Minute) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "minute"}
+	d.version(minuteVersion)
+	*r = Minute{header: r.header}
+	r.Flags = d.flags()
+	r.Start = d.time()
+	r.ValidSeconds = int(d.uvarint())
+	if r.ValidSeconds > 1<<20 {
+		d.fail("valid seconds out of range")
+	}
+	for _, p := range r.levels() {
+		*p = d.level()
+	}
+	r.FirstBand, r.Spectrum = d.spectrum()
+	first := d.varint()
+	n := d.uvarint()
+	if d.err == nil && (n > maxHistogramBins || first < math.MinInt32 || first+int64(n) > math.MaxInt32) {
+		d.fail("histogram bounds out of range")
+	}
+	if d.err == nil && n > 0 {
+		r.Histogram.First = int32(first)
+		r.Histogram.Counts = make([]uint32, n)
+		for i := uint64(0); i < n && d.err == nil; {
+			v := d.uvarint()
+			if v&1 == 0 {
+				if v>>1 > math.MaxUint32 || v == 0 {
+					d.fail("bad histogram count")
+					break
+				}
+				r.Histogram.Counts[i] = uint32(v >> 1)
+				i++
+				continue
+			}
+			run := v >> 1
+			if run == 0 || run > n-i {
+				d.fail("bad histogram run")
+				break
+			}
+			i += run
+		}
+	}
+	return d.end()
+}
+
+// AppendBinary encodes r: version, flags, start, length, four levels, spectrum.
+func (r *Event) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.Start); err != nil {
+		return b, fmt.Errorf("event record: %w", err)
+	}
+	if err := checkSpectrum(r.FirstBand, r.Spectrum); err != nil {
+		return b, fmt.Errorf("event record: %w", err)
+	}
+	if r.End.Before(r.Start) {
+		return b, fmt.Errorf("event record: end %s before start %s", r.End.Format(time.RFC3339Nano), r.Start.Format(time.RFC3339Nano))
+	}
+	e := enc{b}
+	e.byte1(eventVersion)
+	e.flags(r.Flags)
+	e.time(r.Start)
+	e.varint(r.End.UnixMicro() - r.Start.UnixMicro())
+	e.level(r.LAFmax)
+	e.level(r.LAeq)
+	e.level(r.LAE)
+	e.level(r.LCpeak)
+	e.spectrum(r.FirstBand, r.Spectrum)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Event) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "event"}
+	d.version(eventVersion)
+	*r = Event{header: r.header}
+	r.Flags = d.flags()
+	start := d.varint()
+	length := d.varint()
+	if d.err == nil && (length < 0 || start > math.MaxInt64-length) {
+		d.fail("bad event length")
+	}
+	r.Start, r.End = time.UnixMicro(start).UTC(), time.UnixMicro(start+length).UTC()
+	r.LAFmax = d.level()
+	r.LAeq = d.level()
+	r.LAE = d.level()
+	r.LCpeak = d.level()
+	r.FirstBand, r.Spectrum = d.spectrum()
+	return d.end()
+}
+
+// AppendBinary encodes r: version, flags, time, eight float64 values, a byte of booleans.
+func (r *Calibration) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.At); err != nil {
+		return b, fmt.Errorf("calibration record: %w", err)
+	}
+	e := enc{b}
+	e.byte1(calibrationVersion)
+	e.flags(r.Flags)
+	e.time(r.At)
+	for _, v := range [...]float64{r.Reference, r.Measured, r.Deviation, r.Frequency, r.Stability, r.SensitivityBefore, r.SensitivityAfter} {
+		e.float(v)
+	}
+	var bools byte
+	if r.Applied {
+		bools |= 1
+	}
+	if r.OK {
+		bools |= 2
+	}
+	e.byte1(bools)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Calibration) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "calibration"}
+	d.version(calibrationVersion)
+	*r = Calibration{header: r.header}
+	r.Flags = d.flags()
+	r.At = d.time()
+	for _, p := range [...]*float64{&r.Reference, &r.Measured, &r.Deviation, &r.Frequency, &r.Stability, &r.SensitivityBefore, &r.SensitivityAfter} {
+		*p = d.float()
+	}
+	bools := d.byte1()
+	if bools > 3 {
+		d.fail("bad boolean byte")
+	}
+	r.Applied, r.OK = bools&1 != 0, bools&2 != 0
+	return d.end()
+}
+
+// Health fields are tagged: each is uvarint(tag<<3 | wire) followed by its value, wire 0 a
+// uvarint and wire 1 a little-endian float64. Tags never change meaning; readers skip tags they
+// do not know, so a field added later is backward and forward compatible.
+const (
+	wireVarint = 0
+	wireFloat  = 1
+)
+
+// Health tags. Append only.
+const (
+	tagFlags = 1 + iota
+	tagClipped
+	tagDCOffset
+	tagSilent
+	tagStuck
+	tagUnderRange
+	tagDropped
+	tagQueueOverflows
+	tagCPU
+	tagMemory
+	tagDiskFree
+	tagStoreBytes
+	tagClockSynced
+	tagClockError
+	tagTemperature
+)
+
+func (r *Health) fields() (ints map[uint64]*uint64, bools map[uint64]*bool, floats map[uint64]*float64) {
+	return map[uint64]*uint64{tagClipped: &r.Clipped, tagUnderRange: &r.UnderRangeSeconds, tagDropped: &r.DroppedSamples,
+			tagQueueOverflows: &r.QueueOverflows, tagStoreBytes: &r.StoreBytes},
+		map[uint64]*bool{tagSilent: &r.Silent, tagStuck: &r.Stuck, tagClockSynced: &r.ClockSynced},
+		map[uint64]*float64{tagDCOffset: &r.DCOffset, tagCPU: &r.CPU, tagMemory: &r.MemoryMB, tagDiskFree: &r.DiskFreeMB,
+			tagClockError: &r.ClockErrorMs, tagTemperature: &r.TemperatureC}
+}
+
+// AppendBinary encodes r: version, time, the number of fields, then the tagged fields in tag
+// order; zero counts, false booleans and NaN floats are left out.
+func (r *Health) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.At); err != nil {
+		return b, fmt.Errorf("health record: %w", err)
+	}
+	f := enc{}
+	n := 0
+	ints, bools, floats := r.fields()
+	for tag := uint64(1); tag <= tagTemperature; tag++ {
+		switch {
+		case tag == tagFlags:
+			if r.Flags != 0 {
+				f.uvarint(tag<<3 | wireVarint)
+				f.uvarint(uint64(r.Flags))
+				n++
+			}
+		case ints[tag] != nil:
+			if *ints[tag] != 0 {
+				f.uvarint(tag<<3 | wireVarint)
+				f.uvarint(*ints[tag])
+				n++
+			}
+		case bools[tag] != nil:
+			if *bools[tag] {
+				f.uvarint(tag<<3 | wireVarint)
+				f.uvarint(1)
+				n++
+			}
+		case floats[tag] != nil:
+			if !math.IsNaN(*floats[tag]) {
+				f.uvarint(tag<<3 | wireFloat)
+				f.float(*floats[tag])
+				n++
+			}
+		}
+	}
+	e := enc{b}
+	e.byte1(healthVersion)
+	e.time(r.At)
+	e.uvarint(uint64(n))
+	e.b = append(e.b, f.b...)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version; fields it does
+// not know are skipped, fields absent from the value are zero (NaN for floats).
+func (r *Health) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "health"}
+	d.version(healthVersion)
+	*r = Health{header: r.header}
+	r.At = d.time()
+	ints, bools, floats := r.fields()
+	for _, p := range floats {
+		*p = math.NaN()
+	}
+	n := d.count(2)
+	for i := 0; i < n && d.err == nil; i++ {
+		key := d.uvarint()
+		tag, wire := key>>3, key&7
+		switch wire {
+		case wireVarint:
+			v := d.uvarint()
+			switch {
+			case tag == tagFlags:
+				if v > math.MaxUint32 {
+					d.fail("flags out of range")
+				}
+				r.Flags = Flags(v)
+			case ints[tag] != nil:
+				*ints[tag] = v
+			case bools[tag] != nil:
+				*bools[tag] = v != 0
+			case floats[tag] != nil:
+				d.fail("field %d has the wrong type", tag)
+			}
+		case wireFloat:
+			v := d.float()
+			if floats[tag] != nil {
+				*floats[tag] = v
+			} else if ints[tag] != nil || bools[tag] != nil || tag == tagFlags {
+				d.fail("field %d has the wrong type", tag)
+			}
+		default:
+			d.fail("unknown wire type %d", wire)
+		}
+	}
+	return d.end()
+}
+
+// AppendBinary encodes r: version, from, length, reason.
+func (r *Gap) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkRange("gap", r.From, r.To); err != nil {
+		return b, err
+	}
+	e := enc{b}
+	e.byte1(gapVersion)
+	e.time(r.From)
+	e.time(r.To)
+	e.str(r.Reason)
+	return e.b, nil
+}
+
+func checkRange(what string, from, to time.Time) error {
+	if err := checkTime(from); err != nil {
+		return fmt.Errorf("%s record: %w", what, err)
+	}
+	if err := checkTime(to); err != nil {
+		return fmt.Errorf("%s record: %w", what, err)
+	}
+	if to.Before(from) {
+		return fmt.Errorf("%s record: end %s before start %s", what, to.Format(time.RFC3339Nano), from.Format(time.RFC3339Nano))
+	}
+	return nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Gap) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "gap"}
+	d.version(gapVersion)
+	*r = Gap{header: r.header}
+	r.From = d.time()
+	r.To = d.time()
+	r.Reason = d.str()
+	return d.end()
+}
+
+// AppendBinary encodes r: version, flags, from, to, reason.
+func (r *Annotation) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkRange("annotation", r.From, r.To); err != nil {
+		return b, err
+	}
+	e := enc{b}
+	e.byte1(annotationVersion)
+	e.flags(r.Flags)
+	e.time(r.From)
+	e.time(r.To)
+	e.str(r.Reason)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Annotation) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "annotation"}
+	d.version(annotationVersion)
+	*r = Annotation{header: r.header}
+	r.Flags = d.flags()
+	r.From = d.time()
+	r.To = d.time()
+	r.Reason = d.str()
+	return d.end()
+}
+
+// AppendBinary encodes r: version, time, software version, config hash, sensitivity (float64),
+// sample rate, device, time zone.
+func (r *Session) AppendBinary(b []byte) ([]byte, error) {
+	if err := checkTime(r.At); err != nil {
+		return b, fmt.Errorf("session record: %w", err)
+	}
+	if r.SampleRate < 0 {
+		return b, fmt.Errorf("session record: negative sample rate %d", r.SampleRate)
+	}
+	e := enc{b}
+	e.byte1(sessionVersion)
+	e.time(r.At)
+	e.str(r.SoftwareVersion)
+	e.str(r.ConfigHash)
+	e.float(r.SensitivityDBFS)
+	e.uvarint(uint64(r.SampleRate))
+	e.str(r.Device)
+	e.str(r.TimeZone)
+	return e.b, nil
+}
+
+// UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
+func (r *Session) UnmarshalBinary(data []byte) error {
+	d := dec{b: data, what: "session"}
+	d.version(sessionVersion)
+	*r = Session{header: r.header}
+	r.At = d.time()
+	r.SoftwareVersion = d.str()
+	r.ConfigHash = d.str()
+	r.SensitivityDBFS = d.float()
+	rate := d.uvarint()
+	if rate > math.MaxInt32 {
+		d.fail("sample rate out of range")
+	}
+	r.SampleRate = int(rate)
+	r.Device = d.str()
+	r.TimeZone = d.str()
+	return d.end()
+}

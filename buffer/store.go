@@ -1,0 +1,659 @@
+package buffer
+
+import (
+	"bytes"
+	"crypto/rand"
+	"encoding/binary"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io/fs"
+	"os"
+	"path/filepath"
+	"slices"
+	"sync"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+	berrors "go.etcd.io/bbolt/errors"
+)
+
+// Errors returned by the store. Messages returned to callers wrap them and name the file.
+var (
+	// ErrLocked: another process (normally the running daemon) holds the file.
+	ErrLocked = errors.New("store is in use by another process")
+	// ErrReadOnly: a write on a store opened with OpenReadOnly.
+	ErrReadOnly = errors.New("store is open read-only")
+	// ErrClosed: a call on a closed store.
+	ErrClosed = errors.New("store is closed")
+	// ErrNotStore: the file is a bbolt database but not a leqnode store.
+	ErrNotStore = errors.New("not a leqnode store")
+	// ErrDamaged: the file cannot be read as a store.
+	ErrDamaged = errors.New("store file is damaged")
+)
+
+// formatVersion is the version of the bucket layout.
+const formatVersion = 1
+
+// Bucket layout:
+//
+//	meta           "id" → 16 hex digits, "created" → RFC 3339, "format" → one byte
+//	rec/<kind>     seq (8 bytes, big-endian) → encoded record; bucket sequence = last seq
+//	time/<kind>    timeKey (8) ‖ seq (8) → empty; timeKey = UnixMicro with the sign bit flipped
+//	kinds          kind (1) → count, bytes, removed by age, removed by size (4 × uint64)
+//	outbox         stream ‖ 0 ‖ kind → acknowledged seq, dropped count (2 × uint64)
+var (
+	bucketMeta   = []byte("meta")
+	bucketKinds  = []byte("kinds")
+	bucketOutbox = []byte("outbox")
+)
+
+func recBucket(k Kind) []byte  { return []byte("rec/" + k.String()) }
+func timeBucket(k Kind) []byte { return []byte("time/" + k.String()) }
+
+// fillPercent packs pages full: records and time keys are appended at the right edge of their
+// B+trees, so half-empty pages would only waste space and writes.
+const fillPercent = 1.0
+
+// retentionEvery is how often age retention runs inside a commit. Deleting a few expired records
+// at every commit would rewrite the head pages of each tree every time; deleting in batches
+// frees whole pages at once.
+const retentionEvery = 15 * time.Minute
+
+// maxDeletePerCommit bounds the deletions of one commit so that a commit after a long outage or a
+// clock jump stays short; the rest follows in later commits.
+const maxDeletePerCommit = 50000
+
+type kindStat struct {
+	count, bytes, removedAge, removedSize uint64
+}
+
+type streamKind struct {
+	stream string
+	kind   Kind
+}
+
+type cursor struct {
+	acked, dropped uint64
+	dirty          bool
+}
+
+// held is a record appended but not yet committed.
+type held struct {
+	kind  Kind
+	seq   uint64
+	tkey  uint64
+	value []byte
+}
+
+// Store is a ring buffer of records in one bbolt file. Its methods are safe for concurrent use.
+type Store struct {
+	mu       sync.Mutex
+	db       *bolt.DB
+	path     string
+	id       string
+	opts     Options
+	readOnly bool
+	closed   bool
+
+	held        []held
+	nextSeq     [KindSession + 1]uint64 // next sequence number to assign
+	committed   [KindSession + 1]uint64 // last committed sequence number
+	kstat       [KindSession + 1]kindStat
+	cursors     map[streamKind]*cursor
+	lastCommit  time.Time
+	lastRetain  time.Time
+	commits     uint64
+	commitErr   error
+	recovered   string
+	firstCommit bool
+}
+
+// Open opens the store at path for writing, creating it if needed. bbolt's exclusive lock keeps
+// other processes out until Close.
+//
+// A file that bbolt cannot open (or that fails the check of Options.CheckOnOpen) is renamed to
+// path.damaged-<UTC time stamp>, never deleted; a fresh store with a new identity is created in
+// its place, the error is logged, and Recovered returns the moved file's name. A file that is a
+// valid bbolt database but not a store is refused with ErrNotStore.
+func Open(path string, opts *Options) (*Store, error) {
+	o := opts.resolved()
+	s := &Store{path: path, opts: o, cursors: map[streamKind]*cursor{}, firstCommit: true}
+	err := s.open()
+	if err != nil && errors.Is(err, ErrDamaged) {
+		moved, merr := moveAside(path, o.Now())
+		if merr != nil {
+			return nil, fmt.Errorf("store %s is damaged (%v) and could not be moved aside: %w", path, err, merr)
+		}
+		o.Logger.Error("store file damaged: moved aside, starting a fresh store",
+			"path", path, "moved_to", moved, "err", err)
+		s.recovered = moved
+		err = s.open()
+	}
+	if err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+// OpenReadOnly opens the store at path for reading, waiting at most timeout (0 means
+// DefaultLockTimeout) for a writer to release it. When the daemon holds the file, the error wraps
+// ErrLocked and says, in one line, to read through the daemon's control socket instead.
+// A damaged file is reported (ErrDamaged) and left alone.
+func OpenReadOnly(path string, timeout time.Duration) (*Store, error) {
+	o := (&Options{LockTimeout: timeout}).resolved()
+	if _, err := os.Stat(path); err != nil {
+		if errors.Is(err, fs.ErrNotExist) {
+			return nil, fmt.Errorf("no store at %s: check the path given with --db or the store path in the config", path)
+		}
+		return nil, fmt.Errorf("store %s: %w", path, err)
+	}
+	s := &Store{path: path, opts: o, cursors: map[streamKind]*cursor{}, readOnly: true}
+	if err := s.open(); err != nil {
+		return nil, err
+	}
+	return s, nil
+}
+
+// open opens the bbolt file and loads or creates the store's state.
+func (s *Store) open() (err error) {
+	bo := &bolt.Options{
+		Timeout:        s.opts.LockTimeout,
+		ReadOnly:       s.readOnly,
+		FreelistType:   bolt.FreelistMapType,
+		NoFreelistSync: !s.opts.SyncFreelist,
+		NoSync:         s.opts.NoSync,
+	}
+	defer func() {
+		if p := recover(); p != nil {
+			if s.db != nil {
+				_ = s.db.Close()
+				s.db = nil
+			}
+			err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, p)
+		}
+	}()
+	db, err := bolt.Open(s.path, 0o600, bo)
+	if err != nil {
+		switch {
+		case errors.Is(err, berrors.ErrTimeout):
+			if s.readOnly {
+				return fmt.Errorf("store %s is held by the running leqnode daemon: read it through the daemon's control socket (give --config) or stop the daemon: %w", s.path, ErrLocked)
+			}
+			return fmt.Errorf("store %s is held by another process (a leqnode daemon already running?): stop it first: %w", s.path, ErrLocked)
+		case errors.Is(err, berrors.ErrInvalid), errors.Is(err, berrors.ErrVersionMismatch),
+			errors.Is(err, berrors.ErrChecksum), isFormatError(err):
+			if s.readOnly {
+				return fmt.Errorf("store %s is damaged (%v): the daemon moves it aside at its next start: %w", s.path, err, ErrDamaged)
+			}
+			return fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, err)
+		}
+		return fmt.Errorf("store %s: %w", s.path, err)
+	}
+	s.db = db
+	if s.readOnly {
+		err = db.View(s.load)
+	} else {
+		err = db.Update(s.init)
+		if err == nil {
+			err = db.View(s.load)
+		}
+		if err == nil && s.opts.CheckOnOpen {
+			if cerr := s.check(); cerr != nil {
+				err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, cerr)
+			}
+		}
+	}
+	if err != nil {
+		_ = db.Close()
+		s.db = nil
+		return err
+	}
+	s.lastCommit = s.opts.Now()
+	return nil
+}
+
+// isFormatError reports whether an error from bolt.Open is about the file's content rather than
+// the operating system (a missing directory, a permission).
+func isFormatError(err error) bool {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		return false
+	}
+	var se *os.SyscallError
+	return !errors.As(err, &se)
+}
+
+// init creates the buckets of a new store, or checks that an existing file is a store.
+func (s *Store) init(tx *bolt.Tx) error {
+	if tx.Bucket(bucketMeta) == nil {
+		empty := true
+		_ = tx.ForEach(func([]byte, *bolt.Bucket) error { empty = false; return nil })
+		if !empty {
+			return fmt.Errorf("%s holds a bbolt database that is %w: give the path of a leqnode store", s.path, ErrNotStore)
+		}
+		meta, err := tx.CreateBucket(bucketMeta)
+		if err != nil {
+			return err
+		}
+		var id [8]byte
+		if _, err := rand.Read(id[:]); err != nil {
+			return fmt.Errorf("making a store id: %w", err)
+		}
+		_ = meta.Put([]byte("id"), []byte(hex.EncodeToString(id[:])))
+		_ = meta.Put([]byte("created"), []byte(s.opts.Now().UTC().Format(time.RFC3339)))
+		_ = meta.Put([]byte("format"), []byte{formatVersion})
+	}
+	meta := tx.Bucket(bucketMeta)
+	if f := meta.Get([]byte("format")); len(f) != 1 || f[0] > formatVersion {
+		return fmt.Errorf("store %s has layout version %v, this build reads version %d: upgrade leqnode", s.path, f, formatVersion)
+	}
+	for _, name := range [][]byte{bucketKinds, bucketOutbox} {
+		if _, err := tx.CreateBucketIfNotExists(name); err != nil {
+			return err
+		}
+	}
+	for _, k := range Kinds() {
+		if _, err := tx.CreateBucketIfNotExists(recBucket(k)); err != nil {
+			return err
+		}
+		if _, err := tx.CreateBucketIfNotExists(timeBucket(k)); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// load reads the store's identity, sequence numbers, counters and cursors.
+func (s *Store) load(tx *bolt.Tx) error {
+	meta := tx.Bucket(bucketMeta)
+	if meta == nil {
+		return fmt.Errorf("%s holds a bbolt database that is %w: give the path of a leqnode store", s.path, ErrNotStore)
+	}
+	s.id = string(meta.Get([]byte("id")))
+	for _, k := range Kinds() {
+		if b := tx.Bucket(recBucket(k)); b != nil {
+			s.committed[k] = b.Sequence()
+		}
+		s.nextSeq[k] = s.committed[k] + 1
+	}
+	if b := tx.Bucket(bucketKinds); b != nil {
+		_ = b.ForEach(func(k, v []byte) error {
+			if len(k) == 1 && Kind(k[0]).Valid() && len(v) == 32 {
+				s.kstat[k[0]] = kindStat{
+					count: binary.BigEndian.Uint64(v), bytes: binary.BigEndian.Uint64(v[8:]),
+					removedAge: binary.BigEndian.Uint64(v[16:]), removedSize: binary.BigEndian.Uint64(v[24:]),
+				}
+			}
+			return nil
+		})
+	}
+	if b := tx.Bucket(bucketOutbox); b != nil {
+		_ = b.ForEach(func(k, v []byte) error {
+			i := bytes.IndexByte(k, 0)
+			if i < 0 || i+2 != len(k) || len(v) != 16 {
+				return nil
+			}
+			s.cursors[streamKind{string(k[:i]), Kind(k[i+1])}] = &cursor{
+				acked: binary.BigEndian.Uint64(v), dropped: binary.BigEndian.Uint64(v[8:]),
+			}
+			return nil
+		})
+	}
+	return nil
+}
+
+// moveAside renames a damaged file to path.damaged-<time stamp> and syncs the directory.
+func moveAside(path string, now time.Time) (string, error) {
+	base := path + ".damaged-" + now.UTC().Format("20060102T150405Z")
+	dst := base
+	for i := 1; ; i++ {
+		if _, err := os.Lstat(dst); errors.Is(err, fs.ErrNotExist) {
+			break
+		}
+		dst = fmt.Sprintf("%s-%d", base, i)
+	}
+	if err := os.Rename(path, dst); err != nil {
+		return "", err
+	}
+	return dst, syncDir(filepath.Dir(path))
+}
+
+// syncDir fsyncs a directory so that a rename in it survives a power cut.
+func syncDir(dir string) error {
+	d, err := os.Open(dir)
+	if err != nil {
+		return err
+	}
+	err = d.Sync()
+	if cerr := d.Close(); err == nil {
+		err = cerr
+	}
+	return err
+}
+
+// ID returns the store's identity: 16 hex digits made at random when the store was created.
+func (s *Store) ID() string { return s.id }
+
+// Path returns the file's path.
+func (s *Store) Path() string { return s.path }
+
+// Recovered returns the path a damaged file was moved to when this Open replaced it with a
+// fresh store, or "" when the file opened normally. A node raises a health flag on it.
+func (s *Store) Recovered() string { return s.recovered }
+
+func seqKey(seq uint64) []byte {
+	var b [8]byte
+	binary.BigEndian.PutUint64(b[:], seq)
+	return b[:]
+}
+
+func timeKey(t time.Time) uint64 { return uint64(t.UnixMicro()) ^ 1<<63 }
+
+func indexKey(tkey, seq uint64) []byte {
+	var b [16]byte
+	binary.BigEndian.PutUint64(b[:], tkey)
+	binary.BigEndian.PutUint64(b[8:], seq)
+	return b[:]
+}
+
+// Append assigns rec the next sequence number of its kind, holds it in memory, and commits the
+// held records when a commit is due: on the first record after Open, when CommitInterval has
+// passed since the last commit, or when MaxHeld records are held. It returns the sequence
+// number, which is final once the record is committed (a record lost in a crash before its
+// commit leaves its number to the next record).
+//
+// The record is encoded at once; rec is not retained and may be reused. When a due commit fails
+// the record stays held and the error is returned; the commit is retried on later calls, and
+// once MaxHeld records are held, Append refuses new ones.
+func (s *Store) Append(rec Record) (seq uint64, err error) {
+	k := rec.Kind()
+	value, err := rec.AppendBinary(nil)
+	if err != nil {
+		return 0, err
+	}
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if err := s.writable(); err != nil {
+		return 0, err
+	}
+	if len(s.held) >= s.opts.MaxHeld && s.commitErr != nil {
+		if err := s.commit(); err != nil {
+			return 0, fmt.Errorf("store %s: %d records held and commits failing, record refused: %w", s.path, len(s.held), err)
+		}
+	}
+	seq = s.nextSeq[k]
+	s.nextSeq[k]++
+	rec.setSeq(seq)
+	s.held = append(s.held, held{kind: k, seq: seq, tkey: timeKey(rec.Time()), value: value})
+	return seq, s.maybeCommit()
+}
+
+func (s *Store) writable() error {
+	if s.closed {
+		return ErrClosed
+	}
+	if s.readOnly {
+		return fmt.Errorf("store %s: %w", s.path, ErrReadOnly)
+	}
+	return nil
+}
+
+// maybeCommit commits when a commit is due. The caller holds s.mu.
+func (s *Store) maybeCommit() error {
+	if s.firstCommit && len(s.held) > 0 || len(s.held) >= s.opts.MaxHeld ||
+		s.opts.Now().Sub(s.lastCommit) >= s.opts.CommitInterval {
+		return s.commit()
+	}
+	return nil
+}
+
+// Flush commits the held records and acknowledgements now.
+func (s *Store) Flush() error {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if s.closed {
+		return ErrClosed
+	}
+	if s.readOnly {
+		return nil
+	}
+	return s.commit()
+}
+
+// Close flushes and closes the store. The store cannot be used afterwards.
+func (s *Store) Close() error {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if s.closed {
+		return nil
+	}
+	var err error
+	if !s.readOnly {
+		err = s.commit()
+	}
+	s.closed = true
+	if cerr := s.db.Close(); err == nil {
+		err = cerr
+	}
+	return err
+}
+
+func (s *Store) dirtyCursors() bool {
+	for _, c := range s.cursors {
+		if c.dirty {
+			return true
+		}
+	}
+	return false
+}
+
+// commit writes the held records, the dirty cursors and the counters in one transaction, and
+// applies retention. The caller holds s.mu.
+func (s *Store) commit() error {
+	now := s.opts.Now()
+	retain := now.Sub(s.lastRetain) >= retentionEvery || s.lastRetain.IsZero()
+	if len(s.held) == 0 && !s.dirtyCursors() && !retain {
+		s.lastCommit = now
+		return nil
+	}
+	// Counters are updated on copies so that a failed commit leaves the memory state intact.
+	kstat := s.kstat
+	cursors := make(map[streamKind]cursor, len(s.cursors))
+	for sk, c := range s.cursors {
+		cursors[sk] = *c
+	}
+	var last [KindSession + 1]uint64
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		for _, h := range s.held {
+			rb, tb := tx.Bucket(recBucket(h.kind)), tx.Bucket(timeBucket(h.kind))
+			rb.FillPercent, tb.FillPercent = fillPercent, fillPercent
+			if err := rb.Put(seqKey(h.seq), h.value); err != nil {
+				return err
+			}
+			if err := tb.Put(indexKey(h.tkey, h.seq), nil); err != nil {
+				return err
+			}
+			kstat[h.kind].count++
+			kstat[h.kind].bytes += uint64(len(h.value))
+			last[h.kind] = h.seq
+		}
+		for _, k := range Kinds() {
+			if last[k] != 0 {
+				if err := tx.Bucket(recBucket(k)).SetSequence(last[k]); err != nil {
+					return err
+				}
+			}
+		}
+		if retain {
+			if err := s.retainByAge(tx, now, &kstat, cursors); err != nil {
+				return err
+			}
+		}
+		if err := s.retainBySize(tx, &kstat, cursors); err != nil {
+			return err
+		}
+		kb := tx.Bucket(bucketKinds)
+		for _, k := range Kinds() {
+			if kstat[k] == s.kstat[k] {
+				continue
+			}
+			v := make([]byte, 32)
+			binary.BigEndian.PutUint64(v, kstat[k].count)
+			binary.BigEndian.PutUint64(v[8:], kstat[k].bytes)
+			binary.BigEndian.PutUint64(v[16:], kstat[k].removedAge)
+			binary.BigEndian.PutUint64(v[24:], kstat[k].removedSize)
+			if err := kb.Put([]byte{byte(k)}, v); err != nil {
+				return err
+			}
+		}
+		ob := tx.Bucket(bucketOutbox)
+		for sk, c := range cursors {
+			if !c.dirty {
+				continue
+			}
+			v := make([]byte, 16)
+			binary.BigEndian.PutUint64(v, c.acked)
+			binary.BigEndian.PutUint64(v[8:], c.dropped)
+			if err := ob.Put(outboxKey(sk), v); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		if s.commitErr == nil {
+			s.opts.Logger.Error("store commit failed; records held for the next attempt", "path", s.path, "held", len(s.held), "err", err)
+		}
+		s.commitErr = err
+		return fmt.Errorf("store %s: commit: %w", s.path, err)
+	}
+	s.commitErr = nil
+	s.kstat = kstat
+	for sk, c := range cursors {
+		c.dirty = false
+		s.cursors[sk] = &c
+	}
+	for _, k := range Kinds() {
+		if last[k] != 0 {
+			s.committed[k] = last[k]
+		}
+	}
+	s.held = s.held[:0]
+	s.lastCommit = now
+	if retain {
+		s.lastRetain = now
+	}
+	s.firstCommit = false
+	s.commits++
+	return nil
+}
+
+func outboxKey(sk streamKind) []byte {
+	return append(append([]byte(sk.stream), 0), byte(sk.kind))
+}
+
+// deleteRecord removes one record found through its time-index entry and counts it as dropped
+// for every stream that has not acknowledged it. It returns the bytes its value took.
+func deleteRecord(tx *bolt.Tx, k Kind, ikey []byte, cursors map[streamKind]cursor) (int, error) {
+	seq := binary.BigEndian.Uint64(ikey[8:])
+	rb := tx.Bucket(recBucket(k))
+	n := len(rb.Get(seqKey(seq)))
+	if err := rb.Delete(seqKey(seq)); err != nil {
+		return 0, err
+	}
+	if err := tx.Bucket(timeBucket(k)).Delete(ikey); err != nil {
+		return 0, err
+	}
+	for sk, c := range cursors {
+		if sk.kind == k && c.acked < seq {
+			c.dropped++
+			c.dirty = true
+			cursors[sk] = c
+		}
+	}
+	return n, nil
+}
+
+// retainByAge deletes the records whose time is older than their kind's retention.
+func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
+	budget := maxDeletePerCommit
+	for _, k := range Kinds() {
+		keep := s.opts.Retention[k]
+		if keep < 0 {
+			continue
+		}
+		cut := timeKey(now.Add(-keep))
+		c := tx.Bucket(timeBucket(k)).Cursor()
+		for ik, _ := c.First(); ik != nil && budget > 0; ik, _ = c.First() {
+			if binary.BigEndian.Uint64(ik) >= cut {
+				break
+			}
+			n, err := deleteRecord(tx, k, slices.Clone(ik), cursors)
+			if err != nil {
+				return err
+			}
+			kstat[k].count--
+			kstat[k].bytes -= uint64(n)
+			kstat[k].removedAge++
+			budget--
+		}
+	}
+	return nil
+}
+
+// Cap thresholds as fractions of MaxBytes: deletion starts above capHigh and goes down to capLow.
+const (
+	capHigh = 0.90
+	capLow  = 0.85
+	// recordOverhead approximates the B+tree bytes a record costs beyond its value: the 8-byte
+	// key and 16-byte element header in its bucket, the 16-byte key and header in the index.
+	recordOverhead = 8 + 16 + 16 + 16
+)
+
+// usedBytes is the space the data occupies: the file's high-water mark less its free pages.
+func (s *Store) usedBytes(tx *bolt.Tx) int64 {
+	return tx.Size() - int64(s.db.Stats().FreeAlloc)
+}
+
+// retainBySize deletes the oldest records, kinds with the shortest retention first, when the used
+// space passes capHigh of MaxBytes, until the estimate of freed space brings it to capLow.
+func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
+	used := s.usedBytes(tx)
+	if float64(used) <= capHigh*float64(s.opts.MaxBytes) {
+		return nil
+	}
+	need := used - int64(capLow*float64(s.opts.MaxBytes))
+	order := Kinds()
+	slices.SortStableFunc(order, func(a, b Kind) int {
+		ra, rb := s.opts.Retention[a], s.opts.Retention[b]
+		if ra < 0 {
+			ra = 1<<63 - 1
+		}
+		if rb < 0 {
+			rb = 1<<63 - 1
+		}
+		return int(min(max(ra-rb, -1), 1))
+	})
+	budget := maxDeletePerCommit
+	var freed int64
+	for _, k := range order {
+		c := tx.Bucket(timeBucket(k)).Cursor()
+		for ik, _ := c.First(); ik != nil && freed < need && budget > 0; ik, _ = c.First() {
+			n, err := deleteRecord(tx, k, slices.Clone(ik), cursors)
+			if err != nil {
+				return err
+			}
+			// Pages are not packed perfectly: count a little more than the bytes removed.
+			freed += int64(float64(n+recordOverhead) * 1.1)
+			kstat[k].count--
+			kstat[k].bytes -= uint64(n)
+			kstat[k].removedSize++
+			budget--
+		}
+		if freed >= need || budget == 0 {
+			break
+		}
+	}
+	return nil
+}
