@@ -1,0 +1,119 @@
+package dsp
+
+import "math"
+
+// Peak detection between samples. A sampled signal's largest sample can miss the true peak of
+// the band-limited waveform by up to 20 lg cos(π f/fs): 1.25 dB for an 8 kHz cycle at 48 kHz.
+// peakDetector reconstructs the waveform at four points per sample period with a polyphase
+// windowed-sinc interpolator (the true-peak method of oversampling, as audio metering practice
+// does it) and keeps the largest magnitude.
+//
+// To stay cheap, the interpolator runs only around samples that could beat the running maximum:
+// between two samples the band-limited waveform cannot exceed the larger of them by more than a
+// bounded factor, so samples below half the current maximum (-6 dB) are skipped.
+const (
+	peakPhases  = 4  // interpolation points per sample period
+	peakHalfLen = 8  // taps on each side of the interpolation point
+	peakTaps    = 16 // taps per phase (2·peakHalfLen)
+)
+
+// peakDetector holds the last peakTaps-1 samples and the interval's peak magnitude.
+//
+// Samples are examined in pairs (s0, s1) of neighbours; the pair whose s0 is sample i is examined
+// when sample i+peakHalfLen arrives, so that the interpolator has its look-ahead. A peak is
+// therefore attributed to the interval that holds the sample peakHalfLen periods after it
+// (0.17 ms at 48 kHz), whatever the block sizes.
+type peakDetector struct {
+	coef [peakPhases - 1][peakTaps]float64 // phases 1/4, 2/4, 3/4
+	win  [peakTaps - 1 + chunk]float64     // history, then the current chunk
+	max  float64                           // largest magnitude found in the current interval
+}
+
+// newPeakDetector designs the interpolator: a Kaiser-windowed sinc (β = 8), each phase
+// normalised to unit gain at 0 Hz.
+func newPeakDetector() peakDetector {
+	var d peakDetector
+	const beta = 8.0
+	i0b := besselI0(beta)
+	for p := 1; p < peakPhases; p++ {
+		frac := float64(p) / peakPhases
+		var sum float64
+		for j := 0; j < peakTaps; j++ {
+			// Tap j multiplies sample n-(peakTaps-1)+j, where n is the newest sample; the
+			// interpolation point lies frac after sample n-peakHalfLen, so tap j sits t periods
+			// from it.
+			t := float64(j-(peakTaps-1-peakHalfLen)) - frac
+			w := t / float64(peakHalfLen)
+			win := 0.0
+			if w > -1 && w < 1 {
+				win = besselI0(beta*math.Sqrt(1-w*w)) / i0b
+			}
+			c := sinc(t) * win
+			d.coef[p-1][j] = c
+			sum += c
+		}
+		for j := range d.coef[p-1] {
+			d.coef[p-1][j] /= sum
+		}
+	}
+	return d
+}
+
+// process examines a chunk of at most chunk samples.
+func (d *peakDetector) process(x []float64) {
+	const h = peakTaps - 1
+	n := len(x)
+	w := d.win[:h+n]
+	copy(w[h:], x)
+	// The pair starting at w[j] uses w[j-(peakTaps-1-peakHalfLen) : j+peakHalfLen+1];
+	// with h samples of history, j runs from lo to lo+n-1.
+	const lo = peakTaps - 1 - peakHalfLen
+	m := d.max
+	for _, v := range w[lo+1 : lo+n+1] { // the second sample of every pair
+		m = max(m, math.Abs(v))
+	}
+	gate := m / 2
+	for j := lo; j < lo+n; j++ {
+		if math.Abs(w[j]) < gate && math.Abs(w[j+1]) < gate {
+			continue
+		}
+		seg := w[j-lo : j-lo+peakTaps]
+		for p := range d.coef {
+			c := &d.coef[p]
+			var y float64
+			for k, v := range seg {
+				y += c[k] * v
+			}
+			m = max(m, math.Abs(y))
+		}
+	}
+	d.max = m
+	copy(d.win[:h], w[n:])
+}
+
+// take returns the interval's peak magnitude and starts a new interval.
+func (d *peakDetector) take() float64 {
+	m := d.max
+	d.max = 0
+	return m
+}
+
+func sinc(x float64) float64 {
+	if x == 0 {
+		return 1
+	}
+	return math.Sin(math.Pi*x) / (math.Pi * x)
+}
+
+// besselI0 is the modified Bessel function of the first kind, order 0 (power series).
+func besselI0(x float64) float64 {
+	sum, term := 1.0, 1.0
+	for k := 1; k < 50; k++ {
+		term *= (x / (2 * float64(k))) * (x / (2 * float64(k)))
+		sum += term
+		if term < sum*1e-17 {
+			break
+		}
+	}
+	return sum
+}
