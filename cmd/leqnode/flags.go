@@ -1,0 +1,53 @@
+package main
+
+import (
+	"errors"
+	"flag"
+	"fmt"
+	"io"
+	"strings"
+)
+
+// newFlags returns a flag set for a subcommand whose errors and help go to w.
+func newFlags(name, usage string, w io.Writer) *flag.FlagSet {
+	fs := flag.NewFlagSet(name, flag.ContinueOnError)
+	fs.SetOutput(w)
+	fs.Usage = func() {
+		fmt.Fprintf(w, "usage: leqnode %s %s\n", name, usage)
+		fs.PrintDefaults()
+	}
+	return fs
+}
+
+// parseFlags parses flags and positional arguments in any order ("FILE --format csv" and
+// "--format csv FILE" alike); "--" ends the flags. A flag error is a usage error.
+func parseFlags(fs *flag.FlagSet, args []string) ([]string, error) {
+	var pos []string
+	for {
+		if err := fs.Parse(args); err != nil {
+			if errors.Is(err, flag.ErrHelp) {
+				return nil, errHelpShown
+			}
+			return nil, usageError{err}
+		}
+		rest := fs.Args()
+		if len(rest) == 0 {
+			return pos, nil
+		}
+		if len(args) > 0 && len(rest) < len(args) && args[len(args)-len(rest)-1] == "--" {
+			return append(pos, rest...), nil
+		}
+		pos = append(pos, rest[0])
+		args = rest[1:]
+	}
+}
+
+// oneOf checks that v is one of the allowed values of flag name.
+func oneOf(name, v string, allowed ...string) error {
+	for _, a := range allowed {
+		if v == a {
+			return nil
+		}
+	}
+	return badInput("--%s %q is not allowed: use one of %s", name, v, strings.Join(allowed, ", "))
+}
