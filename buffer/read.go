@@ -58,7 +58,29 @@ func (s *Store) Pending(stream string, k Kind, limit int) ([]Record, error) {
 	}
 	after, upto := c.acked, s.committed[k]
 	s.mu.Unlock()
+	return s.after(k, after, upto, limit)
+}
 
+// After returns up to limit committed records of kind k with sequence numbers greater than seq,
+// in sequence order, as copies. It moves no cursor.
+func (s *Store) After(k Kind, seq uint64, limit int) ([]Record, error) {
+	if !k.Valid() {
+		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return nil, ErrClosed
+	}
+	upto := s.committed[k]
+	s.mu.Unlock()
+	if limit <= 0 {
+		return nil, nil
+	}
+	return s.after(k, seq, upto, limit)
+}
+
+func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
 	var out []Record
 	err := s.view(func(tx *bolt.Tx) error {
 		cur := tx.Bucket(recBucket(k)).Cursor()

@@ -11,7 +11,8 @@ import (
 
 var t0 = time.Date(2026, 5, 4, 12, 0, 0, 0, time.UTC)
 
-// thirdOctave returns n band levels starting at 12.5 Hz (IEC 61260-1 band number -19).
+// thirdOctave returns n band levels starting at 12.5 Hz (IEC 61260-1 band number -19); 33 bands
+// reach 20 kHz (band 13).
 func thirdOctave(n int, base float64) []float64 {
 	s := make([]float64, n)
 	for i := range s {

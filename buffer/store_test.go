@@ -53,7 +53,7 @@ func openTest(t testing.TB, path string, o *Options) *Store {
 func second(start time.Time, laeq float64) *Second {
 	return &Second{Start: start, Duration: time.Second, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9,
 		LAFmax: laeq + 4, LAFmin: laeq - 4, LASmax: laeq + 2, LASmin: laeq - 2, LAImax: laeq + 5,
-		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: thirdOctave(36, laeq-30), FirstBand: -19}
+		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: thirdOctave(33, laeq-30), FirstBand: -19}
 }
 
 func collect(t testing.TB, s *Store, k Kind, from, to time.Time) []Record {

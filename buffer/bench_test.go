@@ -1,0 +1,282 @@
+package buffer
+
+import (
+	"bufio"
+	"fmt"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"testing"
+	"time"
+)
+
+// Benchmarks. `make test` runs each once on small data; the sizes grow with environment
+// variables for the figures in the README:
+//
+//	LEQNODE_BENCH_RECORDS  stored records for BenchmarkAppend's large case (default 100000)
+//	LEQNODE_BENCH_DAYS     days of second records for BenchmarkRange and BenchmarkWriteVolume
+//	                       (default 0.25)
+//
+// Stores live under /var/tmp (a disk file system here, unlike a tmpfs /tmp) so that the
+// write-volume figures include real fsyncs and block-layer writes.
+
+func envFloat(b *testing.B, name string, def float64) float64 {
+	v := os.Getenv(name)
+	if v == "" {
+		return def
+	}
+	f, err := strconv.ParseFloat(v, 64)
+	if err != nil || f <= 0 {
+		b.Fatalf("%s=%q: give a positive number", name, v)
+	}
+	return f
+}
+
+func benchDir(b *testing.B) string {
+	dir, err := os.MkdirTemp("/var/tmp", "leqnode-bench-")
+	if err != nil {
+		return b.TempDir()
+	}
+	b.Cleanup(func() { os.RemoveAll(dir) })
+	return dir
+}
+
+// minuteRecord is a realistic minute record: spectrum and a 25 dB wide Fast level histogram.
+func minuteRecord(start time.Time, laeq float64) *Minute {
+	m := &Minute{Start: start, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9, LAFmax: laeq + 12, LAFmin: laeq - 8,
+		LAF1: laeq + 9, LAF5: laeq + 6, LAF10: laeq + 4, LAF50: laeq - 1, LAF90: laeq - 5, LAF95: laeq - 6,
+		LAF99: laeq - 7, LAE: laeq + 17.8, LCpeak: laeq + 30, LAImax: laeq + 14,
+		Spectrum: thirdOctave(33, laeq-30), FirstBand: -19, ValidSeconds: 60}
+	m.Histogram.First = int32(10 * (laeq - 9))
+	m.Histogram.Counts = make([]uint32, 250)
+	for i := range m.Histogram.Counts {
+		x := float64(i-120) / 40
+		m.Histogram.Counts[i] = uint32(6000 / 100 * math.Exp(-x*x))
+	}
+	return m
+}
+
+func healthRecord(at time.Time) *Health {
+	return &Health{At: at, CPU: 7.5, MemoryMB: 28, DiskFreeMB: 12000, StoreBytes: 1 << 28, ClockSynced: true,
+		ClockErrorMs: 0.4, TemperatureC: 48, DCOffset: 0.001}
+}
+
+// fill writes the given duration of node output (a second record per second, a minute and a
+// health record per minute) with fsync off and large commits.
+func fill(b *testing.B, s *Store, start time.Time, d time.Duration, spectra bool) {
+	b.Helper()
+	n := int(d / time.Second)
+	for i := range n {
+		t := start.Add(time.Duration(i) * time.Second)
+		r := second(t, 45+float64(i%2000)/100)
+		if !spectra {
+			r.Spectrum = nil
+		}
+		if _, err := s.Append(r); err != nil {
+			b.Fatal(err)
+		}
+		if i%60 == 59 {
+			m := minuteRecord(t.Add(-59*time.Second), 50)
+			if !spectra {
+				m.Spectrum = nil
+			}
+			s.Append(m)
+			s.Append(healthRecord(t))
+		}
+	}
+	if err := s.Flush(); err != nil {
+		b.Fatal(err)
+	}
+}
+
+func fillOptions(clk *clock) *Options {
+	return &Options{Now: clk.Now, MaxHeld: 50000, CommitInterval: time.Hour, NoSync: true, Logger: quietLogger(),
+		Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}}
+}
+
+// BenchmarkAppend measures the cost of one Append (a second record with spectrum) with a
+// commit every 30 records, on a store holding 1 thousand and on one holding many records; the
+// two figures should be about equal (flat insert cost). fsync is off so that the figure is
+// the store's own work; the fsync cost per commit does not depend on the stored count.
+func BenchmarkAppend(b *testing.B) {
+	large := int(envFloat(b, "LEQNODE_BENCH_RECORDS", 100000))
+	for _, stored := range []int{1000, large} {
+		b.Run(fmt.Sprintf("stored=%d", stored), func(b *testing.B) {
+			clk := &clock{t: t0}
+			path := filepath.Join(benchDir(b), "append.db")
+			o := fillOptions(clk)
+			s := openTest(b, path, o)
+			defer s.Close()
+			fill(b, s, t0, time.Duration(stored)*time.Second*60/62, true) // 62 records per minute
+			s.Close()
+			o.CommitInterval, o.MaxHeld = 30*time.Second, 0
+			s = openTest(b, path, o)
+			start := t0.Add(time.Duration(stored) * time.Second)
+			b.ReportAllocs()
+			b.ResetTimer()
+			for i := range b.N {
+				clk.Add(time.Second)
+				if _, err := s.Append(second(start.Add(time.Duration(i)*time.Second), 50)); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.StopTimer()
+		})
+	}
+}
+
+// BenchmarkRange reads every second record of the stored days through Range (time index, decode,
+// annotation check). Reported: ns per record and records per second.
+func BenchmarkRange(b *testing.B) {
+	days := envFloat(b, "LEQNODE_BENCH_DAYS", 0.25)
+	clk := &clock{t: t0}
+	path := filepath.Join(benchDir(b), "range.db")
+	s := openTest(b, path, fillOptions(clk))
+	fill(b, s, t0, time.Duration(days*24*float64(time.Hour)), true)
+	s.Close()
+	r, err := OpenReadOnly(path, 0)
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer r.Close()
+	b.ResetTimer()
+	var n int
+	for range b.N {
+		n = 0
+		err := r.Range(KindSecond, t0, t0.Add(time.Duration(days*24*float64(time.Hour))), func(Record) error { n++; return nil })
+		if err != nil {
+			b.Fatal(err)
+		}
+	}
+	b.StopTimer()
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(n), "ns/record")
+	b.ReportMetric(float64(n), "records")
+}
+
+// BenchmarkFileBytesPerDay writes an hour of node output (3600 second records, 60 minute and 60
+// health records) at default settings and reports the space it takes, scaled to a day.
+func BenchmarkFileBytesPerDay(b *testing.B) {
+	for _, spectra := range []bool{true, false} {
+		b.Run(fmt.Sprintf("spectra=%v", spectra), func(b *testing.B) {
+			var used, file int64
+			for range b.N {
+				clk := &clock{t: t0}
+				path := filepath.Join(benchDir(b), "size.db")
+				o := fillOptions(clk)
+				o.CommitInterval, o.MaxHeld = DefaultCommitInterval, 0
+				s := openTest(b, path, o)
+				st0, _ := s.Stats()
+				for i := range 3600 { // commits at the default interval, as a node does
+					clk.Add(time.Second)
+					fill1(b, s, i, spectra)
+				}
+				s.Flush()
+				st, _ := s.Stats()
+				used, file = st.UsedBytes-st0.UsedBytes, st.FileBytes
+				s.Close()
+			}
+			b.ReportMetric(float64(used)*24/1e6, "MB/day")
+			b.ReportMetric(float64(file)*24/1e6, "file-MB/day")
+		})
+	}
+}
+
+// fill1 appends the records of simulated second i.
+func fill1(b *testing.B, s *Store, i int, spectra bool) {
+	t := t0.Add(time.Duration(i) * time.Second)
+	r := second(t, 45+float64(i%2000)/100)
+	if !spectra {
+		r.Spectrum = nil
+	}
+	if _, err := s.Append(r); err != nil {
+		b.Fatal(err)
+	}
+	if i%60 == 59 {
+		m := minuteRecord(t.Add(-59*time.Second), 50)
+		if !spectra {
+			m.Spectrum = nil
+		}
+		s.Append(m)
+		s.Append(healthRecord(t))
+	}
+}
+
+// diskWriteBytes returns this process's write_bytes from /proc/self/io: bytes sent to the block
+// layer (not counting tmpfs).
+func diskWriteBytes() (int64, bool) {
+	f, err := os.Open("/proc/self/io")
+	if err != nil {
+		return 0, false
+	}
+	defer f.Close()
+	sc := bufio.NewScanner(f)
+	for sc.Scan() {
+		if v, ok := strings.CutPrefix(sc.Text(), "write_bytes: "); ok {
+			n, err := strconv.ParseInt(v, 10, 64)
+			return n, err == nil
+		}
+	}
+	return 0, false
+}
+
+// BenchmarkWriteVolume simulates one hour of a node per iteration, with fsync on, on a store
+// already holding LEQNODE_BENCH_DAYS of data: a second record with spectrum every second, a
+// minute and a health record every minute, and a publisher acknowledging every 10 s. It reports
+// the bytes written per hour as bbolt counts them (dirty pages plus a meta page per commit) and
+// as the block layer counts them, for several commit intervals and both freelist choices.
+func BenchmarkWriteVolume(b *testing.B) {
+	days := envFloat(b, "LEQNODE_BENCH_DAYS", 0.25)
+	clk := &clock{t: t0}
+	path := filepath.Join(benchDir(b), "volume.db")
+	s := openTest(b, path, fillOptions(clk))
+	fill(b, s, t0, time.Duration(days*24*float64(time.Hour)), true)
+	s.Close()
+	next := int(days * 24 * 3600)
+	for _, interval := range []time.Duration{10 * time.Second, 30 * time.Second, 60 * time.Second} {
+		for _, syncFreelist := range []bool{false, true} {
+			b.Run(fmt.Sprintf("commit=%v/freelist-sync=%v", interval, syncFreelist), func(b *testing.B) {
+				s, err := Open(path, &Options{Now: clk.Now, CommitInterval: interval, SyncFreelist: syncFreelist,
+					Logger: quietLogger(), Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}})
+				if err != nil {
+					b.Fatal(err)
+				}
+				defer s.Close()
+				s.Pending("mqtt", KindSecond, 1)
+				s.Flush()
+				st0, _ := s.Stats()
+				disk0, diskOK := diskWriteBytes()
+				b.ResetTimer()
+				for range b.N {
+					for j := range 3600 {
+						clk.Add(time.Second)
+						fill1(b, s, next, true)
+						next++
+						if j%10 == 9 {
+							if c := s.LastSeq(KindSecond); c > 0 {
+								_ = s.Ack("mqtt", KindSecond, s.committedSeq(KindSecond))
+							}
+						}
+					}
+				}
+				b.StopTimer()
+				st, _ := s.Stats()
+				disk1, _ := diskWriteBytes()
+				hours := float64(b.N)
+				b.ReportMetric(float64(st.WrittenBytes-st0.WrittenBytes)/hours/1e6, "MB/h")
+				if diskOK {
+					b.ReportMetric(float64(disk1-disk0)/hours/1e6, "disk-MB/h")
+				}
+				b.ReportMetric(float64(st.Commits-st0.Commits)/hours, "commits/h")
+			})
+		}
+	}
+}
+
+// committedSeq returns the last committed sequence number of kind k (test helper).
+func (s *Store) committedSeq(k Kind) uint64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.committed[k]
+}
