@@ -25,7 +25,7 @@
 // The scene is deterministic: for a given Config the samples do not depend on how they are cut
 // into Read calls. Events are planned per minute of scene time from random streams seeded with
 // the seed and the minute's index, so the schedule of any period can be listed without
-// rendering it (Events); the noise sources draw from their own streams one value per sample.
+// rendering it (Events); the three noise sources share one stream, drawn once per sample.
 // With Config.Start set, traffic, buses and birds follow the hour of the day (quiet nights, a
 // dawn chorus), which gives day, evening and night indicators something to show.
 //

@@ -36,9 +36,9 @@ func Example() {
 	// second 2: 94.0 dB
 	// second 3: 94.0 dB
 	// second 4: 93.3 dB
-	// second 5: 79.0 dB
-	// second 6: 75.7 dB
-	// second 7: 71.3 dB
+	// second 5: 79.2 dB
+	// second 6: 76.1 dB
+	// second 7: 71.0 dB
 	// car at 6.2 s, 65.1 dB
 	// car at 5.6 s, 74.8 dB
 	// car at 17.9 s, 70.9 dB

@@ -150,9 +150,9 @@ type Scene struct {
 	clipped  int64
 	msPerPa2 float64 // mean square of a level L is msPerPa2 · 10^(L/10)
 
-	bgRng, tyreRng, engRng *rand.Rand
-	bg, tyre, eng          chain
-	gBg, kTyre, kEng       float64
+	noise            *rand.PCG // one draw per sample feeds the three noise beds
+	bg, tyre, eng    chain
+	gBg, kTyre, kEng float64
 
 	calEnd, calFade int64
 	calPeak         float64
@@ -160,7 +160,11 @@ type Scene struct {
 	sched  scheduler
 	slot   int64   // slot whose events are in window, -1 before the first
 	window []Event // events of slots slot-1, slot, slot+1
+	active []int   // indices into window of the events that touch the current chunk
 }
+
+// chunkLen is the most samples rendered with one list of active events.
+const chunkLen = 256
 
 // New returns the scene described by cfg, positioned at its first sample.
 func New(cfg Config) (*Scene, error) {
@@ -178,10 +182,7 @@ func New(cfg Config) (*Scene, error) {
 		// (AES17) and mean square 10^(x/10)/2.
 		msPerPa2: math.Pow(10, (-94+c.SensitivityDBFS)/10) / 2,
 	}
-	seed := uint64(c.Seed)
-	s.bgRng = rand.New(rand.NewPCG(seed, 0xB6B6))
-	s.tyreRng = rand.New(rand.NewPCG(seed, 0x7E7E))
-	s.engRng = rand.New(rand.NewPCG(seed, 0xE1E1))
+	s.noise = rand.NewPCG(uint64(c.Seed), 0xB6B6_7E7E_E1E1)
 	lim := func(f float64) float64 { return math.Min(f, 0.4*fs) }
 
 	// Background: pink-ish from five pole-zero pairs two octaves apart (each pair falls by
@@ -207,6 +208,7 @@ func New(cfg Config) (*Scene, error) {
 	}
 	s.sched = newScheduler(s)
 	s.window = make([]Event, 0, 3*(2*s.sched.perSlot+3)+1)
+	s.active = make([]int, 0, cap(s.window))
 	return s, nil
 }
 
@@ -232,13 +234,27 @@ func (s *Scene) CalibratorEnd() int64 { return s.calEnd }
 // Read fills dst with the next len(dst) mono samples, scaled so that full scale is ±1.0, and
 // returns len(dst). The scene never ends. Read allocates nothing.
 func (s *Scene) Read(dst []float32) int {
-	for i := range dst {
-		n := s.pos
-		if slot := n / s.slotLen; slot != s.slot {
+	for i := 0; i < len(dst); {
+		n0 := s.pos
+		slot := n0 / s.slotLen
+		if slot != s.slot {
 			s.loadWindow(slot)
 		}
-		dst[i] = s.sample(n)
-		s.pos++
+		// A chunk stays inside one slot; the events that touch it are listed once. Events that
+		// do not touch a sample add nothing to it, so the samples do not depend on the chunks.
+		k := int(min(int64(len(dst)-i), chunkLen, (slot+1)*s.slotLen-n0))
+		n1 := n0 + int64(k)
+		s.active = s.active[:0]
+		for j := range s.window {
+			if ev := &s.window[j]; ev.Start < n1 && ev.End > n0 {
+				s.active = append(s.active, j)
+			}
+		}
+		for j := range dst[i : i+k] {
+			dst[i+j] = s.sample(n0 + int64(j))
+		}
+		s.pos = n1
+		i += k
 	}
 	return len(dst)
 }
@@ -255,17 +271,22 @@ func (s *Scene) loadWindow(slot int64) {
 	s.slot = slot
 }
 
-// white returns a uniform random value of unit variance.
-func white(r *rand.Rand) float64 { return (2*r.Float64() - 1) * math.Sqrt(3) }
+// white21 maps 21 random bits to a uniform value of unit variance: (2u - 1)·√3 with u the
+// bits' midpoint in [0, 1).
+func white21(b uint64) float64 {
+	const scale = 1.0 / (1 << 21)
+	return ((float64(b&(1<<21-1))+0.5)*scale*2 - 1) * math.Sqrt(3)
+}
 
 // sample computes sample n (n is the next sample: the noise generators advance).
 func (s *Scene) sample(n int64) float32 {
-	bg := s.gBg * s.bg.step(white(s.bgRng))
-	ty := s.kTyre * s.tyre.step(white(s.tyreRng))
-	en := s.kEng * s.eng.step(white(s.engRng))
+	r := s.noise.Uint64()
+	bg := s.gBg * s.bg.step(white21(r))
+	ty := s.kTyre * s.tyre.step(white21(r>>21))
+	en := s.kEng * s.eng.step(white21(r>>42))
 
 	var pT, pE, tones, birds, cal float64
-	for i := range s.window {
+	for _, i := range s.active {
 		ev := &s.window[i]
 		if n < ev.Start || n >= ev.End {
 			continue
@@ -283,10 +304,13 @@ func (s *Scene) sample(n int64) float32 {
 			pT += ev.ampT * ev.ampT * p
 			pE += ev.ampE * ev.ampE * p
 			if ev.Kind == Bus {
-				ph := 2 * math.Pi * ev.Frequency * float64(n-ev.Start) / s.fs
+				// Harmonics by the recurrence sin((k+1)φ) = 2 cos φ sin kφ - sin((k-1)φ).
+				sin1, cos1 := math.Sincos(2 * math.Pi * ev.Frequency * float64(n-ev.Start) / s.fs)
+				prev, cur := 0.0, sin1
 				var x float64
-				for k, a := range ev.tones {
-					x += a * math.Sin(float64(k+1)*ph)
+				for _, a := range ev.tones {
+					x += a * cur
+					prev, cur = cur, 2*cos1*cur-prev
 				}
 				tones += math.Sqrt(p) * x
 			}
