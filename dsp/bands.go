@@ -357,20 +357,17 @@ func (d *bankDecimator) response(f, fs float64) complex128 {
 
 // decimate filters x and writes the kept samples to out, returning their number.
 func (d *bankDecimator) decimate(x, out []float64) int {
-	h := bankHalfTaps - 1
+	const h = bankHalfTaps - 1
 	n := len(x)
 	copy(d.buf[h:], x)
-	m := h / 2
-	k := 0
 	buf := d.buf[:h+n]
+	t := (*[(bankHalfTaps + 1) / 4]float64)(d.odd)
+	k := 0
 	for i := h + d.phase; i < h+n; i += 2 {
-		c := i - m
-		y := 0.5 * buf[c]
-		for j, t := range d.odd {
-			o := 2*j + 1
-			y += t * (buf[c-o] + buf[c+o])
-		}
-		out[k] = y
+		// The window of the 23 taps ending at sample i, centre at 11.
+		w := (*[bankHalfTaps]float64)(buf[i-h : i+1])
+		out[k] = 0.5*w[11] + t[0]*(w[10]+w[12]) + t[1]*(w[8]+w[14]) + t[2]*(w[6]+w[16]) +
+			t[3]*(w[4]+w[18]) + t[4]*(w[2]+w[20]) + t[5]*(w[0]+w[22])
 		k++
 	}
 	d.phase = (d.phase + n) & 1
@@ -422,10 +419,12 @@ func (b *FilterBank) chunk(x []float64) {
 
 // run filters x through f's sections in direct form II,
 //
-//	w[n] = x[n] - a1·w[n-1] - a2·w[n-2],  y[n] = w[n] - w[n-2],
+//	w[n] = x[n] - a2·w[n-2] - a1·w[n-1],  y[n] = w[n] - w[n-2],
 //
 // section after section for each sample, and adds y² to f.sum. The sections of one band run
-// in the same loop so that the processor can overlap them across samples.
+// in the same loop so that the processor can overlap them across samples, and the a1 term
+// comes last so that the recursion through w[n-1] costs one multiplication and one
+// subtraction of latency per sample.
 func (f *bankFilter) run(x []float64) {
 	switch len(f.sec) {
 	case 3:
@@ -445,7 +444,7 @@ func (f *bankFilter) runAny(x []float64) {
 		for i := range f.sec {
 			s := &f.sec[i]
 			st := &f.state[i]
-			w := v - s.A1*st[0] - s.A2*st[1]
+			w := v - s.A2*st[1] - s.A1*st[0]
 			v = w - st[1]
 			st[1] = st[0]
 			st[0] = w
@@ -464,13 +463,13 @@ func (f *bankFilter) run3(x []float64) {
 	p3, q3 := f.state[2][0], f.state[2][1]
 	sum := f.sum
 	for _, v := range x {
-		w := v - a11*p1 - a12*q1
+		w := v - a12*q1 - a11*p1
 		v = w - q1
 		q1, p1 = p1, w
-		w = v - a21*p2 - a22*q2
+		w = v - a22*q2 - a21*p2
 		v = w - q2
 		q2, p2 = p2, w
-		w = v - a31*p3 - a32*q3
+		w = v - a32*q3 - a31*p3
 		v = w - q3
 		q3, p3 = p3, w
 		sum += v * v
@@ -492,16 +491,16 @@ func (f *bankFilter) run4(x []float64) {
 	p4, q4 := f.state[3][0], f.state[3][1]
 	sum := f.sum
 	for _, v := range x {
-		w := v - a11*p1 - a12*q1
+		w := v - a12*q1 - a11*p1
 		v = w - q1
 		q1, p1 = p1, w
-		w = v - a21*p2 - a22*q2
+		w = v - a22*q2 - a21*p2
 		v = w - q2
 		q2, p2 = p2, w
-		w = v - a31*p3 - a32*q3
+		w = v - a32*q3 - a31*p3
 		v = w - q3
 		q3, p3 = p3, w
-		w = v - a41*p4 - a42*q4
+		w = v - a42*q4 - a41*p4
 		v = w - q4
 		q4, p4 = p4, w
 		sum += v * v
