@@ -35,6 +35,7 @@ type Reader struct {
 	pos       int64 // frames delivered so far
 	buf       []byte
 	err       error // sticky error (io.EOF at the end)
+	raw       bool  // no RIFF container: no pad byte at the end
 }
 
 // NewReader parses the RIFF/WAVE header of r up to the start of the sample data and returns a
@@ -47,6 +48,19 @@ func NewReader(r io.Reader) (*Reader, error) {
 		return nil, err
 	}
 	return rd, nil
+}
+
+// NewRawReader returns a Reader of headerless interleaved little-endian samples in format f,
+// such as `arecord -t raw` or `sox -t raw` write on a pipe: the same decoding, scaling and error
+// rules as a WAV file's data chunk, with a length that is unknown (Frames returns -1). Unlike
+// NewReader it reads nothing before the first Read, so it never blocks; an empty stream gives
+// io.EOF on the first Read.
+func NewRawReader(r io.Reader, f Format) (*Reader, error) {
+	if err := f.Validate(); err != nil {
+		return nil, err
+	}
+	return &Reader{br: bufio.NewReaderSize(r, 16<<10), format: f, frameSize: f.FrameBytes(),
+		frames: -1, remaining: -1, raw: true}, nil
 }
 
 // Format returns the format of the samples.
@@ -109,7 +123,7 @@ func (r *Reader) Read(dst []float32) (int, error) {
 		switch {
 		case err == io.EOF || err == io.ErrUnexpectedEOF || (err == nil && m%fs != 0):
 			part := m % fs
-			if part == 1 && r.remaining < 0 && r.buf[whole*fs] == 0 && (r.pos*int64(fs))%2 == 1 {
+			if part == 1 && r.remaining < 0 && !r.raw && r.buf[whole*fs] == 0 && (r.pos*int64(fs))%2 == 1 {
 				// The zero pad byte of an odd-sized data chunk at the end of a stream of
 				// unknown length (RIFF pads every chunk to an even size).
 				part = 0

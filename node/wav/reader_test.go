@@ -403,3 +403,40 @@ func TestLyingHeaderMemory(t *testing.T) {
 		}
 	}
 }
+
+// TestRawReader reads headerless PCM made by sox (`-t raw`, the reference tool) and by hand.
+func TestRawReader(t *testing.T) {
+	f := Format{SampleRate: 48000, Channels: 2, Encoding: PCM32, ValidBits: 24}
+	// 24-bit data left-justified in 32-bit words, as ALSA's S32_LE from an I2S microphone.
+	data := pcm32(0x400000<<8, -0x800000<<8, 0x000100<<8, 0)
+	r, err := NewRawReader(bytes.NewReader(data), f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := readAll(t, r, 64)
+	want := []float32{0.5, -1, 1.0 / 32768, 0}
+	if err != nil || len(got) != len(want) {
+		t.Fatalf("read %v, %v", got, err)
+	}
+	for i := range want {
+		if got[i] != want[i] {
+			t.Errorf("sample %d = %v, want %v", i, got[i], want[i])
+		}
+	}
+	if r.Frames() != -1 || r.Format() != f {
+		t.Errorf("Frames %d, Format %v", r.Frames(), r.Format())
+	}
+	// A trailing byte is a partial frame here: there is no RIFF pad byte in raw data.
+	r, _ = NewRawReader(bytes.NewReader(append(pcm16(1, 2), 0)), Format{SampleRate: 8000, Channels: 1, Encoding: PCM16})
+	if _, err := readAll(t, r, 8); !errors.Is(err, ErrTruncated) {
+		t.Errorf("trailing byte: %v", err)
+	}
+	// An empty stream ends at once.
+	r, _ = NewRawReader(bytes.NewReader(nil), Format{SampleRate: 8000, Channels: 1, Encoding: PCM16})
+	if n, err := r.Read(make([]float32, 4)); n != 0 || err != io.EOF {
+		t.Errorf("empty: %d, %v", n, err)
+	}
+	if _, err := NewRawReader(bytes.NewReader(nil), Format{SampleRate: 8000, Channels: 0, Encoding: PCM16}); !errors.Is(err, ErrBadFormat) {
+		t.Errorf("zero channels: %v", err)
+	}
+}

@@ -203,3 +203,29 @@ func TestSoxRefused(t *testing.T) {
 		})
 	}
 }
+
+// TestSoxRaw compares headerless 16-bit PCM from sox with sox's own decoding to float.
+func TestSoxRaw(t *testing.T) {
+	sox := needSox(t)
+	raw := runSox(t, sox, "-r", "16000", "-n", "-r", "16000", "-c", "1", "-b", "16", "-e", "signed-integer", "-D", "-t", "raw", "-",
+		"synth", "0.1", "sine", "440", "gain", "-3")
+	cmd := exec.Command(sox, "-V1", "-r", "16000", "-c", "1", "-b", "16", "-e", "signed-integer", "-t", "raw", "-", "-t", "f32", "-")
+	cmd.Stdin = bytes.NewReader(raw)
+	f32, err := cmd.Output()
+	if err != nil {
+		t.Fatal(err)
+	}
+	r, err := NewRawReader(bytes.NewReader(raw), Format{SampleRate: 16000, Channels: 1, Encoding: PCM16})
+	if err != nil {
+		t.Fatal(err)
+	}
+	got, err := readAll(t, r, 100)
+	if err != nil || len(got) != 1600 || len(f32) != 4*1600 {
+		t.Fatalf("read %d samples (%v), sox %d", len(got), err, len(f32)/4)
+	}
+	for i, v := range got {
+		if w := math.Float32frombits(binary.LittleEndian.Uint32(f32[4*i:])); v != w {
+			t.Fatalf("sample %d: %v, sox %v", i, v, w)
+		}
+	}
+}
