@@ -1,0 +1,242 @@
+// Package config is the node's configuration: one TOML file, decoded strictly (an unknown key
+// is an error naming the key and its line), with a version number so that later releases can
+// tell an old file and say what to change. Every section validates itself and reports one line
+// per problem: the key, the value and the allowed range.
+//
+// The sections are the node's identity, the microphone, the audio source (package capture's
+// Config), the measurement, and the store. Defaults fill every key a file leaves out; Default
+// returns the embedded defaults the demo runs on.
+package config
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"math"
+	"os"
+	"strings"
+	"time"
+
+	"github.com/pelletier/go-toml/v2"
+
+	"github.com/leqnode/leqnode/node/capture"
+)
+
+// Version is the configuration format this release reads and writes.
+const Version = 1
+
+// Config is the whole configuration of a node.
+type Config struct {
+	// Version of the file's format; must be Version.
+	Version    int            `toml:"version"`
+	Node       Node           `toml:"node"`
+	Microphone Microphone     `toml:"microphone"`
+	Capture    capture.Config `toml:"capture"`
+	Measure    Measure        `toml:"measure"`
+	Store      Store          `toml:"store"`
+}
+
+// Node identifies the node.
+type Node struct {
+	// ID names the node in records, MQTT topics and logs: letters, digits, '-' and '_'.
+	ID string `toml:"id"`
+	// Site is a free-text name of the measurement site.
+	Site string `toml:"site"`
+	// Latitude and Longitude place the node; LocationDecimals rounds them before they leave
+	// the node (2 decimals is about 1 km). A node at a private home should publish coarsely.
+	Latitude         float64 `toml:"latitude"`
+	Longitude        float64 `toml:"longitude"`
+	LocationDecimals int     `toml:"location_decimals"`
+	// TimeZone is the IANA zone in which days, periods and dates are counted.
+	TimeZone string `toml:"time_zone"`
+}
+
+// Microphone describes the microphone and its converter.
+type Microphone struct {
+	// SensitivityDBFS is the level in dBFS (AES17) that a 1 kHz sine of 94 dB SPL produces.
+	// It decides every level the node reports: calibrate it against a sound calibrator.
+	SensitivityDBFS float64 `toml:"sensitivity_dbfs"`
+	// SelfNoiseDBA is the microphone's self-noise, dB(A); levels within UnderRangeMarginDB of
+	// it are flagged under-range. 0 disables the flag.
+	SelfNoiseDBA float64 `toml:"self_noise_dba"`
+	// UnderRangeMarginDB is added to the self-noise to set the under-range limit (default 5).
+	UnderRangeMarginDB float64 `toml:"under_range_margin_db"`
+	// OverloadDB is the acoustic overload point, dB SPL (peak); LZpeak at or above it flags
+	// overload. 0 disables the check (clipped samples still flag it).
+	OverloadDB float64 `toml:"overload_db"`
+}
+
+// Measure sets up the measurement.
+type Measure struct {
+	// Bands is "third" (one-third-octave spectra), "octave" or "none".
+	Bands string `toml:"bands"`
+	// SecondSpectra stores a spectrum with every second record. Trade-off: about three times
+	// the store size and write volume; minute records always carry the minute's spectrum.
+	SecondSpectra bool `toml:"second_spectra"`
+	// SettlingSeconds flags the first seconds after each start as settling (default 5).
+	SettlingSeconds float64 `toml:"settling_s"`
+}
+
+// Store sets up the bbolt store.
+type Store struct {
+	// Path of the store file. Default: the systemd state directory's leqnode.db.
+	Path string `toml:"path"`
+	// CommitInterval is the group-commit period (Go duration, default "10s"). Trade-off:
+	// longer writes less to flash; a power cut loses up to one interval.
+	CommitInterval string `toml:"commit_interval"`
+	// MaxMB caps the store's size in megabytes (0: the store's default cap).
+	MaxMB int64 `toml:"max_mb"`
+}
+
+// Default returns the embedded defaults: the synthetic scene, one-third-octave bands, a store
+// in the working directory.
+func Default() *Config {
+	return &Config{
+		Version: Version,
+		Node:    Node{ID: "wendle-cross-01", Site: "Harrowby Lane, Wendle Cross (invented)", LocationDecimals: 2, TimeZone: "UTC"},
+		Microphone: Microphone{
+			SensitivityDBFS: -26, SelfNoiseDBA: 29, UnderRangeMarginDB: 5, OverloadDB: 120,
+		},
+		Capture: capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
+		Measure: Measure{Bands: "third", SettlingSeconds: 5},
+		Store:   Store{Path: "leqnode.db", CommitInterval: "10s"},
+	}
+}
+
+// Parse decodes a configuration file strictly over the defaults. name is used in errors.
+func Parse(data []byte, name string) (*Config, error) {
+	c := Default()
+	c.Version = 0
+	dec := toml.NewDecoder(bytes.NewReader(data)).DisallowUnknownFields()
+	if err := dec.Decode(c); err != nil {
+		var strict *toml.StrictMissingError
+		if errors.As(err, &strict) && len(strict.Errors) > 0 {
+			var lines []string
+			for _, e := range strict.Errors {
+				row, _ := e.Position()
+				lines = append(lines, fmt.Sprintf("%s:%d: unknown key %q: check its spelling against configs/leqnode.toml", name, row, strings.Join(e.Key(), ".")))
+			}
+			return nil, errors.New(strings.Join(lines, "\n"))
+		}
+		var de *toml.DecodeError
+		if errors.As(err, &de) {
+			row, _ := de.Position()
+			return nil, fmt.Errorf("%s:%d: %s", name, row, de.Error())
+		}
+		return nil, fmt.Errorf("%s: %w", name, err)
+	}
+	if errs := c.Validate(); len(errs) > 0 {
+		lines := make([]string, len(errs))
+		for i, e := range errs {
+			lines[i] = name + ": " + e.Error()
+		}
+		return nil, errors.New(strings.Join(lines, "\n"))
+	}
+	return c, nil
+}
+
+// Load reads and parses a configuration file.
+func Load(path string) (*Config, error) {
+	data, err := os.ReadFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("config %s: %w", path, err)
+	}
+	return Parse(data, path)
+}
+
+// Validate returns one error per problem, each naming the key, its value and what is allowed.
+func (c *Config) Validate() []error {
+	var errs []error
+	bad := func(key string, v any, want string) {
+		errs = append(errs, fmt.Errorf("%s = %v: %s", key, v, want))
+	}
+	switch {
+	case c.Version == 0:
+		bad("version", "(missing)", fmt.Sprintf("add `version = %d` at the top of the file", Version))
+	case c.Version > Version:
+		bad("version", c.Version, fmt.Sprintf("this release reads version %d; upgrade leqnode", Version))
+	case c.Version < Version:
+		bad("version", c.Version, fmt.Sprintf("an old format: run `leqnode config check` and update the file to version %d", Version))
+	}
+	if !validID(c.Node.ID) {
+		bad("node.id", fmt.Sprintf("%q", c.Node.ID), "use 1 to 64 letters, digits, '-' or '_'")
+	}
+	if c.Node.Latitude < -90 || c.Node.Latitude > 90 {
+		bad("node.latitude", c.Node.Latitude, "allowed -90 to 90")
+	}
+	if c.Node.Longitude < -180 || c.Node.Longitude > 180 {
+		bad("node.longitude", c.Node.Longitude, "allowed -180 to 180")
+	}
+	if c.Node.LocationDecimals < 0 || c.Node.LocationDecimals > 5 {
+		bad("node.location_decimals", c.Node.LocationDecimals, "allowed 0 to 5")
+	}
+	if _, err := time.LoadLocation(c.Node.TimeZone); err != nil || c.Node.TimeZone == "" {
+		bad("node.time_zone", fmt.Sprintf("%q", c.Node.TimeZone), "use an IANA zone name such as \"UTC\" or \"Europe/Madrid\"")
+	}
+	m := c.Microphone
+	if !(m.SensitivityDBFS >= -80 && m.SensitivityDBFS <= 0) {
+		bad("microphone.sensitivity_dbfs", m.SensitivityDBFS, "allowed -80 to 0 (dBFS for 94 dB SPL at 1 kHz; typical -26)")
+	}
+	if m.SelfNoiseDBA < 0 || m.SelfNoiseDBA > 80 || math.IsNaN(m.SelfNoiseDBA) {
+		bad("microphone.self_noise_dba", m.SelfNoiseDBA, "allowed 0 (off) to 80")
+	}
+	if m.UnderRangeMarginDB < 0 || m.UnderRangeMarginDB > 20 {
+		bad("microphone.under_range_margin_db", m.UnderRangeMarginDB, "allowed 0 to 20")
+	}
+	if m.OverloadDB != 0 && (m.OverloadDB < 90 || m.OverloadDB > 160) {
+		bad("microphone.overload_db", m.OverloadDB, "allowed 0 (off) or 90 to 160")
+	}
+	for _, e := range c.Capture.Validate() {
+		errs = append(errs, fmt.Errorf("capture.%w", e))
+	}
+	switch c.Measure.Bands {
+	case "third", "octave", "none":
+	default:
+		bad("measure.bands", fmt.Sprintf("%q", c.Measure.Bands), `use "third", "octave" or "none"`)
+	}
+	if c.Measure.SettlingSeconds < 0 || c.Measure.SettlingSeconds > 600 {
+		bad("measure.settling_s", c.Measure.SettlingSeconds, "allowed 0 to 600")
+	}
+	if c.Store.Path == "" {
+		bad("store.path", `""`, "give the store file's path")
+	}
+	if d, err := time.ParseDuration(c.Store.CommitInterval); err != nil || d < time.Second || d > time.Minute {
+		bad("store.commit_interval", fmt.Sprintf("%q", c.Store.CommitInterval), `allowed "1s" to "60s" (the worst-case loss on a power cut)`)
+	}
+	if c.Store.MaxMB < 0 || c.Store.MaxMB > 1<<20 {
+		bad("store.max_mb", c.Store.MaxMB, "allowed 0 (default) to 1048576")
+	}
+	return errs
+}
+
+func validID(s string) bool {
+	if len(s) == 0 || len(s) > 64 {
+		return false
+	}
+	for _, r := range s {
+		if !(r >= 'a' && r <= 'z' || r >= 'A' && r <= 'Z' || r >= '0' && r <= '9' || r == '-' || r == '_') {
+			return false
+		}
+	}
+	return true
+}
+
+// CommitInterval returns the parsed commit interval.
+func (c *Config) CommitInterval() time.Duration {
+	d, _ := time.ParseDuration(c.Store.CommitInterval)
+	return d
+}
+
+// Hash returns a short hash of the settings, stored in session records so that a change of
+// settings is visible in the data.
+func (c *Config) Hash() string {
+	b, _ := toml.Marshal(c)
+	sum := sha256.Sum256(b)
+	return hex.EncodeToString(sum[:8])
+}
+
+// Encode returns the configuration as TOML (the resolved configuration that `config check`
+// prints).
+func (c *Config) Encode() ([]byte, error) { return toml.Marshal(c) }

@@ -1,0 +1,314 @@
+package node
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"sync/atomic"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node/capture"
+)
+
+// Options set up a node. Source and Store are required; every other field has a default.
+type Options struct {
+	// Source is the audio source. The node opens it, re-opens it after device loss with
+	// backoff, and closes it at the end.
+	Source capture.Source
+	// Store receives the records. The node appends and flushes; the caller opens and closes.
+	Store *buffer.Store
+
+	// SensitivityDBFS is the microphone sensitivity in dBFS for 94 dB SPL at 1 kHz.
+	SensitivityDBFS float64
+	// Bands selects the band filter bank (dsp.Third for one-third-octave spectra, 0 for none).
+	Bands dsp.BandSet
+	// SecondSpectra stores the one-third-octave spectrum in every second record. Minute records
+	// always carry the minute's spectrum when Bands is set.
+	//
+	// Trade-off: per-second spectra roughly triple the store's size and write volume.
+	SecondSpectra bool
+
+	// Settling is how long after each start the seconds are flagged settling (filters and
+	// the microphone's own start-up). Default 5 s.
+	Settling time.Duration
+	// OverloadLevel flags overload when LZpeak reaches it (the microphone's acoustic overload
+	// point, dB SPL); 0 disables the check. Clipped samples always flag overload.
+	OverloadLevel float64
+	// UnderRangeLevel flags under-range when LAeq falls below it (the microphone's self-noise
+	// plus a margin, dB(A)); 0 disables the check.
+	UnderRangeLevel float64
+
+	// Lossless makes the capture goroutine wait for a free buffer instead of dropping samples
+	// when processing falls behind.
+	//
+	// Danger: with a live device, waiting makes the device overflow instead; use it only for
+	// sources that can wait (files, standard input, the synthetic scene run fast).
+	Lossless bool
+	// BlockDuration is the length of each audio block read from the source. Default 100 ms.
+	BlockDuration time.Duration
+	// QueueBlocks is the number of blocks the queue between capture and processing holds.
+	// Default 50 (5 s of audio at the default block length).
+	QueueBlocks int
+	// Watchdog is how long the node waits for samples from an open source before it treats
+	// the device as failed. Default 10 block durations, at least 2 s.
+	Watchdog time.Duration
+	// RetryMax caps the exponential backoff between attempts to re-open a lost device.
+	// Default 30 s.
+	RetryMax time.Duration
+
+	// Session holds what the node writes in its session records besides the sample rate and
+	// device, which it fills in: software version, config hash, time zone.
+	Session buffer.Session
+
+	// Now is the system clock (default time.Now); tests inject their own.
+	Now func() time.Time
+	// ClockSynced reports whether the system clock is synchronised (default: the kernel's
+	// view through adjtimex). Checked once a minute.
+	ClockSynced func() bool
+
+	// OnSecond and OnMinute, when set, receive each record after it is appended (the live
+	// display of `leqnode demo`, the status page). They run on the processing goroutine and
+	// must return quickly.
+	OnSecond func(*buffer.Second)
+	OnMinute func(*buffer.Minute)
+	// Notify, when set, is called after records were appended (the publisher's wake-up).
+	Notify func()
+
+	Logger *slog.Logger
+}
+
+func (o *Options) withDefaults() Options {
+	r := *o
+	if r.Settling == 0 {
+		r.Settling = 5 * time.Second
+	}
+	if r.BlockDuration <= 0 {
+		r.BlockDuration = 100 * time.Millisecond
+	}
+	if r.QueueBlocks <= 0 {
+		r.QueueBlocks = 50
+	}
+	if r.Watchdog <= 0 {
+		r.Watchdog = max(2*time.Second, 10*r.BlockDuration)
+	}
+	if r.RetryMax <= 0 {
+		r.RetryMax = 30 * time.Second
+	}
+	if r.Now == nil {
+		r.Now = time.Now
+	}
+	if r.ClockSynced == nil {
+		r.ClockSynced = KernelClockSynced
+	}
+	if r.Logger == nil {
+		r.Logger = slog.Default()
+	}
+	return r
+}
+
+// Counters are the node's running totals, readable while it runs.
+type Counters struct {
+	Seconds        atomic.Int64 // second records written
+	Minutes        atomic.Int64 // minute records written
+	Gaps           atomic.Int64 // gap records written
+	DroppedSamples atomic.Int64 // samples lost (device overflows and queue overflows)
+	QueueOverflows atomic.Int64 // blocks lost because the queue was full
+	Reopens        atomic.Int64 // times the source was re-opened after a failure
+	// FastLevel is the latest LAF in dB, as math.Float64bits (NaN before the first block).
+	FastLevel atomic.Uint64
+}
+
+// Level returns the latest A-weighted Fast level in dB (NaN before the first block).
+func (c *Counters) Level() float64 { return math.Float64frombits(c.FastLevel.Load()) }
+
+// Node is a running measurement node.
+type Node struct {
+	o        Options
+	log      *slog.Logger
+	Counters Counters
+}
+
+// New checks the options and returns a node ready to Run.
+func New(o Options) (*Node, error) {
+	if o.Source == nil || o.Store == nil {
+		return nil, errors.New("node: a source and a store are required")
+	}
+	r := o.withDefaults()
+	n := &Node{o: r, log: r.Logger}
+	n.Counters.FastLevel.Store(math.Float64bits(math.NaN()))
+	return n, nil
+}
+
+// event is what the capture goroutine hands to the processing goroutine.
+type event struct {
+	kind    eventKind
+	samples []float32 // data: the block's samples (a pool buffer, returned after use)
+	arrival time.Time // when the block arrived, or when the source opened
+	skipped int64     // data, lost, EOF: samples lost just before this event
+	format  capture.Format
+	err     error
+}
+
+type eventKind int
+
+const (
+	evData   eventKind = iota
+	evOpened           // the source was (re)opened
+	evLost             // the source failed; it has been closed
+	evEOF              // a finite source ended
+)
+
+// Run captures and measures until ctx ends or a finite source ends, then flushes the store.
+// It returns nil on a clean end.
+func (n *Node) Run(ctx context.Context) error {
+	o := &n.o
+	ctx, cancel := context.WithCancel(ctx)
+	defer cancel()
+	p := &processor{n: n, o: o}
+	if err := p.startupGap(); err != nil {
+		return err
+	}
+	events := make(chan event, o.QueueBlocks+4)
+	free := make(chan []float32, o.QueueBlocks)
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		n.capture(ctx, events, free)
+	}()
+	err := p.loop(ctx, events, free)
+	cancel()
+	for range events { // let the capture goroutine finish
+	}
+	<-done
+	p.finish()
+	if ferr := o.Store.Flush(); ferr != nil && err == nil {
+		err = fmt.Errorf("node: flushing the store: %w", ferr)
+	}
+	return err
+}
+
+// capture runs the source: open, read blocks into pool buffers, re-open after failures.
+func (n *Node) capture(ctx context.Context, events chan<- event, free chan []float32) {
+	defer close(events)
+	o := &n.o
+	send := func(ev event) bool {
+		select {
+		case events <- ev:
+			return true
+		case <-ctx.Done():
+			return false
+		}
+	}
+	backoff := min(time.Second, o.RetryMax)
+	var discard []float32
+	opened := false
+	for ctx.Err() == nil {
+		if opened {
+			n.Counters.Reopens.Add(1)
+		}
+		f, err := o.Source.Open(ctx)
+		if err != nil {
+			n.log.Warn("cannot open the audio source; retrying", "source", o.Source.Describe(), "err", err, "retry_in", backoff)
+			if !sleepCtx(ctx, backoff) {
+				return
+			}
+			backoff = min(2*backoff, o.RetryMax)
+			continue
+		}
+		opened = true
+		backoff = min(time.Second, o.RetryMax)
+		if !send(event{kind: evOpened, format: f, arrival: o.Now()}) {
+			o.Source.Close()
+			return
+		}
+		blockLen := max(1, int(math.Round(float64(f.SampleRate)*o.BlockDuration.Seconds())))
+		if len(free) == 0 && cap(free) > 0 && len(discard) == 0 {
+			for range cap(free) {
+				free <- make([]float32, blockLen)
+			}
+		}
+		if len(discard) < blockLen {
+			discard = make([]float32, blockLen)
+		}
+		lastDropped := o.Source.Dropped()
+		var skipped int64
+		for {
+			var buf []float32
+			overflow := false
+			select {
+			case buf = <-free:
+			default:
+				if o.Lossless {
+					select {
+					case buf = <-free:
+					case <-ctx.Done():
+						o.Source.Close()
+						return
+					}
+				} else {
+					buf, overflow = discard, true
+				}
+			}
+			if cap(buf) < blockLen {
+				buf = make([]float32, blockLen)
+			}
+			nr, rerr := o.Source.Read(buf[:blockLen])
+			arrival := o.Now()
+			d := o.Source.Dropped()
+			skipped += d - lastDropped
+			lastDropped = d
+			if overflow {
+				skipped += int64(nr)
+				n.Counters.QueueOverflows.Add(1)
+			} else if nr > 0 {
+				n.Counters.DroppedSamples.Add(skipped)
+				if !send(event{kind: evData, samples: buf[:nr], arrival: arrival, skipped: skipped}) {
+					o.Source.Close()
+					return
+				}
+				skipped = 0
+			} else {
+				free <- buf
+			}
+			if rerr == nil && ctx.Err() != nil {
+				o.Source.Close()
+				return
+			}
+			if errors.Is(rerr, io.EOF) {
+				o.Source.Close()
+				n.Counters.DroppedSamples.Add(skipped)
+				send(event{kind: evEOF, skipped: skipped})
+				return
+			}
+			if rerr != nil {
+				o.Source.Close()
+				if ctx.Err() != nil {
+					return
+				}
+				n.log.Warn("audio source failed; will re-open", "source", o.Source.Describe(), "err", rerr, "retry_in", backoff)
+				n.Counters.DroppedSamples.Add(skipped)
+				if !send(event{kind: evLost, err: rerr, skipped: skipped}) || !sleepCtx(ctx, backoff) {
+					return
+				}
+				backoff = min(2*backoff, o.RetryMax)
+				break
+			}
+		}
+	}
+}
+
+func sleepCtx(ctx context.Context, d time.Duration) bool {
+	t := time.NewTimer(d)
+	defer t.Stop()
+	select {
+	case <-t.C:
+		return true
+	case <-ctx.Done():
+		return false
+	}
+}

@@ -1,0 +1,382 @@
+package node
+
+import (
+	"context"
+	"fmt"
+	"math"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/dsp"
+)
+
+// processor is the processing goroutine's state: the meter, the sample clock and the
+// interval being measured.
+type processor struct {
+	n *Node
+	o *Options
+
+	meter     *dsp.Meter
+	clock     *SampleClock
+	fs        float64
+	device    string
+	res       dsp.Result
+	minute    dsp.Accumulator
+	firstBand int
+
+	anchored    bool
+	pos         int64     // samples fed to the meter since the source was opened
+	secStart    time.Time // start of the interval being measured
+	nextSecond  time.Time // the UTC second boundary that ends it
+	secFlags    buffer.Flags
+	secDropped  uint64
+	minuteStart time.Time
+	minFlags    buffer.Flags
+	minValid    int
+	minSeconds  int
+	settleUntil time.Time
+	synced      bool
+	syncChecked time.Time
+
+	lastEnd  time.Time // wall time of the end of the last sample measured
+	lostAt   time.Time // when the source was lost (zero while it runs)
+	lostWhy  string
+	lastSess *buffer.Session
+}
+
+// startupGap records the time the node was not running, from the end of the last stored
+// second to now.
+func (p *processor) startupGap() error {
+	last, err := p.o.Store.Last(buffer.KindSecond)
+	if err != nil || last == nil {
+		return nil // an empty store has nothing to bridge
+	}
+	s, ok := last.(*buffer.Second)
+	if !ok {
+		return nil
+	}
+	end := s.Start.Add(s.Duration)
+	now := p.o.Now()
+	if now.Sub(end) > 2*time.Second {
+		return p.gap(end, now, "node was not running (stopped, crashed or powered off)")
+	}
+	return nil
+}
+
+func (p *processor) gap(from, to time.Time, why string) error {
+	if to.Before(from) {
+		from, to = to, from
+	}
+	if !to.After(from) {
+		return nil
+	}
+	p.n.Counters.Gaps.Add(1)
+	p.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
+	return p.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
+}
+
+func (p *processor) append(r buffer.Record) error {
+	if _, err := p.o.Store.Append(r); err != nil {
+		return fmt.Errorf("node: storing a %T: %w", r, err)
+	}
+	if p.o.Notify != nil {
+		p.o.Notify()
+	}
+	return nil
+}
+
+// loop handles events until the capture goroutine ends or a store error stops the node.
+func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- []float32) error {
+	o := p.o
+	watchdog := time.NewTimer(o.Watchdog)
+	defer watchdog.Stop()
+	open := false
+	for {
+		select {
+		case ev, ok := <-events:
+			if !ok {
+				return nil
+			}
+			var err error
+			switch ev.kind {
+			case evOpened:
+				open = true
+				err = p.opened(ev)
+			case evData:
+				err = p.data(ev)
+				select {
+				case free <- ev.samples[:cap(ev.samples)]:
+				default:
+				}
+			case evLost:
+				open = false
+				p.skipLost(ev.skipped)
+				err = p.lost(ev.err.Error())
+			case evEOF:
+				open = false
+				p.skipLost(ev.skipped)
+				p.finish()
+			}
+			if err != nil {
+				return err
+			}
+			if !watchdog.Stop() {
+				select {
+				case <-watchdog.C:
+				default:
+				}
+			}
+			watchdog.Reset(o.Watchdog)
+		case <-watchdog.C:
+			watchdog.Reset(o.Watchdog)
+			if open && ctx.Err() == nil {
+				p.n.log.Warn("no samples from the audio source: closing it to recover", "source", o.Source.Describe(), "waited", o.Watchdog)
+				p.lostWhy = fmt.Sprintf("no samples for %v (watchdog)", o.Watchdog)
+				// Closing makes the blocked Read fail; the capture goroutine then re-opens.
+				go o.Source.Close()
+			}
+		}
+	}
+}
+
+// opened starts measuring a (re)opened source: a new meter and clock, a gap for the time the
+// source was away, a session record when the settings changed.
+func (p *processor) opened(ev event) error {
+	o := p.o
+	now := ev.arrival
+	if !p.lostAt.IsZero() {
+		if err := p.gap(p.lostAt, now, "capture device lost: "+p.lostWhy); err != nil {
+			return err
+		}
+		p.lostAt, p.lostWhy = time.Time{}, ""
+	}
+	fs := float64(ev.format.SampleRate)
+	if p.meter == nil || fs != p.fs {
+		m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands})
+		if err != nil {
+			return fmt.Errorf("node: %w", err)
+		}
+		p.meter, p.fs = m, fs
+		if b := m.Bands(); len(b) > 0 {
+			p.firstBand = b[0].X
+		}
+	} else {
+		// Same settings: a fresh meter all the same, so the old filter state does not smear
+		// into the new stream.
+		m, _ := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands})
+		p.meter = m
+	}
+	p.clock = NewSampleClock(fs)
+	p.anchored = false
+	p.pos = 0
+	p.settleUntil = now.Add(o.Settling)
+	p.device = o.Source.Describe()
+	sess := o.Session
+	sess.At = now.UTC()
+	sess.SensitivityDBFS = o.SensitivityDBFS
+	sess.SampleRate = ev.format.SampleRate
+	sess.Device = p.device
+	if p.lastSess == nil || !sameSession(p.lastSess, &sess) {
+		p.lastSess = &sess
+		cp := sess
+		return p.append(&cp)
+	}
+	return nil
+}
+
+func sameSession(a, b *buffer.Session) bool {
+	return a.SoftwareVersion == b.SoftwareVersion && a.ConfigHash == b.ConfigHash &&
+		a.SensitivityDBFS == b.SensitivityDBFS && a.SampleRate == b.SampleRate &&
+		a.Device == b.Device && a.TimeZone == b.TimeZone
+}
+
+// lost closes the partial second and remembers when the source went away.
+func (p *processor) lost(why string) error {
+	if p.meter != nil && p.anchored {
+		p.closeSecond()
+	}
+	p.lostAt = p.lastEnd
+	if p.lostAt.IsZero() {
+		p.lostAt = p.o.Now()
+	}
+	if p.lostWhy == "" {
+		p.lostWhy = why
+	} else {
+		p.lostWhy += ": " + why
+	}
+	return nil
+}
+
+// data measures one block.
+func (p *processor) data(ev event) error {
+	o := p.o
+	x := ev.samples
+	n := int64(len(x))
+	if !p.anchored {
+		p.clock.Observe(n, ev.arrival)
+		p.anchored = true
+		p.secStart = p.clock.Time(0)
+		p.nextSecond = p.secStart.Truncate(time.Second).Add(time.Second)
+		p.minuteStart = p.secStart.Truncate(time.Minute)
+		p.minute.Reset()
+		p.minFlags, p.minValid, p.minSeconds = 0, 0, 0
+		p.secFlags, p.secDropped = 0, 0
+	} else {
+		if ev.skipped > 0 {
+			p.skip(ev.skipped)
+		}
+		before := p.clock.Time(p.pos)
+		if step := p.clock.Observe(p.pos+n, ev.arrival); step != 0 {
+			p.closeSecond()
+			after := p.clock.Time(p.pos)
+			if err := p.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {
+				return err
+			}
+			p.closeMinute()
+			p.secStart = after
+			p.nextSecond = after.Truncate(time.Second).Add(time.Second)
+			p.minuteStart = after.Truncate(time.Minute)
+		}
+	}
+	if now := o.Now(); now.Sub(p.syncChecked) >= time.Minute {
+		p.synced, p.syncChecked = o.ClockSynced(), now
+	}
+	for len(x) > 0 {
+		end := max(p.clock.Sample(p.nextSecond), p.pos)
+		take := min(int64(len(x)), end-p.pos)
+		if take > 0 {
+			p.meter.Process(x[:take])
+			p.pos += take
+			x = x[take:]
+		}
+		if p.pos == end {
+			if err := p.closeSecond(); err != nil {
+				return err
+			}
+		}
+	}
+	p.lastEnd = p.clock.Time(p.pos)
+	p.n.Counters.FastLevel.Store(math.Float64bits(p.meter.FastLevel()))
+	return nil
+}
+
+// skip accounts for samples lost before the next block: the sample count (and so time) moves
+// on, the seconds they fall in are flagged.
+func (p *processor) skip(k int64) {
+	for k > 0 {
+		end := max(p.clock.Sample(p.nextSecond), p.pos)
+		take := min(k, end-p.pos)
+		p.pos += take
+		k -= take
+		p.secFlags |= buffer.Dropped
+		p.secDropped += uint64(take)
+		if p.pos == end {
+			p.closeSecond()
+		}
+	}
+}
+
+// skipLost accounts for samples lost at the end of a stream.
+func (p *processor) skipLost(k int64) {
+	if k > 0 && p.anchored {
+		p.skip(k)
+	}
+}
+
+// closeSecond ends the interval being measured, stores its record and moves to the next.
+func (p *processor) closeSecond() error {
+	o := p.o
+	p.meter.Take(&p.res)
+	r := &p.res
+	start := p.secStart
+	p.secStart = p.nextSecond
+	p.nextSecond = p.nextSecond.Add(time.Second)
+	var err error
+	if r.Samples > 0 {
+		f := p.secFlags
+		if start.Before(p.settleUntil) {
+			f |= buffer.Settling
+		}
+		if !p.synced {
+			f |= buffer.ClockUnsynced
+		}
+		if r.Clipped > 0 {
+			f |= buffer.Clipped | buffer.Overload
+		}
+		if o.OverloadLevel > 0 && r.LZpeak >= o.OverloadLevel {
+			f |= buffer.Overload
+		}
+		if o.UnderRangeLevel > 0 && r.LAeq < o.UnderRangeLevel {
+			f |= buffer.UnderRange
+		}
+		rec := &buffer.Second{
+			Start: start.UTC(), Duration: time.Duration(math.Round(r.Duration * 1e9)),
+			LAeq: r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
+			LASmax: r.LASmax, LASmin: r.LASmin, LAImax: r.LAImax, LCpeak: r.LCpeak, LZpeak: r.LZpeak,
+			LAE: r.LAE, Flags: f, DroppedSamples: p.secDropped,
+		}
+		if o.SecondSpectra && len(r.Bands) > 0 {
+			rec.Spectrum = append([]float64(nil), r.Bands...)
+			rec.FirstBand = p.firstBand
+		}
+		err = p.append(rec)
+		p.n.Counters.Seconds.Add(1)
+		p.minute.Add(r)
+		p.minFlags |= f
+		p.minSeconds++
+		if f&(buffer.Settling|buffer.Dropped|buffer.Overload|buffer.Calibrating) == 0 {
+			p.minValid++
+		}
+		if o.OnSecond != nil {
+			o.OnSecond(rec)
+		}
+	}
+	p.secFlags, p.secDropped = 0, 0
+	if err == nil && !p.secStart.Before(p.minuteStart.Add(time.Minute)) {
+		err = p.closeMinute()
+		p.minuteStart = p.secStart.Truncate(time.Minute)
+	}
+	return err
+}
+
+// closeMinute stores the minute record of the seconds accumulated so far, if any.
+func (p *processor) closeMinute() error {
+	if p.minSeconds == 0 {
+		return nil
+	}
+	var r dsp.Result
+	p.minute.Result(&r)
+	first, counts := r.Histogram.Span()
+	rec := &buffer.Minute{
+		Start: p.minuteStart.UTC(),
+		LAeq:  r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
+		LAF1: r.Histogram.Exceeded(1), LAF5: r.Histogram.Exceeded(5), LAF10: r.Histogram.Exceeded(10),
+		LAF50: r.Histogram.Exceeded(50), LAF90: r.Histogram.Exceeded(90), LAF95: r.Histogram.Exceeded(95),
+		LAF99: r.Histogram.Exceeded(99), LAE: r.LAE, LCpeak: r.LCpeak, LAImax: r.LAImax,
+		Histogram:    buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)},
+		ValidSeconds: p.minValid, Flags: p.minFlags,
+	}
+	if len(r.Bands) > 0 {
+		rec.Spectrum = append([]float64(nil), r.Bands...)
+		rec.FirstBand = p.firstBand
+	}
+	p.minute.Reset()
+	p.minFlags, p.minValid, p.minSeconds = 0, 0, 0
+	p.n.Counters.Minutes.Add(1)
+	if err := p.append(rec); err != nil {
+		return err
+	}
+	if p.o.OnMinute != nil {
+		p.o.OnMinute(rec)
+	}
+	return nil
+}
+
+// finish stores what is left when the node stops: the partial second and minute.
+func (p *processor) finish() {
+	if p.meter != nil && p.anchored {
+		p.closeSecond()
+		p.closeMinute()
+		p.anchored = false
+	}
+}
