@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"errors"
 	"fmt"
+	"math"
 	"os"
 	"slices"
 	"time"
@@ -178,7 +179,7 @@ func (s *Store) Last(k Kind) (Record, error) {
 	return out, err
 }
 
-// rangeChunk is the number of records a Range reads per read transaction.
+// rangeChunk is the number of records a Range reads per read transaction and run.
 const rangeChunk = 1024
 
 type keyed struct {
@@ -188,8 +189,14 @@ type keyed struct {
 
 func (a keyed) less(b keyed) bool { return a.tkey < b.tkey || a.tkey == b.tkey && a.seq < b.seq }
 
+// source is the part of one run that a Range reads: sequence numbers [next, end).
+type source struct {
+	next, end uint64
+	buf       []keyed
+}
+
 // Range calls fn for each record of kind k whose Time lies in [from, to), in time order (records
-// with equal times in sequence order), through the time index: a record written late with an
+// with equal times in sequence order), through the run index: a record written late with an
 // early time, or written after the clock stepped back, is found where its time puts it. Records
 // held in memory and not yet committed are included. The flags of annotations overlapping a
 // second, minute or event record are ORed into the copy passed to fn.
@@ -201,12 +208,13 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 	if !k.Valid() {
 		return fmt.Errorf("unknown record kind %d", uint8(k))
 	}
-	lo, hi := timeKey(from), timeKey(to)
 	if !from.Before(to) {
 		return nil
 	}
-	// Snapshot the held records; committed records from this snapshot on are skipped in the
-	// file, so a commit during the iteration neither repeats nor loses one.
+	lo, hi := timeKey(from), timeKey(to)
+	// Snapshot the held records. Records committed after the snapshot have sequence numbers
+	// from memFirst on and are skipped in the file, so a commit during the iteration neither
+	// repeats nor loses one.
 	s.mu.Lock()
 	if s.closed {
 		s.mu.Unlock()
@@ -214,12 +222,13 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 	}
 	memFirst := s.nextSeq[k]
 	var mem []keyed
-	var memAnn []Record
+	var memAnn []*Annotation
+	annotated := k == KindSecond || k == KindMinute || k == KindEvent
 	for _, h := range s.held {
-		if h.kind == KindAnnotation && (k == KindSecond || k == KindMinute || k == KindEvent) {
-			r, err := Decode(h.kind, h.value)
-			if err == nil {
-				memAnn = append(memAnn, r)
+		if h.kind == KindAnnotation && annotated {
+			a := new(Annotation)
+			if err := a.UnmarshalBinary(h.value); err == nil {
+				memAnn = append(memAnn, a)
 			}
 		}
 		if h.kind != k {
@@ -249,73 +258,89 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 	})
 
 	var anns []*Annotation
-	if k == KindSecond || k == KindMinute || k == KindEvent {
+	if annotated {
 		var err error
 		if anns, err = s.annotations(); err != nil {
 			return err
 		}
-		for _, r := range memAnn {
-			anns = append(anns, r.(*Annotation))
-		}
-	}
-	emit := func(r Record) error {
-		applyAnnotations(r, anns)
-		return fn(r)
+		anns = append(anns, memAnn...)
 	}
 
-	start := indexKey(lo, 0)
-	for {
-		var chunk []keyed
-		err := s.view(func(tx *bolt.Tx) error {
-			rb := tx.Bucket(recBucket(k))
-			c := tx.Bucket(timeBucket(k)).Cursor()
-			for ik, _ := c.Seek(start); ik != nil && len(chunk) < rangeChunk; ik, _ = c.Next() {
-				tk, seq := binary.BigEndian.Uint64(ik), binary.BigEndian.Uint64(ik[8:])
-				if tk >= hi {
+	// Find, in each run, the sequence numbers whose times lie in [from, to).
+	var srcs []*source
+	err := s.view(func(tx *bolt.Tx) error {
+		c := tx.Bucket(recBucket(k)).Cursor()
+		for _, r := range loadRuns(tx, k) {
+			if r.start >= memFirst {
+				break
+			}
+			a, err := lowerBound(c, k, r, memFirst, lo)
+			if err != nil {
+				return fmt.Errorf("store %s: %w", s.path, err)
+			}
+			b, err := lowerBound(c, k, r, memFirst, hi)
+			if err != nil {
+				return fmt.Errorf("store %s: %w", s.path, err)
+			}
+			if a < b {
+				srcs = append(srcs, &source{next: a, end: b})
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+
+	fill := func(src *source) error {
+		return s.view(func(tx *bolt.Tx) error {
+			c := tx.Bucket(recBucket(k)).Cursor()
+			for key, v := c.Seek(seqKey(src.next)); key != nil && len(src.buf) < rangeChunk; key, v = c.Next() {
+				seq := binary.BigEndian.Uint64(key)
+				if seq >= src.end {
 					break
-				}
-				if seq >= memFirst {
-					continue
-				}
-				v := rb.Get(seqKey(seq))
-				if v == nil {
-					return fmt.Errorf("store %s: %w: time index names %s record %d, which is missing", s.path, ErrDamaged, k, seq)
 				}
 				r, err := Decode(k, v)
 				if err != nil {
 					return fmt.Errorf("store %s: %s record %d: %w", s.path, k, seq, err)
 				}
 				r.setSeq(seq)
-				chunk = append(chunk, keyed{tk, seq, r})
+				src.buf = append(src.buf, keyed{timeKey(r.Time()), seq, r})
+				src.next = seq + 1
+			}
+			if len(src.buf) == 0 {
+				src.next = src.end // retention removed the rest
 			}
 			return nil
 		})
-		if err != nil {
-			return err
-		}
-		for _, kr := range chunk {
-			for len(mem) > 0 && mem[0].less(kr) {
-				if err := emit(mem[0].rec); err != nil {
+	}
+	for {
+		// Pick the smallest head among the runs and the held records.
+		var best *source
+		for _, src := range srcs {
+			if len(src.buf) == 0 && src.next < src.end {
+				if err := fill(src); err != nil {
 					return err
 				}
-				mem = mem[1:]
 			}
-			if err := emit(kr.rec); err != nil {
-				return err
+			if len(src.buf) > 0 && (best == nil || src.buf[0].less(best.buf[0])) {
+				best = src
 			}
 		}
-		if len(chunk) < rangeChunk {
-			break
+		var rec Record
+		switch {
+		case len(mem) > 0 && (best == nil || mem[0].less(best.buf[0])):
+			rec, mem = mem[0].rec, mem[1:]
+		case best != nil:
+			rec, best.buf = best.buf[0].rec, best.buf[1:]
+		default:
+			return nil
 		}
-		lastKey := chunk[len(chunk)-1]
-		start = indexKey(lastKey.tkey, lastKey.seq+1)
-	}
-	for _, m := range mem {
-		if err := emit(m.rec); err != nil {
+		applyAnnotations(rec, anns)
+		if err := fn(rec); err != nil {
 			return err
 		}
 	}
-	return nil
 }
 
 // annotations reads every committed annotation. Annotations are few (a handful a month).
@@ -360,6 +385,44 @@ func applyAnnotations(r Record, anns []*Annotation) {
 		}
 	}
 }
+
+// timeSpan returns the earliest and latest record time of kind k: the first record of the
+// oldest run and the last record of the newest one.
+func timeSpan(tx *bolt.Tx, k Kind) (oldest, newest time.Time, err error) {
+	c := tx.Bucket(recBucket(k)).Cursor()
+	var lo, hi uint64
+	found := false
+	for _, r := range loadRuns(tx, k) {
+		var key, v []byte
+		if r.end == math.MaxUint64 {
+			key, v = c.Last()
+		} else if key, _ = c.Seek(seqKey(r.end)); key != nil {
+			key, v = c.Prev()
+		} else {
+			key, v = c.Last()
+		}
+		if key == nil || binary.BigEndian.Uint64(key) < r.start {
+			continue
+		}
+		last, err := timeOf(k, v)
+		if err != nil {
+			return oldest, newest, fmt.Errorf("%s record %d: %w", k, binary.BigEndian.Uint64(key), err)
+		}
+		if !found || r.tkey < lo {
+			lo = r.tkey
+		}
+		if !found || last > hi {
+			hi = last
+		}
+		found = true
+	}
+	if !found {
+		return
+	}
+	return fromTimeKey(lo), fromTimeKey(hi), nil
+}
+
+func fromTimeKey(tk uint64) time.Time { return time.UnixMicro(int64(tk ^ 1<<63)).UTC() }
 
 // KindStats describes the records of one kind.
 type KindStats struct {
@@ -426,13 +489,11 @@ func (s *Store) Stats() (Stats, error) {
 			if key, _ := tx.Bucket(recBucket(k)).Cursor().First(); key != nil {
 				ks.FirstSeq = binary.BigEndian.Uint64(key)
 			}
-			c := tx.Bucket(timeBucket(k)).Cursor()
-			if key, _ := c.First(); key != nil {
-				ks.Oldest = time.UnixMicro(int64(binary.BigEndian.Uint64(key) ^ 1<<63)).UTC()
+			oldest, newest, err := timeSpan(tx, k)
+			if err != nil {
+				return fmt.Errorf("store %s: %w", s.path, err)
 			}
-			if key, _ := c.Last(); key != nil {
-				ks.Newest = time.UnixMicro(int64(binary.BigEndian.Uint64(key) ^ 1<<63)).UTC()
-			}
+			ks.Oldest, ks.Newest = oldest, newest
 			st.Kinds[k] = ks
 		}
 		return nil
@@ -491,13 +552,14 @@ func (s *Store) check() error {
 			return nil // the B+trees themselves are unsound: walking them could panic
 		}
 		for _, k := range Kinds() {
-			rb, tb := tx.Bucket(recBucket(k)), tx.Bucket(timeBucket(k))
-			if rb == nil || tb == nil {
+			rb, xb := tx.Bucket(recBucket(k)), tx.Bucket(runsBucket(k))
+			if rb == nil || xb == nil {
 				add(fmt.Errorf("buckets of kind %s missing", k))
 				continue
 			}
-			var n uint64
-			times := map[uint64]uint64{}
+			runs := loadRuns(tx, k)
+			ri := -1 // the run holding the current record
+			var n, prevT uint64
 			err := rb.ForEach(func(key, v []byte) error {
 				n++
 				seq := binary.BigEndian.Uint64(key)
@@ -513,39 +575,37 @@ func (s *Store) check() error {
 					}
 					return nil
 				}
-				times[seq] = timeKey(r.Time())
-				return nil
-			})
-			if err != nil {
-				return nil
-			}
-			var ni uint64
-			err = tb.ForEach(func(key, _ []byte) error {
-				ni++
-				if len(key) != 16 {
-					if !add(fmt.Errorf("%s time index key of %d bytes", k, len(key))) {
-						return errStop
-					}
-					return nil
+				tk := timeKey(r.Time())
+				newRun := false
+				for ri+1 < len(runs) && runs[ri+1].start <= seq {
+					ri++
+					newRun = true
 				}
-				tk, seq := binary.BigEndian.Uint64(key), binary.BigEndian.Uint64(key[8:])
-				want, ok := times[seq]
 				switch {
-				case !ok && rb.Get(seqKey(seq)) == nil:
-					if !add(fmt.Errorf("%s time index names record %d, which is missing", k, seq)) {
+				case ri < 0:
+					if !add(fmt.Errorf("%s record %d lies before the first run of the time index", k, seq)) {
 						return errStop
 					}
-				case ok && want != tk:
-					if !add(fmt.Errorf("%s time index entry of record %d has the wrong time", k, seq)) {
+				case newRun && runs[ri].start != seq:
+					if !add(fmt.Errorf("%s run %d of the time index names a missing record", k, runs[ri].start)) {
+						return errStop
+					}
+				case newRun && runs[ri].tkey != tk:
+					if !add(fmt.Errorf("%s run %d of the time index has the wrong time", k, seq)) {
+						return errStop
+					}
+				case !newRun && tk < prevT:
+					if !add(fmt.Errorf("%s record %d is earlier than the record before it in its run", k, seq)) {
 						return errStop
 					}
 				}
+				prevT = tk
 				return nil
 			})
 			if err != nil {
 				return nil
 			}
-			if ni != n && !add(fmt.Errorf("%s: %d records but %d time index entries", k, n, ni)) {
+			if ri+1 < len(runs) && !add(fmt.Errorf("%s: %d runs of the time index name no record", k, len(runs)-ri-1)) {
 				return nil
 			}
 			s.mu.Lock()

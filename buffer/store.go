@@ -39,7 +39,7 @@ const formatVersion = 1
 //
 //	meta           "id" → 16 hex digits, "created" → RFC 3339, "format" → one byte
 //	rec/<kind>     seq (8 bytes, big-endian) → encoded record; bucket sequence = last seq
-//	time/<kind>    timeKey (8) ‖ seq (8) → empty; timeKey = UnixMicro with the sign bit flipped
+//	runs/<kind>    first seq of a run (8) → its time key (8); see runs.go
 //	kinds          kind (1) → count, bytes, removed by age, removed by size (4 × uint64)
 //	outbox         stream ‖ 0 ‖ kind → acknowledged seq, dropped count (2 × uint64)
 var (
@@ -48,11 +48,10 @@ var (
 	bucketOutbox = []byte("outbox")
 )
 
-func recBucket(k Kind) []byte  { return []byte("rec/" + k.String()) }
-func timeBucket(k Kind) []byte { return []byte("time/" + k.String()) }
+func recBucket(k Kind) []byte { return []byte("rec/" + k.String()) }
 
-// fillPercent packs pages full: records and time keys are appended at the right edge of their
-// B+trees, so half-empty pages would only waste space and writes.
+// fillPercent packs pages full: records are appended at the right edge of their B+trees, so
+// half-empty pages would only waste space and writes.
 const fillPercent = 1.0
 
 // retentionEvery is how often age retention runs inside a commit. Deleting a few expired records
@@ -80,10 +79,11 @@ type cursor struct {
 
 // held is a record appended but not yet committed.
 type held struct {
-	kind  Kind
-	seq   uint64
-	tkey  uint64
-	value []byte
+	kind   Kind
+	seq    uint64
+	tkey   uint64
+	newRun bool // the record starts a run of the time index
+	value  []byte
 }
 
 // Store is a ring buffer of records in one bbolt file. Its methods are safe for concurrent use.
@@ -100,6 +100,8 @@ type Store struct {
 	nextSeq     [KindSession + 1]uint64 // next sequence number to assign
 	committed   [KindSession + 1]uint64 // last committed sequence number
 	kstat       [KindSession + 1]kindStat
+	lastTkey    [KindSession + 1]uint64 // time key of the last record appended
+	runsEmpty   [KindSession + 1]bool   // the kind has no run: the next record starts one
 	cursors     map[streamKind]*cursor
 	lastCommit  time.Time
 	lastRetain  time.Time
@@ -257,7 +259,7 @@ func (s *Store) init(tx *bolt.Tx) error {
 		if _, err := tx.CreateBucketIfNotExists(recBucket(k)); err != nil {
 			return err
 		}
-		if _, err := tx.CreateBucketIfNotExists(timeBucket(k)); err != nil {
+		if _, err := tx.CreateBucketIfNotExists(runsBucket(k)); err != nil {
 			return err
 		}
 	}
@@ -272,10 +274,22 @@ func (s *Store) load(tx *bolt.Tx) error {
 	}
 	s.id = string(meta.Get([]byte("id")))
 	for _, k := range Kinds() {
-		if b := tx.Bucket(recBucket(k)); b != nil {
-			s.committed[k] = b.Sequence()
+		b, rb := tx.Bucket(recBucket(k)), tx.Bucket(runsBucket(k))
+		if b == nil || rb == nil {
+			return fmt.Errorf("store %s: %w: buckets of kind %s missing", s.path, ErrDamaged, k)
 		}
+		s.committed[k] = b.Sequence()
 		s.nextSeq[k] = s.committed[k] + 1
+		if key, _ := rb.Cursor().First(); key == nil {
+			s.runsEmpty[k] = true
+		}
+		if key, v := b.Cursor().Last(); key != nil {
+			tk, err := timeOf(k, v)
+			if err != nil {
+				return fmt.Errorf("store %s: last %s record: %w", s.path, k, err)
+			}
+			s.lastTkey[k] = tk
+		}
 	}
 	if b := tx.Bucket(bucketKinds); b != nil {
 		_ = b.ForEach(func(k, v []byte) error {
@@ -350,13 +364,6 @@ func seqKey(seq uint64) []byte {
 
 func timeKey(t time.Time) uint64 { return uint64(t.UnixMicro()) ^ 1<<63 }
 
-func indexKey(tkey, seq uint64) []byte {
-	var b [16]byte
-	binary.BigEndian.PutUint64(b[:], tkey)
-	binary.BigEndian.PutUint64(b[8:], seq)
-	return b[:]
-}
-
 // Append assigns rec the next sequence number of its kind, holds it in memory, and commits the
 // held records when a commit is due: on the first record after Open, when CommitInterval has
 // passed since the last commit, or when MaxHeld records are held. It returns the sequence
@@ -385,7 +392,10 @@ func (s *Store) Append(rec Record) (seq uint64, err error) {
 	seq = s.nextSeq[k]
 	s.nextSeq[k]++
 	rec.setSeq(seq)
-	s.held = append(s.held, held{kind: k, seq: seq, tkey: timeKey(rec.Time()), value: value})
+	tk := timeKey(rec.Time())
+	newRun := s.runsEmpty[k] || tk < s.lastTkey[k]
+	s.runsEmpty[k], s.lastTkey[k] = false, tk
+	s.held = append(s.held, held{kind: k, seq: seq, tkey: tk, newRun: newRun, value: value})
 	return seq, s.maybeCommit()
 }
 
@@ -464,15 +474,18 @@ func (s *Store) commit() error {
 		cursors[sk] = *c
 	}
 	var last [KindSession + 1]uint64
+	var runsEmpty [KindSession + 1]bool
 	err := s.db.Update(func(tx *bolt.Tx) error {
 		for _, h := range s.held {
-			rb, tb := tx.Bucket(recBucket(h.kind)), tx.Bucket(timeBucket(h.kind))
-			rb.FillPercent, tb.FillPercent = fillPercent, fillPercent
+			rb := tx.Bucket(recBucket(h.kind))
+			rb.FillPercent = fillPercent
 			if err := rb.Put(seqKey(h.seq), h.value); err != nil {
 				return err
 			}
-			if err := tb.Put(indexKey(h.tkey, h.seq), nil); err != nil {
-				return err
+			if h.newRun {
+				if err := putRun(tx.Bucket(runsBucket(h.kind)), h.seq, h.tkey); err != nil {
+					return err
+				}
 			}
 			kstat[h.kind].count++
 			kstat[h.kind].bytes += uint64(len(h.value))
@@ -492,6 +505,10 @@ func (s *Store) commit() error {
 		}
 		if err := s.retainBySize(tx, &kstat, cursors); err != nil {
 			return err
+		}
+		for _, k := range Kinds() {
+			key, _ := tx.Bucket(runsBucket(k)).Cursor().First()
+			runsEmpty[k] = key == nil
 		}
 		kb := tx.Bucket(bucketKinds)
 		for _, k := range Kinds() {
@@ -539,6 +556,8 @@ func (s *Store) commit() error {
 			s.committed[k] = last[k]
 		}
 	}
+	// Retention may have emptied a kind: its next record starts a run.
+	s.runsEmpty = runsEmpty
 	s.held = s.held[:0]
 	s.lastCommit = now
 	if retain {
@@ -553,28 +572,6 @@ func outboxKey(sk streamKind) []byte {
 	return append(append([]byte(sk.stream), 0), byte(sk.kind))
 }
 
-// deleteRecord removes one record found through its time-index entry and counts it as dropped
-// for every stream that has not acknowledged it. It returns the bytes its value took.
-func deleteRecord(tx *bolt.Tx, k Kind, ikey []byte, cursors map[streamKind]cursor) (int, error) {
-	seq := binary.BigEndian.Uint64(ikey[8:])
-	rb := tx.Bucket(recBucket(k))
-	n := len(rb.Get(seqKey(seq)))
-	if err := rb.Delete(seqKey(seq)); err != nil {
-		return 0, err
-	}
-	if err := tx.Bucket(timeBucket(k)).Delete(ikey); err != nil {
-		return 0, err
-	}
-	for sk, c := range cursors {
-		if sk.kind == k && c.acked < seq {
-			c.dropped++
-			c.dirty = true
-			cursors[sk] = c
-		}
-	}
-	return n, nil
-}
-
 // retainByAge deletes the records whose time is older than their kind's retention.
 func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
 	budget := maxDeletePerCommit
@@ -584,19 +581,19 @@ func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]
 			continue
 		}
 		cut := timeKey(now.Add(-keep))
-		c := tx.Bucket(timeBucket(k)).Cursor()
-		for ik, _ := c.First(); ik != nil && budget > 0; ik, _ = c.First() {
-			if binary.BigEndian.Uint64(ik) >= cut {
-				break
+		t := newTrimmer(tx, k, &kstat[k], cursors)
+		for i := range t.runs {
+			for t.heads[i] < cut && budget > 0 {
+				n, err := t.deleteHead(i)
+				if err != nil {
+					return err
+				}
+				if n < 0 {
+					break
+				}
+				kstat[k].removedAge++
+				budget--
 			}
-			n, err := deleteRecord(tx, k, slices.Clone(ik), cursors)
-			if err != nil {
-				return err
-			}
-			kstat[k].count--
-			kstat[k].bytes -= uint64(n)
-			kstat[k].removedAge++
-			budget--
 		}
 	}
 	return nil
@@ -606,9 +603,9 @@ func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]
 const (
 	capHigh = 0.90
 	capLow  = 0.85
-	// recordOverhead approximates the B+tree bytes a record costs beyond its value: the 8-byte
-	// key and 16-byte element header in its bucket, the 16-byte key and header in the index.
-	recordOverhead = 8 + 16 + 16 + 16
+	// recordOverhead approximates the B+tree bytes a record costs beyond its value: its 8-byte
+	// key and 16-byte leaf element header.
+	recordOverhead = 8 + 16
 )
 
 // usedBytes is the space the data occupies: the file's high-water mark less its free pages.
@@ -638,16 +635,21 @@ func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, curs
 	budget := maxDeletePerCommit
 	var freed int64
 	for _, k := range order {
-		c := tx.Bucket(timeBucket(k)).Cursor()
-		for ik, _ := c.First(); ik != nil && freed < need && budget > 0; ik, _ = c.First() {
-			n, err := deleteRecord(tx, k, slices.Clone(ik), cursors)
+		t := newTrimmer(tx, k, &kstat[k], cursors)
+		for freed < need && budget > 0 {
+			i := t.oldest()
+			if i < 0 {
+				break
+			}
+			n, err := t.deleteHead(i)
 			if err != nil {
 				return err
 			}
+			if n < 0 {
+				continue // an empty run was removed
+			}
 			// Pages are not packed perfectly: count a little more than the bytes removed.
 			freed += int64(float64(n+recordOverhead) * 1.1)
-			kstat[k].count--
-			kstat[k].bytes -= uint64(n)
 			kstat[k].removedSize++
 			budget--
 		}
