@@ -118,7 +118,8 @@ func DCBlockSections(fs float64) []Section {
 // fit. The correction's poles and zeros are parametrised so that they stay strictly inside
 // the unit circle: the section is stable and minimum phase, like the analog prototype, so
 // transients and peaks keep their shape. The design is deterministic (the same fs always
-// gives the same coefficients) and takes a few milliseconds. A design that leaves more than
+// gives the same coefficients on one kind of processor; Go may fuse multiply-adds on some,
+// such as arm64, which moves the last bits) and takes a few milliseconds. A design that leaves more than
 // 0.1 dB of error anywhere on the grid is refused with an error rather than returned.
 //
 // Largest error of the chain DCBlockSections → CSections against WeightingC, sampled at 100
