@@ -49,6 +49,10 @@ type Options struct {
 	// Danger: with a live device, waiting makes the device overflow instead; use it only for
 	// sources that can wait (files, standard input, the synthetic scene run fast).
 	Lossless bool
+	// SampleTimed takes time stamps from the sample count, starting at the time of the first
+	// open, instead of from the system clock: for sources replayed faster than real time,
+	// whose arrival times mean nothing. Clock steps and the watchdog then play no part.
+	SampleTimed bool
 	// BlockDuration is the length of each audio block read from the source. Default 100 ms.
 	BlockDuration time.Duration
 	// QueueBlocks is the number of blocks the queue between capture and processing holds.
@@ -205,6 +209,17 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		}
 	}
 	backoff := min(time.Second, o.RetryMax)
+	// stamp returns the arrival time of what was just read: the system clock, or with
+	// SampleTimed the start time plus the samples delivered so far.
+	start := o.Now()
+	var delivered int64
+	var fs float64
+	stamp := func() time.Time {
+		if o.SampleTimed && fs > 0 {
+			return start.Add(time.Duration(float64(delivered) / fs * 1e9))
+		}
+		return o.Now()
+	}
 	var discard []float32
 	opened := false
 	for ctx.Err() == nil {
@@ -222,7 +237,8 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		}
 		opened = true
 		backoff = min(time.Second, o.RetryMax)
-		if !send(event{kind: evOpened, format: f, arrival: o.Now()}) {
+		fs = float64(f.SampleRate)
+		if !send(event{kind: evOpened, format: f, arrival: stamp()}) {
 			o.Source.Close()
 			return
 		}
@@ -258,8 +274,9 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 				buf = make([]float32, blockLen)
 			}
 			nr, rerr := o.Source.Read(buf[:blockLen])
-			arrival := o.Now()
 			d := o.Source.Dropped()
+			delivered += int64(nr) + d - lastDropped
+			arrival := stamp()
 			skipped += d - lastDropped
 			lastDropped = d
 			if overflow {

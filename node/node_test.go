@@ -27,7 +27,7 @@ type simClock struct {
 	now time.Time
 }
 
-func (c *simClock) Now() time.Time { c.mu.Lock(); defer c.mu.Unlock(); return c.now }
+func (c *simClock) Now() time.Time  { c.mu.Lock(); defer c.mu.Unlock(); return c.now }
 func (c *simClock) set(t time.Time) { c.mu.Lock(); c.now = t; c.mu.Unlock() }
 
 // fakeSource stands in for a capture device where the real thing cannot run on a build

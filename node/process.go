@@ -129,7 +129,7 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 			watchdog.Reset(o.Watchdog)
 		case <-watchdog.C:
 			watchdog.Reset(o.Watchdog)
-			if open && ctx.Err() == nil {
+			if open && ctx.Err() == nil && !o.SampleTimed {
 				p.n.log.Warn("no samples from the audio source: closing it to recover", "source", o.Source.Describe(), "waited", o.Watchdog)
 				p.lostWhy = fmt.Sprintf("no samples for %v (watchdog)", o.Watchdog)
 				// Closing makes the blocked Read fail; the capture goroutine then re-opens.

@@ -1,0 +1,95 @@
+package main
+
+import (
+	"context"
+	"fmt"
+	"log/slog"
+	"math"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node"
+	"github.com/leqnode/leqnode/node/config"
+)
+
+func runDemo(ctx context.Context, std stdio, args []string) error {
+	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR]", std.err)
+	dur := fl.Duration("duration", 65*time.Second, "how long to run (0: until interrupted)")
+	fast := fl.Bool("fast", false, "run the synthetic scene as fast as the processor allows instead of in real time")
+	dir := fl.String("dir", "", "directory for the demo's store (default: a new temporary directory, kept)")
+	pos, err := parseFlags(fl, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) != 0 || *dur < 0 {
+		return badInput("demo takes no arguments; --duration must be 0 or more")
+	}
+	cfg := config.Default()
+	cfg.Capture.Realtime = !*fast
+	cfg.Capture.CalibratorSeconds = 8
+	if *dir == "" {
+		if *dir, err = os.MkdirTemp("", "leqnode-demo-"); err != nil {
+			return err
+		}
+	} else if err := os.MkdirAll(*dir, 0o755); err != nil {
+		return err
+	}
+	cfg.Store.Path = filepath.Join(*dir, "leqnode.db")
+	if *dur > 0 {
+		var cancel context.CancelFunc
+		ctx, cancel = context.WithTimeout(ctx, *dur)
+		defer cancel()
+	}
+	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
+	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
+	fmt.Fprintf(std.out, "levels are indicative: see the README's cautions\n\n")
+	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
+	err = runNode(ctx, cfg, nil, log, func(o *node.Options) {
+		o.OnSecond = func(s *buffer.Second) { fmt.Fprintln(std.out, liveLine(s)) }
+		o.OnMinute = func(m *buffer.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
+	})
+	if err != nil {
+		return err
+	}
+	st, err := buffer.OpenReadOnly(cfg.Store.Path, time.Second)
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	stats, err := st.Stats()
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(std.out, "\nstored in %s (store %s):", cfg.Store.Path, st.ID())
+	for _, k := range buffer.Kinds() {
+		if ks := stats.Kinds[k]; ks.Count > 0 {
+			fmt.Fprintf(std.out, " %d %s", ks.Count, k)
+		}
+	}
+	fmt.Fprintf(std.out, "\nexport them with: leqnode export --db %s --kind second --format csv\n", cfg.Store.Path)
+	return nil
+}
+
+// liveLine is one second of the demo's live display: time, LAeq, LAFmax and a level bar
+// (one mark per 2 dB from 20 dB).
+func liveLine(s *buffer.Second) string {
+	bar := ""
+	if !math.IsNaN(s.LAeq) {
+		n := int(math.Max(0, math.Min(40, (s.LAeq-20)/2)))
+		bar = strings.Repeat("#", n)
+	}
+	var flags string
+	if s.Flags != 0 {
+		flags = " [" + s.Flags.String() + "]"
+	}
+	return fmt.Sprintf("%s  LAeq %5.1f  LAFmax %5.1f  |%-40s|%s", s.Start.Local().Format("15:04:05"), s.LAeq, s.LAFmax, bar, flags)
+}
+
+// minuteLine is the demo's summary of a minute.
+func minuteLine(m *buffer.Minute) string {
+	return fmt.Sprintf("-- minute %s  LAeq %.1f  LAFmax %.1f  LAF10 %.1f  LAF50 %.1f  LAF90 %.1f  LCpeak %.1f  (%d valid seconds)",
+		m.Start.Local().Format("15:04"), m.LAeq, m.LAFmax, m.LAF10, m.LAF50, m.LAF90, m.LCpeak, m.ValidSeconds)
+}
