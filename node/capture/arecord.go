@@ -1,0 +1,290 @@
+package capture
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"os"
+	"os/exec"
+	"regexp"
+	"strconv"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"time"
+)
+
+// arecordFormats maps sample encodings to arecord's -f names.
+var arecordFormats = map[string]string{Int16: "S16_LE", Int32: "S32_LE", Int24in32: "S32_LE", Float32: "FLOAT_LE"}
+
+// overrunLine matches arecord's report of a capture overrun, e.g.
+// "overrun!!! (at least 1.234 ms long)". arecord runs with LC_ALL=C so the text is not
+// translated.
+var overrunLine = regexp.MustCompile(`overrun!!!(?: \(at least ([0-9.]+) ms long\))?`)
+
+// arecordSource runs arecord and reads raw PCM from its standard output.
+type arecordSource struct {
+	cfg    Config
+	logger *slog.Logger
+	layout pcmLayout
+
+	dropped  atomic.Int64
+	overruns atomic.Int64
+
+	mu      sync.Mutex // guards the fields below against a concurrent Close
+	closed  bool
+	cmd     *exec.Cmd
+	stdout  *os.File
+	exited  chan struct{} // closed when the process has been waited for
+	waitErr error         // the process's exit, valid once exited is closed
+	errDone chan struct{} // closed when standard error has been read to its end
+	last    atomic.Value  // string: the last line on standard error that was not an overrun
+
+	ctx context.Context
+	dec *rawDecoder
+	err error // sticky error of Read
+}
+
+func newArecord(c Config, logger *slog.Logger) *arecordSource {
+	return &arecordSource{cfg: c, logger: logger, layout: newLayout(c.Sample, c.Channels, c.Channel)}
+}
+
+// args returns arecord's command line (without the program name).
+func (s *arecordSource) args() []string {
+	c := s.cfg
+	a := []string{"-D", c.Device, "-f", arecordFormats[c.Sample], "-r", strconv.Itoa(c.SampleRate),
+		"-c", strconv.Itoa(c.Channels), "-t", "raw"}
+	if !c.AllowResample {
+		a = append(a, "--disable-resample")
+	}
+	return a
+}
+
+func (s *arecordSource) Open(ctx context.Context) (Format, error) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if s.closed {
+		return Format{}, fmt.Errorf("arecord: %w", ErrClosed)
+	}
+	if s.cmd != nil {
+		return Format{}, fmt.Errorf("arecord: already open")
+	}
+	path, err := exec.LookPath(s.cfg.ArecordPath)
+	if err != nil {
+		return Format{}, fmt.Errorf("arecord: %q not found (%w): install Debian's alsa-utils or set %s.arecord_path",
+			s.cfg.ArecordPath, err, section)
+	}
+	outR, outW, err := os.Pipe()
+	if err != nil {
+		return Format{}, fmt.Errorf("arecord: %w", err)
+	}
+	errR, errW, err := os.Pipe()
+	if err != nil {
+		outR.Close()
+		outW.Close()
+		return Format{}, fmt.Errorf("arecord: %w", err)
+	}
+	cmd := exec.Command(path, s.args()...)
+	cmd.Stdout, cmd.Stderr = outW, errW
+	cmd.Env = append(os.Environ(), "LC_ALL=C")
+	setProcessGroup(cmd)
+	// Our own pipes rather than cmd.StdoutPipe: Wait then never closes the read ends, so the
+	// samples arecord wrote before it died are all read.
+	err = cmd.Start()
+	outW.Close()
+	errW.Close()
+	if err != nil {
+		outR.Close()
+		errR.Close()
+		return Format{}, fmt.Errorf("arecord: starting %s: %w: %w", path, ErrDeviceLost, err)
+	}
+	s.cmd, s.stdout, s.ctx = cmd, outR, ctx
+	s.exited, s.errDone = make(chan struct{}), make(chan struct{})
+	s.last.Store("")
+	s.dec = newRawDecoder(outR, s.layout, s.cfg.FramesPerBuffer, "arecord", s.logger)
+	go func() {
+		err := cmd.Wait()
+		s.mu.Lock()
+		s.waitErr = err
+		s.mu.Unlock()
+		close(s.exited)
+	}()
+	go s.readStderr(errR)
+	go func() {
+		// Cancelling the context stops arecord, which ends a waiting Read.
+		select {
+		case <-ctx.Done():
+			s.stop()
+		case <-s.exited:
+		}
+	}()
+	s.logger.Info("started arecord", "path", path, "args", strings.Join(s.args(), " "))
+	return Format{SampleRate: s.cfg.SampleRate, Channels: s.cfg.Channels, Channel: s.cfg.Channel, Sample: s.cfg.Sample}, nil
+}
+
+// readStderr counts overruns and keeps the last other message, until arecord's standard error
+// closes.
+func (s *arecordSource) readStderr(r *os.File) {
+	defer close(s.errDone)
+	defer r.Close()
+	sc := bufio.NewScanner(r)
+	for sc.Scan() {
+		line := strings.TrimSpace(sc.Text())
+		if line == "" {
+			continue
+		}
+		if m := overrunLine.FindStringSubmatch(line); m != nil {
+			n := overrunSamples(m[1], s.cfg.SampleRate, s.cfg.FramesPerBuffer)
+			s.dropped.Add(n)
+			s.overruns.Add(1)
+			s.logger.Warn("arecord reported an overrun; samples were lost", "message", line, "dropped_estimate", n)
+			continue
+		}
+		if strings.HasPrefix(line, "Recording ") {
+			s.logger.Debug("arecord", "message", line)
+			continue
+		}
+		s.last.Store(line)
+		s.logger.Warn("arecord", "message", line)
+	}
+}
+
+// overrunSamples estimates the samples lost in one overrun that arecord reported as lasting at
+// least ms milliseconds: ceil(ms · rate / 1000). arecord measures the time from the overrun to
+// its noticing it, and the restart of the stream loses a little more, so this is a lower bound.
+// A report without a duration counts one block of frames, also a lower bound (common practice:
+// ALSA stops a capture stream when its buffer is full, so at least the next period is lost).
+func overrunSamples(ms string, rate, block int) int64 {
+	v, err := strconv.ParseFloat(ms, 64)
+	if err != nil || !(v > 0) || v > 1e7 {
+		return int64(block)
+	}
+	return int64(math.Ceil(v * float64(rate) / 1000))
+}
+
+func (s *arecordSource) Read(dst []float32) (int, error) {
+	s.mu.Lock()
+	closed, open := s.closed, s.cmd != nil
+	s.mu.Unlock()
+	switch {
+	case closed:
+		return 0, fmt.Errorf("arecord: %w", ErrClosed)
+	case !open:
+		return 0, fmt.Errorf("arecord: read before Open")
+	case len(dst) == 0:
+		return 0, io.ErrShortBuffer
+	case s.err != nil:
+		return 0, s.err
+	}
+	n, err := s.dec.read(dst)
+	if err == nil {
+		return n, nil
+	}
+	switch {
+	case s.isClosed():
+		s.err = fmt.Errorf("arecord: %w", ErrClosed)
+	case s.ctx.Err() != nil:
+		s.err = s.ctx.Err()
+	case errors.Is(err, ErrBadInput):
+		s.err = fmt.Errorf("arecord: %w", err)
+	default:
+		s.err = s.lost()
+	}
+	return 0, s.err
+}
+
+// lost waits (briefly) for arecord to end and returns the ErrDeviceLost error that says why.
+func (s *arecordSource) lost() error {
+	s.stop() // in case only its standard output closed
+	timeout := time.NewTimer(3 * time.Second)
+	defer timeout.Stop()
+	select {
+	case <-s.exited:
+	case <-timeout.C:
+		return fmt.Errorf("arecord: %w: its output ended but the process did not exit", ErrDeviceLost)
+	}
+	select {
+	case <-s.errDone:
+	case <-timeout.C:
+	}
+	s.mu.Lock()
+	werr := s.waitErr
+	s.mu.Unlock()
+	status := "exited"
+	if werr != nil {
+		status = werr.Error()
+	}
+	if msg, _ := s.last.Load().(string); msg != "" {
+		return fmt.Errorf("arecord: %w: %s: %s", ErrDeviceLost, status, msg)
+	}
+	return fmt.Errorf("arecord: %w: %s", ErrDeviceLost, status)
+}
+
+// stop asks arecord to end (SIGTERM to its process group) and kills it if it has not after a
+// second. It does not wait.
+func (s *arecordSource) stop() {
+	s.mu.Lock()
+	cmd, exited := s.cmd, s.exited
+	s.mu.Unlock()
+	if cmd == nil || cmd.Process == nil {
+		return
+	}
+	select {
+	case <-exited:
+		return
+	default:
+	}
+	terminate(cmd)
+	go func() {
+		t := time.NewTimer(time.Second)
+		defer t.Stop()
+		select {
+		case <-exited:
+		case <-t.C:
+			kill(cmd)
+		}
+	}()
+}
+
+func (s *arecordSource) isClosed() bool {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.closed
+}
+
+// Dropped returns the estimated number of samples lost in overruns (see overrunSamples).
+func (s *arecordSource) Dropped() int64 { return s.dropped.Load() }
+
+// Close stops arecord and waits up to two seconds for it to exit.
+func (s *arecordSource) Close() error {
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return nil
+	}
+	s.closed = true
+	cmd, exited, stdout := s.cmd, s.exited, s.stdout
+	s.mu.Unlock()
+	if cmd == nil {
+		return nil
+	}
+	s.stop()
+	stdout.Close() // ends a Read blocked on the pipe
+	t := time.NewTimer(2 * time.Second)
+	defer t.Stop()
+	select {
+	case <-exited:
+		return nil
+	case <-t.C:
+		return fmt.Errorf("arecord: process %d did not exit after SIGTERM and SIGKILL", cmd.Process.Pid)
+	}
+}
+
+func (s *arecordSource) Describe() string {
+	return fmt.Sprintf("arecord: %s @%d Hz, channel %d of %d, %s", s.cfg.Device, s.cfg.SampleRate,
+		s.cfg.Channel, s.cfg.Channels, s.cfg.Sample)
+}
