@@ -43,6 +43,8 @@ type command struct {
 func commands() map[string]command {
 	return map[string]command{
 		"analyze": {"measure a WAV recording with the node's own chain", runAnalyze},
+		"export":  {"write stored records of one kind as CSV or JSON lines", runExport},
+		"db":      {"check a store file and summarise what it holds", runDB},
 	}
 }
 

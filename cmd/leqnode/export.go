@@ -1,0 +1,354 @@
+package main
+
+import (
+	"bufio"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"strconv"
+	"strings"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/dsp/reference"
+	"github.com/leqnode/leqnode/node/config"
+)
+
+// storeFlags are the flags every reading command uses to find its store.
+type storeFlags struct {
+	db, config *string
+}
+
+func addStoreFlags(fl interface {
+	String(name, value, usage string) *string
+}) storeFlags {
+	return storeFlags{
+		db:     fl.String("db", "", "the store file (bbolt)"),
+		config: fl.String("config", "", "the node's configuration file; its store path and time zone are used"),
+	}
+}
+
+// openStoreReadOnly opens the store named by --db or --config read-only, with the 1 s lock
+// timeout of a reading command. It also returns the time zone for dates: the configured one with
+// --config, else that of the latest session record, else UTC.
+func (f storeFlags) openReadOnly() (*buffer.Store, *time.Location, error) {
+	path, zone := *f.db, ""
+	switch {
+	case *f.db != "" && *f.config != "":
+		return nil, nil, badInput("give either --db FILE or --config FILE, not both")
+	case *f.config != "":
+		cfg, err := config.Load(*f.config)
+		if err != nil {
+			return nil, nil, badInput("%v", err)
+		}
+		path, zone = cfg.Store.Path, cfg.Node.TimeZone
+	case path == "":
+		return nil, nil, badInput("give the store with --db FILE or the node's configuration with --config FILE")
+	}
+	st, err := buffer.OpenReadOnly(path, time.Second)
+	if err != nil {
+		if strings.HasPrefix(err.Error(), "no store at") {
+			return nil, nil, badInput("%v", err)
+		}
+		return nil, nil, err
+	}
+	if zone == "" {
+		if r, err := st.Last(buffer.KindSession); err == nil && r != nil {
+			zone = r.(*buffer.Session).TimeZone
+		}
+	}
+	loc := time.UTC
+	if zone != "" {
+		if l, err := time.LoadLocation(zone); err == nil {
+			loc = l
+		}
+	}
+	return st, loc, nil
+}
+
+// parseWhen parses the value of a time flag: RFC 3339, or a date YYYY-MM-DD meaning its
+// midnight in loc.
+func parseWhen(flag, v string, loc *time.Location) (time.Time, error) {
+	if t, err := time.Parse(time.RFC3339Nano, v); err == nil {
+		return t, nil
+	}
+	if t, err := time.ParseInLocation(time.DateOnly, v, loc); err == nil {
+		return t, nil
+	}
+	return time.Time{}, badInput("--%s %q is not a time: write RFC 3339 (2026-05-04T07:00:00Z) or a date (2026-05-04, in zone %s)", flag, v, loc)
+}
+
+func runExport(ctx context.Context, std stdio, args []string) error {
+	fl := newFlags("export", "(--db FILE | --config FILE) --kind KIND [--from T] [--to T] [--format csv|jsonl]", std.err)
+	sf := addStoreFlags(fl)
+	kindName := fl.String("kind", "", "record kind: second, minute, event, calibration, health, gap, annotation or session")
+	from := fl.String("from", "", "start of the half-open range: RFC 3339 or YYYY-MM-DD (default: the oldest record)")
+	to := fl.String("to", "", "end of the half-open range, excluded (default: after the newest record)")
+	format := fl.String("format", "jsonl", "output: csv or jsonl")
+	pos, err := parseFlags(fl, args)
+	if err != nil {
+		return err
+	}
+	if len(pos) != 0 {
+		return badInput("unexpected argument %q: the store is given with --db FILE", pos[0])
+	}
+	if *kindName == "" {
+		return badInput("give the record kind with --kind (second, minute, event, calibration, health, gap, annotation or session)")
+	}
+	kind, err := buffer.ParseKind(*kindName)
+	if err != nil {
+		return badInput("--kind: %v", err)
+	}
+	if err := oneOf("format", *format, "csv", "jsonl"); err != nil {
+		return err
+	}
+	st, loc, err := sf.openReadOnly()
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	lo, hi := time.Unix(0, 0), time.Date(2200, 1, 1, 0, 0, 0, 0, time.UTC)
+	if *from != "" {
+		if lo, err = parseWhen("from", *from, loc); err != nil {
+			return err
+		}
+	}
+	if *to != "" {
+		if hi, err = parseWhen("to", *to, loc); err != nil {
+			return err
+		}
+	}
+	if !lo.Before(hi) {
+		return badInput("--from %s is not before --to %s: the range is half-open [from, to)", lo.Format(time.RFC3339), hi.Format(time.RFC3339))
+	}
+
+	w := bufio.NewWriterSize(std.out, 1<<16)
+	ex := &exporter{w: w, format: *format, kind: kind, store: st.ID()}
+	if *format == "csv" && hasSpectrum(kind) {
+		// The CSV header needs the span of bands over the whole range: a first pass finds it.
+		ex.lowBand, ex.highBand = math.MaxInt, math.MinInt
+		err := st.Range(kind, lo, hi, func(r buffer.Record) error {
+			if first, s := spectrumOf(r); len(s) > 0 {
+				ex.lowBand, ex.highBand = min(ex.lowBand, first), max(ex.highBand, first+len(s)-1)
+			}
+			return ctx.Err()
+		})
+		if err != nil {
+			return err
+		}
+	}
+	ex.header()
+	err = st.Range(kind, lo, hi, func(r buffer.Record) error {
+		ex.record(r)
+		if ex.err != nil {
+			return ex.err
+		}
+		return ctx.Err()
+	})
+	if err == nil {
+		err = w.Flush()
+	}
+	if errors.Is(err, context.Canceled) {
+		return errors.New("interrupted")
+	}
+	return err
+}
+
+func hasSpectrum(k buffer.Kind) bool {
+	return k == buffer.KindSecond || k == buffer.KindMinute || k == buffer.KindEvent
+}
+
+func spectrumOf(r buffer.Record) (int, []float64) {
+	switch v := r.(type) {
+	case *buffer.Second:
+		return v.FirstBand, v.Spectrum
+	case *buffer.Minute:
+		return v.FirstBand, v.Spectrum
+	case *buffer.Event:
+		return v.FirstBand, v.Spectrum
+	}
+	return 0, nil
+}
+
+// exporter writes records as CSV or JSON lines. Keys are the quantity names of `leqnode
+// analyze`; times are RFC 3339 in UTC; a level that does not exist is null (JSON) or empty (CSV).
+type exporter struct {
+	w                 io.Writer
+	format            string
+	kind              buffer.Kind
+	store             string
+	lowBand, highBand int // band span of the CSV spectrum columns (low > high: none)
+	err               error
+}
+
+// field is one exported value: a level, a number, a string, a time, a boolean, or raw JSON.
+type field struct {
+	key  string
+	val  string // the CSV text
+	json string // the JSON text
+}
+
+func level(key string, v float64) field {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return field{key, "", "null"}
+	}
+	s := strconv.FormatFloat(v, 'f', 2, 64)
+	return field{key, s, s}
+}
+
+func number(key string, v float64) field {
+	if math.IsNaN(v) || math.IsInf(v, 0) {
+		return field{key, "", "null"}
+	}
+	s := strconv.FormatFloat(v, 'f', -1, 64)
+	return field{key, s, s}
+}
+
+func integer(key string, v uint64) field {
+	s := strconv.FormatUint(v, 10)
+	return field{key, s, s}
+}
+
+func text(key, v string) field { return field{key, csvQuote(v), strconv.Quote(v)} }
+
+func stamp(key string, t time.Time) field { return text(key, t.UTC().Format(time.RFC3339Nano)) }
+
+func boolean(key string, v bool) field {
+	s := strconv.FormatBool(v)
+	return field{key, s, s}
+}
+
+func csvQuote(s string) string {
+	if strings.ContainsAny(s, ",\"\r\n") {
+		return `"` + strings.ReplaceAll(s, `"`, `""`) + `"`
+	}
+	return s
+}
+
+const spectrumKey = "third_octave_LZeq"
+
+// bandName is the nominal midband frequency of one-third-octave band x (IEC 61260-1:2014
+// Annex E, as dsp/reference writes it).
+func bandName(x int) string { return reference.NominalMidband(3, x) }
+
+func (e *exporter) fields(r buffer.Record) []field {
+	f := []field{text("store", e.store), integer("seq", r.Seq())}
+	switch v := r.(type) {
+	case *buffer.Second:
+		f = append(f, stamp("start", v.Start), number("duration_s", v.Duration.Seconds()),
+			level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq), level("LAFmax", v.LAFmax),
+			level("LAFmin", v.LAFmin), level("LASmax", v.LASmax), level("LASmin", v.LASmin), level("LAImax", v.LAImax),
+			level("LCpeak", v.LCpeak), level("LZpeak", v.LZpeak), level("LAE", v.LAE),
+			text("flags", v.Flags.String()), integer("dropped_samples", v.DroppedSamples))
+	case *buffer.Minute:
+		f = append(f, stamp("start", v.Start), level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq),
+			level("LAFmax", v.LAFmax), level("LAFmin", v.LAFmin), level("LAF1", v.LAF1), level("LAF5", v.LAF5),
+			level("LAF10", v.LAF10), level("LAF50", v.LAF50), level("LAF90", v.LAF90), level("LAF95", v.LAF95),
+			level("LAF99", v.LAF99), level("LAE", v.LAE), level("LCpeak", v.LCpeak), level("LAImax", v.LAImax),
+			integer("valid_seconds", uint64(v.ValidSeconds)), text("flags", v.Flags.String()))
+	case *buffer.Event:
+		f = append(f, stamp("start", v.Start), stamp("end", v.End), number("duration_s", v.End.Sub(v.Start).Seconds()),
+			level("LAFmax", v.LAFmax), level("LAeq", v.LAeq), level("LAE", v.LAE), level("LCpeak", v.LCpeak),
+			text("flags", v.Flags.String()))
+	case *buffer.Calibration:
+		f = append(f, stamp("time", v.At), number("reference_dB", v.Reference), number("measured_dB", v.Measured),
+			number("deviation_dB", v.Deviation), number("frequency_Hz", v.Frequency), number("stability_dB", v.Stability),
+			number("sensitivity_before_dBFS", v.SensitivityBefore), number("sensitivity_after_dBFS", v.SensitivityAfter),
+			boolean("applied", v.Applied), boolean("ok", v.OK), text("flags", v.Flags.String()))
+	case *buffer.Health:
+		f = append(f, stamp("time", v.At), text("flags", v.Flags.String()), integer("clipped_samples", v.Clipped),
+			number("dc_offset", v.DCOffset), boolean("silent", v.Silent), boolean("stuck", v.Stuck),
+			integer("under_range_s", v.UnderRangeSeconds), integer("dropped_samples", v.DroppedSamples),
+			integer("queue_overflows", v.QueueOverflows), number("cpu_percent", v.CPU), number("memory_MB", v.MemoryMB),
+			number("disk_free_MB", v.DiskFreeMB), integer("store_bytes", v.StoreBytes), boolean("clock_synced", v.ClockSynced),
+			number("clock_error_ms", v.ClockErrorMs), number("temperature_C", v.TemperatureC))
+	case *buffer.Gap:
+		f = append(f, stamp("from", v.From), stamp("to", v.To), number("duration_s", v.To.Sub(v.From).Seconds()),
+			text("reason", v.Reason))
+	case *buffer.Annotation:
+		f = append(f, stamp("from", v.From), stamp("to", v.To), text("flags", v.Flags.String()), text("reason", v.Reason))
+	case *buffer.Session:
+		f = append(f, stamp("time", v.At), text("software_version", v.SoftwareVersion), text("config_hash", v.ConfigHash),
+			number("sensitivity_dBFS", v.SensitivityDBFS), integer("sample_rate_Hz", uint64(v.SampleRate)),
+			text("device", v.Device), text("time_zone", v.TimeZone))
+	}
+	return f
+}
+
+// header writes the CSV header line: the fields of an empty record, then the spectrum columns.
+func (e *exporter) header() {
+	if e.format != "csv" {
+		return
+	}
+	r, _ := buffer.NewRecord(e.kind)
+	var cols []string
+	for _, f := range e.fields(r) {
+		cols = append(cols, f.key)
+	}
+	for x := e.lowBand; x <= e.highBand; x++ {
+		cols = append(cols, spectrumKey+"_"+bandName(x))
+	}
+	e.write(strings.Join(cols, ",") + "\n")
+}
+
+func (e *exporter) write(s string) {
+	if e.err == nil {
+		_, e.err = io.WriteString(e.w, s)
+	}
+}
+
+func (e *exporter) record(r buffer.Record) {
+	fs := e.fields(r)
+	first, spec := spectrumOf(r)
+	var b strings.Builder
+	if e.format == "csv" {
+		for i, f := range fs {
+			if i > 0 {
+				b.WriteByte(',')
+			}
+			b.WriteString(f.val)
+		}
+		for x := e.lowBand; x <= e.highBand; x++ {
+			b.WriteByte(',')
+			if i := x - first; i >= 0 && i < len(spec) {
+				b.WriteString(level("", spec[i]).val)
+			}
+		}
+		b.WriteByte('\n')
+		e.write(b.String())
+		return
+	}
+	b.WriteByte('{')
+	for i, f := range fs {
+		if i > 0 {
+			b.WriteByte(',')
+		}
+		fmt.Fprintf(&b, "%q:%s", f.key, f.json)
+	}
+	if len(spec) > 0 {
+		fmt.Fprintf(&b, ",%q:{", spectrumKey)
+		for i, l := range spec {
+			if i > 0 {
+				b.WriteByte(',')
+			}
+			fmt.Fprintf(&b, "%q:%s", bandName(first+i), level("", l).json)
+		}
+		b.WriteByte('}')
+	}
+	if m, ok := r.(*buffer.Minute); ok && len(m.Histogram.Counts) > 0 {
+		// Fast level histogram: counts[i] is the number of 10 ms samples in
+		// [first_dB + i/10, first_dB + (i+1)/10) dB.
+		fmt.Fprintf(&b, `,"LAF_histogram":{"first_dB":%s,"bin_dB":0.1,"counts":[`, strconv.FormatFloat(float64(m.Histogram.First)/10, 'f', 1, 64))
+		for i, c := range m.Histogram.Counts {
+			if i > 0 {
+				b.WriteByte(',')
+			}
+			b.WriteString(strconv.FormatUint(uint64(c), 10))
+		}
+		b.WriteString("]}")
+	}
+	b.WriteString("}\n")
+	e.write(b.String())
+}
