@@ -134,21 +134,22 @@ const (
 //
 // The bank is multirate. Stage 0 runs at the input rate fs; stage k runs at fs/2^k and is fed
 // from stage k-1 through a half-band FIR low-pass that keeps every second sample (23 taps,
-// Kaiser window, computed only at the kept samples, pass band flat within 0.0003 dB to 0.12 and
-// stop band at least 88 dB down from 0.38 of its input rate). A band is computed in the lowest-rate stage k
-// in which its upper edge is at most 0.2 fs/2^k, so every decimated stage holds one octave of
-// bands with upper edges between 0.1 and 0.2 of its rate, and stage 0 holds the rest (upper
-// edges from 0.1 fs to 0.47 fs). What the decimators fold back lands either 88 dB down or above
-// the band edges of the stages below, where the band filters attenuate it; Response includes
-// that folding, so the tests check it against the mask.
+// Kaiser window, computed only at the kept samples, pass band flat within 0.0003 dB to 0.12
+// and stop band at least 88 dB down from 0.38 of its input rate). A band is computed in the
+// lowest-rate stage k in which its upper edge is at most 0.2 fs/2^k, so every decimated stage
+// holds one octave of bands with upper edges between 0.1 and 0.2 of its rate, and stage 0
+// holds the rest (upper edges from 0.1 fs to 0.47 fs). What the decimators fold back lands
+// either 88 dB down or above the band edges of the stages below, where the band filters
+// attenuate it; Response includes that folding, so the tests check it against the mask.
 //
 // # Delay and settling
 //
 // Each half-band filter delays by 11 samples at its input rate, so a band of stage k lags the
 // input by 11·(2^k - 1)/fs seconds plus its own group delay, 2/(π(Upper-Lower)) seconds at the
 // midband for N = 3: at 48 kHz the 1 kHz one-third-octave band lags 4.4 ms in all, the 100 Hz
-// band 42 ms and the 12.5 Hz band 0.34 s. Energy that arrives at the end of one MeanSquare span is counted partly in
-// the next. The filters start from rest; the low bands need a few seconds to settle.
+// band 42 ms and the 12.5 Hz band 0.34 s. Energy that arrives at the end of one MeanSquare
+// span is counted partly in the next. The filters start from rest; the low bands need a few
+// seconds to settle.
 //
 // # Cost
 //
@@ -156,8 +157,10 @@ const (
 // square 2 more operations per band, and a half-band decimator 7 multiplications and 12
 // additions per kept sample. For one-third octaves at 48 kHz stage 0 holds 7 bands (25
 // sections) and each lower stage 3 bands (9 sections) at half the rate of the one above, so
-// the bank costs about 34 sections, or 190 floating-point operations, per input sample; the
-// octave bank about a third of that.
+// the bank costs about 34 section updates, or 210 floating-point operations, per input
+// sample; the octave bank (stage 0 with 3 bands, 11 sections) about 14 section updates.
+// Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1): 411 instructions per input sample
+// for one-third octaves, 196 for octaves.
 //
 // # Block size
 //
@@ -166,7 +169,8 @@ const (
 // sample by sample in the same order, so the results are bit-for-bit the same whatever the
 // block cut. Neither Process nor MeanSquare (given a large enough dst) allocates.
 //
-// A FilterBank is not safe for concurrent use.
+// A NaN or infinite sample makes the state of every filter NaN until Reset; callers reject
+// such samples before they reach the bank. A FilterBank is not safe for concurrent use.
 type FilterBank struct {
 	set    BandSet
 	fs     float64

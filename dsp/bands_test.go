@@ -162,6 +162,46 @@ func TestBandMaskOmega(t *testing.T) {
 	}
 }
 
+// TestBandLimitsByClass checks the single-number limits of IEC 61260-1:2014 for both classes:
+// effective bandwidth ±0.4/±0.6 dB (5.12.2) and adjacent-band sums +0.8/-1.8 and +1.8/-3.8 dB
+// (5.16), via phonometry filters.py; and the Table 1 edge row for class 2, +0.8 … +5.8 dB (via
+// phonometry compliance.py).
+func TestBandLimitsByClass(t *testing.T) {
+	if reference.BandwidthDeviationLimit(1) != 0.4 || reference.BandwidthDeviationLimit(2) != 0.6 {
+		t.Errorf("BandwidthDeviationLimit: %v, %v", reference.BandwidthDeviationLimit(1), reference.BandwidthDeviationLimit(2))
+	}
+	if l := reference.AdjacentBandSumLimits(1); l.Lower != -1.8 || l.Upper != 0.8 {
+		t.Errorf("AdjacentBandSumLimits(1) = %+v", l)
+	}
+	if l := reference.AdjacentBandSumLimits(2); l.Lower != -3.8 || l.Upper != 1.8 {
+		t.Errorf("AdjacentBandSumLimits(2) = %+v", l)
+	}
+	if l := reference.BandAttenuationLimits(1, 2, 1/math.Sqrt(bankG)); l.Lower != 0.8 || l.Upper != 5.8 {
+		t.Errorf("class 2 limits at the octave band edge = %+v, want 0.8 … 5.8", l)
+	}
+	// Computed from IEC 61260-1:2014 Eq. 4, 5: G^(1/6) - G^(-1/6) and G^(1/2) - G^(-1/2).
+	if d := reference.ReferenceBandwidth(3) - 0.23077; math.Abs(d) > 5e-6 {
+		t.Errorf("ReferenceBandwidth(3) off by %g", d)
+	}
+	if d := reference.ReferenceBandwidth(1) - 0.70459; math.Abs(d) > 5e-6 {
+		t.Errorf("ReferenceBandwidth(1) off by %g", d)
+	}
+	for _, f := range []func(){
+		func() { reference.BandwidthDeviationLimit(0) },
+		func() { reference.AdjacentBandSumLimits(3) },
+		func() { reference.BandAttenuationLimits(3, 1, 0) },
+	} {
+		func() {
+			defer func() {
+				if recover() == nil {
+					t.Errorf("no panic on a bad class or frequency")
+				}
+			}()
+			f()
+		}()
+	}
+}
+
 // bankRelAtten returns ΔA = A(f) - A(fm) of band i from the bank's analytic response, in dB.
 func bankRelAtten(fb *FilterBank, i int, f float64) float64 {
 	return GainDB(fb.Response(i, fb.bands[i].Mid)) - GainDB(fb.Response(i, f))
