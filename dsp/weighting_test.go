@@ -433,3 +433,41 @@ func BenchmarkWeightingChain(b *testing.B) {
 	b.ReportMetric(nsPerSample, "ns/sample")
 	b.ReportMetric(1e9/(nsPerSample*fs), "x-realtime")
 }
+
+// FuzzWeightingSections designs the chains at arbitrary rates: inside 8–192 kHz the design
+// must succeed with stable sections and stay within 0.1 dB of the Annex E formulas (written out
+// in this test) at a few frequencies up to min(20 kHz, 0.45 fs); outside, it must return an
+// error, never panic. `make test` runs the seeds only.
+func FuzzWeightingSections(f *testing.F) {
+	for _, fs := range []float64{8000, 11025, 44100, 44550, 47091, 48000, 192000, 7999.99, 192000.01, 0, -1} {
+		f.Add(fs)
+	}
+	f.Fuzz(func(t *testing.T, fs float64) {
+		c, a, err := dsp.WeightingSections(fs)
+		if !(fs >= dsp.WeightingMinRate && fs <= dsp.WeightingMaxRate) {
+			if err == nil {
+				t.Fatalf("fs %v: no error", fs)
+			}
+			return
+		}
+		if err != nil {
+			t.Fatalf("fs %v: %v", fs, err)
+		}
+		chainC := append(dsp.DCBlockSections(fs), c...)
+		chainA := append(append([]dsp.Section(nil), chainC...), a...)
+		for _, s := range chainA {
+			if !s.Stable() {
+				t.Fatalf("fs %v: unstable section %+v", fs, s)
+			}
+		}
+		hi := math.Min(20000, 0.45*fs)
+		for _, f := range []float64{10, 31.5, 1000, 0.25 * hi, 0.5 * hi, 0.8 * hi, hi} {
+			if ec := gain(chainC, f, fs) - annexC(f); math.Abs(ec) > 0.1 {
+				t.Errorf("fs %v, %.1f Hz: C off by %+.4f dB", fs, f, ec)
+			}
+			if ea := gain(chainA, f, fs) - annexA(f); math.Abs(ea) > 0.1 {
+				t.Errorf("fs %v, %.1f Hz: A off by %+.4f dB", fs, f, ea)
+			}
+		}
+	})
+}
