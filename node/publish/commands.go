@@ -1,0 +1,238 @@
+package publish
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"regexp"
+	"slices"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+)
+
+// command is a remote command as it arrives on PREFIX/NODE/command:
+//
+//	{"schema_version": 1, "id": "req-42", "action": "resend",
+//	 "from": "2031-05-04T10:00:00Z", "to": "2031-05-04T11:00:00Z", "kinds": ["second", "minute"]}
+//
+// from, to and kinds belong to resend only (kinds defaults to every data kind).
+type command struct {
+	SchemaVersion int      `json:"schema_version"`
+	ID            string   `json:"id"`
+	Action        string   `json:"action"`
+	From          string   `json:"from,omitempty"`
+	To            string   `json:"to,omitempty"`
+	Kinds         []string `json:"kinds,omitempty"`
+}
+
+var commandIDRe = regexp.MustCompile(`^[A-Za-z0-9._:-]{1,64}$`)
+
+// resendKinds are the kinds a resend covers by default: all of them but health.
+var resendKinds = []buffer.Kind{buffer.KindSecond, buffer.KindMinute, buffer.KindEvent, buffer.KindCalibration,
+	buffer.KindGap, buffer.KindAnnotation, buffer.KindSession}
+
+// parseCommand validates a command payload strictly: size cap, one JSON object with only the
+// known fields, the schema version, an id, an allowed action and, for resend, a valid range of at
+// most maxRange. It returns the command and, for resend, the range and kinds.
+func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration) (c command, from, to time.Time, kinds []buffer.Kind, err error) {
+	if len(b) > maxBytes {
+		return c, from, to, nil, fmt.Errorf("payload of %d bytes exceeds the cap of %d", len(b), maxBytes)
+	}
+	dec := json.NewDecoder(bytes.NewReader(b))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(&c); err != nil {
+		return c, from, to, nil, fmt.Errorf("not a command object: %w", err)
+	}
+	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+		return c, from, to, nil, errors.New("data after the command object")
+	}
+	if c.SchemaVersion != SchemaVersion {
+		return c, from, to, nil, fmt.Errorf("schema_version %d: want %d", c.SchemaVersion, SchemaVersion)
+	}
+	if !commandIDRe.MatchString(c.ID) {
+		return c, from, to, nil, errors.New("id missing or not 1 to 64 letters, digits, '.', '_', ':' or '-'")
+	}
+	if !slices.Contains(allow, c.Action) {
+		return c, from, to, nil, fmt.Errorf("action %.40q not allowed", c.Action)
+	}
+	if c.Action != ActionResend {
+		if c.From != "" || c.To != "" || c.Kinds != nil {
+			return c, from, to, nil, fmt.Errorf("action %s takes no from, to or kinds", c.Action)
+		}
+		return c, from, to, nil, nil
+	}
+	if from, err = time.Parse(time.RFC3339, c.From); err != nil {
+		return c, from, to, nil, errors.New("from is not an RFC 3339 time")
+	}
+	if to, err = time.Parse(time.RFC3339, c.To); err != nil {
+		return c, from, to, nil, errors.New("to is not an RFC 3339 time")
+	}
+	if !to.After(from) || to.Sub(from) > maxRange {
+		return c, from, to, nil, fmt.Errorf("range from %s to %s: want to after from and at most %s", c.From, c.To, maxRange)
+	}
+	if c.Kinds == nil {
+		return c, from, to, resendKinds, nil
+	}
+	if len(c.Kinds) == 0 || len(c.Kinds) > len(buffer.Kinds()) {
+		return c, from, to, nil, errors.New("kinds must list 1 to 8 record kinds")
+	}
+	for _, s := range c.Kinds {
+		k, err := buffer.ParseKind(s)
+		if err != nil {
+			return c, from, to, nil, fmt.Errorf("kinds: unknown kind %.20q", s)
+		}
+		if !slices.Contains(kinds, k) {
+			kinds = append(kinds, k)
+		}
+	}
+	return c, from, to, kinds, nil
+}
+
+// command handles one payload from the command topic. Anything invalid is ignored, with a log
+// line at most once a minute.
+func (p *Publisher) command(s *session, b []byte) {
+	now := time.Now()
+	c, from, to, kinds, err := parseCommand(b, p.cfg.Commands.MaxPayloadBytes, p.cfg.Commands.Allow, p.cfg.Commands.MaxResendRange)
+	if err != nil {
+		if ok, held := p.ignored.allow(now); ok {
+			p.log.Warn("ignored a message on the command topic", "topic", p.topics.command, "bytes", len(b), "why", err, "ignored_since_last_log", held)
+		}
+		return
+	}
+	p.log.Info("remote command", "id", c.ID, "action", c.Action)
+	switch c.Action {
+	case ActionPublishStatus:
+		p.publishStatus(s)
+		p.reply(s, c, "done", "")
+	case ActionCalibrationCheck:
+		select {
+		case p.requests <- Request{ID: c.ID, Action: c.Action, Received: now}:
+			p.reply(s, c, "accepted", "the node runs the check; its result arrives as a calibration record")
+		default:
+			p.reply(s, c, "busy", "earlier requests are still waiting; try again later")
+		}
+	case ActionResend:
+		if len(p.jobs) >= 4 {
+			p.reply(s, c, "busy", "four resends are already queued; try again later")
+			return
+		}
+		p.jobs = append(p.jobs, &resendJob{cmd: c, kinds: kinds, from: from, to: to, pos: from})
+		p.reply(s, c, "accepted", "")
+	}
+}
+
+// reply publishes a reply to command c on PREFIX/NODE/reply (QoS 1, not waited for).
+func (p *Publisher) reply(s *session, c command, result, msg string) {
+	w := jw{}
+	w.open()
+	w.key("schema_version")
+	w.int(SchemaVersion)
+	w.key("kind")
+	w.str("reply")
+	w.key("node")
+	w.str(p.id.NodeID)
+	w.key("store")
+	w.str(p.store.ID())
+	w.key("id")
+	w.str(c.ID)
+	w.key("action")
+	w.str(c.Action)
+	w.key("result")
+	w.str(result)
+	if msg != "" {
+		w.key("message")
+		w.str(msg)
+	}
+	w.times("time", time.Now())
+	w.close()
+	s.client.Publish(p.topics.reply, 1, false, w.b)
+}
+
+// resendJob is a resend command being carried out: kinds in turn, each in time order.
+type resendJob struct {
+	cmd      command
+	kinds    []buffer.Kind
+	from, to time.Time
+	ki       int       // index of the kind being sent
+	pos      time.Time // time of the last record read (or from)
+	posSeq   uint64    // its sequence number (0 before the first)
+	buf      []buffer.Record
+	drained  bool // every record of the current kind has been read
+	inflight int
+	sent     int
+	failed   int
+}
+
+// nextResend returns the next resend message, or a nil payload when none is ready.
+func (p *Publisher) nextResend(s *session) (message, []byte) {
+	for len(p.jobs) > 0 {
+		j := p.jobs[0]
+		for len(j.buf) == 0 && j.ki < len(j.kinds) {
+			if j.drained {
+				j.ki++
+				j.pos, j.posSeq, j.drained = j.from, 0, false
+				continue
+			}
+			p.fillResend(j)
+		}
+		if len(j.buf) == 0 {
+			p.finishJobs(s)
+			if len(p.jobs) > 0 && p.jobs[0] == j {
+				return message{}, nil // waiting for the last acknowledgements
+			}
+			continue
+		}
+		k := j.kinds[j.ki]
+		var recs []buffer.Record
+		recs, j.buf = take(j.buf, p.batch(k))
+		j.sent += len(recs)
+		e := p.envelope(DeliveryResend)
+		e.request = j.cmd.ID
+		return message{kind: k, lo: recs[0].Seq(), hi: recs[len(recs)-1].Seq(), job: j}, p.encode(e, recs)
+	}
+	return message{}, nil
+}
+
+// fillResend reads the next chunk of the current kind of j in time order.
+func (p *Publisher) fillResend(j *resendJob) {
+	k := j.kinds[j.ki]
+	n := 0
+	err := p.store.Range(k, j.pos, j.to, func(r buffer.Record) error {
+		if r.Time().Equal(j.pos) && r.Seq() <= j.posSeq {
+			return nil
+		}
+		j.buf = append(j.buf, r)
+		j.pos, j.posSeq = r.Time(), r.Seq()
+		if n++; n >= fetchChunk {
+			return errStop
+		}
+		return nil
+	})
+	if err != nil && !errors.Is(err, errStop) {
+		p.storeError(err)
+		j.drained = true
+		return
+	}
+	if !errors.Is(err, errStop) {
+		j.drained = true
+	}
+}
+
+// finishJobs replies "done" for the finished resend at the head of the queue.
+func (p *Publisher) finishJobs(s *session) {
+	for len(p.jobs) > 0 {
+		j := p.jobs[0]
+		if j.ki < len(j.kinds) || len(j.buf) > 0 || j.inflight > 0 {
+			return
+		}
+		result, msg := "done", fmt.Sprintf("%d records sent", j.sent)
+		if j.failed > 0 {
+			result, msg = "failed", fmt.Sprintf("%d records sent, %d messages lost with the connection: send the command again", j.sent, j.failed)
+		}
+		p.reply(s, j.cmd, result, msg)
+		p.jobs = p.jobs[1:]
+	}
+}

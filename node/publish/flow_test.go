@@ -1,0 +1,170 @@
+package publish
+
+import (
+	"bytes"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/santhosh-tekuri/jsonschema/v6"
+
+	"github.com/leqnode/leqnode/buffer"
+)
+
+// schemas compiles the JSON Schema files of configs/schema (the documented payload formats).
+func schemas(t testing.TB) map[string]*jsonschema.Schema {
+	t.Helper()
+	dir := filepath.Join("..", "..", "configs", "schema")
+	files, err := filepath.Glob(filepath.Join(dir, "*.schema.json"))
+	if err != nil || len(files) == 0 {
+		t.Fatalf("no schema files in %s: %v", dir, err)
+	}
+	c := jsonschema.NewCompiler()
+	c.AssertFormat()
+	ids := map[string]string{}
+	for _, f := range files {
+		b, err := os.ReadFile(f)
+		if err != nil {
+			t.Fatal(err)
+		}
+		doc, err := jsonschema.UnmarshalJSON(bytes.NewReader(b))
+		if err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		id := doc.(map[string]any)["$id"].(string)
+		if err := c.AddResource(id, doc); err != nil {
+			t.Fatalf("%s: %v", f, err)
+		}
+		ids[strings.TrimSuffix(filepath.Base(f), ".schema.json")] = id
+	}
+	out := map[string]*jsonschema.Schema{}
+	for name, id := range ids {
+		if name == "common" {
+			continue
+		}
+		s, err := c.Compile(id)
+		if err != nil {
+			t.Fatalf("schema %s: %v", name, err)
+		}
+		out[name] = s
+	}
+	return out
+}
+
+// validate checks one payload against the schema named by its "kind".
+func validate(t testing.TB, sch map[string]*jsonschema.Schema, topic string, payload []byte) string {
+	t.Helper()
+	inst, err := jsonschema.UnmarshalJSON(bytes.NewReader(payload))
+	if err != nil {
+		t.Fatalf("%s: payload is not JSON: %v\n%s", topic, err, payload)
+	}
+	kind, _ := inst.(map[string]any)["kind"].(string)
+	s := sch[kind]
+	if s == nil {
+		t.Fatalf("%s: no schema for kind %q", topic, kind)
+	}
+	if err := s.Validate(inst); err != nil {
+		t.Fatalf("%s: payload does not match %s.schema.json: %v\n%s", topic, kind, err, payload)
+	}
+	return kind
+}
+
+// TestNormalFlow: every record of every kind arrives exactly once, live, on its topic, and every
+// payload (data, status) matches the documented JSON Schema.
+func TestNormalFlow(t *testing.T) {
+	for _, mode := range []string{SpectraSecond, SpectraMinute, SpectraNone} {
+		t.Run(mode, func(t *testing.T) {
+			sch := schemas(t)
+			m := startMosquitto(t, brokerOpts{})
+			col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+			store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+			defer store.Close()
+			var logs logBuffer
+			p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Spectra: mode},
+				store, Identity{NodeID: "elm-3", Site: "Harrow Lane, Millbrook", Location: &Location{51.52, -0.31}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
+			if err != nil {
+				t.Fatal(err)
+			}
+			runPublisher(t, p)
+			waitConnected(t, p)
+			const nSec, nMin = 130, 3
+			for i := 0; i < nSec; i++ {
+				mustAppend(t, store, second(i, true))
+				if i%50 == 0 {
+					mustAppend(t, store, minute(i/50, true))
+					for _, r := range otherRecords(i / 50) {
+						mustAppend(t, store, r)
+					}
+				}
+			}
+			if err := store.Flush(); err != nil {
+				t.Fatal(err)
+			}
+			p.Notify()
+			col.waitFor(30*time.Second, "every record", func(msgs []received) bool {
+				c, _ := countSeqs(t, msgs)
+				for _, k := range []string{"event", "calibration", "health", "gap", "annotation", "session"} {
+					if !c.complete(k, nMin) {
+						return false
+					}
+				}
+				return c.complete("second", nSec) && c.complete("minute", nMin)
+			})
+			time.Sleep(200 * time.Millisecond) // let any duplicate show up
+			msgs := col.snapshot()
+			counts, deliveries := countSeqs(t, msgs)
+			for kind, seqs := range counts {
+				for seq, n := range seqs {
+					if n != 1 {
+						t.Errorf("%s %d arrived %d times, want once", kind, seq, n)
+					}
+				}
+			}
+			if deliveries[DeliveryBacklog] != 0 || deliveries[DeliveryResend] != 0 {
+				t.Errorf("deliveries %v: want live only", deliveries)
+			}
+			kinds := map[string]int{}
+			for _, msg := range msgs {
+				kinds[validate(t, sch, msg.topic, msg.payload)]++
+				var env struct {
+					Node, Store string
+					Spectrum    json.RawMessage `json:"third_octave_LZeq"`
+					Bands       []string        `json:"bands_hz"`
+				}
+				_ = json.Unmarshal(msg.payload, &env)
+				if env.Node != "elm-3" || env.Store != store.ID() {
+					t.Errorf("%s: node %q store %q", msg.topic, env.Node, env.Store)
+				}
+				switch {
+				case strings.HasSuffix(msg.topic, "/second"):
+					if got := len(env.Bands) > 0; got != (mode == SpectraSecond) {
+						t.Errorf("spectra %s: second batch has bands %v", mode, env.Bands)
+					}
+				case strings.HasSuffix(msg.topic, "/minute"):
+					if got := env.Spectrum != nil; got != (mode != SpectraNone) {
+						t.Errorf("spectra %s: minute has spectrum %v", mode, got)
+					}
+				}
+			}
+			// 130 seconds in batches of 10: 13 messages.
+			if kinds["second"] != 13 {
+				t.Errorf("%d second messages, want 13 (batches of 10)", kinds["second"])
+			}
+			if kinds["status"] == 0 {
+				t.Errorf("no status message")
+			}
+			st := p.Status()
+			if !st.Connected || st.Backlog || st.Pending["second"] != 0 || st.Pending["minute"] != 0 {
+				t.Errorf("status %+v: want connected, no backlog, nothing pending", st)
+			}
+			// The cursor moved on PUBACK and was persisted.
+			ss, _ := store.Stats()
+			if got := ss.Streams[DefaultStream][buffer.KindSecond].Acked; got != nSec {
+				t.Errorf("second cursor %d, want %d", got, nSec)
+			}
+		})
+	}
+}

@@ -1,0 +1,399 @@
+package publish
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"fmt"
+	"io"
+	"log/slog"
+	"math"
+	"net"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	mqtt "github.com/eclipse/paho.mqtt.golang"
+
+	"github.com/leqnode/leqnode/buffer"
+)
+
+// The tests run a real mosquitto (Debian package mosquitto) on 127.0.0.1, real bbolt stores
+// from package buffer and a real paho client as the consumer.
+
+var installOnce sync.Once
+
+// needTools makes sure mosquitto, mosquitto_passwd and openssl exist, installing the Debian
+// packages through the project's helper when they are missing (make test runs as root).
+func needTools(t testing.TB) {
+	t.Helper()
+	installOnce.Do(func() {
+		for _, bin := range []string{"mosquitto", "mosquitto_passwd", "openssl"} {
+			if _, err := exec.LookPath(bin); err != nil {
+				out, err := exec.Command("../../.ci/install-debs", "mosquitto", "mosquitto-clients", "openssl").CombinedOutput()
+				if err != nil {
+					t.Logf("installing mosquitto: %v\n%s", err, out)
+				}
+				return
+			}
+		}
+	})
+	for _, bin := range []string{"mosquitto", "mosquitto_passwd", "openssl"} {
+		if _, err := exec.LookPath(bin); err != nil {
+			t.Fatalf("%s not found: install the Debian packages mosquitto, mosquitto-clients and openssl (make test-deps)", bin)
+		}
+	}
+}
+
+// mosquitto is a broker process on 127.0.0.1 that a test starts, stops and restarts.
+type mosquitto struct {
+	t    testing.TB
+	dir  string
+	port int
+	conf string
+	cmd  *exec.Cmd
+	log  *bytes.Buffer
+}
+
+type brokerOpts struct {
+	user, pass       string // password file when user != ""
+	ca, cert, key    string // TLS listener when cert != ""
+	persistent       bool   // keep sessions and queued messages across restarts
+	maxPacket        int
+	extraConfigLines []string
+}
+
+func freePort(t testing.TB) int {
+	t.Helper()
+	l, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer l.Close()
+	return l.Addr().(*net.TCPAddr).Port
+}
+
+func startMosquitto(t testing.TB, o brokerOpts) *mosquitto {
+	t.Helper()
+	needTools(t)
+	m := &mosquitto{t: t, dir: t.TempDir(), port: freePort(t)}
+	var c strings.Builder
+	// `user root`: mosquitto started as root drops to user mosquitto before reading the password
+	// and key files, which it then cannot read in a 0700 test directory.
+	fmt.Fprintf(&c, "per_listener_settings false\nuser root\nlog_dest stderr\nlog_type error\nlog_type warning\nlog_type notice\n")
+	if o.persistent {
+		fmt.Fprintf(&c, "persistence true\npersistence_location %s/\nautosave_interval 1\nmax_queued_messages 0\n", m.dir)
+	} else {
+		fmt.Fprintf(&c, "persistence false\n")
+	}
+	fmt.Fprintf(&c, "listener %d 127.0.0.1\n", m.port)
+	if o.user != "" {
+		pw := filepath.Join(m.dir, "passwd")
+		if out, err := exec.Command("mosquitto_passwd", "-c", "-b", pw, o.user, o.pass).CombinedOutput(); err != nil {
+			t.Fatalf("mosquitto_passwd: %v\n%s", err, out)
+		}
+		fmt.Fprintf(&c, "allow_anonymous false\npassword_file %s\n", pw)
+	} else {
+		fmt.Fprintf(&c, "allow_anonymous true\n")
+	}
+	if o.cert != "" {
+		fmt.Fprintf(&c, "cafile %s\ncertfile %s\nkeyfile %s\n", o.ca, o.cert, o.key)
+	}
+	for _, l := range o.extraConfigLines {
+		fmt.Fprintln(&c, l)
+	}
+	m.conf = filepath.Join(m.dir, "mosquitto.conf")
+	if err := os.WriteFile(m.conf, []byte(c.String()), 0o600); err != nil {
+		t.Fatal(err)
+	}
+	m.start()
+	t.Cleanup(m.stop)
+	return m
+}
+
+func (m *mosquitto) url(scheme string) string { return fmt.Sprintf("%s://127.0.0.1:%d", scheme, m.port) }
+
+// start runs mosquitto in the foreground and waits until it accepts connections.
+func (m *mosquitto) start() {
+	m.t.Helper()
+	m.log = new(bytes.Buffer)
+	m.cmd = exec.Command("mosquitto", "-c", m.conf)
+	m.cmd.Stderr = m.log
+	m.cmd.Stdout = m.log
+	if err := m.cmd.Start(); err != nil {
+		m.t.Fatalf("starting mosquitto: %v", err)
+	}
+	deadline := time.Now().Add(10 * time.Second)
+	for {
+		c, err := net.DialTimeout("tcp", fmt.Sprintf("127.0.0.1:%d", m.port), 200*time.Millisecond)
+		if err == nil {
+			c.Close()
+			return
+		}
+		if time.Now().After(deadline) {
+			m.t.Fatalf("mosquitto did not start: %v\n%s", err, m.log)
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+// stop ends mosquitto with SIGTERM (it saves its persistence file) and waits for it.
+func (m *mosquitto) stop() {
+	if m.cmd == nil || m.cmd.Process == nil {
+		return
+	}
+	_ = m.cmd.Process.Signal(os.Interrupt)
+	done := make(chan struct{})
+	go func() { _ = m.cmd.Wait(); close(done) }()
+	select {
+	case <-done:
+	case <-time.After(5 * time.Second):
+		_ = m.cmd.Process.Kill()
+		<-done
+	}
+	m.cmd = nil
+}
+
+// received is one message seen by the collector.
+type received struct {
+	topic   string
+	payload []byte
+}
+
+// collector is an MQTT consumer: a paho client with a persistent session subscribed with QoS 1.
+type collector struct {
+	t      testing.TB
+	client mqtt.Client
+	mu     sync.Mutex
+	msgs   []received
+}
+
+func newCollector(t testing.TB, url string, filter string, tweak func(*mqtt.ClientOptions)) *collector {
+	t.Helper()
+	c := &collector{t: t}
+	opts := mqtt.NewClientOptions().AddBroker(url).SetClientID(fmt.Sprintf("collector-%d", time.Now().UnixNano())).
+		SetCleanSession(false).SetAutoReconnect(true).SetMaxReconnectInterval(200 * time.Millisecond).
+		SetConnectRetry(true).SetConnectRetryInterval(200 * time.Millisecond).SetOrderMatters(false)
+	opts.SetOnConnectHandler(func(cl mqtt.Client) {
+		cl.Subscribe(filter, 1, func(_ mqtt.Client, m mqtt.Message) {
+			c.mu.Lock()
+			c.msgs = append(c.msgs, received{m.Topic(), append([]byte(nil), m.Payload()...)})
+			c.mu.Unlock()
+		}).Wait()
+	})
+	if tweak != nil {
+		tweak(opts)
+	}
+	c.client = mqtt.NewClient(opts)
+	tok := c.client.Connect()
+	if !tok.WaitTimeout(10*time.Second) || tok.Error() != nil {
+		t.Fatalf("collector cannot connect: %v", tok.Error())
+	}
+	// wait for the subscription made in the connect handler
+	time.Sleep(100 * time.Millisecond)
+	t.Cleanup(func() { c.client.Disconnect(100) })
+	return c
+}
+
+func (c *collector) snapshot() []received {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return append([]received(nil), c.msgs...)
+}
+
+// waitFor polls cond over the collected messages until it holds or the timeout passes.
+func (c *collector) waitFor(timeout time.Duration, what string, cond func([]received) bool) {
+	c.t.Helper()
+	deadline := time.Now().Add(timeout)
+	for {
+		if cond(c.snapshot()) {
+			return
+		}
+		if time.Now().After(deadline) {
+			c.t.Fatalf("timed out after %s waiting for %s (%d messages received)", timeout, what, len(c.snapshot()))
+		}
+		time.Sleep(20 * time.Millisecond)
+	}
+}
+
+// seqCount counts, per kind, how often each sequence number arrived on the data topics, and the
+// deliveries seen.
+type seqCount map[string]map[uint64]int
+
+func countSeqs(t testing.TB, msgs []received) (seqCount, map[string]int) {
+	t.Helper()
+	counts := seqCount{}
+	deliveries := map[string]int{}
+	for _, m := range msgs {
+		parts := strings.Split(m.topic, "/")
+		if len(parts) != 4 || (parts[2] != DeliveryLive && parts[2] != DeliveryBacklog && parts[2] != DeliveryResend) {
+			continue
+		}
+		var p struct {
+			Kind     string `json:"kind"`
+			Delivery string `json:"delivery"`
+			Seq      uint64 `json:"seq"`
+			Columns  struct {
+				Seq []uint64 `json:"seq"`
+			} `json:"columns"`
+		}
+		if err := json.Unmarshal(m.payload, &p); err != nil {
+			t.Fatalf("payload on %s is not JSON: %v", m.topic, err)
+		}
+		if p.Kind != parts[3] || p.Delivery != parts[2] {
+			t.Fatalf("topic %s carries kind %q delivery %q", m.topic, p.Kind, p.Delivery)
+		}
+		deliveries[p.Delivery]++
+		if counts[p.Kind] == nil {
+			counts[p.Kind] = map[uint64]int{}
+		}
+		if p.Kind == "second" {
+			for _, s := range p.Columns.Seq {
+				counts[p.Kind][s]++
+			}
+		} else {
+			counts[p.Kind][p.Seq]++
+		}
+	}
+	return counts, deliveries
+}
+
+// complete reports whether kind holds every sequence number 1..n.
+func (c seqCount) complete(kind string, n uint64) bool {
+	for s := uint64(1); s <= n; s++ {
+		if c[kind][s] == 0 {
+			return false
+		}
+	}
+	return true
+}
+
+// openStore opens a real bbolt store with a short commit interval (no fsync: test speed).
+func openStore(t testing.TB, path string) *buffer.Store {
+	t.Helper()
+	s, err := buffer.Open(path, &buffer.Options{CommitInterval: 20 * time.Millisecond, NoSync: true,
+		Logger: slog.New(slog.NewTextHandler(io.Discard, nil))})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
+}
+
+// The demo scenario: node "elm-3" at Harrow Lane in the invented town of Millbrook.
+var t0 = time.Date(2031, 5, 4, 8, 0, 0, 0, time.UTC)
+
+// spectrum returns 33 one-third-octave levels, bands -19 (12.5 Hz) to 13 (20 kHz).
+func spectrum(i int) []float64 {
+	s := make([]float64, 33)
+	for b := range s {
+		s[b] = 40 + 10*math.Sin(float64(i+b)/5)
+	}
+	return s
+}
+
+func second(i int, spectra bool) *buffer.Second {
+	r := &buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second,
+		LAeq: 55 + float64(i%7), LCeq: 62, LZeq: 66, LAFmax: 61.3, LAFmin: 50.2, LASmax: 58.9, LASmin: 52.1,
+		LAImax: 63.4, LCpeak: 88.1, LZpeak: 90.5, LAE: 55 + float64(i%7)}
+	if spectra {
+		r.Spectrum, r.FirstBand = spectrum(i), -19
+	}
+	if i == 0 {
+		r.Flags = buffer.Settling
+	}
+	return r
+}
+
+func minute(i int, spectra bool) *buffer.Minute {
+	r := &buffer.Minute{Start: t0.Add(time.Duration(i) * time.Minute), LAeq: 57.2, LCeq: 63, LZeq: 67.5,
+		LAFmax: 71.2, LAFmin: 48.3, LAF1: 69, LAF5: 65, LAF10: 62, LAF50: 56, LAF90: 51, LAF95: 50, LAF99: 49,
+		LAE: 75, LCpeak: 95.1, LAImax: 73, ValidSeconds: 60}
+	if spectra {
+		r.Spectrum, r.FirstBand = spectrum(i), -19
+	}
+	return r
+}
+
+// appendAll appends one record of every kind but second and minute, at minute i.
+func otherRecords(i int) []buffer.Record {
+	at := t0.Add(time.Duration(i) * time.Minute)
+	return []buffer.Record{
+		&buffer.Event{Start: at.Add(5 * time.Second), End: at.Add(9 * time.Second), LAFmax: 82.5, LAeq: 76.1, LAE: 82.1, LCpeak: 101.2, Spectrum: spectrum(i), FirstBand: -19},
+		&buffer.Calibration{At: at, Reference: 94, Measured: 94.12, Deviation: 0.12, Frequency: 1000.2, Stability: 0.03, SensitivityBefore: -26.1, SensitivityAfter: -26.0, Applied: true, OK: true},
+		&buffer.Health{At: at, CPU: 12.5, MemoryMB: 31, DiskFreeMB: 5120, DCOffset: math.NaN(), ClockErrorMs: math.NaN(), TemperatureC: 44, StoreBytes: 1 << 20, ClockSynced: true},
+		&buffer.Gap{From: at, To: at.Add(2 * time.Second), Reason: "device lost"},
+		&buffer.Annotation{From: at, To: at.Add(30 * time.Second), Flags: buffer.Excluded, Reason: "road works on Harrow Lane"},
+		&buffer.Session{At: at, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "testsig", TimeZone: "UTC"},
+	}
+}
+
+func mustAppend(t testing.TB, s *buffer.Store, r buffer.Record) uint64 {
+	t.Helper()
+	seq, err := s.Append(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return seq
+}
+
+// runPublisher starts p.Run in the background and stops it at the end of the test.
+func runPublisher(t testing.TB, p *Publisher) (stop func()) {
+	t.Helper()
+	ctx, cancel := context.WithCancel(context.Background())
+	done := make(chan error, 1)
+	go func() { done <- p.Run(ctx) }()
+	var once sync.Once
+	stop = func() {
+		once.Do(func() {
+			cancel()
+			select {
+			case err := <-done:
+				if err != nil {
+					t.Errorf("Run: %v", err)
+				}
+			case <-time.After(10 * time.Second):
+				t.Errorf("Run did not return 10 s after its context ended")
+			}
+		})
+	}
+	t.Cleanup(stop)
+	return stop
+}
+
+// logBuffer collects slog output for inspection.
+type logBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (l *logBuffer) Write(p []byte) (int, error) {
+	l.mu.Lock()
+	defer l.mu.Unlock()
+	return l.b.Write(p)
+}
+
+func (l *logBuffer) String() string {
+	l.mu.Lock()
+	defer l.mu.Unlock()
+	return l.b.String()
+}
+
+func newLogger(w *logBuffer) *slog.Logger {
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: slog.LevelDebug}))
+}
+
+// waitConnected waits until the publisher reports a connection.
+func waitConnected(t testing.TB, p *Publisher) {
+	t.Helper()
+	deadline := time.Now().Add(10 * time.Second)
+	for !p.Status().Connected {
+		if time.Now().After(deadline) {
+			t.Fatalf("publisher not connected after 10 s: %+v", p.Status())
+		}
+		time.Sleep(10 * time.Millisecond)
+	}
+}

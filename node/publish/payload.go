@@ -1,0 +1,300 @@
+package publish
+
+import (
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/dsp/reference"
+)
+
+// SchemaVersion is the version of every payload this package writes. It changes only when a
+// field changes meaning or disappears; new fields may appear without a new version.
+const SchemaVersion = 1
+
+// Deliveries: how a data message came to be sent (the field "delivery" and the third topic level).
+const (
+	DeliveryLive    = "live"    // sent as soon as the record was stored
+	DeliveryBacklog = "backlog" // stored while the node could not publish, sent after reconnecting
+	DeliveryResend  = "resend"  // sent again on a remote resend command
+)
+
+// envelope holds what every data message carries besides its records.
+type envelope struct {
+	node, store string
+	delivery    string
+	request     string // id of the resend command, for DeliveryResend
+}
+
+func (e envelope) head(w *jw, kind string, seq uint64, start time.Time) {
+	w.open()
+	w.key("schema_version")
+	w.int(SchemaVersion)
+	w.key("kind")
+	w.str(kind)
+	w.key("node")
+	w.str(e.node)
+	w.key("store")
+	w.str(e.store)
+	w.key("delivery")
+	w.str(e.delivery)
+	if e.request != "" {
+		w.key("request")
+		w.str(e.request)
+	}
+	w.key("seq")
+	w.uint(seq)
+	w.times("start", start)
+}
+
+// flags writes a record's flag names as an array.
+func (w *jw) flags(f buffer.Flags) {
+	w.arr()
+	for _, n := range f.Names() {
+		w.str(n)
+	}
+	w.end()
+}
+
+// spectrumObject writes a one-third-octave spectrum as an object keyed by nominal midband
+// frequency, as `leqnode analyze` does: {"12.5": 41.2, ...}.
+func (w *jw) spectrumObject(first int, levels []float64) {
+	w.key("third_octave_LZeq")
+	w.open()
+	for i, v := range levels {
+		w.key(reference.NominalMidband(3, first+i))
+		w.level(v)
+	}
+	w.close()
+}
+
+// appendSeconds appends one message holding recs (at least one, in sequence order) in columns:
+// each quantity is an array with one value per record.
+func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool) []byte {
+	w := jw{b}
+	e.head(&w, "second", recs[0].Seq(), recs[0].Start)
+	w.key("last_seq")
+	w.uint(recs[len(recs)-1].Seq())
+	w.key("count")
+	w.int(int64(len(recs)))
+	lo, hi := 0, 0
+	if spectra {
+		lo, hi = bandSpan(recs)
+		if hi > lo {
+			w.key("bands_hz")
+			w.arr()
+			for x := lo; x < hi; x++ {
+				w.str(reference.NominalMidband(3, x))
+			}
+			w.end()
+		}
+	}
+	w.key("columns")
+	w.open()
+	w.key("seq")
+	w.arr()
+	for _, r := range recs {
+		w.uint(r.Seq())
+	}
+	w.end()
+	w.key("start_ms")
+	w.arr()
+	for _, r := range recs {
+		w.int(r.Start.UnixMilli())
+	}
+	w.end()
+	w.key("duration_s")
+	w.arr()
+	for _, r := range recs {
+		w.num(r.Duration.Seconds(), 6)
+	}
+	w.end()
+	for _, q := range secondLevels {
+		w.key(q.name)
+		w.arr()
+		for _, r := range recs {
+			w.level(q.get(r))
+		}
+		w.end()
+	}
+	w.key("flags")
+	w.arr()
+	for _, r := range recs {
+		w.flags(r.Flags)
+	}
+	w.end()
+	w.key("dropped_samples")
+	w.arr()
+	for _, r := range recs {
+		w.uint(r.DroppedSamples)
+	}
+	w.end()
+	if hi > lo {
+		w.key("third_octave_LZeq")
+		w.arr()
+		for _, r := range recs {
+			if len(r.Spectrum) == 0 {
+				w.null()
+				continue
+			}
+			w.arr()
+			for x := lo; x < hi; x++ {
+				if i := x - r.FirstBand; i >= 0 && i < len(r.Spectrum) {
+					w.level(r.Spectrum[i])
+				} else {
+					w.null()
+				}
+			}
+			w.end()
+		}
+		w.end()
+	}
+	w.close()
+	w.close()
+	return w.b
+}
+
+// bandSpan returns the band numbers [lo, hi) covering every spectrum of recs.
+func bandSpan(recs []*buffer.Second) (lo, hi int) {
+	set := false
+	for _, r := range recs {
+		if len(r.Spectrum) == 0 {
+			continue
+		}
+		a, b := r.FirstBand, r.FirstBand+len(r.Spectrum)
+		if !set || a < lo {
+			lo = a
+		}
+		if !set || b > hi {
+			hi = b
+		}
+		set = true
+	}
+	return lo, hi
+}
+
+var secondLevels = []struct {
+	name string
+	get  func(*buffer.Second) float64
+}{
+	{"LAeq", func(r *buffer.Second) float64 { return r.LAeq }},
+	{"LCeq", func(r *buffer.Second) float64 { return r.LCeq }},
+	{"LZeq", func(r *buffer.Second) float64 { return r.LZeq }},
+	{"LAFmax", func(r *buffer.Second) float64 { return r.LAFmax }},
+	{"LAFmin", func(r *buffer.Second) float64 { return r.LAFmin }},
+	{"LASmax", func(r *buffer.Second) float64 { return r.LASmax }},
+	{"LASmin", func(r *buffer.Second) float64 { return r.LASmin }},
+	{"LAImax", func(r *buffer.Second) float64 { return r.LAImax }},
+	{"LCpeak", func(r *buffer.Second) float64 { return r.LCpeak }},
+	{"LZpeak", func(r *buffer.Second) float64 { return r.LZpeak }},
+	{"LAE", func(r *buffer.Second) float64 { return r.LAE }},
+}
+
+// appendRecord appends the message for one record of any kind but second.
+func appendRecord(b []byte, e envelope, rec buffer.Record, spectra bool) []byte {
+	w := jw{b}
+	e.head(&w, rec.Kind().String(), rec.Seq(), rec.Time())
+	switch r := rec.(type) {
+	case *buffer.Minute:
+		for _, q := range []struct {
+			n string
+			v float64
+		}{{"LAeq", r.LAeq}, {"LCeq", r.LCeq}, {"LZeq", r.LZeq}, {"LAFmax", r.LAFmax}, {"LAFmin", r.LAFmin},
+			{"LAF1", r.LAF1}, {"LAF5", r.LAF5}, {"LAF10", r.LAF10}, {"LAF50", r.LAF50}, {"LAF90", r.LAF90},
+			{"LAF95", r.LAF95}, {"LAF99", r.LAF99}, {"LAE", r.LAE}, {"LCpeak", r.LCpeak}, {"LAImax", r.LAImax}} {
+			w.key(q.n)
+			w.level(q.v)
+		}
+		w.key("valid_seconds")
+		w.int(int64(r.ValidSeconds))
+		w.key("flags")
+		w.flags(r.Flags)
+		if spectra && len(r.Spectrum) > 0 {
+			w.spectrumObject(r.FirstBand, r.Spectrum)
+		}
+	case *buffer.Event:
+		w.times("end", r.End)
+		w.key("duration_s")
+		w.num(r.End.Sub(r.Start).Seconds(), 3)
+		for _, q := range []struct {
+			n string
+			v float64
+		}{{"LAFmax", r.LAFmax}, {"LAeq", r.LAeq}, {"LAE", r.LAE}, {"LCpeak", r.LCpeak}} {
+			w.key(q.n)
+			w.level(q.v)
+		}
+		w.key("flags")
+		w.flags(r.Flags)
+		if spectra && len(r.Spectrum) > 0 {
+			w.spectrumObject(r.FirstBand, r.Spectrum)
+		}
+	case *buffer.Calibration:
+		for _, q := range []struct {
+			n string
+			v float64
+			d int
+		}{{"reference_dB", r.Reference, 2}, {"measured_dB", r.Measured, 2}, {"deviation_dB", r.Deviation, 2},
+			{"frequency_hz", r.Frequency, 1}, {"stability_dB", r.Stability, 2},
+			{"sensitivity_before_dBFS", r.SensitivityBefore, 2}, {"sensitivity_after_dBFS", r.SensitivityAfter, 2}} {
+			w.key(q.n)
+			w.num(q.v, q.d)
+		}
+		w.key("applied")
+		w.bool(r.Applied)
+		w.key("passed")
+		w.bool(r.OK)
+		w.key("flags")
+		w.flags(r.Flags)
+	case *buffer.Health:
+		w.key("flags")
+		w.flags(r.Flags)
+		for _, q := range []struct {
+			n string
+			v uint64
+		}{{"clipped_samples", r.Clipped}, {"under_range_seconds", r.UnderRangeSeconds}, {"dropped_samples", r.DroppedSamples},
+			{"queue_overflows", r.QueueOverflows}, {"store_bytes", r.StoreBytes}} {
+			w.key(q.n)
+			w.uint(q.v)
+		}
+		for _, q := range []struct {
+			n string
+			v bool
+		}{{"silent", r.Silent}, {"stuck", r.Stuck}, {"clock_synced", r.ClockSynced}} {
+			w.key(q.n)
+			w.bool(q.v)
+		}
+		for _, q := range []struct {
+			n string
+			v float64
+			d int
+		}{{"dc_offset", r.DCOffset, 6}, {"cpu_percent", r.CPU, 1}, {"memory_mb", r.MemoryMB, 1}, {"disk_free_mb", r.DiskFreeMB, 1},
+			{"clock_error_ms", r.ClockErrorMs, 3}, {"temperature_c", r.TemperatureC, 1}} {
+			w.key(q.n)
+			w.num(q.v, q.d)
+		}
+	case *buffer.Gap:
+		w.times("end", r.To)
+		w.key("reason")
+		w.str(r.Reason)
+	case *buffer.Annotation:
+		w.times("end", r.To)
+		w.key("flags")
+		w.flags(r.Flags)
+		w.key("reason")
+		w.str(r.Reason)
+	case *buffer.Session:
+		w.key("software_version")
+		w.str(r.SoftwareVersion)
+		w.key("config_hash")
+		w.str(r.ConfigHash)
+		w.key("sensitivity_dBFS")
+		w.num(r.SensitivityDBFS, 3)
+		w.key("sample_rate_hz")
+		w.int(int64(r.SampleRate))
+		w.key("device")
+		w.str(r.Device)
+		w.key("time_zone")
+		w.str(r.TimeZone)
+	}
+	w.close()
+	return w.b
+}
