@@ -432,8 +432,11 @@ func (p *headerParser) readFmt(size uint32) error {
 	valid := 0
 	extensible := tag == tagExtensible
 	if extensible {
-		if n < 40 || binary.LittleEndian.Uint16(b[16:]) < 22 {
+		if n < 40 {
 			return fmt.Errorf("%w: WAVE_FORMAT_EXTENSIBLE fmt chunk of %d bytes, need 40", ErrBadFormat, size)
+		}
+		if cb := binary.LittleEndian.Uint16(b[16:]); cb < 22 {
+			return fmt.Errorf("%w: WAVE_FORMAT_EXTENSIBLE fmt chunk with an extension of %d bytes, need 22", ErrBadFormat, cb)
 		}
 		valid = int(binary.LittleEndian.Uint16(b[18:]))
 		if [14]byte(b[26:40]) != guidTail {

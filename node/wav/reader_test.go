@@ -229,6 +229,7 @@ func TestErrors(t *testing.T) {
 		{"extensible 8-bit", riffFile("RIFF", -1, ck("fmt ", fmtExtBody(1, 8000, 8, 8, 0, 1)), ck("data", []byte{1, 2})), ErrUnsupported, "8-bit"},
 		{"extensible 64-bit float", riffFile("RIFF", -1, ck("fmt ", fmtExtBody(1, 8000, 64, 64, 0, 3)), ck("data", make([]byte, 8))), ErrUnsupported, "64-bit float"},
 		{"extensible short", riffFile("RIFF", -1, ck("fmt ", fmtExtBody(1, 8000, 16, 16, 0, 1)[:24]), ck("data", pcm16(1))), ErrBadFormat, "need 40"},
+		{"extensible cbSize 0", riffFile("RIFF", -1, ck("fmt ", append(fmtExtBody(1, 8000, 16, 16, 0, 1)[:16], make([]byte, 24)...)), ck("data", pcm16(1))), ErrBadFormat, "extension of 0 bytes, need 22"},
 		{"extensible odd container", riffFile("RIFF", -1, ck("fmt ", fmtExtBody(1, 8000, 20, 20, 0, 1)), ck("data", pcm16(1))), ErrBadFormat, "20-bit container"},
 		{"extensible valid > container", riffFile("RIFF", -1, ck("fmt ", fmtExtBody(1, 8000, 16, 24, 0, 1)), ck("data", pcm16(1))), ErrBadFormat, "24 valid bits in a 16-bit"},
 		{"extensible foreign GUID", riffFile("RIFF", -1, ck("fmt ", append(fmtExtBody(1, 8000, 16, 16, 0, 1)[:26], make([]byte, 14)...)), ck("data", pcm16(1))), ErrUnsupported, "GUID"},
