@@ -219,9 +219,9 @@ func (s *arecordSource) lost() error {
 		status = werr.Error()
 	}
 	if msg, _ := s.last.Load().(string); msg != "" {
-		return fmt.Errorf("arecord: %w: %s: %s", ErrDeviceLost, status, msg)
+		return fmt.Errorf("arecord -D %s: %w: %s: %s", s.cfg.Device, ErrDeviceLost, status, msg)
 	}
-	return fmt.Errorf("arecord: %w: %s", ErrDeviceLost, status)
+	return fmt.Errorf("arecord -D %s: %w: %s", s.cfg.Device, ErrDeviceLost, status)
 }
 
 // stop asks arecord to end (SIGTERM to its process group) and kills it if it has not after a
