@@ -186,9 +186,17 @@ func (n *Node) Run(ctx context.Context) error {
 	}()
 	err := p.loop(ctx, events, free)
 	cancel()
-	for range events { // let the capture goroutine finish
+	// A Read blocked on a device that delivers nothing more ends when the source is closed.
+	go o.Source.Close()
+	go func() {
+		for range events { // unblock a capture goroutine waiting to send
+		}
+	}()
+	select {
+	case <-done:
+	case <-time.After(5 * time.Second):
+		n.log.Warn("the audio source did not stop within 5 s; leaving it behind", "source", o.Source.Describe())
 	}
-	<-done
 	p.finish()
 	if ferr := o.Store.Flush(); ferr != nil && err == nil {
 		err = fmt.Errorf("node: flushing the store: %w", ferr)

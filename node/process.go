@@ -91,33 +91,51 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 	watchdog := time.NewTimer(o.Watchdog)
 	defer watchdog.Stop()
 	open := false
+	handle := func(ev event) error {
+		switch ev.kind {
+		case evOpened:
+			open = true
+			return p.opened(ev)
+		case evData:
+			err := p.data(ev)
+			select {
+			case free <- ev.samples[:cap(ev.samples)]:
+			default:
+			}
+			return err
+		case evLost:
+			open = false
+			p.skipLost(ev.skipped)
+			return p.lost(ev.err.Error())
+		case evEOF:
+			open = false
+			p.skipLost(ev.skipped)
+			p.finish()
+		}
+		return nil
+	}
 	for {
 		select {
+		case <-ctx.Done():
+			// Measure what capture already queued, without waiting for more.
+			for {
+				select {
+				case ev, ok := <-events:
+					if !ok {
+						return nil
+					}
+					if err := handle(ev); err != nil {
+						return err
+					}
+				default:
+					return nil
+				}
+			}
 		case ev, ok := <-events:
 			if !ok {
 				return nil
 			}
-			var err error
-			switch ev.kind {
-			case evOpened:
-				open = true
-				err = p.opened(ev)
-			case evData:
-				err = p.data(ev)
-				select {
-				case free <- ev.samples[:cap(ev.samples)]:
-				default:
-				}
-			case evLost:
-				open = false
-				p.skipLost(ev.skipped)
-				err = p.lost(ev.err.Error())
-			case evEOF:
-				open = false
-				p.skipLost(ev.skipped)
-				p.finish()
-			}
-			if err != nil {
+			if err := handle(ev); err != nil {
 				return err
 			}
 			if !watchdog.Stop() {

@@ -53,7 +53,7 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 		Settling:        time.Duration(cfg.Measure.SettlingSeconds * float64(time.Second)),
 		OverloadLevel:   cfg.Microphone.OverloadDB,
 		Lossless:        cfg.Capture.Kind == capture.KindStdin || (cfg.Capture.Kind == capture.KindFile || cfg.Capture.Kind == capture.KindSynthetic) && !cfg.Capture.Realtime,
-		SampleTimed:     (cfg.Capture.Kind == capture.KindFile || cfg.Capture.Kind == capture.KindSynthetic) && !cfg.Capture.Realtime,
+		SampleTimed:     cfg.SampleTimed(),
 		Session: buffer.Session{
 			SoftwareVersion: softwareVersion(),
 			ConfigHash:      cfg.Hash(),

@@ -77,6 +77,12 @@ type Measure struct {
 	SecondSpectra bool `toml:"second_spectra"`
 	// SettlingSeconds flags the first seconds after each start as settling (default 5).
 	SettlingSeconds float64 `toml:"settling_s"`
+	// Timestamps says where the records' times come from: "clock" (the system clock, for live
+	// sources) or "samples" (the sample count from the moment the source opened, for
+	// recordings replayed faster than real time, e.g. a file piped to stdin). Empty means
+	// "clock", except "samples" for file and synthetic sources that are not paced in real
+	// time.
+	Timestamps string `toml:"timestamps"`
 }
 
 // Store sets up the bbolt store.
@@ -196,6 +202,11 @@ func (c *Config) Validate() []error {
 	default:
 		bad("measure.bands", fmt.Sprintf("%q", c.Measure.Bands), `use "third", "octave" or "none"`)
 	}
+	switch c.Measure.Timestamps {
+	case "", "clock", "samples":
+	default:
+		bad("measure.timestamps", fmt.Sprintf("%q", c.Measure.Timestamps), `use "clock" or "samples"`)
+	}
 	if c.Measure.SettlingSeconds < 0 || c.Measure.SettlingSeconds > 600 {
 		bad("measure.settling_s", c.Measure.SettlingSeconds, "allowed 0 to 600")
 	}
@@ -221,6 +232,17 @@ func validID(s string) bool {
 		}
 	}
 	return true
+}
+
+// SampleTimed reports whether record times come from the sample count (see Measure.Timestamps).
+func (c *Config) SampleTimed() bool {
+	switch c.Measure.Timestamps {
+	case "samples":
+		return true
+	case "clock":
+		return false
+	}
+	return (c.Capture.Kind == capture.KindFile || c.Capture.Kind == capture.KindSynthetic) && !c.Capture.Realtime
 }
 
 // CommitInterval returns the parsed commit interval.
