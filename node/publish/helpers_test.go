@@ -11,9 +11,11 @@ import (
 	"net"
 	"os"
 	"os/exec"
+	"os/signal"
 	"path/filepath"
 	"strings"
 	"sync"
+	"syscall"
 	"testing"
 	"time"
 
@@ -115,7 +117,9 @@ func startMosquitto(t testing.TB, o brokerOpts) *mosquitto {
 	return m
 }
 
-func (m *mosquitto) url(scheme string) string { return fmt.Sprintf("%s://127.0.0.1:%d", scheme, m.port) }
+func (m *mosquitto) url(scheme string) string {
+	return fmt.Sprintf("%s://127.0.0.1:%d", scheme, m.port)
+}
 
 // start runs mosquitto in the foreground and waits until it accepts connections.
 func (m *mosquitto) start() {
@@ -397,3 +401,5 @@ func waitConnected(t testing.TB, p *Publisher) {
 		time.Sleep(10 * time.Millisecond)
 	}
 }
+
+func signalNotify(ch chan os.Signal) { signal.Notify(ch, syscall.SIGTERM, os.Interrupt) }
