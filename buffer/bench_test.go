@@ -237,7 +237,7 @@ func BenchmarkWriteVolume(b *testing.B) {
 	for _, interval := range []time.Duration{10 * time.Second, 30 * time.Second, 60 * time.Second} {
 		for _, syncFreelist := range []bool{false, true} {
 			b.Run(fmt.Sprintf("commit=%v/freelist-sync=%v", interval, syncFreelist), func(b *testing.B) {
-				s, err := Open(path, &Options{Now: clk.Now, CommitInterval: interval, SyncFreelist: syncFreelist,
+				s, err := Open(path, &Options{Now: clk.Now, CommitInterval: interval, NoFreelistSync: !syncFreelist,
 					Logger: quietLogger(), Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}})
 				if err != nil {
 					b.Fatal(err)
@@ -279,4 +279,36 @@ func (s *Store) committedSeq(k Kind) uint64 {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	return s.committed[k]
+}
+
+// BenchmarkOpen measures Open (for writing) of a store holding LEQNODE_BENCH_DAYS of data, with
+// and without a synced freelist: without it, bbolt rebuilds the freelist by scanning every page
+// at open, which is the price of the smaller commits measured by BenchmarkWriteVolume.
+func BenchmarkOpen(b *testing.B) {
+	days := envFloat(b, "LEQNODE_BENCH_DAYS", 0.25)
+	clk := &clock{t: t0}
+	dir := benchDir(b)
+	for _, syncFreelist := range []bool{false, true} {
+		path := filepath.Join(dir, fmt.Sprintf("open-%v.db", syncFreelist))
+		o := fillOptions(clk)
+		o.NoFreelistSync = !syncFreelist
+		s := openTest(b, path, o)
+		fill(b, s, t0, time.Duration(days*24*float64(time.Hour)), true)
+		s.Close()
+		b.Run(fmt.Sprintf("freelist-sync=%v", syncFreelist), func(b *testing.B) {
+			for range b.N {
+				s, err := Open(path, &Options{NoFreelistSync: !syncFreelist, Now: clk.Now, Logger: quietLogger(),
+					Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}})
+				if err != nil {
+					b.Fatal(err)
+				}
+				b.StopTimer()
+				s.Close()
+				b.StartTimer()
+			}
+			if fi, err := os.Stat(path); err == nil {
+				b.ReportMetric(float64(fi.Size())/1e6, "file-MB")
+			}
+		})
+	}
 }

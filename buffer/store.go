@@ -163,7 +163,7 @@ func (s *Store) open() (err error) {
 		Timeout:        s.opts.LockTimeout,
 		ReadOnly:       s.readOnly,
 		FreelistType:   bolt.FreelistMapType,
-		NoFreelistSync: !s.opts.SyncFreelist,
+		NoFreelistSync: s.opts.NoFreelistSync,
 		NoSync:         s.opts.NoSync,
 	}
 	defer func() {
@@ -175,6 +175,12 @@ func (s *Store) open() (err error) {
 			err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, p)
 		}
 	}()
+	if err := precheck(s.path); err != nil {
+		if s.readOnly && errors.Is(err, ErrDamaged) {
+			return fmt.Errorf("%w: the daemon moves it aside at its next start", err)
+		}
+		return err
+	}
 	db, err := bolt.Open(s.path, 0o600, bo)
 	if err != nil {
 		switch {

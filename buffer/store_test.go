@@ -499,6 +499,33 @@ func TestDamagedFileMovedAside(t *testing.T) {
 	}
 }
 
+// A store cut short (as a file system repair may leave it) would make bbolt touch pages beyond the
+// end of the file and the process die of SIGBUS; it must be moved aside instead.
+func TestTruncatedFileMovedAside(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "node.db")
+	s := openTest(t, path, nil)
+	for i := range 20000 {
+		s.Append(second(t0.Add(time.Duration(i)*time.Second), 50))
+	}
+	oldID := s.ID()
+	s.Close()
+	fi, _ := os.Stat(path)
+	if err := os.Truncate(path, fi.Size()/2); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := OpenReadOnly(path, 0); !errors.Is(err, ErrDamaged) || !strings.Contains(err.Error(), "cut short") {
+		t.Errorf("read-only open of a truncated store: %v", err)
+	}
+	s = openTest(t, path, nil)
+	defer s.Close()
+	if s.Recovered() == "" || s.ID() == oldID {
+		t.Fatalf("truncated store not replaced: recovered %q, id %s (was %s)", s.Recovered(), s.ID(), oldID)
+	}
+	if moved, err := os.Stat(s.Recovered()); err != nil || moved.Size() != fi.Size()/2 {
+		t.Errorf("the moved file is not the truncated store: %v", err)
+	}
+}
+
 func TestNotAStore(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "other.db")
 	db, err := bolt.Open(path, 0o600, nil)
