@@ -52,7 +52,7 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 		SecondSpectra:   cfg.Measure.SecondSpectra && bands == dsp.Third,
 		Settling:        time.Duration(cfg.Measure.SettlingSeconds * float64(time.Second)),
 		OverloadLevel:   cfg.Microphone.OverloadDB,
-		Lossless:        cfg.Capture.Kind == capture.KindStdin || (cfg.Capture.Kind == capture.KindFile || cfg.Capture.Kind == capture.KindSynthetic) && !cfg.Capture.Realtime,
+		Lossless:        cfg.Capture.Kind == capture.KindStdin || cfg.SampleTimed(),
 		SampleTimed:     cfg.SampleTimed(),
 		Session: buffer.Session{
 			SoftwareVersion: softwareVersion(),

@@ -257,3 +257,71 @@ func TestRunStdinAndFileEndToEnd(t *testing.T) {
 		})
 	}
 }
+
+func TestRunArecordEndToEnd(t *testing.T) {
+	// The node starts Debian's arecord itself, which reads an ALSA file PCM backed by a raw
+	// file of the signal. The file plugin delivers a file as fast as it is read (real-time
+	// pacing needs a pipe on an inherited file descriptor, which arecord, the node's child,
+	// does not get), so the node takes its time stamps from the sample count. arecord opens
+	// S32_LE, so the file holds 32-bit integers.
+	if _, err := exec.LookPath("arecord"); err != nil {
+		t.Skip("arecord is not installed: run `make test`, which installs alsa-utils")
+	}
+	dir := t.TempDir()
+	x := e2eSignal()
+	raw := make([]byte, 4*len(x))
+	for i, v := range x {
+		// S32_LE full scale 2^31, the scaling of node/wav and node/capture.
+		binary.LittleEndian.PutUint32(raw[4*i:], uint32(int32(math.Round(float64(v)*(1<<31)))))
+	}
+	rawPath := filepath.Join(dir, "signal.raw")
+	if err := os.WriteFile(rawPath, raw, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	asound := filepath.Join(dir, "asound.conf")
+	err := os.WriteFile(asound, []byte(fmt.Sprintf(`pcm.testsig {
+  type file
+  slave.pcm { type null }
+  file "/dev/null"
+  infile %q
+  format "raw"
+}
+pcm.!default "testsig"
+`, rawPath)), 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cfg := writeConfig(t, dir, `kind = "arecord"
+device = "testsig"
+sample_rate = 48000
+sample_format = "int32"
+channels = 1
+frames_per_buffer = 960`, `timestamps = "samples"`)
+	cmd := childCmd(t, "run", "--config", cfg)
+	cmd.Env = append(cmd.Env, "ALSA_CONFIG_PATH="+asound)
+	var stderr strings.Builder
+	cmd.Stderr = &stderr
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer cmd.Process.Kill()
+	// 8 s of audio take well under a second to measure; past the end of the file the plugin
+	// repeats its last frames, which the comparison leaves out.
+	time.Sleep(3 * time.Second)
+	cmd.Process.Signal(syscall.SIGTERM)
+	done := make(chan error, 1)
+	go func() { done <- cmd.Wait() }()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Fatalf("leqnode run: %v\n%s", err, stderr.String())
+		}
+	case <-time.After(20 * time.Second):
+		t.Fatalf("leqnode run did not stop on SIGTERM\n%s", stderr.String())
+	}
+	secs := storedSeconds(t, filepath.Join(dir, "node.db"))
+	if len(secs) < 7 {
+		t.Fatalf("%d seconds stored\n%s", len(secs), stderr.String())
+	}
+	compareWithChain(t, x, 0, secs)
+}
