@@ -6,16 +6,24 @@ export PATH := $(PATH):/usr/local/go/bin
 GO ?= go
 BIN := bin/leqnode
 
-# Debian packages the tests use: sox (reference measurements of real recordings) and alsa-utils
-# (recordings shipped under /usr/share/sounds/alsa).
-TEST_DEBS := sox alsa-utils
+# Debian packages the tests use: sox (reference measurements of real recordings), alsa-utils
+# (arecord, and recordings under /usr/share/sounds/alsa), portaudio19-dev (the PortAudio capture
+# source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA).
+TEST_DEBS := sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl
+# What building the daemon with PortAudio needs.
+BUILD_DEBS := portaudio19-dev
 
-.PHONY: all build demo test test-deps bench lint fmt clean
+.PHONY: all build build-purego demo test test-deps bench lint fmt clean
 
 all: build
 
 build:
+	@.ci/install-debs $(BUILD_DEBS)
 	$(GO) build -o $(BIN) ./cmd/leqnode
+
+# The pure-Go binary, without PortAudio (the arecord source still works): for cross-compiling.
+build-purego:
+	CGO_ENABLED=0 $(GO) build -tags noportaudio -o $(BIN)-purego ./cmd/leqnode
 
 demo: build
 	./$(BIN) demo
@@ -28,6 +36,7 @@ test: test-deps
 	@test -z "$$(gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))" || { echo "gofmt needed:"; gofmt -l .; exit 1; }
 	$(GO) vet ./...
 	$(GO) test -count=1 ./...
+	CGO_ENABLED=0 $(GO) test -count=1 -tags noportaudio ./node/capture/... ./cmd/... ./dsp/... ./buffer/...
 	$(GO) test -count=1 -run '^$$' -bench . -benchtime 1x ./...
 
 # The figures recorded in the README: benchmarks at full size, five runs each (quote medians).
