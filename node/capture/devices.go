@@ -19,6 +19,3 @@ type DeviceInfo struct {
 	// convert formats and mix behind the node's back. Prefer a hardware device for measuring.
 	Converts bool
 }
-
-// standardRates are the rates Devices tries.
-var standardRates = [...]int{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000}

@@ -23,15 +23,6 @@ func signal(n, fs int, amp float64) []float64 {
 	return x
 }
 
-// pureSine returns n samples of amp·sin(2π·f·i/fs).
-func pureSine(n, fs int, f, amp float64) []float64 {
-	x := make([]float64, n)
-	for i := range x {
-		x[i] = amp * math.Sin(2*math.Pi*f*float64(i)/float64(fs))
-	}
-	return x
-}
-
 // encode writes the samples of channel ch (0-based) of a frame of channels channels as raw
 // little-endian PCM; the other channels carry the negated signal, so picking the wrong one
 // shows. It returns the bytes and the float32 values a reader must deliver, computed

@@ -47,5 +47,3 @@ func (p *pacer) wait(ctx context.Context, done <-chan struct{}, n int64) error {
 		return ErrClosed
 	}
 }
-
-func (p *pacer) stop() { p.timer.Stop() }

@@ -52,6 +52,7 @@ type paSource struct {
 	mu       sync.Mutex // held across a device read; Close takes it
 	inited   bool       // PortAudio initialised by this source
 	stream   *portaudio.Stream
+	read     func() error // stream.Read; tests inject faults here
 	ctx      context.Context
 	format   Format
 	devName  string
@@ -216,7 +217,7 @@ func (s *paSource) open(ctx context.Context) (Format, error) {
 	if err != nil {
 		return Format{}, s.openError(dev, rate, err)
 	}
-	s.stream = stream
+	s.stream, s.read = stream, stream.Read
 	if err := stream.Start(); err != nil {
 		return Format{}, fmt.Errorf("portaudio: starting capture on %q: %w: %w", dev.Name, ErrDeviceLost, err)
 	}
@@ -276,7 +277,7 @@ func (s *paSource) Read(dst []float32) (int, error) {
 		if err := s.ctx.Err(); err != nil {
 			return 0, err
 		}
-		err := s.stream.Read()
+		err := s.read()
 		if errors.Is(err, portaudio.InputOverflowed) {
 			// Samples were discarded before this buffer; the buffer itself is good. PortAudio
 			// does not say how many: count one buffer, a lower bound.
@@ -362,6 +363,9 @@ func (s *paSource) Describe() string {
 	return fmt.Sprintf("portaudio: %s @%d Hz, channel %d of %d, %s", s.devName, s.format.SampleRate,
 		s.format.Channel, s.format.Channels, s.format.Sample)
 }
+
+// standardRates are the rates Devices tries.
+var standardRates = [...]int{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000}
 
 // Devices lists the capture devices PortAudio finds now, with the standard rates each
 // accepts. It initialises and terminates PortAudio around the listing, so it sees devices

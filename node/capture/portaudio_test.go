@@ -18,6 +18,8 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/gordonklaus/portaudio"
 )
 
 // paChildEnv names the directory of the test signals for TestPortAudioChild. PortAudio is one
@@ -96,7 +98,6 @@ func TestPortAudioChild(t *testing.T) {
 		t.Fatal(err)
 	}
 	pr.Close()
-
 	t.Run("formats", func(t *testing.T) {
 		for _, c := range paCases {
 			_, want := encode(signal(paRate, paRate, 0.1), c.sample, c.channels, c.channel-1)
@@ -225,9 +226,50 @@ func TestPortAudioChild(t *testing.T) {
 				t.Fatal(err)
 			}
 			sameSamples(t, got, want)
+			buf := make([]float32, 480)
+			if a := testing.AllocsPerRun(20, func() { src.Read(buf) }); a != 0 {
+				t.Errorf("%v allocations per Read", a)
+			}
 			src.(*paSource).closeForReopen(t)
 		}
 		src.Close()
+	})
+
+	t.Run("faults", func(t *testing.T) {
+		// A file PCM cannot overflow or vanish (ALSA's file plugin keeps delivering even when
+		// its input fails), so the results of PortAudio's read are injected here, on a real
+		// open stream: an overflow report after the third buffer, then a timeout (what
+		// PortAudio's ALSA back end returns when a device stops delivering).
+		c := paCases[0]
+		_, want := encode(signal(paRate, paRate, 0.1), c.sample, c.channels, c.channel-1)
+		src, _ := New(Config{Kind: KindPortAudio, Device: c.pcm, SampleRate: paRate, Sample: c.sample, FramesPerBuffer: 480}, nil)
+		if _, err := src.Open(context.Background()); err != nil {
+			t.Fatal(err)
+		}
+		defer src.Close()
+		ps := src.(*paSource)
+		real, calls := ps.read, 0
+		ps.read = func() error {
+			err := real()
+			switch calls++; calls {
+			case 3, 4:
+				return portaudio.InputOverflowed // the buffer itself is good
+			case 6:
+				return portaudio.TimedOut
+			}
+			return err
+		}
+		got, err := readAll(t, src, 480, paRate)
+		if !errors.Is(err, ErrDeviceLost) || !strings.Contains(err.Error(), "testsig32") {
+			t.Fatalf("after 5 buffers: %v, want ErrDeviceLost naming the device", err)
+		}
+		sameSamples(t, got, want[:5*480])
+		if d := src.Dropped(); d != 2*480 {
+			t.Errorf("Dropped = %d, want one buffer (480) per overflow report", d)
+		}
+		if _, err2 := src.Read(make([]float32, 10)); !errors.Is(err2, ErrDeviceLost) {
+			t.Errorf("Read after the loss = %v, want ErrDeviceLost again", err2)
+		}
 	})
 
 	t.Run("paced", func(t *testing.T) {

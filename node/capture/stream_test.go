@@ -45,8 +45,10 @@ func TestStdinRaw(t *testing.T) {
 			if n, err := src.Read(make([]float32, 10)); n != 0 || !isEOF(err) {
 				t.Errorf("Read after the end = %d, %v; want 0, io.EOF", n, err)
 			}
-			if src.Close() != nil || src.Close() != nil {
-				t.Error("Close failed")
+			for range 2 {
+				if err := src.Close(); err != nil {
+					t.Errorf("Close = %v", err)
+				}
 			}
 			if _, err := src.Read(make([]float32, 10)); !errors.Is(err, ErrClosed) {
 				t.Errorf("Read after Close = %v, want ErrClosed", err)
