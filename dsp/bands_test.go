@@ -579,15 +579,15 @@ func TestBandNoAllocation(t *testing.T) {
 	}
 }
 
-// TestBandKernels checks that the unrolled kernels for three and four sections compute the
-// same bits as the general loop.
+// TestBandKernels checks that the unrolled kernels for three, four and five sections compute
+// the same bits as the general loop.
 func TestBandKernels(t *testing.T) {
 	fb, err := NewFilterBank(Third, 48000)
 	if err != nil {
 		t.Fatal(err)
 	}
 	x := bankTestSignal(3000, 48000)
-	for _, n := range []int{3, 4} {
+	for _, n := range []int{3, 4, 5} {
 		var f *bankFilter
 		for i := range fb.stages[0].filters {
 			if len(fb.stages[0].filters[i].sec) == n {
