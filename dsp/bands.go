@@ -409,8 +409,8 @@ func (b *FilterBank) SampleRate() float64 { return b.fs }
 // fs/2^k for a band in stage k.
 func (b *FilterBank) BandRate(i int) float64 { return b.stages[b.where[i].stage].rate }
 
-// Process filters the samples x, which should be Z-weighted and free of DC (a DC offset
-// passes the band filters only as a decaying transient, but it costs headroom), through
+// Process filters the samples x (Z-weighted, with the DC offset already removed: every band
+// filter has zeros at DC, but a step in the offset rings in the low bands for seconds) through
 // every band and adds the squared band outputs to the running sums. x may have any length.
 func (b *FilterBank) Process(x []float64) {
 	for len(x) > 0 {
