@@ -1,0 +1,288 @@
+// Package indicator computes the indicators regulators ask for from stored measurement records:
+// Leq per period and per hour, whole-day indicators (Lden, Ldn), percentile levels per period,
+// event counts, exceedances of zone limits, a low-frequency indicator, a tonality screen, an
+// impulsiveness indicator and the data coverage of every period.
+//
+// # Model
+//
+// A Builder covers a half-open time range [from, to) cut into the periods of a profile (see
+// package profiles). Records are fed in any order; the Builder keeps one small bin per minute
+// of the range (about 4 MB for 30 days) and one accumulator per period, and Result computes
+// everything at the end. It is pure computation: it reads no files.
+//
+// Sources. Leq values come from second records: each valid second adds its energy
+// 10^(LAeq/10)·T (ISO 1996-1:2016, 3.1.7). A minute that has no second records (they expire
+// after 30 days) falls back to its minute record, counting the minute's valid seconds.
+// Percentile levels, spectra and the impulsiveness indicator come from minute records, which
+// carry the histogram of the A-weighted Fast level sampled every 10 ms, the minute's
+// one-third-octave spectrum and LAImax.
+//
+// Validity. A second flagged calibrating (a calibrator on the microphone), suspect or excluded
+// (by an annotation, applied when the store is read) is left out and counted; so is a second
+// flagged settling or overload, or one of digital silence. A gap record is missing data. The
+// coverage of a period is the share of its length (the part inside the range) covered by valid
+// seconds; a period under Options.MinCoverage (default 75 %) is marked LowCoverage, never
+// hidden. Minutes flagged calibrating, suspect or excluded add nothing to percentiles,
+// spectra or impulsiveness.
+package indicator
+
+import (
+	"math"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/configs/profiles"
+	"github.com/leqnode/leqnode/dsp"
+)
+
+// Options tune the indicators.
+type Options struct {
+	// MinCoverage is the share of valid seconds (0 to 1) below which a period, hour or day is
+	// marked LowCoverage. 0 means the default, 0.75 (common practice). A lower value lets
+	// periods with much missing data pass as representative.
+	MinCoverage float64
+
+	// Adjust turns on rating levels in the manner of ISO 1996-1:2016 Annex A: LAr = LAeq + KT
+	// when the tonality screen finds a tone in the period, + KI when the period is impulsive.
+	// Off by default: the screen and the impulsiveness indicator are indications, and an
+	// adjustment applied on them without a listening check can overstate the rating level.
+	Adjust bool
+	// TonalAdjust is KT in dB; 0 means 5 dB (ISO 1996-1:2016 Annex A gives 3 to 6 dB (from
+	// memory)).
+	TonalAdjust float64
+	// ImpulsiveAdjust is KI in dB; 0 means 5 dB (ISO 1996-1:2016 Annex A, regular impulsive
+	// sound (from memory)).
+	ImpulsiveAdjust float64
+	// ImpulsiveMargin is the mean LAImax - LAFmax, in dB, at or above which a period counts as
+	// impulsive; 0 means 3 dB (common practice).
+	ImpulsiveMargin float64
+}
+
+func (o Options) resolved() Options {
+	if o.MinCoverage == 0 {
+		o.MinCoverage = 0.75
+	}
+	if o.TonalAdjust == 0 {
+		o.TonalAdjust = 5
+	}
+	if o.ImpulsiveAdjust == 0 {
+		o.ImpulsiveAdjust = 5
+	}
+	if o.ImpulsiveMargin == 0 {
+		o.ImpulsiveMargin = 3
+	}
+	return o
+}
+
+// leftOut are the flags that keep a second out of the indicators, by reason.
+const (
+	flagCalibrating = buffer.Calibrating
+	flagSuspect     = buffer.Suspect | buffer.Excluded
+	flagInvalid     = buffer.Settling | buffer.Overload
+)
+
+// Band numbers kept in spectra: one-third octaves -20 (10 Hz) to 13 (20 kHz).
+const (
+	bandLo = -20
+	bandN  = 34
+)
+
+// minuteBin holds what is known of one minute of the range.
+type minuteBin struct {
+	eA, eC                  float64 // Σ 10^(L/10)·T over valid seconds
+	valid, calib, sus, inv  float64 // seconds
+	seconds                 int32   // second records seen
+	hasMinute               bool
+	mA, mC                  float64 // the minute record's energies, for the fallback
+	mValid, mCalib, mSus    float64
+	mInv                    float64
+	period                  int32 // index of the interval holding the minute, -1 outside
+	hour                    int32 // index of the local hour holding the minute
+	minuteLAeq, minuteLAmax float64
+}
+
+// periodAcc accumulates the minute-record quantities of one interval.
+type periodAcc struct {
+	hist          dsp.Histogram
+	specE         [bandN]float64
+	specN         [bandN]float64
+	impSum        float64
+	impN          int
+	lafmax        float64
+	events        int
+	eventsLeftOut int
+	eventMaxLAE   float64
+	eventMaxLAF   float64
+}
+
+// Builder accumulates records over [from, to) and computes the indicators. It is not safe for
+// concurrent use.
+type Builder struct {
+	prof    *profiles.Profile
+	zone    *profiles.Zone
+	loc     *time.Location
+	from    time.Time
+	to      time.Time
+	opt     Options
+	ivs     []profiles.Interval
+	minute0 time.Time
+	bins    []minuteBin
+	hours   []time.Time // local hour starts
+	per     []*periodAcc
+	gaps    []*buffer.Gap
+	cals    []*buffer.Calibration
+	events  []*buffer.Event
+}
+
+// NewBuilder returns a builder for [from, to) (whole minutes; from is rounded down, to up) with
+// the periods of prof in zone loc. zone may be nil (no limits).
+func NewBuilder(prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, from, to time.Time, opt Options) *Builder {
+	from = from.Truncate(time.Minute)
+	if t := to.Truncate(time.Minute); t.Before(to) {
+		to = t.Add(time.Minute)
+	}
+	b := &Builder{prof: prof, zone: zone, loc: loc, from: from, to: to, opt: opt.resolved(), minute0: from}
+	b.ivs = prof.Intervals(from, to, loc)
+	n := int(to.Sub(from) / time.Minute)
+	b.bins = make([]minuteBin, max(n, 0))
+	b.per = make([]*periodAcc, len(b.ivs))
+	for i := range b.per {
+		b.per[i] = &periodAcc{lafmax: math.Inf(-1), eventMaxLAE: math.Inf(-1), eventMaxLAF: math.Inf(-1)}
+	}
+	p, h := 0, -1
+	var hourEnd time.Time
+	for i := range b.bins {
+		t := from.Add(time.Duration(i) * time.Minute)
+		for p < len(b.ivs) && !t.Before(b.ivs[p].To) {
+			p++
+		}
+		b.bins[i].period = -1
+		if p < len(b.ivs) && !t.Before(b.ivs[p].From) {
+			b.bins[i].period = int32(p)
+		}
+		if !t.Before(hourEnd) {
+			lt := t.In(loc)
+			start := time.Date(lt.Year(), lt.Month(), lt.Day(), lt.Hour(), 0, 0, 0, loc)
+			if start.After(t) { // a zone whose offset is no whole number of hours at this instant
+				start = t
+			}
+			b.hours = append(b.hours, start)
+			h++
+			hourEnd = start.Add(time.Hour)
+		}
+		b.bins[i].hour = int32(h)
+		b.bins[i].minuteLAeq, b.bins[i].minuteLAmax = math.NaN(), math.NaN()
+	}
+	return b
+}
+
+// bin returns the minute bin holding t, or nil outside the range.
+func (b *Builder) bin(t time.Time) *minuteBin {
+	if t.Before(b.from) || !t.Before(b.to) {
+		return nil
+	}
+	return &b.bins[int(t.Sub(b.from)/time.Minute)]
+}
+
+func energy(l float64) float64 { return math.Pow(10, l/10) }
+
+// AddSecond adds a second record.
+func (b *Builder) AddSecond(s *buffer.Second) {
+	m := b.bin(s.Start)
+	if m == nil {
+		return
+	}
+	m.seconds++
+	d := s.Duration.Seconds()
+	switch {
+	case s.Flags&flagCalibrating != 0:
+		m.calib += d
+	case s.Flags&flagSuspect != 0:
+		m.sus += d
+	case s.Flags&flagInvalid != 0 || math.IsNaN(s.LAeq):
+		m.inv += d
+	default:
+		m.valid += d
+		m.eA += energy(s.LAeq) * d
+		if !math.IsNaN(s.LCeq) {
+			m.eC += energy(s.LCeq) * d
+		}
+	}
+}
+
+// AddMinute adds a minute record.
+func (b *Builder) AddMinute(r *buffer.Minute) {
+	m := b.bin(r.Start)
+	if m == nil {
+		return
+	}
+	m.hasMinute = true
+	m.minuteLAmax = r.LAFmax
+	valid := float64(r.ValidSeconds)
+	switch {
+	case r.Flags&flagCalibrating != 0:
+		m.mCalib = 60
+	case r.Flags&flagSuspect != 0:
+		m.mSus = 60
+	default:
+		m.mValid = valid
+		m.mInv = 60 - valid
+		if !math.IsNaN(r.LAeq) {
+			m.mA = energy(r.LAeq) * valid
+		}
+		if !math.IsNaN(r.LCeq) {
+			m.mC = energy(r.LCeq) * valid
+		}
+	}
+	if m.period < 0 || r.Flags&(flagCalibrating|flagSuspect) != 0 {
+		return
+	}
+	p := b.per[m.period]
+	p.hist.AddSpan(r.Histogram.First, r.Histogram.Counts)
+	if !math.IsNaN(r.LAFmax) {
+		p.lafmax = max(p.lafmax, r.LAFmax)
+	}
+	if !math.IsNaN(r.LAImax) && !math.IsNaN(r.LAFmax) {
+		p.impSum += r.LAImax - r.LAFmax
+		p.impN++
+	}
+	for i, l := range r.Spectrum {
+		k := r.FirstBand + i - bandLo
+		if k >= 0 && k < bandN && !math.IsNaN(l) && !math.IsInf(l, 0) {
+			p.specE[k] += energy(l)
+			p.specN[k]++
+		}
+	}
+}
+
+// AddEvent adds an event record; it counts in the period holding its start.
+func (b *Builder) AddEvent(e *buffer.Event) {
+	m := b.bin(e.Start)
+	if m == nil || m.period < 0 {
+		return
+	}
+	p := b.per[m.period]
+	if e.Flags&(flagCalibrating|flagSuspect) != 0 {
+		p.eventsLeftOut++
+		return
+	}
+	p.events++
+	p.eventMaxLAE = max(p.eventMaxLAE, e.LAE)
+	p.eventMaxLAF = max(p.eventMaxLAF, e.LAFmax)
+	cp := *e
+	b.events = append(b.events, &cp)
+}
+
+// AddGap adds a gap record.
+func (b *Builder) AddGap(g *buffer.Gap) {
+	if g.To.After(b.from) && g.From.Before(b.to) {
+		cp := *g
+		b.gaps = append(b.gaps, &cp)
+	}
+}
+
+// AddCalibration adds a calibration record.
+func (b *Builder) AddCalibration(c *buffer.Calibration) {
+	cp := *c
+	b.cals = append(b.cals, &cp)
+}
