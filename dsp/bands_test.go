@@ -752,6 +752,18 @@ func TestNewFilterBankErrors(t *testing.T) {
 	}
 }
 
+func ExampleBands() {
+	for _, fs := range []float64{44100, 48000} {
+		b := Bands(Third, fs)
+		top := b[len(b)-1]
+		fmt.Printf("%g Hz: %d bands, %s Hz to %s Hz (top band %.1f to %.1f Hz)\n",
+			fs, len(b), b[0].Nominal, top.Nominal, top.Lower, top.Upper)
+	}
+	// Output:
+	// 44100 Hz: 32 bands, 12.5 Hz to 16000 Hz (top band 14125.4 to 17782.8 Hz)
+	// 48000 Hz: 33 bands, 12.5 Hz to 20000 Hz (top band 17782.8 to 22387.2 Hz)
+}
+
 func ExampleFilterBank() {
 	const fs = 48000
 	fb, err := NewFilterBank(Third, fs)
