@@ -51,7 +51,7 @@ func StartLocalBroker(ctx context.Context, addr string) (url string, stop func()
 	go func() {
 		select {
 		case <-ctx.Done():
-			srv.Close()
+			stop()
 		case <-stopped:
 		}
 	}()

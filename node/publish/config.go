@@ -20,7 +20,7 @@ const (
 	DefaultReconnectMaxDelay = 2 * time.Minute
 	DefaultSecondsPerMessage = 10
 	DefaultMaxInFlight       = 32
-	DefaultBacklogRate       = 50 // messages per second
+	DefaultBacklogRate       = 250 // messages per second: a 24-hour backlog in about 40 s
 	DefaultStatusInterval    = time.Minute
 	DefaultStream            = "mqtt"
 	DefaultMaxCommandBytes   = 1024
@@ -103,7 +103,7 @@ type Config struct {
 	// 32, 1 to 1000). More hides more round-trip time; a connection loss resends them all.
 	MaxInFlight int `toml:"max_in_flight"`
 
-	// BacklogMessagesPerSecond limits the rate of backlog and resend messages (default 50; a
+	// BacklogMessagesPerSecond limits the rate of backlog and resend messages (default 250; a
 	// negative value means no limit). Live records are never held back. Danger: no limit lets a
 	// node returning from a long outage flood the broker and a metered link.
 	BacklogMessagesPerSecond float64 `toml:"backlog_messages_per_second"`

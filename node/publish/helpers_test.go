@@ -8,6 +8,7 @@ import (
 	"io"
 	"log/slog"
 	"math"
+	"math/rand/v2"
 	"net"
 	"os"
 	"os/exec"
@@ -403,3 +404,5 @@ func waitConnected(t testing.TB, p *Publisher) {
 }
 
 func signalNotify(ch chan os.Signal) { signal.Notify(ch, syscall.SIGTERM, os.Interrupt) }
+
+func newTestRand() *rand.Rand { return rand.New(rand.NewPCG(1, 2)) }

@@ -305,6 +305,23 @@ func take(buf []buffer.Record, n int) ([]buffer.Record, []buffer.Record) {
 	return out, buf[n:]
 }
 
+// takeBatch removes the records of the next message from buf (in sequence order). Batches of
+// n > 1 records are aligned to sequence numbers: a message holds the records with sequence
+// numbers in (k·n − n, k·n], so consumers see the same grouping whatever the outages were.
+// complete reports whether the batch reaches its last sequence number k·n.
+func takeBatch(buf []buffer.Record, n int) (recs, rest []buffer.Record, complete bool) {
+	if n <= 1 {
+		recs, rest = take(buf, 1)
+		return recs, rest, true
+	}
+	last := ((buf[0].Seq()-1)/uint64(n) + 1) * uint64(n)
+	i := 0
+	for i < len(buf) && buf[i].Seq() <= last {
+		i++
+	}
+	return buf[:i:i], buf[i:], buf[i-1].Seq() == last || i < len(buf)
+}
+
 // encode builds the payload for recs (one kind, sequence order).
 func (p *Publisher) encode(e envelope, recs []buffer.Record) []byte {
 	if recs[0].Kind() == buffer.KindSecond {
@@ -339,7 +356,9 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 				break
 			}
 			n := p.batch(l.kind)
-			if len(l.lbuf) < n {
+			recs, rest, complete := takeBatch(l.lbuf, n)
+			if !complete {
+				// Hold a partial batch of live seconds until it fills or has waited n seconds.
 				if l.lwait.IsZero() {
 					l.lwait = now
 				}
@@ -348,8 +367,7 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 					break
 				}
 			}
-			var recs []buffer.Record
-			recs, l.lbuf = take(l.lbuf, n)
+			l.lbuf = rest
 			l.lwait = time.Time{}
 			p.send(s, message{kind: l.kind, lo: recs[0].Seq(), hi: recs[len(recs)-1].Seq()}, DeliveryLive, p.encode(p.envelope(DeliveryLive), recs))
 		}
@@ -379,7 +397,7 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 		delivery := DeliveryBacklog
 		if oldest != nil {
 			var recs []buffer.Record
-			recs, oldest.bbuf = take(oldest.bbuf, p.batch(oldest.kind))
+			recs, oldest.bbuf, _ = takeBatch(oldest.bbuf, p.batch(oldest.kind))
 			m = message{kind: oldest.kind, lo: recs[0].Seq(), hi: recs[len(recs)-1].Seq()}
 			payload = p.encode(p.envelope(DeliveryBacklog), recs)
 		} else if m, payload = p.nextResend(s); payload == nil {
@@ -455,6 +473,18 @@ func (p *Publisher) complete(s *session, r result) error {
 // appendStatus appends the status message: state "online" or "offline". The last will is
 // built once before connecting and carries no time.
 func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
+	var st Status
+	lastSeq := map[string]uint64{}
+	if state == "online" {
+		st = p.Status()
+		for _, k := range buffer.Kinds() {
+			lastSeq[k.String()] = p.store.LastSeq(k)
+		}
+	}
+	return p.appendStatusFields(b, state, stamped, st, p.store.ID(), lastSeq)
+}
+
+func (p *Publisher) appendStatusFields(b []byte, state string, stamped bool, st Status, storeID string, lastSeq map[string]uint64) []byte {
 	w := jw{b}
 	w.open()
 	w.key("schema_version")
@@ -464,7 +494,7 @@ func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
 	w.key("node")
 	w.str(p.id.NodeID)
 	w.key("store")
-	w.str(p.store.ID())
+	w.str(storeID)
 	w.key("state")
 	w.str(state)
 	if stamped {
@@ -494,7 +524,6 @@ func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
 	w.key("commands")
 	w.bool(p.cfg.Commands.Enabled)
 	if state == "online" {
-		st := p.Status()
 		w.key("backlog")
 		w.bool(st.Backlog)
 		w.key("pending")
@@ -508,7 +537,7 @@ func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
 		w.open()
 		for _, k := range buffer.Kinds() {
 			w.key(k.String())
-			w.uint(p.store.LastSeq(k))
+			w.uint(lastSeq[k.String()])
 		}
 		w.close()
 	}

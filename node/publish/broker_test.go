@@ -1,0 +1,51 @@
+package publish
+
+import (
+	"context"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+)
+
+// TestLocalBroker: the in-process broker of leqnode demo carries the node's records, and it
+// refuses to listen anywhere but on loopback.
+func TestLocalBroker(t *testing.T) {
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	url, stop, err := StartLocalBroker(ctx, "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer stop()
+	if !strings.HasPrefix(url, "tcp://127.0.0.1:") || strings.HasSuffix(url, ":0") {
+		t.Fatalf("url %q", url)
+	}
+	col := newCollector(t, url, "millbrook/#", nil)
+	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+	defer store.Close()
+	p, err := New(Config{Brokers: []string{url}, TopicPrefix: "millbrook"}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	runPublisher(t, p)
+	for i := range 30 {
+		mustAppend(t, store, second(i, false))
+	}
+	mustAppend(t, store, minute(0, false))
+	store.Flush()
+	p.Notify()
+	col.waitFor(20*time.Second, "30 seconds and a minute", func(msgs []received) bool {
+		c, _ := countSeqs(t, msgs)
+		return c.complete("second", 30) && c.complete("minute", 1)
+	})
+
+	for _, addr := range []string{"0.0.0.0:0", "192.0.2.1:1883", ":1883", "nonsense"} {
+		if _, _, err := StartLocalBroker(ctx, addr); err == nil {
+			t.Errorf("StartLocalBroker(%q) accepted a non-loopback address", addr)
+		}
+	}
+	if _, _, err := StartLocalBroker(ctx, strings.TrimPrefix(url, "tcp://")); err == nil {
+		t.Errorf("a second broker on the same port started")
+	}
+}
