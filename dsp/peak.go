@@ -8,9 +8,13 @@ import "math"
 // windowed-sinc interpolator (the true-peak method of oversampling, as audio metering practice
 // does it) and keeps the largest magnitude.
 //
-// To stay cheap, the interpolator runs only around samples that could beat the running maximum:
-// between two samples the band-limited waveform cannot exceed the larger of them by more than a
-// bounded factor, so samples below half the current maximum (-6 dB) are skipped.
+// To stay cheap, the interpolator runs only where the waveform's peak can be: in the two sample
+// periods on either side of a sample whose magnitude is a local maximum, and only when that
+// sample reaches 1/√2 of the running peak (-3 dB: near its crest a sine below fs/4 never rises
+// more than that above its nearest sample, 1/cos(π f/fs)). Content above fs/4 (12 kHz at
+// 48 kHz), which the C weighting attenuates by 4 dB and more, can be missed between samples
+// when it is the only loud thing in an interval. A tone costs four interpolations per cycle,
+// noise far fewer.
 const (
 	peakPhases  = 4  // interpolation points per sample period
 	peakHalfLen = 8  // taps on each side of the interpolation point
@@ -72,9 +76,17 @@ func (d *peakDetector) process(x []float64) {
 	for _, v := range w[lo+1 : lo+n+1] { // the second sample of every pair
 		m = max(m, math.Abs(v))
 	}
-	gate := m / 2
+	// The waveform's peak lies next to a sample whose magnitude is a local maximum: examine
+	// the pairs on either side of such samples, when they reach 1/√2 of the running peak.
+	gate := m * math.Sqrt2 / 2
 	for j := lo; j < lo+n; j++ {
-		if math.Abs(w[j]) < gate && math.Abs(w[j+1]) < gate {
+		a0, a1 := math.Abs(w[j]), math.Abs(w[j+1])
+		if max(a0, a1) < gate {
+			continue
+		}
+		peak0 := a0 >= math.Abs(w[j-1]) && a0 >= a1
+		peak1 := a1 >= a0 && a1 >= math.Abs(w[j+2])
+		if !peak0 && !peak1 {
 			continue
 		}
 		seg := w[j-lo : j-lo+peakTaps]
