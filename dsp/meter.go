@@ -44,6 +44,15 @@ type MeterConfig struct {
 	// cost more than all the other measurements together; leave them off where they are not
 	// wanted.
 	Bands BandSet
+	// Correction, when set, is a filter applied right after the DC blocker, before the band
+	// filters and every weighting: a microphone and windscreen correction fitted by
+	// CorrectionSections. Danger: a correction that is not 0 dB at 1 kHz moves the calibrator
+	// reading too; sections that are not stable ring for ever.
+	Correction []Section
+	// CSections and ASections, when set, replace the designed C and A-from-C sections. They let
+	// the self-verification (package selftest) show that it catches a damaged chain. Danger:
+	// any value other than the designed one gives wrong levels; a measuring node leaves them nil.
+	CSections, ASections []Section
 }
 
 // Result holds the measurements of one interval, in dB re 20 µPa. A level that does not exist
@@ -109,18 +118,29 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 	if math.IsNaN(cfg.SensitivityDBFS) || math.IsInf(cfg.SensitivityDBFS, 0) {
 		return nil, errors.New("dsp: microphone sensitivity is not a number: give it in dBFS, e.g. -26")
 	}
-	cs, err := CSections(fs)
-	if err != nil {
-		return nil, err
+	cs, as := cfg.CSections, cfg.ASections
+	if cs == nil || as == nil {
+		c, a, err := WeightingSections(fs)
+		if err != nil {
+			return nil, err
+		}
+		if cs == nil {
+			cs = c
+		}
+		if as == nil {
+			as = a
+		}
 	}
-	as, err := AFromCSections(fs)
-	if err != nil {
-		return nil, err
+	var err error
+	for _, s := range cfg.Correction {
+		if !s.Stable() {
+			return nil, errors.New("dsp: microphone correction has an unstable section: fit it again with CorrectionSections")
+		}
 	}
 	m := &Meter{
 		fs:     fs,
 		offset: LevelOffset(cfg.SensitivityDBFS),
-		dc:     NewCascade(DCBlockSections(fs)...),
+		dc:     NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
 		cw:     NewCascade(cs...),
 		aw:     NewCascade(as...),
 		kF:     -math.Expm1(-1 / (fs * TauFast)),
