@@ -129,6 +129,9 @@ func Parse(data []byte, name string) (*Config, error) {
 		var de *toml.DecodeError
 		if errors.As(err, &de) {
 			row, _ := de.Position()
+			if k := de.Key(); len(k) > 0 {
+				return nil, fmt.Errorf("%s:%d: %s: %s: give a value of the type configs/leqnode.toml shows", name, row, strings.Join(k, "."), de.Error())
+			}
 			return nil, fmt.Errorf("%s:%d: %s", name, row, de.Error())
 		}
 		return nil, fmt.Errorf("%s: %w", name, err)

@@ -1,0 +1,89 @@
+package config
+
+import (
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestExampleConfigs(t *testing.T) {
+	// Every example file in configs/ and deploy/ passes the check.
+	files, _ := filepath.Glob("../../configs/*.toml")
+	more, _ := filepath.Glob("../../deploy/*.toml")
+	files = append(files, more...)
+	if len(files) == 0 {
+		t.Fatal("no example configuration found")
+	}
+	for _, f := range files {
+		if _, err := Load(f); err != nil {
+			t.Errorf("%s: %v", f, err)
+		}
+	}
+}
+
+func TestConfigErrors(t *testing.T) {
+	tests := []struct {
+		name, text string
+		want       []string // in the error, which must be one line per problem
+	}{
+		{"typo", "version = 1\n[node]\nidd = \"x\"\n", []string{":3:", `"node.idd"`}},
+		{"unknown section", "version = 1\n[mic]\nsensitivity_dbfs = -26\n", []string{":2:", `"mic"`}},
+		{"wrong type", "version = 1\n[microphone]\nsensitivity_dbfs = \"loud\"\n", []string{":3", "sensitivity_dbfs"}},
+		{"out of range", "version = 1\n[microphone]\nsensitivity_dbfs = 12\n", []string{"microphone.sensitivity_dbfs = 12", "-80 to 0"}},
+		{"old version", "version = 0\n", []string{"version", "add `version = 1`"}},
+		{"newer version", "version = 7\n", []string{"version = 7", "upgrade leqnode"}},
+		{"bad zone", "version = 1\n[node]\ntime_zone = \"Mars/Olympus\"\n", []string{"node.time_zone", "IANA"}},
+		{"bad id", "version = 1\n[node]\nid = \"a b\"\n", []string{"node.id"}},
+		{"bad bands", "version = 1\n[measure]\nbands = \"all\"\n", []string{"measure.bands"}},
+		{"bad commit", "version = 1\n[store]\ncommit_interval = \"2h\"\n", []string{"store.commit_interval", "60s"}},
+		{"bad capture", "version = 1\n[capture]\nkind = \"telepathy\"\n", []string{"capture.kind"}},
+		{"two problems", "version = 1\n[microphone]\nsensitivity_dbfs = 12\noverload_db = 3\n", []string{"sensitivity_dbfs", "overload_db"}},
+	}
+	for _, tc := range tests {
+		_, err := Parse([]byte(tc.text), "test.toml")
+		if err == nil {
+			t.Errorf("%s: accepted", tc.name)
+			continue
+		}
+		msg := err.Error()
+		for _, w := range tc.want {
+			if !strings.Contains(msg, w) {
+				t.Errorf("%s: error %q lacks %q", tc.name, msg, w)
+			}
+		}
+		for _, line := range strings.Split(msg, "\n") {
+			if !strings.HasPrefix(line, "test.toml") {
+				t.Errorf("%s: line %q does not name the file", tc.name, line)
+			}
+		}
+	}
+}
+
+func TestDefaultsAndHash(t *testing.T) {
+	c, err := Parse([]byte("version = 1\n"), "min.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Microphone.SensitivityDBFS != -26 || c.Measure.Bands != "third" || c.CommitInterval().Seconds() != 10 {
+		t.Errorf("defaults not filled: %+v", c)
+	}
+	h := c.Hash()
+	c.Microphone.SensitivityDBFS = -27
+	if c.Hash() == h {
+		t.Error("hash does not change with the sensitivity")
+	}
+	b, err := c.Encode()
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := filepath.Join(t.TempDir(), "round.toml")
+	os.WriteFile(p, b, 0o644)
+	c2, err := Load(p)
+	if err != nil {
+		t.Fatalf("the resolved configuration does not load again: %v", err)
+	}
+	if c2.Hash() != c.Hash() {
+		t.Error("round trip changes the configuration")
+	}
+}
