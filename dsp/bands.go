@@ -157,9 +157,9 @@ const (
 // # Delay and settling
 //
 // Each half-band filter delays by 11 samples at its input rate, so a band of stage k lags the
-// input by 11·(2^k - 1)/fs seconds plus its own group delay, 2/(π(Upper-Lower)) seconds at the
-// midband for N = 3: at 48 kHz the 1 kHz one-third-octave band lags 4.4 ms in all, the 100 Hz
-// band 42 ms and the 12.5 Hz band 0.34 s. Energy that arrives at the end of one MeanSquare
+// input by 11·(2^k - 1)/fs seconds plus its own group delay at the midband, about
+// 0.67/(Upper-Lower) seconds for N = 3: at 48 kHz the 1 kHz one-third-octave band lags 4.5 ms
+// in all, the 100 Hz band 43 ms and the 12.5 Hz band 0.35 s. Energy that arrives at the end of one MeanSquare
 // span is counted partly in the next. The filters start from rest; the low bands need a few
 // seconds to settle.
 //
