@@ -70,8 +70,10 @@ type Result struct {
 	Bands            []float64 // Z-weighted band levels LZeq, in the order of Meter.Bands
 	Histogram        Histogram // A-weighted Fast level sampled every 10 ms
 	Silent           bool      // every sample exactly zero
+	Stuck            bool      // every sample the same value (a dead converter), zero included
 	Clipped          int64     // samples at or beyond ClipThreshold
 	MaxAbs           float64   // largest sample magnitude (full scale 1.0)
+	DC               float64   // mean of the samples before the DC blocker (full scale 1.0)
 }
 
 // Meter is the streaming measurement chain: DC blocker (Z) → C weighting → A weighting, the
@@ -102,9 +104,9 @@ type Meter struct {
 	sumA, sumC, sumZ float64
 	maxF, minF       float64
 	maxS, minS, maxI float64
-	nonzero          bool
+	rawMin, rawMax   float32 // extremes of the raw samples
+	rawSum           float64 // sum of the raw samples (DC offset)
 	clipped          int64
-	maxAbs           float64
 	hist             Histogram
 	bandScratch      []float64
 }
@@ -181,9 +183,8 @@ func (m *Meter) startInterval() {
 	m.sumA, m.sumC, m.sumZ = 0, 0, 0
 	m.maxF, m.minF = math.Inf(-1), math.Inf(1)
 	m.maxS, m.minS, m.maxI = math.Inf(-1), math.Inf(1), math.Inf(-1)
-	m.nonzero = false
+	m.rawMin, m.rawMax, m.rawSum = float32(math.Inf(1)), float32(math.Inf(-1)), 0
 	m.clipped = 0
-	m.maxAbs = 0
 	m.hist.Reset()
 }
 
@@ -199,19 +200,19 @@ func (m *Meter) Process(x []float32) {
 func (m *Meter) processChunk(x []float32) {
 	n := len(x)
 	z, c, a := m.z[:n], m.c[:n], m.a[:n]
+	lo, hi := m.rawMin, m.rawMax
+	var sum float64
 	for i, v := range x {
-		if v != 0 {
-			m.nonzero = true
-		}
-		av := math.Abs(float64(v))
-		if av >= ClipThreshold {
+		lo = min(lo, v)
+		hi = max(hi, v)
+		if v >= ClipThreshold || v <= -ClipThreshold {
 			m.clipped++
 		}
-		if av > m.maxAbs {
-			m.maxAbs = av
-		}
 		z[i] = float64(v)
+		sum += z[i]
 	}
+	m.rawMin, m.rawMax = lo, hi
+	m.rawSum += sum
 	m.dc.Process(z)
 	if m.bank != nil {
 		m.bank.Process(z)
@@ -264,9 +265,15 @@ func (m *Meter) processChunk(x []float32) {
 func (m *Meter) Take(res *Result) {
 	res.Samples = m.n
 	res.Duration = float64(m.n) / m.fs
-	res.Silent = !m.nonzero
+	res.Silent = m.n == 0 || m.rawMin == 0 && m.rawMax == 0
+	res.Stuck = m.n > 1 && m.rawMin == m.rawMax
 	res.Clipped = m.clipped
-	res.MaxAbs = m.maxAbs
+	res.MaxAbs = 0
+	res.DC = 0
+	if m.n > 0 {
+		res.MaxAbs = max(math.Abs(float64(m.rawMin)), math.Abs(float64(m.rawMax)))
+		res.DC = m.rawSum / float64(m.n)
+	}
 	res.Histogram = m.hist
 	res.Bands = res.Bands[:0]
 	if m.bank != nil {

@@ -488,3 +488,40 @@ func BenchmarkMeter(b *testing.B) {
 		})
 	}
 }
+
+func TestRawStatistics(t *testing.T) {
+	// DC offset, a stuck converter and clipping are read from the raw samples, before the DC
+	// blocker (health checks of the node; no standard names them: common practice).
+	tests := []struct {
+		name    string
+		x       []float32
+		stuck   bool
+		dc      float64
+		clipped int64
+	}{
+		{"stuck at a value", func() []float32 {
+			x := make([]float32, 4800)
+			for i := range x {
+				x[i] = 0.25
+			}
+			return x
+		}(), true, 0.25, 0},
+		{"tone with offset", func() []float32 {
+			x := sine(4800, 1000, 0.5, testFS) // whole cycles: mean 0
+			for i := range x {
+				x[i] += 0.01
+			}
+			return x
+		}(), false, 0.01, 0},
+		{"clipped", []float32{0.1, 1, -1, 0.5, 32767.0 / 32768}, false, (0.1 + 0.5 + 32767.0/32768) / 5, 3},
+	}
+	for _, tc := range tests {
+		m := newTestMeter(t, 0)
+		var r Result
+		m.Process(tc.x)
+		m.Take(&r)
+		if r.Stuck != tc.stuck || math.Abs(r.DC-tc.dc) > 1e-6 || r.Clipped != tc.clipped || r.Silent {
+			t.Errorf("%s: stuck %v dc %.6f clipped %d silent %v", tc.name, r.Stuck, r.DC, r.Clipped, r.Silent)
+		}
+	}
+}
