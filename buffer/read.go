@@ -81,6 +81,48 @@ func (s *Store) After(k Kind, seq uint64, limit int) ([]Record, error) {
 	return s.after(k, seq, upto, limit)
 }
 
+// Recent is After including the records held in memory: it returns up to limit records of kind k
+// with sequence numbers greater than seq, committed or not, in sequence order. A consumer that
+// publishes live results uses it to avoid waiting up to a commit interval.
+//
+// Danger: a held record is not durable. A crash before its commit loses it, and its number is
+// then skipped (numbers are never reused), so a consumer may have delivered a record that the
+// store no longer holds. Use After where only durable records may leave the node.
+func (s *Store) Recent(k Kind, seq uint64, limit int) ([]Record, error) {
+	if !k.Valid() {
+		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
+	}
+	if limit <= 0 {
+		return nil, nil
+	}
+	s.mu.Lock()
+	if s.closed {
+		s.mu.Unlock()
+		return nil, ErrClosed
+	}
+	upto := s.committed[k]
+	var mem []Record
+	for _, h := range s.held {
+		if h.kind != k || h.seq <= max(seq, upto) || len(mem) >= limit {
+			continue
+		}
+		r, err := Decode(k, h.value)
+		if err != nil {
+			s.mu.Unlock()
+			return nil, err
+		}
+		r.setSeq(h.seq)
+		mem = append(mem, r)
+	}
+	s.mu.Unlock()
+	out, err := s.after(k, seq, upto, limit)
+	if err != nil {
+		return nil, err
+	}
+	out = append(out, mem...)
+	return out[:min(len(out), limit)], nil
+}
+
 func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
 	var out []Record
 	err := s.view(func(tx *bolt.Tx) error {
@@ -102,8 +144,9 @@ func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
 	return out, err
 }
 
-// Ack records that stream has delivered every record of kind k up to and including seq. The
-// cursor never moves back: an older seq is ignored. The cursor is persisted with the next commit,
+// Ack records that stream has delivered every record of kind k up to and including seq (held
+// records, as returned by Recent, may be acknowledged too). The cursor never moves back: an
+// older seq is ignored. The cursor is persisted with the next commit,
 // so after a crash a stream may see up to one commit interval of records again; consumers
 // de-duplicate by (store id, kind, seq).
 func (s *Store) Ack(stream string, k Kind, seq uint64) error {
@@ -118,8 +161,8 @@ func (s *Store) Ack(stream string, k Kind, seq uint64) error {
 	if err := s.writable(); err != nil {
 		return err
 	}
-	if seq > s.committed[k] {
-		return fmt.Errorf("store %s: ack of %s record %d beyond the last committed one (%d)", s.path, k, seq, s.committed[k])
+	if seq >= s.nextSeq[k] {
+		return fmt.Errorf("store %s: ack of %s record %d beyond the last one appended (%d)", s.path, k, seq, s.nextSeq[k]-1)
 	}
 	sk := streamKind{stream, k}
 	c := s.cursors[sk]

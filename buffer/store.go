@@ -40,7 +40,7 @@ const formatVersion = 1
 //	meta           "id" → 16 hex digits, "created" → RFC 3339, "format" → one byte
 //	rec/<kind>     seq (8 bytes, big-endian) → encoded record; bucket sequence = last seq
 //	runs/<kind>    first seq of a run (8) → its time key (8); see runs.go
-//	kinds          kind (1) → count, bytes, removed by age, removed by size (4 × uint64)
+//	kinds          kind (1) → count, bytes, removed by age, removed by size, reserved seq (5 × uint64)
 //	outbox         stream ‖ 0 ‖ kind → acknowledged seq, dropped count (2 × uint64)
 var (
 	bucketMeta   = []byte("meta")
@@ -65,6 +65,10 @@ const maxDeletePerCommit = 50000
 
 type kindStat struct {
 	count, bytes, removedAge, removedSize uint64
+	// reserved is the highest sequence number that may have been handed out: Append never
+	// assigns more than MaxHeld numbers between commits, and each commit reserves that many
+	// ahead, so after a crash numbering resumes above every number a held record may have had.
+	reserved uint64
 }
 
 type streamKind struct {
@@ -299,11 +303,14 @@ func (s *Store) load(tx *bolt.Tx) error {
 	}
 	if b := tx.Bucket(bucketKinds); b != nil {
 		_ = b.ForEach(func(k, v []byte) error {
-			if len(k) == 1 && Kind(k[0]).Valid() && len(v) == 32 {
-				s.kstat[k[0]] = kindStat{
+			if len(k) == 1 && Kind(k[0]).Valid() && len(v) >= 40 {
+				ks := kindStat{
 					count: binary.BigEndian.Uint64(v), bytes: binary.BigEndian.Uint64(v[8:]),
 					removedAge: binary.BigEndian.Uint64(v[16:]), removedSize: binary.BigEndian.Uint64(v[24:]),
+					reserved: binary.BigEndian.Uint64(v[32:]),
 				}
+				s.kstat[k[0]] = ks
+				s.nextSeq[k[0]] = max(s.nextSeq[k[0]], ks.reserved+1)
 			}
 			return nil
 		})
@@ -373,8 +380,8 @@ func timeKey(t time.Time) uint64 { return uint64(t.UnixMicro()) ^ 1<<63 }
 // Append assigns rec the next sequence number of its kind, holds it in memory, and commits the
 // held records when a commit is due: on the first record after Open, when CommitInterval has
 // passed since the last commit, or when MaxHeld records are held. It returns the sequence
-// number, which is final once the record is committed (a record lost in a crash before its
-// commit leaves its number to the next record).
+// number. Numbers are never reused in the store, even for a record lost in a crash before its
+// commit (the numbers such records had are skipped after the restart).
 //
 // The record is encoded at once; rec is not retained and may be reused. When a due commit fails
 // the record stays held and the error is returned; the commit is retried on later calls, and
@@ -391,7 +398,7 @@ func (s *Store) Append(rec Record) (seq uint64, err error) {
 		return 0, err
 	}
 	if len(s.held) >= s.opts.MaxHeld && s.commitErr != nil {
-		if err := s.commit(); err != nil {
+		if err := s.commit(false); err != nil {
 			return 0, fmt.Errorf("store %s: %d records held and commits failing, record refused: %w", s.path, len(s.held), err)
 		}
 	}
@@ -419,7 +426,7 @@ func (s *Store) writable() error {
 func (s *Store) maybeCommit() error {
 	if s.firstCommit && len(s.held) > 0 || len(s.held) >= s.opts.MaxHeld ||
 		s.opts.Now().Sub(s.lastCommit) >= s.opts.CommitInterval {
-		return s.commit()
+		return s.commit(false)
 	}
 	return nil
 }
@@ -434,7 +441,7 @@ func (s *Store) Flush() error {
 	if s.readOnly {
 		return nil
 	}
-	return s.commit()
+	return s.commit(false)
 }
 
 // Close flushes and closes the store. The store cannot be used afterwards.
@@ -446,7 +453,7 @@ func (s *Store) Close() error {
 	}
 	var err error
 	if !s.readOnly {
-		err = s.commit()
+		err = s.commit(true)
 	}
 	s.closed = true
 	if cerr := s.db.Close(); err == nil {
@@ -466,15 +473,29 @@ func (s *Store) dirtyCursors() bool {
 
 // commit writes the held records, the dirty cursors and the counters in one transaction, and
 // applies retention. The caller holds s.mu.
-func (s *Store) commit() error {
+func (s *Store) commit(final bool) error {
 	now := s.opts.Now()
 	retain := now.Sub(s.lastRetain) >= retentionEvery || s.lastRetain.IsZero()
-	if len(s.held) == 0 && !s.dirtyCursors() && !retain {
+	// Reserve the sequence numbers Append may hand out before the next commit; the last commit
+	// before Close reserves none, so a clean restart leaves no gap.
+	var reserved [KindSession + 1]uint64
+	reserve := false
+	for _, k := range Kinds() {
+		reserved[k] = s.nextSeq[k] - 1
+		if !final {
+			reserved[k] += uint64(s.opts.MaxHeld)
+		}
+		reserve = reserve || reserved[k] != s.kstat[k].reserved
+	}
+	if len(s.held) == 0 && !s.dirtyCursors() && !retain && !reserve {
 		s.lastCommit = now
 		return nil
 	}
 	// Counters are updated on copies so that a failed commit leaves the memory state intact.
 	kstat := s.kstat
+	for _, k := range Kinds() {
+		kstat[k].reserved = reserved[k]
+	}
 	cursors := make(map[streamKind]cursor, len(s.cursors))
 	for sk, c := range s.cursors {
 		cursors[sk] = *c
@@ -521,7 +542,8 @@ func (s *Store) commit() error {
 			if kstat[k] == s.kstat[k] {
 				continue
 			}
-			v := make([]byte, 32)
+			v := make([]byte, 40)
+			binary.BigEndian.PutUint64(v[32:], kstat[k].reserved)
 			binary.BigEndian.PutUint64(v, kstat[k].count)
 			binary.BigEndian.PutUint64(v[8:], kstat[k].bytes)
 			binary.BigEndian.PutUint64(v[16:], kstat[k].removedAge)
