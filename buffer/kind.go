@@ -67,11 +67,17 @@ const (
 	ClockUnsynced                   // the wall clock was not synchronised
 	Suspect                         // the result is doubtful (for example after calibration drift)
 	Excluded                        // excluded from indicators by the user
+	// Health flags, set on health snapshots (and where they apply on seconds).
+	DigitalSilence // the input was digital silence for longer than the health limit
+	StuckInput     // the input repeated one value for longer than the health limit (dead converter)
+	DCOffset       // the input carried a DC offset above the health limit
+	MicFault       // the microphone failed a check (e.g. a calibration beyond the allowed adjustment)
 )
 
 var flagNames = [...]string{
 	"overload", "under-range", "clipped", "dropped", "calibrating", "settling",
-	"clock-unsynced", "suspect", "excluded",
+	"clock-unsynced", "suspect", "excluded", "digital-silence", "stuck-input", "dc-offset",
+	"mic-fault",
 }
 
 // Has reports whether every flag of g is set in f.
