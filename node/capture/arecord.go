@@ -26,6 +26,10 @@ var arecordFormats = map[string]string{Int16: "S16_LE", Int32: "S32_LE", Int24in
 // translated.
 var overrunLine = regexp.MustCompile(`overrun!!!(?: \(at least ([0-9.]+) ms long\))?`)
 
+// rateLine matches arecord's warning that the device runs at another rate than the one asked
+// (printed when they differ by more than 5 %): the samples would be timed wrongly.
+var rateLine = regexp.MustCompile(`rate is not accurate \(requested = (\d+)Hz, got = (\d+)Hz\)`)
+
 // arecordSource runs arecord and reads raw PCM from its standard output.
 type arecordSource struct {
 	cfg    Config
@@ -39,10 +43,11 @@ type arecordSource struct {
 	closed  bool
 	cmd     *exec.Cmd
 	stdout  *os.File
-	exited  chan struct{} // closed when the process has been waited for
-	waitErr error         // the process's exit, valid once exited is closed
-	errDone chan struct{} // closed when standard error has been read to its end
-	last    atomic.Value  // string: the last line on standard error that was not an overrun
+	exited  chan struct{}         // closed when the process has been waited for
+	waitErr error                 // the process's exit, valid once exited is closed
+	errDone chan struct{}         // closed when standard error has been read to its end
+	last    atomic.Value          // string: the last line on standard error that was not an overrun
+	refusal atomic.Pointer[error] // the device refused the configuration (ErrUnsupported)
 
 	ctx context.Context
 	dec *rawDecoder
@@ -144,6 +149,12 @@ func (s *arecordSource) readStderr(r *os.File) {
 			s.logger.Warn("arecord reported an overrun; samples were lost", "message", line, "dropped_estimate", n)
 			continue
 		}
+		if err := s.refused(line); err != nil {
+			s.refusal.CompareAndSwap(nil, &err)
+			s.logger.Error("arecord: the device refuses the configuration", "message", line)
+			s.stop()
+			continue
+		}
 		if strings.HasPrefix(line, "Recording ") {
 			s.logger.Debug("arecord", "message", line)
 			continue
@@ -151,6 +162,26 @@ func (s *arecordSource) readStderr(r *os.File) {
 		s.last.Store(line)
 		s.logger.Warn("arecord", "message", line)
 	}
+}
+
+// refused returns an ErrUnsupported error when line is arecord's report that the device
+// refuses the encoding, the channel count or the rate asked of it, else nil.
+func (s *arecordSource) refused(line string) error {
+	c := s.cfg
+	hint := fmt.Sprintf("arecord -D %s --dump-hw-params lists what it takes", c.Device)
+	switch {
+	case strings.Contains(line, "Sample format non available"):
+		return fmt.Errorf("arecord -D %s: %w: the device refuses %s samples (%s); choose another %s.sample_format (%s)",
+			c.Device, ErrUnsupported, c.Sample, arecordFormats[c.Sample], section, hint)
+	case strings.Contains(line, "Channels count non available"):
+		return fmt.Errorf("arecord -D %s: %w: the device refuses %d channel(s); change %s.channels (%s)",
+			c.Device, ErrUnsupported, c.Channels, section, hint)
+	}
+	if m := rateLine.FindStringSubmatch(line); m != nil {
+		return fmt.Errorf("arecord -D %s: %w: the device runs at %s Hz, not the %s Hz asked; set %s.sample_rate = %s",
+			c.Device, ErrUnsupported, m[2], m[1], section, m[2])
+	}
+	return nil
 }
 
 // overrunSamples estimates the samples lost in one overrun that arecord reported as lasting at
@@ -178,6 +209,10 @@ func (s *arecordSource) Read(dst []float32) (int, error) {
 	case len(dst) == 0:
 		return 0, io.ErrShortBuffer
 	case s.err != nil:
+		return 0, s.err
+	}
+	if p := s.refusal.Load(); p != nil {
+		s.err = *p
 		return 0, s.err
 	}
 	n, err := s.dec.read(dst)
@@ -210,6 +245,9 @@ func (s *arecordSource) lost() error {
 	select {
 	case <-s.errDone:
 	case <-timeout.C:
+	}
+	if p := s.refusal.Load(); p != nil {
+		return *p
 	}
 	s.mu.Lock()
 	werr := s.waitErr

@@ -258,3 +258,33 @@ func TestArecordArgs(t *testing.T) {
 		t.Fatal("allow_resample still passes --disable-resample")
 	}
 }
+
+// Reports that the device refuses the configuration (stand-in scripts printing arecord's
+// messages) end the stream with ErrUnsupported and the fix, not ErrDeviceLost: retrying would
+// not help. The rate warning matters most: arecord carries on at the other rate, which would
+// time every sample wrongly.
+func TestArecordRefusals(t *testing.T) {
+	tests := []struct {
+		name, script, want string
+	}{
+		{"format", "echo 'arecord: set_params:1343: Sample format non available' >&2\necho 'Available formats:' >&2\necho '- S16_LE' >&2\nexit 1\n",
+			"the device refuses int32 samples (S32_LE); choose another capture.sample_format"},
+		{"channels", "echo 'arecord: set_params:1357: Channels count non available' >&2\nexit 1\n",
+			"the device refuses 1 channel(s); change capture.channels"},
+		{"rate", "echo 'Warning: rate is not accurate (requested = 48000Hz, got = 44100Hz)' >&2\necho '         please, try the plug plugin ' >&2\nhead -c 40000 /dev/zero\nsleep 30\n",
+			"the device runs at 44100 Hz, not the 48000 Hz asked; set capture.sample_rate = 44100"},
+	}
+	for _, tc := range tests {
+		t.Run(tc.name, func(t *testing.T) {
+			src, _ := New(Config{Kind: KindArecord, ArecordPath: standIn(t, tc.script)}, nil)
+			if _, err := src.Open(context.Background()); err != nil {
+				t.Fatal(err)
+			}
+			defer src.Close()
+			_, err := readAll(t, src, 1000, 1<<20)
+			if !errors.Is(err, ErrUnsupported) || errors.Is(err, ErrDeviceLost) || !strings.Contains(err.Error(), tc.want) {
+				t.Fatalf("stream ended with %v, want ErrUnsupported saying %q", err, tc.want)
+			}
+		})
+	}
+}

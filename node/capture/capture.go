@@ -56,6 +56,10 @@ var (
 	// ErrBadInput is wrapped by errors about a stream that cannot be decoded (a corrupt or
 	// mis-described recording); retrying does not help.
 	ErrBadInput = errors.New("bad capture input")
+	// ErrUnsupported is wrapped by errors about a configuration the device refuses (a sample
+	// rate, encoding or channel count it does not have); retrying does not help until the
+	// configuration changes.
+	ErrUnsupported = errors.New("capture configuration not supported by the device")
 )
 
 // Kinds of source, the values of Config.Kind.

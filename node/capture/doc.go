@@ -16,8 +16,9 @@
 //   - ErrDeviceLost: the device vanished or failed (a USB microphone unplugged, arecord died, a
 //     stream that stopped delivering); the caller closes the source, records a gap and opens it
 //     again after a backoff;
-//   - anything else: the input is bad (a corrupt stream, a configuration the device refuses),
-//     and retrying will not help until someone fixes it.
+//   - anything else: the input is bad (ErrBadInput: a corrupt or mis-described stream) or the
+//     device refuses the configuration (ErrUnsupported: a rate, encoding or channel count it
+//     does not have), and retrying will not help until someone fixes it.
 //
 // Open may fail with ErrNoDevice when the configured device is not there (yet): worth retrying
 // too. Close stops capture and releases the device; it may be called more than once, and from

@@ -14,6 +14,7 @@ import (
 	"strings"
 	"sync"
 	"sync/atomic"
+	"time"
 
 	"github.com/gordonklaus/portaudio"
 )
@@ -45,9 +46,10 @@ type paSource struct {
 	cfg    Config
 	logger *slog.Logger
 
-	closed  atomic.Bool
-	dropped atomic.Int64
-	events  atomic.Int64 // overflow reports
+	closed    atomic.Bool
+	closeWait time.Duration // how long Close waits for a Read in progress
+	dropped   atomic.Int64
+	events    atomic.Int64 // overflow reports
 
 	mu       sync.Mutex // held across a device read; Close takes it
 	inited   bool       // PortAudio initialised by this source
@@ -66,7 +68,7 @@ type paSource struct {
 }
 
 func newPortAudio(c Config, logger *slog.Logger) (Source, error) {
-	return &paSource{cfg: c, logger: logger}, nil
+	return &paSource{cfg: c, logger: logger, closeWait: 3 * time.Second}, nil
 }
 
 // findDevice returns the input device that spec selects: "" the default input device, a
@@ -172,8 +174,8 @@ func (s *paSource) open(ctx context.Context) (Format, error) {
 	s.devName = dev.Name
 	c := s.cfg
 	if c.Channels > dev.MaxInputChannels {
-		return Format{}, fmt.Errorf("portaudio: %s.channels = %d but device %q captures at most %d; lower channels (and channel)",
-			section, c.Channels, dev.Name, dev.MaxInputChannels)
+		return Format{}, fmt.Errorf("portaudio: %w: %s.channels = %d but device %q captures at most %d; lower channels (and channel)",
+			ErrUnsupported, section, c.Channels, dev.Name, dev.MaxInputChannels)
 	}
 	native := int(math.Round(dev.DefaultSampleRate))
 	rate := c.SampleRate
@@ -242,14 +244,14 @@ func (s *paSource) openError(dev *portaudio.DeviceInfo, rate int, err error) err
 	if errors.As(err, &pe) {
 		switch pe {
 		case portaudio.InvalidSampleRate:
-			return fmt.Errorf("portaudio: device %q refuses %d Hz (%w); set %s.sample_rate = 0 for its default rate (%d Hz) or see leqnode devices",
-				dev.Name, rate, err, section, int(math.Round(dev.DefaultSampleRate)))
+			return fmt.Errorf("portaudio: %w: device %q refuses %d Hz (%w); set %s.sample_rate = 0 for its default rate (%d Hz) or see leqnode devices",
+				ErrUnsupported, dev.Name, rate, err, section, int(math.Round(dev.DefaultSampleRate)))
 		case portaudio.SampleFormatNotSupported:
-			return fmt.Errorf("portaudio: device %q refuses %s samples (%w); try %s.sample_format = \"float32\"",
-				dev.Name, s.cfg.Sample, err, section)
+			return fmt.Errorf("portaudio: %w: device %q refuses %s samples (%w); try %s.sample_format = \"float32\"",
+				ErrUnsupported, dev.Name, s.cfg.Sample, err, section)
 		case portaudio.InvalidChannelCount:
-			return fmt.Errorf("portaudio: device %q refuses %d channels (%w); it captures at most %d",
-				dev.Name, s.cfg.Channels, err, dev.MaxInputChannels)
+			return fmt.Errorf("portaudio: %w: device %q refuses %d channels (%w); it captures at most %d",
+				ErrUnsupported, dev.Name, s.cfg.Channels, err, dev.MaxInputChannels)
 		}
 	}
 	return fmt.Errorf("portaudio: opening %q: %w: %w", dev.Name, ErrDeviceLost, err)
@@ -278,6 +280,11 @@ func (s *paSource) Read(dst []float32) (int, error) {
 			return 0, err
 		}
 		err := s.read()
+		if s.closed.Load() {
+			// Close gave up waiting for this read (a hung device): release what it left.
+			s.release()
+			return 0, fmt.Errorf("portaudio: %w", ErrClosed)
+		}
 		if errors.Is(err, portaudio.InputOverflowed) {
 			// Samples were discarded before this buffer; the buffer itself is good. PortAudio
 			// does not say how many: count one buffer, a lower bound.
@@ -315,13 +322,22 @@ func (s *paSource) Read(dst []float32) (int, error) {
 func (s *paSource) Dropped() int64 { return s.dropped.Load() }
 
 // Close stops capture, closes the stream and terminates PortAudio. A Read in progress in
-// another goroutine is waited for: at most one buffer on a working device, and about two
-// seconds on a stalled one (PortAudio's ALSA back end then times out).
+// another goroutine is waited for: at most one buffer on a working device. If a hung device
+// keeps that Read from returning for three seconds, Close returns an error wrapping
+// ErrDeviceLost and leaves the release to the Read, whenever it returns; PortAudio is not
+// safe to close under a read in progress.
 func (s *paSource) Close() error {
 	if s.closed.Swap(true) {
 		return nil
 	}
-	s.mu.Lock()
+	deadline := time.Now().Add(s.closeWait)
+	for !s.mu.TryLock() {
+		if time.Now().After(deadline) {
+			return fmt.Errorf("portaudio: %w: a read from %q did not return within %v; the device is released when it does",
+				ErrDeviceLost, s.cfg.Device, s.closeWait)
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
 	defer s.mu.Unlock()
 	return s.release()
 }

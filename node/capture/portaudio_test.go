@@ -49,6 +49,9 @@ const (
 
 // TestPortAudio captures through the real PortAudio library from ALSA file PCMs (no sound
 // card needed), in a child process; see TestPortAudioChild.
+//
+// Under -race, add -gcflags=all=-d=checkptr=0: the PortAudio binding's pointer handling trips
+// Go's checkptr instrumentation (gordonklaus/portaudio issue 57), not our code.
 func TestPortAudio(t *testing.T) {
 	if os.Getenv(paChildEnv) != "" {
 		t.Skip("this is the child process")
@@ -269,6 +272,46 @@ func TestPortAudioChild(t *testing.T) {
 		}
 		if _, err2 := src.Read(make([]float32, 10)); !errors.Is(err2, ErrDeviceLost) {
 			t.Errorf("Read after the loss = %v, want ErrDeviceLost again", err2)
+		}
+	})
+
+	t.Run("hung", func(t *testing.T) {
+		// A device whose read never returns (injected: a file PCM always delivers): Close
+		// gives up waiting, reports the device lost, and the read releases the stream when it
+		// finally returns.
+		src, _ := New(Config{Kind: KindPortAudio, Device: "testsig32", SampleRate: paRate, Sample: Int32}, nil)
+		if _, err := src.Open(context.Background()); err != nil {
+			t.Fatal(err)
+		}
+		ps := src.(*paSource)
+		ps.closeWait = 50 * time.Millisecond
+		release, entered := make(chan struct{}), make(chan struct{})
+		real := ps.read
+		ps.read = func() error {
+			close(entered)
+			<-release
+			return real()
+		}
+		done := make(chan error, 1)
+		go func() {
+			_, err := src.Read(make([]float32, 100))
+			done <- err
+		}()
+		<-entered
+		if err := src.Close(); !errors.Is(err, ErrDeviceLost) {
+			t.Fatalf("Close under a hung read = %v, want ErrDeviceLost", err)
+		}
+		close(release)
+		if err := <-done; !errors.Is(err, ErrClosed) {
+			t.Fatalf("the hung read returned %v, want ErrClosed", err)
+		}
+		ps.mu.Lock()
+		defer ps.mu.Unlock()
+		if ps.stream != nil || ps.inited {
+			t.Fatal("the stream was not released after the hung read returned")
+		}
+		if err := src.Close(); err != nil {
+			t.Fatalf("second Close = %v", err)
 		}
 	})
 
