@@ -42,9 +42,11 @@ type command struct {
 // way through this one table, so the list in `leqnode help` is always complete.
 func commands() map[string]command {
 	return map[string]command{
-		"analyze": {"measure a WAV recording with the node's own chain", runAnalyze},
-		"export":  {"write stored records of one kind as CSV or JSON lines", runExport},
-		"db":      {"check a store file and summarise what it holds", runDB},
+		"analyze":   {"measure a WAV recording with the node's own chain", runAnalyze},
+		"export":    {"write stored records of one kind as CSV or JSON lines", runExport},
+		"db":        {"check a store file and summarise what it holds", runDB},
+		"calibrate": {"find a sound calibrator's tone and derive the microphone sensitivity", runCalibrate},
+		"verify":    {"run the electrical self-tests of the measurement chain", runVerify},
 	}
 }
 

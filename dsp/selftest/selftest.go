@@ -421,7 +421,7 @@ func (r *runner) bands() {
 					continue
 				}
 				tol := reference.BandAttenuationLimits(3, 1, side)
-				test := fmt.Sprintf("%s Hz band at %.5g fm (%.4g Hz)", nominal, side, f)
+				test := fmt.Sprintf("attenuation of the %s Hz band at %.5g fm (%.4g Hz)", nominal, side, f)
 				r.add(GroupBands, test, 0, mid-level(f), tol, src)
 			}
 		}

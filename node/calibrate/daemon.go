@@ -3,6 +3,7 @@ package calibrate
 import (
 	"context"
 	"errors"
+	"math"
 	"time"
 )
 
@@ -16,13 +17,15 @@ type Summary struct {
 	OK              bool     `json:"ok"`
 }
 
-// Summarize returns the summary of a result; ok says whether the result may be applied
+// Summarize returns the summary of a result, values rounded to 0.001; ok says whether the result may be applied
 // (a tone was found, its frequency is plausible and the sensitivity is within the range).
 func (r *Result) Summarize(ok bool) Summary {
 	if r == nil {
 		return Summary{}
 	}
-	f, l, s, st := r.Detection.FrequencyHz, r.Detection.LevelDBFS, r.SensitivityDBFS, r.Detection.Stable
+	// Round to a thousandth (Hz, dB, s): far below what the measurement resolves.
+	r3 := func(v float64) float64 { return math.Round(v*1000) / 1000 }
+	f, l, s, st := r3(r.Detection.FrequencyHz), r3(r.Detection.LevelDBFS), r3(r.SensitivityDBFS), r3(r.Detection.Stable)
 	return Summary{FrequencyHz: &f, MeasuredDBFS: &l, SensitivityDBFS: &s, StableS: &st, OK: ok}
 }
 

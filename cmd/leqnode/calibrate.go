@@ -1,0 +1,217 @@
+package main
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"os"
+	"strconv"
+	"text/tabwriter"
+	"time"
+
+	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node/calibrate"
+	"github.com/leqnode/leqnode/node/config"
+)
+
+// optFloat is a float flag that remembers whether it was given.
+type optFloat struct {
+	v   float64
+	set bool
+}
+
+func (f *optFloat) String() string {
+	if !f.set {
+		return ""
+	}
+	return strconv.FormatFloat(f.v, 'g', -1, 64)
+}
+
+func (f *optFloat) Set(s string) error {
+	v, err := strconv.ParseFloat(s, 64)
+	if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+		return fmt.Errorf("%q is not a number", s)
+	}
+	f.v, f.set = v, true
+	return nil
+}
+
+func runCalibrate(ctx context.Context, std stdio, args []string) error {
+	fl := newFlags("calibrate", "[--reference DB] [--sensitivity DBFS | --config FILE] [--range DB] [--class LS|1|2] [--channel N] [--format table|json] [FILE]", std.err)
+	ref := fl.Float64("reference", calibrate.DefaultReference, "the calibrator's stated level, dB (usually 94 or 114)")
+	var nominal optFloat
+	fl.Var(&nominal, "sensitivity", "the microphone's nominal sensitivity, dBFS for 94 dB at 1 kHz; the result must lie within --range of it")
+	cfgPath := fl.String("config", "", "the node's configuration file: its microphone sensitivity is the nominal")
+	rng := fl.Float64("range", calibrate.DefaultAdjustRange, "allowed distance of the new sensitivity from the nominal, dB")
+	class := fl.String("class", "1", "the calibrator's class (IEC 60942): LS, 1 or 2; judges the tone's frequency")
+	channel := fl.Int("channel", 1, "channel of the recording to use, counted from 1")
+	format := fl.String("format", "", "output: table (default on a terminal) or json (default otherwise)")
+	pos, err := parseFlags(fl, args)
+	if err != nil {
+		return err
+	}
+	if *format == "" {
+		*format = "json"
+		if std.outIsTTY {
+			*format = "table"
+		}
+	}
+	if err := oneOf("format", *format, "table", "json"); err != nil {
+		return err
+	}
+	if err := oneOf("class", *class, "LS", "1", "2"); err != nil {
+		return err
+	}
+	cls := map[string]dsp.CalibratorClass{"LS": dsp.CalibratorClassLS, "1": dsp.CalibratorClass1, "2": dsp.CalibratorClass2}[*class]
+	if !(*ref >= 60 && *ref <= 150) {
+		return badInput("--reference %g dB is out of range: give the calibrator's stated level, e.g. 94 or 114", *ref)
+	}
+	if !(*rng > 0 && *rng <= 20) {
+		return badInput("--range %g dB is out of range: give 0 to 20 dB (default 3)", *rng)
+	}
+	if nominal.set && *cfgPath != "" {
+		return badInput("give either --sensitivity DBFS or --config FILE, not both")
+	}
+	if *cfgPath != "" {
+		cfg, err := config.Load(*cfgPath)
+		if err != nil {
+			return badInput("%v", err)
+		}
+		nominal = optFloat{v: cfg.Microphone.SensitivityDBFS, set: true}
+	}
+	if nominal.set && !(nominal.v >= -100 && nominal.v <= 0) {
+		return badInput("--sensitivity %g is out of range: give the dBFS for 94 dB SPL, between -100 and 0 (typical -26)", nominal.v)
+	}
+	if *channel < 1 {
+		return badInput("--channel %d: count channels from 1", *channel)
+	}
+	if len(pos) > 1 {
+		return badInput("give at most one recording FILE (a WAV file, or - for standard input)")
+	}
+	if len(pos) == 0 {
+		return calibrateDaemon(ctx, std, *cfgPath, calibrate.Request{Reference: *ref, Timeout: 2 * time.Minute, Apply: true}, *format)
+	}
+
+	name := pos[0]
+	var in io.Reader = std.in
+	if name != "-" {
+		f, err := os.Open(name)
+		if err != nil {
+			return badInput("%s: cannot open: %v", name, unwrapPath(err))
+		}
+		defer f.Close()
+		in = f
+	} else {
+		name = "standard input"
+	}
+	res, err := calibrate.FromReader(ctx, in, calibrate.Options{Reference: *ref, Class: cls, Channel: *channel})
+	if errors.Is(err, calibrate.ErrNoTone) {
+		if *format == "json" {
+			writeCalibrateJSON(std.out, calibrate.Summary{})
+		}
+		return badInput("%s: %v", name, err)
+	}
+	if err != nil {
+		if errors.Is(err, context.Canceled) {
+			return err
+		}
+		return badInput("%s: %v", name, err)
+	}
+
+	// Judge the result: the frequency against the calibrator's class, the sensitivity against
+	// the allowed range around the nominal.
+	var problem error
+	tol := dsp.CalibratorTolerances(cls)
+	if !res.FrequencyPlausible {
+		problem = fmt.Errorf("%s: the tone at %.2f Hz is more than %.1f %% from 1 kHz, outside the tolerance of a class %s calibrator (IEC 60942:2017 Table 4): check the calibrator, or the converter's sample rate",
+			name, res.Detection.FrequencyHz, 100*(tol.Frequency+tol.FrequencyUncertainty), cls)
+	}
+	if nominal.set && problem == nil {
+		if _, err := calibrate.Adjust(nominal.v, res.SensitivityDBFS, *rng); err != nil {
+			problem = fmt.Errorf("%s: %w", name, err)
+		}
+	}
+	sum := res.Summarize(problem == nil)
+	switch *format {
+	case "json":
+		if err := writeCalibrateJSON(std.out, sum); err != nil {
+			return err
+		}
+	default:
+		writeCalibrateTable(std.out, res, nominal, *rng, tol, problem == nil)
+	}
+	return problem
+}
+
+func writeCalibrateJSON(w io.Writer, s calibrate.Summary) error {
+	b, err := json.Marshal(s)
+	if err != nil {
+		return err
+	}
+	_, err = w.Write(append(b, '\n'))
+	return err
+}
+
+func writeCalibrateTable(w io.Writer, r *calibrate.Result, nominal optFloat, rng float64, tol dsp.CalibratorTolerance, ok bool) {
+	d := r.Detection
+	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	plaus := "within"
+	if !r.FrequencyPlausible {
+		plaus = "OUTSIDE"
+	}
+	fmt.Fprintf(tw, "tone\t%.2f Hz\t%s the ±%.1f %% of a class %s calibrator\n", d.FrequencyHz, plaus, 100*(tol.Frequency+tol.FrequencyUncertainty), tol.Class)
+	fmt.Fprintf(tw, "measured\t%.2f dBFS\tLeq over %.2f s, spread %.3f dB, band %.0f dB above the rest\n", d.LevelDBFS, d.Stable, d.StabilityDB, d.DominanceDB)
+	fmt.Fprintf(tw, "reference\t%.1f dB\tthe calibrator's stated level\n", r.Reference)
+	note := "no nominal given (--sensitivity or --config): range not checked"
+	if nominal.set {
+		in := "within"
+		if math.Abs(r.SensitivityDBFS-nominal.v) > rng {
+			in = "BEYOND"
+		}
+		note = fmt.Sprintf("%+.2f dB from the nominal %.2f dBFS, %s ±%g dB", r.SensitivityDBFS-nominal.v, nominal.v, in, rng)
+	}
+	fmt.Fprintf(tw, "sensitivity\t%.2f dBFS\t%s\n", r.SensitivityDBFS, note)
+	okText := "yes"
+	if !ok {
+		okText = "no"
+	}
+	fmt.Fprintf(tw, "ok\t%s\t\n", okText)
+	tw.Flush()
+}
+
+// calibrateDaemon asks the running node to take the next stable calibrator tone through its
+// control socket.
+func calibrateDaemon(ctx context.Context, std stdio, cfgPath string, req calibrate.Request, format string) error {
+	d, err := connectDaemon(ctx, cfgPath)
+	if err != nil {
+		return err
+	}
+	sum, err := d.RequestCheck(ctx, req)
+	if err != nil {
+		return err
+	}
+	if format == "json" {
+		return writeCalibrateJSON(std.out, sum)
+	}
+	fmt.Fprintf(std.out, "tone %.2f Hz, measured %.2f dBFS, sensitivity %.2f dBFS over %.2f s, ok %v\n",
+		deref(sum.FrequencyHz), deref(sum.MeasuredDBFS), deref(sum.SensitivityDBFS), deref(sum.StableS), sum.OK)
+	return nil
+}
+
+func deref(p *float64) float64 {
+	if p == nil {
+		return math.NaN()
+	}
+	return *p
+}
+
+// connectDaemon returns the running node's calibration service, reached through its control
+// socket. This is the seam the control socket fills: until it exists, it says so in one line.
+func connectDaemon(ctx context.Context, cfgPath string) (calibrate.Requester, error) {
+	_ = ctx
+	_ = cfgPath
+	return nil, fmt.Errorf("%w in this release: give a recording of the calibrator instead, e.g. leqnode calibrate --reference 94 check.wav (record it with arecord -f S16_LE -r 48000 -d 15 check.wav)", calibrate.ErrNoControlSocket)
+}
