@@ -65,6 +65,9 @@ type Options struct {
 	// Default 30 s.
 	RetryMax time.Duration
 
+	// Health sets up the health checks and snapshots.
+	Health HealthOptions
+
 	// Session holds what the node writes in its session records besides the sample rate and
 	// device, which it fills in: software version, config hash, time zone.
 	Session buffer.Session
@@ -112,6 +115,7 @@ func (o *Options) withDefaults() Options {
 	if r.Logger == nil {
 		r.Logger = slog.Default()
 	}
+	r.Health = r.Health.withDefaults()
 	return r
 }
 
@@ -132,10 +136,14 @@ func (c *Counters) Level() float64 { return math.Float64frombits(c.FastLevel.Loa
 
 // Node is a running measurement node.
 type Node struct {
-	o        Options
-	log      *slog.Logger
-	Counters Counters
+	o          Options
+	log        *slog.Logger
+	Counters   Counters
+	lastHealth atomic.Pointer[buffer.Health]
 }
+
+// Health returns the latest health snapshot, or nil before the first.
+func (n *Node) Health() *buffer.Health { return n.lastHealth.Load() }
 
 // New checks the options and returns a node ready to Run.
 func New(o Options) (*Node, error) {
@@ -173,7 +181,7 @@ func (n *Node) Run(ctx context.Context) error {
 	o := &n.o
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	p := &processor{n: n, o: o}
+	p := &processor{n: n, o: o, health: healthState{o: o.Health}}
 	if err := p.startupGap(); err != nil {
 		return err
 	}

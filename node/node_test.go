@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"log/slog"
 	"math"
 	"math/rand/v2"
 	"path/filepath"
@@ -140,7 +141,7 @@ func newRig(t *testing.T, src *fakeSource, mod func(*Options)) *rig {
 	o := Options{
 		Source: src, Store: st, SensitivityDBFS: -26, Bands: dsp.Third, SecondSpectra: true,
 		Lossless: true, Now: ck.Now, ClockSynced: func() bool { return true }, Settling: 2 * time.Second,
-		RetryMax: time.Millisecond,
+		RetryMax: time.Millisecond, Logger: slog.New(slog.DiscardHandler),
 	}
 	if mod != nil {
 		mod(&o)

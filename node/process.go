@@ -38,6 +38,8 @@ type processor struct {
 	synced      bool
 	syncChecked time.Time
 
+	health healthState
+
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
 	lostWhy  string
@@ -327,6 +329,8 @@ func (p *processor) closeSecond() error {
 		if o.UnderRangeLevel > 0 && r.LAeq < o.UnderRangeLevel {
 			f |= buffer.UnderRange
 		}
+		hf := p.health.second(r, f, p.secDropped)
+		f |= hf & (buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset)
 		rec := &buffer.Second{
 			Start: start.UTC(), Duration: time.Duration(math.Round(r.Duration * 1e9)),
 			LAeq: r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
@@ -347,6 +351,9 @@ func (p *processor) closeSecond() error {
 		}
 		if o.OnSecond != nil {
 			o.OnSecond(rec)
+		}
+		if err == nil {
+			err = p.healthAfter(hf, start.Add(rec.Duration))
 		}
 	}
 	p.secFlags, p.secDropped = 0, 0
