@@ -95,7 +95,7 @@ func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration
 // line at most once a minute.
 func (p *Publisher) command(s *session, b []byte) {
 	now := time.Now()
-	c, from, to, kinds, err := parseCommand(b, p.cfg.Commands.MaxPayloadBytes, p.cfg.Commands.Allow, p.cfg.Commands.MaxResendRange)
+	c, from, to, kinds, err := parseCommand(b, p.cfg.Commands.MaxPayloadBytes, p.cfg.Commands.Allow, time.Duration(p.cfg.Commands.MaxResendRange))
 	if err != nil {
 		if ok, held := p.ignored.allow(now); ok {
 			p.log.Warn("ignored a message on the command topic", "topic", p.topics.command, "bytes", len(b), "why", err, "ignored_since_last_log", held)

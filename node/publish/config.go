@@ -59,10 +59,10 @@ type Config struct {
 
 	// KeepAlive is the MQTT keep-alive period (default 30 s, 5 s to 20 min). A shorter period
 	// notices a dead link sooner and costs a ping (4 bytes each way) per period on a metered link.
-	KeepAlive time.Duration `toml:"keep_alive"`
+	KeepAlive Duration `toml:"keep_alive"`
 
 	// ConnectTimeout bounds one connection attempt (default 10 s, 1 s to 5 min).
-	ConnectTimeout time.Duration `toml:"connect_timeout"`
+	ConnectTimeout Duration `toml:"connect_timeout"`
 
 	// PersistentSession asks the broker to keep the node's session (MQTT clean session off).
 	// Data delivery never depends on it (the store's outbox is the only queue). Danger: with a
@@ -73,7 +73,7 @@ type Config struct {
 	// ReconnectMaxDelay caps the reconnect backoff (default 2 min, 1 s to 1 h). Delays start
 	// at 0.5 s and double per failed attempt, each drawn at random between half and all of the
 	// current step so that many nodes do not return together after a broker restart.
-	ReconnectMaxDelay time.Duration `toml:"reconnect_max_delay"`
+	ReconnectMaxDelay Duration `toml:"reconnect_max_delay"`
 
 	TLS TLSConfig `toml:"tls"`
 
@@ -114,7 +114,7 @@ type Config struct {
 
 	// StatusInterval is how often the retained status message is refreshed (default 1 min,
 	// 5 s to 1 h).
-	StatusInterval time.Duration `toml:"status_interval"`
+	StatusInterval Duration `toml:"status_interval"`
 
 	// Stream names the store's outbox cursor (default "mqtt"). Two publishers with one stream
 	// name share, and fight over, one cursor.
@@ -150,17 +150,37 @@ type CommandsConfig struct {
 	MaxPayloadBytes int `toml:"max_payload_bytes"`
 	// MaxResendRange caps the time range of one resend command (default 7 days, 1 min to 400
 	// days). A long range of second records is a lot of traffic.
-	MaxResendRange time.Duration `toml:"max_resend_range"`
+	MaxResendRange Duration `toml:"max_resend_range"`
 }
+
+// Duration is a time.Duration written in the configuration as a Go duration string: "30s",
+// "2m", "1h30m". (TOML has no duration type.)
+type Duration time.Duration
+
+// UnmarshalText parses a duration such as "30s".
+func (d *Duration) UnmarshalText(b []byte) error {
+	v, err := time.ParseDuration(string(b))
+	if err != nil {
+		return fmt.Errorf("duration %q: write a number and a unit, such as \"30s\", \"2m\" or \"1h\"", b)
+	}
+	*d = Duration(v)
+	return nil
+}
+
+// MarshalText writes the duration as time.Duration.String does.
+func (d Duration) MarshalText() ([]byte, error) { return []byte(time.Duration(d).String()), nil }
+
+// String returns the duration as time.Duration.String does.
+func (d Duration) String() string { return time.Duration(d).String() }
 
 // withDefaults returns c with every zero field replaced by its default. nodeID feeds the client id.
 func (c Config) withDefaults(nodeID string) Config {
 	if c.ClientID == "" && nodeID != "" {
 		c.ClientID = "leqnode-" + nodeID
 	}
-	def := func(d *time.Duration, v time.Duration) {
+	def := func(d *Duration, v time.Duration) {
 		if *d == 0 {
-			*d = v
+			*d = Duration(v)
 		}
 	}
 	def(&c.KeepAlive, DefaultKeepAlive)
@@ -225,8 +245,8 @@ func (c Config) Validate() []error {
 	if !clientIDRe.MatchString(d.ClientID) {
 		bad("client_id %q: use 1 to 128 letters, digits, '.', '_', ':' or '-'", d.ClientID)
 	}
-	durIn := func(key string, v, lo, hi time.Duration) {
-		if v < lo || v > hi {
+	durIn := func(key string, d Duration, lo, hi time.Duration) {
+		if v := time.Duration(d); v < lo || v > hi {
 			bad("%s %s out of range: use %s to %s", key, v, lo, hi)
 		}
 	}

@@ -66,7 +66,6 @@ type brokerOpts struct {
 	user, pass       string // password file when user != ""
 	ca, cert, key    string // TLS listener when cert != ""
 	persistent       bool   // keep sessions and queued messages across restarts
-	maxPacket        int
 	extraConfigLines []string
 }
 

@@ -95,11 +95,3 @@ func (w *jw) times(key string, t time.Time) {
 	w.key(key + "_ms")
 	w.int(t.UnixMilli())
 }
-
-func (w *jw) strs(ss []string) {
-	w.arr()
-	for _, s := range ss {
-		w.str(s)
-	}
-	w.end()
-}

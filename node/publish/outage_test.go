@@ -25,8 +25,8 @@ func TestOutage(t *testing.T) {
 	defer store.Close()
 	var logs logBuffer
 	const window = 8
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", ReconnectMaxDelay: time.Second,
-		MaxInFlight: window, BacklogMessagesPerSecond: 500, KeepAlive: 5 * time.Second},
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", ReconnectMaxDelay: Duration(time.Second),
+		MaxInFlight: window, BacklogMessagesPerSecond: 500, KeepAlive: Duration(5 * time.Second)},
 		store, Identity{NodeID: "elm-3"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)

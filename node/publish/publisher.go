@@ -88,7 +88,6 @@ type Publisher struct {
 	byteBucket bucket
 	jobs       []*resendJob
 	ignored    rateLog
-	scratch    []byte
 }
 
 var nodeIDRe = regexp.MustCompile(`^[A-Za-z0-9._-]{1,64}$`)

@@ -68,10 +68,10 @@ func (p *Publisher) session(ctx context.Context, broker string) (connected bool,
 		AddBroker(broker).
 		SetClientID(p.cfg.ClientID).
 		SetProtocolVersion(4).
-		SetKeepAlive(p.cfg.KeepAlive).
-		SetPingTimeout(min(p.cfg.KeepAlive, 10*time.Second)).
-		SetConnectTimeout(p.cfg.ConnectTimeout).
-		SetWriteTimeout(p.cfg.ConnectTimeout).
+		SetKeepAlive(time.Duration(p.cfg.KeepAlive)).
+		SetPingTimeout(min(time.Duration(p.cfg.KeepAlive), 10*time.Second)).
+		SetConnectTimeout(time.Duration(p.cfg.ConnectTimeout)).
+		SetWriteTimeout(time.Duration(p.cfg.ConnectTimeout)).
 		SetCleanSession(!p.cfg.PersistentSession).
 		SetAutoReconnect(false). // reconnecting is ours: the store's cursor is the only queue
 		SetConnectRetry(false).
@@ -95,7 +95,7 @@ func (p *Publisher) session(ctx context.Context, broker string) (connected bool,
 				default: // a flood of commands: drop
 				}
 			})
-			if tok.WaitTimeout(p.cfg.ConnectTimeout) && tok.Error() == nil {
+			if tok.WaitTimeout(time.Duration(p.cfg.ConnectTimeout)) && tok.Error() == nil {
 				return
 			}
 			err := tok.Error()
@@ -140,7 +140,7 @@ func (p *Publisher) session(ctx context.Context, broker string) (connected bool,
 
 	poll := time.NewTicker(time.Second)
 	defer poll.Stop()
-	statusTick := time.NewTicker(p.cfg.StatusInterval)
+	statusTick := time.NewTicker(time.Duration(p.cfg.StatusInterval))
 	defer statusTick.Stop()
 	wake := time.NewTimer(time.Hour)
 	defer wake.Stop()

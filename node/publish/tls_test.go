@@ -116,7 +116,7 @@ func TestTLSWithPassword(t *testing.T) {
 			defer store.Close()
 			var logs logBuffer
 			cfg := c.cfg
-			cfg.Brokers, cfg.TopicPrefix, cfg.ReconnectMaxDelay = []string{url}, "millbrook", time.Second
+			cfg.Brokers, cfg.TopicPrefix, cfg.ReconnectMaxDelay = []string{url}, "millbrook", Duration(time.Second)
 			p, err := New(cfg, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
 			if err != nil {
 				t.Fatal(err)
