@@ -30,28 +30,33 @@ var overrunLine = regexp.MustCompile(`overrun!!!(?: \(at least ([0-9.]+) ms long
 // (printed when they differ by more than 5 %): the samples would be timed wrongly.
 var rateLine = regexp.MustCompile(`rate is not accurate \(requested = (\d+)Hz, got = (\d+)Hz\)`)
 
-// arecordSource runs arecord and reads raw PCM from its standard output.
+// arecordSource runs arecord and reads raw PCM from its standard output. Every Open starts
+// a new arecord process.
 type arecordSource struct {
 	cfg    Config
 	logger *slog.Logger
 	layout pcmLayout
 
-	dropped  atomic.Int64
+	dropped  atomic.Int64 // over all processes
 	overruns atomic.Int64
 
-	mu      sync.Mutex // guards the fields below against a concurrent Close
-	closed  bool
+	mu     sync.Mutex // guards closed and proc against a concurrent Close
+	closed bool
+	proc   *arecordProc
+	ctx    context.Context
+}
+
+// arecordProc is one run of arecord.
+type arecordProc struct {
 	cmd     *exec.Cmd
 	stdout  *os.File
 	exited  chan struct{}         // closed when the process has been waited for
-	waitErr error                 // the process's exit, valid once exited is closed
+	waitErr error                 // the process's exit; read only after exited is closed
 	errDone chan struct{}         // closed when standard error has been read to its end
 	last    atomic.Value          // string: the last line on standard error that was not an overrun
 	refusal atomic.Pointer[error] // the device refused the configuration (ErrUnsupported)
-
-	ctx context.Context
-	dec *rawDecoder
-	err error // sticky error of Read
+	dec     *rawDecoder
+	err     error // sticky error of Read
 }
 
 func newArecord(c Config, logger *slog.Logger) *arecordSource {
@@ -69,14 +74,20 @@ func (s *arecordSource) args() []string {
 	return a
 }
 
+// Open starts arecord. It does not wait for the device: a device arecord cannot open shows
+// as ErrDeviceLost (or ErrUnsupported) from the first Read, with arecord's message.
 func (s *arecordSource) Open(ctx context.Context) (Format, error) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	if s.closed {
-		return Format{}, fmt.Errorf("arecord: %w", ErrClosed)
-	}
-	if s.cmd != nil {
+	if s.proc != nil && !s.closed {
 		return Format{}, fmt.Errorf("arecord: already open")
+	}
+	if s.proc != nil {
+		select {
+		case <-s.proc.exited:
+		default:
+			return Format{}, fmt.Errorf("arecord: %w: the previous arecord (pid %d) has not exited yet", ErrDeviceLost, s.proc.cmd.Process.Pid)
+		}
 	}
 	path, err := exec.LookPath(s.cfg.ArecordPath)
 	if err != nil {
@@ -107,34 +118,31 @@ func (s *arecordSource) Open(ctx context.Context) (Format, error) {
 		errR.Close()
 		return Format{}, fmt.Errorf("arecord: starting %s: %w: %w", path, ErrDeviceLost, err)
 	}
-	s.cmd, s.stdout, s.ctx = cmd, outR, ctx
-	s.exited, s.errDone = make(chan struct{}), make(chan struct{})
-	s.last.Store("")
-	s.dec = newRawDecoder(outR, s.layout, s.cfg.FramesPerBuffer, "arecord", s.logger)
+	p := &arecordProc{cmd: cmd, stdout: outR, exited: make(chan struct{}), errDone: make(chan struct{})}
+	p.last.Store("")
+	p.dec = newRawDecoder(outR, s.layout, s.cfg.FramesPerBuffer, "arecord", s.logger)
+	s.proc, s.closed, s.ctx = p, false, ctx
 	go func() {
-		err := cmd.Wait()
-		s.mu.Lock()
-		s.waitErr = err
-		s.mu.Unlock()
-		close(s.exited)
+		p.waitErr = cmd.Wait()
+		close(p.exited)
 	}()
-	go s.readStderr(errR)
+	go s.readStderr(p, errR)
 	go func() {
 		// Cancelling the context stops arecord, which ends a waiting Read.
 		select {
 		case <-ctx.Done():
-			s.stop()
-		case <-s.exited:
+			p.stop()
+		case <-p.exited:
 		}
 	}()
-	s.logger.Info("started arecord", "path", path, "args", strings.Join(s.args(), " "))
+	s.logger.Info("started arecord", "path", path, "args", strings.Join(s.args(), " "), "pid", cmd.Process.Pid)
 	return Format{SampleRate: s.cfg.SampleRate, Channels: s.cfg.Channels, Channel: s.cfg.Channel, Sample: s.cfg.Sample}, nil
 }
 
-// readStderr counts overruns and keeps the last other message, until arecord's standard error
-// closes.
-func (s *arecordSource) readStderr(r *os.File) {
-	defer close(s.errDone)
+// readStderr counts overruns, notes refusals and keeps the last other message, until
+// arecord's standard error closes.
+func (s *arecordSource) readStderr(p *arecordProc, r *os.File) {
+	defer close(p.errDone)
 	defer r.Close()
 	sc := bufio.NewScanner(r)
 	for sc.Scan() {
@@ -150,16 +158,16 @@ func (s *arecordSource) readStderr(r *os.File) {
 			continue
 		}
 		if err := s.refused(line); err != nil {
-			s.refusal.CompareAndSwap(nil, &err)
+			p.refusal.CompareAndSwap(nil, &err)
 			s.logger.Error("arecord: the device refuses the configuration", "message", line)
-			s.stop()
+			p.stop()
 			continue
 		}
 		if strings.HasPrefix(line, "Recording ") {
 			s.logger.Debug("arecord", "message", line)
 			continue
 		}
-		s.last.Store(line)
+		p.last.Store(line)
 		s.logger.Warn("arecord", "message", line)
 	}
 }
@@ -199,64 +207,62 @@ func overrunSamples(ms string, rate, block int) int64 {
 
 func (s *arecordSource) Read(dst []float32) (int, error) {
 	s.mu.Lock()
-	closed, open := s.closed, s.cmd != nil
+	closed, p := s.closed, s.proc
 	s.mu.Unlock()
 	switch {
 	case closed:
 		return 0, fmt.Errorf("arecord: %w", ErrClosed)
-	case !open:
+	case p == nil:
 		return 0, fmt.Errorf("arecord: read before Open")
 	case len(dst) == 0:
 		return 0, io.ErrShortBuffer
-	case s.err != nil:
-		return 0, s.err
+	case p.err != nil:
+		return 0, p.err
 	}
-	if p := s.refusal.Load(); p != nil {
-		s.err = *p
-		return 0, s.err
+	if r := p.refusal.Load(); r != nil {
+		p.err = *r
+		return 0, p.err
 	}
-	n, err := s.dec.read(dst)
+	n, err := p.dec.read(dst)
 	if err == nil {
 		return n, nil
 	}
 	switch {
 	case s.isClosed():
-		s.err = fmt.Errorf("arecord: %w", ErrClosed)
+		return 0, fmt.Errorf("arecord: %w", ErrClosed)
 	case s.ctx.Err() != nil:
-		s.err = s.ctx.Err()
+		p.err = s.ctx.Err()
 	case errors.Is(err, ErrBadInput):
-		s.err = fmt.Errorf("arecord: %w", err)
+		p.err = fmt.Errorf("arecord: %w", err)
 	default:
-		s.err = s.lost()
+		p.err = s.lost(p)
 	}
-	return 0, s.err
+	return 0, p.err
 }
 
-// lost waits (briefly) for arecord to end and returns the ErrDeviceLost error that says why.
-func (s *arecordSource) lost() error {
-	s.stop() // in case only its standard output closed
+// lost waits (briefly) for arecord to end and returns the error that says why it ended:
+// ErrUnsupported when it refused the configuration, else ErrDeviceLost.
+func (s *arecordSource) lost(p *arecordProc) error {
+	p.stop() // in case only its standard output closed
 	timeout := time.NewTimer(3 * time.Second)
 	defer timeout.Stop()
 	select {
-	case <-s.exited:
+	case <-p.exited:
 	case <-timeout.C:
-		return fmt.Errorf("arecord: %w: its output ended but the process did not exit", ErrDeviceLost)
+		return fmt.Errorf("arecord -D %s: %w: its output ended but the process did not exit", s.cfg.Device, ErrDeviceLost)
 	}
 	select {
-	case <-s.errDone:
+	case <-p.errDone:
 	case <-timeout.C:
 	}
-	if p := s.refusal.Load(); p != nil {
-		return *p
+	if r := p.refusal.Load(); r != nil {
+		return *r
 	}
-	s.mu.Lock()
-	werr := s.waitErr
-	s.mu.Unlock()
 	status := "exited"
-	if werr != nil {
-		status = werr.Error()
+	if p.waitErr != nil {
+		status = p.waitErr.Error()
 	}
-	if msg, _ := s.last.Load().(string); msg != "" {
+	if msg, _ := p.last.Load().(string); msg != "" {
 		return fmt.Errorf("arecord -D %s: %w: %s: %s", s.cfg.Device, ErrDeviceLost, status, msg)
 	}
 	return fmt.Errorf("arecord -D %s: %w: %s", s.cfg.Device, ErrDeviceLost, status)
@@ -264,26 +270,20 @@ func (s *arecordSource) lost() error {
 
 // stop asks arecord to end (SIGTERM to its process group) and kills it if it has not after a
 // second. It does not wait.
-func (s *arecordSource) stop() {
-	s.mu.Lock()
-	cmd, exited := s.cmd, s.exited
-	s.mu.Unlock()
-	if cmd == nil || cmd.Process == nil {
-		return
-	}
+func (p *arecordProc) stop() {
 	select {
-	case <-exited:
+	case <-p.exited:
 		return
 	default:
 	}
-	terminate(cmd)
+	terminate(p.cmd)
 	go func() {
 		t := time.NewTimer(time.Second)
 		defer t.Stop()
 		select {
-		case <-exited:
+		case <-p.exited:
 		case <-t.C:
-			kill(cmd)
+			kill(p.cmd)
 		}
 	}()
 }
@@ -294,31 +294,30 @@ func (s *arecordSource) isClosed() bool {
 	return s.closed
 }
 
-// Dropped returns the estimated number of samples lost in overruns (see overrunSamples).
+// Dropped returns the estimated number of samples lost in overruns (see overrunSamples),
+// over every arecord process this source started.
 func (s *arecordSource) Dropped() int64 { return s.dropped.Load() }
 
 // Close stops arecord and waits up to two seconds for it to exit.
 func (s *arecordSource) Close() error {
 	s.mu.Lock()
-	if s.closed {
+	if s.closed || s.proc == nil {
+		s.closed = true
 		s.mu.Unlock()
 		return nil
 	}
 	s.closed = true
-	cmd, exited, stdout := s.cmd, s.exited, s.stdout
+	p := s.proc
 	s.mu.Unlock()
-	if cmd == nil {
-		return nil
-	}
-	s.stop()
-	stdout.Close() // ends a Read blocked on the pipe
+	p.stop()
+	p.stdout.Close() // ends a Read blocked on the pipe
 	t := time.NewTimer(2 * time.Second)
 	defer t.Stop()
 	select {
-	case <-exited:
+	case <-p.exited:
 		return nil
 	case <-t.C:
-		return fmt.Errorf("arecord: process %d did not exit after SIGTERM and SIGKILL", cmd.Process.Pid)
+		return fmt.Errorf("arecord: process %d did not exit after SIGTERM and SIGKILL", p.cmd.Process.Pid)
 	}
 }
 

@@ -22,8 +22,11 @@
 //
 // Open may fail with ErrNoDevice when the configured device is not there (yet): worth retrying
 // too. Close stops capture and releases the device; it may be called more than once, and from
-// another goroutine than Read's, which then returns ErrClosed. Cancelling the context given to
-// Open ends a Read that is waiting (for pacing or for a device) with the context's error.
+// another goroutine than Read's, which then returns ErrClosed. A closed source can be opened
+// again, which is how the caller recovers from a lost device: a device source (portaudio,
+// arecord) starts afresh, while a stream that simply goes on (stdin, a file, the synthetic
+// scene) resumes where it stopped. Cancelling the context given to Open ends a Read that is
+// waiting (for pacing or for a device) with the context's error.
 //
 // # Kinds
 //

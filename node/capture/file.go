@@ -17,7 +17,7 @@ type fileSource struct {
 	cfg    Config
 	logger *slog.Logger
 
-	mu     sync.Mutex // guards f and closed against a concurrent Close
+	mu     sync.Mutex // guards f, closed and done against a concurrent Close
 	f      *os.File
 	closed bool
 	done   chan struct{} // closed by Close, ends a pacing wait
@@ -30,15 +30,14 @@ type fileSource struct {
 }
 
 func newFile(c Config, logger *slog.Logger) *fileSource {
-	return &fileSource{cfg: c, logger: logger, done: make(chan struct{})}
+	return &fileSource{cfg: c, logger: logger}
 }
 
+// Open opens the file and reads its header. Opened again after Close, it resumes at the
+// sample where it stopped (the file is a stream that went on), paced from then on.
 func (s *fileSource) Open(ctx context.Context) (Format, error) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	if s.closed {
-		return Format{}, fmt.Errorf("file %s: %w", s.cfg.File, ErrClosed)
-	}
 	if s.f != nil {
 		return s.format, fmt.Errorf("file %s: already open", s.cfg.File)
 	}
@@ -56,19 +55,35 @@ func (s *fileSource) Open(ctx context.Context) (Format, error) {
 		f.Close()
 		return Format{}, err
 	}
-	s.f, s.ctx, s.format = f, ctx, format
-	s.dec = newWAVDecoder(wr, format, s.cfg.FramesPerBuffer)
+	if s.pos > 0 && format != s.format {
+		f.Close()
+		return Format{}, fmt.Errorf("file %s: %w: the file changed from %s to %s while it was replayed", s.cfg.File, ErrBadInput, s.format, format)
+	}
+	dec := newWAVDecoder(wr, format, s.cfg.FramesPerBuffer)
+	if s.pos > 0 {
+		// Resume: decode and drop what was delivered before.
+		skip := make([]float32, s.cfg.FramesPerBuffer)
+		for left := s.pos; left > 0; {
+			n, err := dec.read(skip[:min(int64(len(skip)), left)])
+			if err != nil {
+				break // the file got shorter; Read reports its end
+			}
+			left -= int64(n)
+		}
+	}
+	s.f, s.ctx, s.format, s.dec = f, ctx, format, dec
+	s.closed, s.done = false, make(chan struct{})
 	if s.cfg.Realtime {
-		s.pace = newPacer(format.SampleRate)
+		s.pace = newPacerAt(format.SampleRate, s.pos)
 	}
 	s.logger.Info("replaying a recording", "file", s.cfg.File, "format", format.String(),
-		"realtime", s.cfg.Realtime, "frames", wr.Frames())
+		"realtime", s.cfg.Realtime, "frames", wr.Frames(), "from_sample", s.pos)
 	return format, nil
 }
 
 func (s *fileSource) Read(dst []float32) (int, error) {
 	s.mu.Lock()
-	closed, open := s.closed, s.f != nil
+	closed, open, done := s.closed, s.f != nil, s.done
 	s.mu.Unlock()
 	switch {
 	case closed:
@@ -91,15 +106,16 @@ func (s *fileSource) Read(dst []float32) (int, error) {
 		}
 		return 0, err
 	}
-	s.pos += int64(n)
 	if s.pace != nil {
-		if err := s.pace.wait(s.ctx, s.done, s.pos); err != nil {
+		if err := s.pace.wait(s.ctx, done, s.pos+int64(n)); err != nil {
+			// The block is not delivered: a resumed replay starts with it again.
 			if errors.Is(err, ErrClosed) {
 				err = fmt.Errorf("file %s: %w", s.cfg.File, err)
 			}
 			return 0, err
 		}
 	}
+	s.pos += int64(n)
 	return n, nil
 }
 
@@ -111,18 +127,19 @@ func (s *fileSource) isClosed() bool {
 
 func (s *fileSource) Dropped() int64 { return 0 }
 
+// Close closes the file. It ends a Read that waits for its pacing deadline.
 func (s *fileSource) Close() error {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	if s.closed {
+	if s.closed || s.f == nil {
+		s.closed = true
 		return nil
 	}
 	s.closed = true
 	close(s.done)
-	if s.f != nil {
-		return s.f.Close()
-	}
-	return nil
+	err := s.f.Close()
+	s.f = nil
+	return err
 }
 
 func (s *fileSource) Describe() string {

@@ -22,6 +22,14 @@ func newPacer(rate int) *pacer {
 	return &pacer{rate: int64(rate), start: time.Now(), timer: t}
 }
 
+// newPacerAt returns a pacer for a stream resumed at sample count pos: pos is due now, so the
+// resumed stream does not burst to catch up with its first start.
+func newPacerAt(rate int, pos int64) *pacer {
+	p := newPacer(rate)
+	p.start = p.start.Add(-p.due(pos).Sub(p.start))
+	return p
+}
+
 // due returns the time at which sample count n is complete.
 func (p *pacer) due(n int64) time.Time {
 	sec, rem := n/p.rate, n%p.rate

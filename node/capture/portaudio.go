@@ -136,21 +136,37 @@ func converts(d *portaudio.DeviceInfo) bool {
 	return !strings.Contains(d.Name, "(hw:")
 }
 
+// Open initialises PortAudio, finds the device and starts capture. It may be called again
+// after Close (the node's retry after a device loss): every Open initialises PortAudio afresh.
 func (s *paSource) Open(ctx context.Context) (Format, error) {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	if s.closed.Load() {
-		return Format{}, fmt.Errorf("portaudio: %w", ErrClosed)
+	if !s.lockWithin(s.closeWait) {
+		return Format{}, fmt.Errorf("portaudio: %w: a read from %q has not returned since Close; the device seems hung",
+			ErrDeviceLost, s.cfg.Device)
 	}
-	if s.stream != nil {
+	defer s.mu.Unlock()
+	if s.stream != nil && !s.closed.Load() {
 		return s.format, fmt.Errorf("portaudio: already open")
 	}
+	s.release()
+	s.closed.Store(false)
 	f, err := s.open(ctx)
 	if err != nil {
 		s.release()
 		return Format{}, err
 	}
 	return f, nil
+}
+
+// lockWithin takes s.mu, waiting at most d for a Read in progress. It reports whether it did.
+func (s *paSource) lockWithin(d time.Duration) bool {
+	deadline := time.Now().Add(d)
+	for !s.mu.TryLock() {
+		if time.Now().After(deadline) {
+			return false
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+	return true
 }
 
 // open does the work of Open with s.mu held; on error the caller releases what was taken.
@@ -330,13 +346,9 @@ func (s *paSource) Close() error {
 	if s.closed.Swap(true) {
 		return nil
 	}
-	deadline := time.Now().Add(s.closeWait)
-	for !s.mu.TryLock() {
-		if time.Now().After(deadline) {
-			return fmt.Errorf("portaudio: %w: a read from %q did not return within %v; the device is released when it does",
-				ErrDeviceLost, s.cfg.Device, s.closeWait)
-		}
-		time.Sleep(5 * time.Millisecond)
+	if !s.lockWithin(s.closeWait) {
+		return fmt.Errorf("portaudio: %w: a read from %q did not return within %v; the device is released when it does",
+			ErrDeviceLost, s.cfg.Device, s.closeWait)
 	}
 	defer s.mu.Unlock()
 	return s.release()

@@ -215,8 +215,9 @@ func TestPortAudioChild(t *testing.T) {
 	})
 
 	t.Run("reopen", func(t *testing.T) {
-		// Every Open initialises PortAudio afresh and every Close terminates it: the path a
-		// re-plugged USB microphone takes. The file PCM starts again from its first frame.
+		// Close and Open again, as the node does after a device loss: every Open initialises
+		// PortAudio afresh and every Close terminates it, the path by which a re-plugged USB
+		// microphone is found. The file PCM starts again from its first frame.
 		c := paCases[0]
 		_, want := encode(signal(4800, paRate, 0.1), c.sample, c.channels, c.channel-1)
 		src, _ := New(Config{Kind: KindPortAudio, Device: c.pcm, SampleRate: paRate, Sample: c.sample}, nil)
@@ -233,9 +234,10 @@ func TestPortAudioChild(t *testing.T) {
 			if a := testing.AllocsPerRun(20, func() { src.Read(buf) }); a != 0 {
 				t.Errorf("%v allocations per Read", a)
 			}
-			src.(*paSource).closeForReopen(t)
+			if err := src.Close(); err != nil {
+				t.Fatal(err)
+			}
 		}
-		src.Close()
 	})
 
 	t.Run("faults", func(t *testing.T) {
@@ -301,17 +303,34 @@ func TestPortAudioChild(t *testing.T) {
 		if err := src.Close(); !errors.Is(err, ErrDeviceLost) {
 			t.Fatalf("Close under a hung read = %v, want ErrDeviceLost", err)
 		}
+		if _, err := src.Open(context.Background()); !errors.Is(err, ErrDeviceLost) || !strings.Contains(err.Error(), "has not returned") {
+			t.Fatalf("Open while the read still hangs = %v, want ErrDeviceLost", err)
+		}
 		close(release)
 		if err := <-done; !errors.Is(err, ErrClosed) {
 			t.Fatalf("the hung read returned %v, want ErrClosed", err)
 		}
 		ps.mu.Lock()
-		defer ps.mu.Unlock()
-		if ps.stream != nil || ps.inited {
+		released := ps.stream == nil && !ps.inited
+		ps.mu.Unlock()
+		if !released {
 			t.Fatal("the stream was not released after the hung read returned")
 		}
 		if err := src.Close(); err != nil {
 			t.Fatalf("second Close = %v", err)
+		}
+		// Once the read is back, the source opens again.
+		_, want := encode(signal(960, paRate, 0.1), Int32, 1, 0)
+		if _, err := src.Open(context.Background()); err != nil {
+			t.Fatal(err)
+		}
+		got, err := readAll(t, src, 480, len(want))
+		if err != nil {
+			t.Fatal(err)
+		}
+		sameSamples(t, got, want)
+		if err := src.Close(); err != nil {
+			t.Fatal(err)
 		}
 	})
 
@@ -369,14 +388,4 @@ func TestPortAudioChild(t *testing.T) {
 			t.Fatal(err)
 		}
 	})
-}
-
-// closeForReopen closes the stream and terminates PortAudio but leaves the source usable for
-// another Open, as the node's retry does with a fresh Source (tests only).
-func (s *paSource) closeForReopen(t *testing.T) {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	if err := s.release(); err != nil {
-		t.Fatal(err)
-	}
 }

@@ -40,13 +40,18 @@ func wavMagic(b []byte) bool {
 	return bytes.HasPrefix(b, []byte("RIFF")) || bytes.HasPrefix(b, []byte("RF64")) || bytes.HasPrefix(b, []byte("BW64"))
 }
 
+// Open reads the stream's header (a WAV stream) or takes the format from the configuration
+// (raw PCM). Opened again after Close, it resumes the same stream where it stopped.
 func (s *stream) Open(ctx context.Context) (Format, error) {
-	if s.closed.Load() {
-		return Format{}, fmt.Errorf("%s: %w", s.name, ErrClosed)
-	}
 	if s.dec != nil {
-		return s.format, fmt.Errorf("%s: already open", s.name)
+		if !s.closed.Load() {
+			return s.format, fmt.Errorf("%s: already open", s.name)
+		}
+		s.ctx = ctx
+		s.closed.Store(false)
+		return s.format, nil
 	}
+	s.closed.Store(false)
 	s.ctx = ctx
 	br := bufio.NewReaderSize(s.in, 64<<10)
 	isWAV := s.cfg.StdinFormat == StdinWAV
@@ -120,8 +125,8 @@ func (s *stream) Read(dst []float32) (int, error) {
 
 func (s *stream) Dropped() int64 { return 0 }
 
-// Close marks the source closed. It does not close the underlying reader, which belongs to
-// the caller (os.Stdin, say).
+// Close marks the source closed until the next Open. It does not close the underlying reader,
+// which belongs to the caller (os.Stdin, say), so it cannot end a Read that waits for input.
 func (s *stream) Close() error {
 	s.closed.Store(true)
 	return nil

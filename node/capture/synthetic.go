@@ -30,7 +30,7 @@ type synthetic struct {
 }
 
 func newSynthetic(c Config, logger *slog.Logger) (*synthetic, error) {
-	s := &synthetic{cfg: c, logger: logger, done: make(chan struct{})}
+	s := &synthetic{cfg: c, logger: logger}
 	// Check the scene's own limits now, so a bad config fails at New rather than at Open.
 	if _, err := scene.New(s.sceneConfig(time.Time{})); err != nil {
 		return nil, fmt.Errorf("%s: %w", section, err)
@@ -53,36 +53,38 @@ func (s *synthetic) sceneConfig(now time.Time) scene.Config {
 	return sc
 }
 
+// Open starts the scene. Opened again after Close, the scene goes on where it stopped (a
+// block whose pacing wait Close interrupted is lost, as from a real device).
 func (s *synthetic) Open(ctx context.Context) (Format, error) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
-	if s.closed {
-		return Format{}, fmt.Errorf("synthetic: %w", ErrClosed)
-	}
-	if s.sc != nil {
+	if s.sc != nil && !s.closed {
 		return s.format, fmt.Errorf("synthetic: already open")
 	}
-	sc, err := scene.New(s.sceneConfig(time.Now()))
-	if err != nil {
-		return Format{}, fmt.Errorf("%s: %w", section, err)
+	if s.sc == nil {
+		sc, err := scene.New(s.sceneConfig(time.Now()))
+		if err != nil {
+			return Format{}, fmt.Errorf("%s: %w", section, err)
+		}
+		s.sc = sc
+		s.format = Format{SampleRate: sc.SampleRate(), Channels: 1, Channel: 1, Sample: Float32}
+		s.end = -1
+		if s.cfg.DurationSeconds > 0 {
+			s.end = int64(math.Round(s.cfg.DurationSeconds * float64(sc.SampleRate())))
+		}
 	}
-	s.ctx, s.sc = ctx, sc
-	s.format = Format{SampleRate: sc.SampleRate(), Channels: 1, Channel: 1, Sample: Float32}
-	s.end = -1
-	if s.cfg.DurationSeconds > 0 {
-		s.end = int64(math.Round(s.cfg.DurationSeconds * float64(sc.SampleRate())))
-	}
+	s.ctx, s.closed, s.done = ctx, false, make(chan struct{})
 	if s.cfg.Realtime {
-		s.pace = newPacer(sc.SampleRate())
+		s.pace = newPacerAt(s.format.SampleRate, s.pos)
 	}
-	s.logger.Info("synthetic street scene", "seed", sc.Config().Seed, "rate", sc.SampleRate(),
-		"calibrator_s", sc.Config().CalibratorSeconds, "realtime", s.cfg.Realtime)
+	s.logger.Info("synthetic street scene", "seed", s.sc.Config().Seed, "rate", s.format.SampleRate,
+		"calibrator_s", s.sc.Config().CalibratorSeconds, "realtime", s.cfg.Realtime, "from_sample", s.pos)
 	return s.format, nil
 }
 
 func (s *synthetic) Read(dst []float32) (int, error) {
 	s.mu.Lock()
-	closed, open := s.closed, s.sc != nil
+	closed, open, done := s.closed, s.sc != nil, s.done
 	s.mu.Unlock()
 	switch {
 	case closed:
@@ -105,7 +107,7 @@ func (s *synthetic) Read(dst []float32) (int, error) {
 	s.sc.Read(dst[:n])
 	s.pos += int64(n)
 	if s.pace != nil {
-		if err := s.pace.wait(s.ctx, s.done, s.pos); err != nil {
+		if err := s.pace.wait(s.ctx, done, s.pos); err != nil {
 			if err == ErrClosed {
 				err = fmt.Errorf("synthetic: %w", err)
 			}
@@ -132,7 +134,9 @@ func (s *synthetic) Close() error {
 	defer s.mu.Unlock()
 	if !s.closed {
 		s.closed = true
-		close(s.done)
+		if s.done != nil {
+			close(s.done)
+		}
 	}
 	return nil
 }
