@@ -173,7 +173,9 @@ func spectrumOf(r buffer.Record) (int, []float64) {
 }
 
 // exporter writes records as CSV or JSON lines. Keys are the quantity names of `leqnode
-// analyze`; times are RFC 3339 in UTC; a level that does not exist is null (JSON) or empty (CSV).
+// analyze` and, for everything else, those of the MQTT payloads (configs/schema): every record
+// has "start" (its time), ranges have "end"; times are RFC 3339 in UTC; flags are an array of
+// names in JSON and "a|b" in CSV; a level that does not exist is null (JSON) or empty (CSV).
 type exporter struct {
 	w                 io.Writer
 	format            string
@@ -215,6 +217,16 @@ func text(key, v string) field { return field{key, csvQuote(v), strconv.Quote(v)
 
 func stamp(key string, t time.Time) field { return text(key, t.UTC().Format(time.RFC3339Nano)) }
 
+// flagList is the flags as "a|b" in CSV and as an array of names in JSON, as in the MQTT payloads.
+func flagList(f buffer.Flags) field {
+	names := f.Names()
+	q := make([]string, len(names))
+	for i, n := range names {
+		q[i] = strconv.Quote(n)
+	}
+	return field{"flags", csvQuote(f.String()), "[" + strings.Join(q, ",") + "]"}
+}
+
 func boolean(key string, v bool) field {
 	s := strconv.FormatBool(v)
 	return field{key, s, s}
@@ -241,37 +253,37 @@ func (e *exporter) fields(r buffer.Record) []field {
 			level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq), level("LAFmax", v.LAFmax),
 			level("LAFmin", v.LAFmin), level("LASmax", v.LASmax), level("LASmin", v.LASmin), level("LAImax", v.LAImax),
 			level("LCpeak", v.LCpeak), level("LZpeak", v.LZpeak), level("LAE", v.LAE),
-			text("flags", v.Flags.String()), integer("dropped_samples", v.DroppedSamples))
+			flagList(v.Flags), integer("dropped_samples", v.DroppedSamples))
 	case *buffer.Minute:
 		f = append(f, stamp("start", v.Start), level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq),
 			level("LAFmax", v.LAFmax), level("LAFmin", v.LAFmin), level("LAF1", v.LAF1), level("LAF5", v.LAF5),
 			level("LAF10", v.LAF10), level("LAF50", v.LAF50), level("LAF90", v.LAF90), level("LAF95", v.LAF95),
 			level("LAF99", v.LAF99), level("LAE", v.LAE), level("LCpeak", v.LCpeak), level("LAImax", v.LAImax),
-			integer("valid_seconds", uint64(v.ValidSeconds)), text("flags", v.Flags.String()))
+			integer("valid_seconds", uint64(v.ValidSeconds)), flagList(v.Flags))
 	case *buffer.Event:
 		f = append(f, stamp("start", v.Start), stamp("end", v.End), number("duration_s", v.End.Sub(v.Start).Seconds()),
 			level("LAFmax", v.LAFmax), level("LAeq", v.LAeq), level("LAE", v.LAE), level("LCpeak", v.LCpeak),
-			text("flags", v.Flags.String()))
+			flagList(v.Flags))
 	case *buffer.Calibration:
-		f = append(f, stamp("time", v.At), number("reference_dB", v.Reference), number("measured_dB", v.Measured),
-			number("deviation_dB", v.Deviation), number("frequency_Hz", v.Frequency), number("stability_dB", v.Stability),
+		f = append(f, stamp("start", v.At), number("reference_dB", v.Reference), number("measured_dB", v.Measured),
+			number("deviation_dB", v.Deviation), number("frequency_hz", v.Frequency), number("stability_dB", v.Stability),
 			number("sensitivity_before_dBFS", v.SensitivityBefore), number("sensitivity_after_dBFS", v.SensitivityAfter),
-			boolean("applied", v.Applied), boolean("ok", v.OK), text("flags", v.Flags.String()))
+			boolean("applied", v.Applied), boolean("passed", v.OK), flagList(v.Flags))
 	case *buffer.Health:
-		f = append(f, stamp("time", v.At), text("flags", v.Flags.String()), integer("clipped_samples", v.Clipped),
-			number("dc_offset", v.DCOffset), boolean("silent", v.Silent), boolean("stuck", v.Stuck),
-			integer("under_range_s", v.UnderRangeSeconds), integer("dropped_samples", v.DroppedSamples),
-			integer("queue_overflows", v.QueueOverflows), number("cpu_percent", v.CPU), number("memory_MB", v.MemoryMB),
-			number("disk_free_MB", v.DiskFreeMB), integer("store_bytes", v.StoreBytes), boolean("clock_synced", v.ClockSynced),
-			number("clock_error_ms", v.ClockErrorMs), number("temperature_C", v.TemperatureC))
+		f = append(f, stamp("start", v.At), flagList(v.Flags), integer("clipped_samples", v.Clipped),
+			integer("under_range_seconds", v.UnderRangeSeconds), integer("dropped_samples", v.DroppedSamples),
+			integer("queue_overflows", v.QueueOverflows), integer("store_bytes", v.StoreBytes),
+			boolean("silent", v.Silent), boolean("stuck", v.Stuck), boolean("clock_synced", v.ClockSynced),
+			number("dc_offset", v.DCOffset), number("cpu_percent", v.CPU), number("memory_mb", v.MemoryMB),
+			number("disk_free_mb", v.DiskFreeMB), number("clock_error_ms", v.ClockErrorMs), number("temperature_c", v.TemperatureC))
 	case *buffer.Gap:
-		f = append(f, stamp("from", v.From), stamp("to", v.To), number("duration_s", v.To.Sub(v.From).Seconds()),
+		f = append(f, stamp("start", v.From), stamp("end", v.To), number("duration_s", v.To.Sub(v.From).Seconds()),
 			text("reason", v.Reason))
 	case *buffer.Annotation:
-		f = append(f, stamp("from", v.From), stamp("to", v.To), text("flags", v.Flags.String()), text("reason", v.Reason))
+		f = append(f, stamp("start", v.From), stamp("end", v.To), flagList(v.Flags), text("reason", v.Reason))
 	case *buffer.Session:
-		f = append(f, stamp("time", v.At), text("software_version", v.SoftwareVersion), text("config_hash", v.ConfigHash),
-			number("sensitivity_dBFS", v.SensitivityDBFS), integer("sample_rate_Hz", uint64(v.SampleRate)),
+		f = append(f, stamp("start", v.At), text("software_version", v.SoftwareVersion), text("config_hash", v.ConfigHash),
+			number("sensitivity_dBFS", v.SensitivityDBFS), integer("sample_rate_hz", uint64(v.SampleRate)),
 			text("device", v.Device), text("time_zone", v.TimeZone))
 	}
 	return f

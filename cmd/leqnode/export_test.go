@@ -3,6 +3,7 @@ package main
 import (
 	"encoding/csv"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -84,7 +85,7 @@ func TestExportJSONL(t *testing.T) {
 	if rows[2]["LAeq"] != nil || !strings.Contains(lines[2], `"LAeq":null`) {
 		t.Errorf("digital silence must export as null: %s", lines[2])
 	}
-	if rows[5]["flags"] != "excluded" || rows[6]["flags"] != "excluded" || rows[7]["flags"] != "" {
+	if fmt.Sprint(rows[5]["flags"]) != "[excluded]" || fmt.Sprint(rows[6]["flags"]) != "[excluded]" || fmt.Sprint(rows[7]["flags"]) != "[]" {
 		t.Errorf("annotation flags: %v %v %v", rows[5]["flags"], rows[6]["flags"], rows[7]["flags"])
 	}
 }
@@ -158,5 +159,64 @@ func TestExportWhileHeld(t *testing.T) {
 	}
 	if _, err := os.Stat(path); err != nil {
 		t.Fatal(err)
+	}
+}
+
+// Every kind exports as valid JSON lines and CSV with "store", "seq" and "start", and the field
+// names of the MQTT payloads.
+func TestExportEveryKind(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "quay-7.db")
+	at := time.Date(2026, 7, 1, 9, 0, 0, 0, time.UTC)
+	st, err := buffer.Open(path, &buffer.Options{NoSync: true, Now: func() time.Time { return at.Add(time.Hour) }})
+	if err != nil {
+		t.Fatal(err)
+	}
+	nan := math.NaN()
+	recs := []buffer.Record{
+		&buffer.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 81.5, LAeq: 75, LAE: 81, LCpeak: 99, Flags: buffer.Overload},
+		&buffer.Calibration{At: at, Reference: 94, Measured: 93.9, Deviation: -0.1, Frequency: 1000, Stability: 0.02,
+			SensitivityBefore: -26.1, SensitivityAfter: -26, Applied: true, OK: true},
+		&buffer.Health{At: at, CPU: 4, MemoryMB: 30, DiskFreeMB: 900, TemperatureC: nan, DCOffset: 0.001, ClockErrorMs: nan, ClockSynced: true},
+		&buffer.Gap{From: at, To: at.Add(time.Minute), Reason: "audio device lost"},
+		&buffer.Session{At: at, SoftwareVersion: "0.1.0", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "default", TimeZone: "UTC"},
+	}
+	for _, r := range recs {
+		if _, err := st.Append(r); err != nil {
+			t.Fatal(err)
+		}
+	}
+	st.Close()
+	want := map[string][]string{
+		"event":       {"end", "duration_s", "LAFmax", "LCpeak"},
+		"calibration": {"reference_dB", "deviation_dB", "frequency_hz", "passed", "sensitivity_after_dBFS"},
+		"health":      {"cpu_percent", "memory_mb", "temperature_c", "clock_synced", "under_range_seconds"},
+		"gap":         {"end", "reason"},
+		"session":     {"software_version", "sample_rate_hz", "time_zone"},
+	}
+	for kind, keys := range want {
+		code, out, errs := runCmd(t, nil, "export", "--db", path, "--kind", kind)
+		if code != 0 {
+			t.Fatalf("%s: exit %d: %s", kind, code, errs)
+		}
+		var m map[string]any
+		if err := json.Unmarshal([]byte(out), &m); err != nil {
+			t.Fatalf("%s: %v: %s", kind, err, out)
+		}
+		for _, k := range append(keys, "store", "seq", "start") {
+			if _, ok := m[k]; !ok {
+				t.Errorf("%s: no %q in %s", kind, k, out)
+			}
+		}
+		if m["start"] != "2026-07-01T09:00:00Z" {
+			t.Errorf("%s: start %v", kind, m["start"])
+		}
+		code, out, _ = runCmd(t, nil, "export", "--db", path, "--kind", kind, "--format", "csv")
+		rows, err := csv.NewReader(strings.NewReader(out)).ReadAll()
+		if code != 0 || err != nil || len(rows) != 2 || len(rows[0]) != len(rows[1]) {
+			t.Errorf("%s csv: exit %d, %v, %q", kind, code, err, out)
+		}
+	}
+	if code, out, _ := runCmd(t, nil, "export", "--db", path, "--kind", "health"); !strings.Contains(out, `"temperature_c":null`) {
+		t.Errorf("unmeasured health field must be null: %d %s", code, out)
 	}
 }
