@@ -25,7 +25,8 @@ type Source interface {
 	// Dropped returns the number of samples discarded so far (overflows, overruns). It is
 	// safe to call from any goroutine.
 	Dropped() int64
-	// Close stops capture and releases the device. It is safe to call twice.
+	// Close stops capture and releases the device. It is safe to call twice. Open may be
+	// called again afterwards.
 	Close() error
 	// Describe names the source for logs and session records, e.g. "portaudio: testsig @48000 Hz".
 	Describe() string
@@ -51,7 +52,7 @@ var (
 	// ErrNoDevice is wrapped by errors from Open when the configured device is not present.
 	// A USB microphone may appear later, so it is worth retrying like ErrDeviceLost.
 	ErrNoDevice = errors.New("capture device not found")
-	// ErrClosed is returned by Read after Close.
+	// ErrClosed is returned by Read after Close, until the source is opened again.
 	ErrClosed = errors.New("capture source closed")
 	// ErrBadInput is wrapped by errors about a stream that cannot be decoded (a corrupt or
 	// mis-described recording); retrying does not help.

@@ -398,6 +398,7 @@ var standardRates = [...]int{8000, 11025, 16000, 22050, 32000, 44100, 48000, 882
 // Devices lists the capture devices PortAudio finds now, with the standard rates each
 // accepts. It initialises and terminates PortAudio around the listing, so it sees devices
 // plugged in since the last call; while a portaudio Source is open it sees that source's list.
+// Probing a rate opens the device, so a device in use (by a running node, say) lists no rates.
 func Devices() ([]DeviceInfo, error) {
 	paMu.Lock()
 	defer paMu.Unlock()
