@@ -119,6 +119,11 @@ func (p *Publisher) command(s *session, b []byte) {
 			p.reply(s, c, "busy", "four resends are already queued; try again later")
 			return
 		}
+		kinds = slices.DeleteFunc(kinds, func(k buffer.Kind) bool { return p.lanes[int(k)-1].off })
+		if len(kinds) == 0 {
+			p.reply(s, c, "failed", "none of the kinds asked for is published (publish.kinds)")
+			return
+		}
 		p.jobs = append(p.jobs, &resendJob{cmd: c, kinds: kinds, from: from, to: to, pos: from})
 		p.reply(s, c, "accepted", "")
 	}

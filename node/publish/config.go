@@ -8,8 +8,11 @@ import (
 	"net/url"
 	"os"
 	"regexp"
+	"slices"
 	"strings"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer"
 )
 
 // Defaults for Config. A zero field of Config means its default.
@@ -98,6 +101,17 @@ type Config struct {
 	// SecondsPerMessage is how many second records one message carries (default 10, 1 to 60).
 	// Live seconds wait until this many are ready or the oldest has waited this many seconds.
 	SecondsPerMessage int `toml:"seconds_per_message"`
+
+	// SecondQuantities lists the quantities second messages carry (default all of LAeq, LCeq,
+	// LZeq, LAFmax, LAFmin, LASmax, LASmin, LAImax, LCpeak, LZpeak, LAE). Trade-off: second
+	// records are most of the traffic; ["LAeq", "LAFmax"] roughly halves it. The store keeps
+	// everything, so a resend or a local report still has the rest.
+	SecondQuantities []string `toml:"second_quantities"`
+
+	// Kinds lists the record kinds published (default all: second, minute, event,
+	// calibration, health, gap, annotation, session). Records of other kinds stay in the store
+	// and count as pending; adding a kind later publishes its stored records as backlog.
+	Kinds []string `toml:"kinds"`
 
 	// MaxInFlight bounds the messages published and not yet acknowledged by the broker (default
 	// 32, 1 to 1000). More hides more round-trip time; a connection loss resends them all.
@@ -206,6 +220,16 @@ func (c Config) withDefaults(nodeID string) Config {
 	if c.Stream == "" {
 		c.Stream = DefaultStream
 	}
+	if c.SecondQuantities == nil {
+		for _, q := range secondLevels {
+			c.SecondQuantities = append(c.SecondQuantities, q.name)
+		}
+	}
+	if c.Kinds == nil {
+		for _, k := range buffer.Kinds() {
+			c.Kinds = append(c.Kinds, k.String())
+		}
+	}
 	if c.Commands.MaxPayloadBytes == 0 {
 		c.Commands.MaxPayloadBytes = DefaultMaxCommandBytes
 	}
@@ -291,6 +315,19 @@ func (c Config) Validate() []error {
 	}
 	if d.SecondsPerMessage < 1 || d.SecondsPerMessage > 60 {
 		bad("seconds_per_message %d out of range: use 1 to 60", d.SecondsPerMessage)
+	}
+	for _, q := range d.SecondQuantities {
+		if !slices.ContainsFunc(secondLevels, func(l secondLevel) bool { return l.name == q }) {
+			bad("second_quantities has %q: use LAeq, LCeq, LZeq, LAFmax, LAFmin, LASmax, LASmin, LAImax, LCpeak, LZpeak or LAE", q)
+		}
+	}
+	if d.SecondQuantities != nil && len(d.SecondQuantities) == 0 {
+		bad("second_quantities is empty: list at least one quantity, or leave out \"second\" from publish.kinds")
+	}
+	for _, k := range d.Kinds {
+		if _, err := buffer.ParseKind(k); err != nil {
+			bad("kinds has %q: use second, minute, event, calibration, health, gap, annotation or session", k)
+		}
 	}
 	if d.MaxInFlight < 1 || d.MaxInFlight > 1000 {
 		bad("max_in_flight %d out of range: use 1 to 1000", d.MaxInFlight)

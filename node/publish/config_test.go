@@ -51,6 +51,9 @@ func TestConfigValidate(t *testing.T) {
 		{"bytes", func(c *Config) { c.BacklogBytesPerSecond = 10 }, []string{"backlog_bytes_per_second 10"}},
 		{"client id", func(c *Config) { c.ClientID = "elm 3" }, []string{"client_id"}},
 		{"action", func(c *Config) { c.Commands.Allow = []string{"reboot"} }, []string{`commands.allow has "reboot"`}},
+		{"second quantity", func(c *Config) { c.SecondQuantities = []string{"LAeq", "LAF90"} }, []string{`second_quantities has "LAF90"`}},
+		{"no second quantity", func(c *Config) { c.SecondQuantities = []string{} }, []string{"second_quantities is empty"}},
+		{"kind", func(c *Config) { c.Kinds = []string{"second", "spectra"} }, []string{`kinds has "spectra"`}},
 		{"several at once", func(c *Config) { c.Spectra, c.MaxInFlight = "x", 5000 }, []string{"spectra", "max_in_flight"}},
 	}
 	for _, tt := range tests {

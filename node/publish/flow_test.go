@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -84,7 +85,7 @@ func TestNormalFlow(t *testing.T) {
 			defer store.Close()
 			var logs logBuffer
 			p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Spectra: mode},
-				store, Identity{NodeID: "elm-3", Site: "Harrow Lane, Millbrook", Location: &Location{51.52, -0.31}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
+				store, Identity{NodeID: "elm-3", Site: "Harrow Lane, Millbrook", Location: &Location{10.04, -20.17}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -166,5 +167,57 @@ func TestNormalFlow(t *testing.T) {
 				t.Errorf("second cursor %d, want %d", got, nSec)
 			}
 		})
+	}
+}
+
+// TestSelectedKindsAndQuantities: publish.kinds and publish.second_quantities narrow what is
+// sent; what is left out stays in the store as pending.
+func TestSelectedKindsAndQuantities(t *testing.T) {
+	sch := schemas(t)
+	m := startMosquitto(t, brokerOpts{})
+	col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+	defer store.Close()
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Kinds: []string{"second", "minute"},
+		SecondQuantities: []string{"LAFmax", "LAeq"}}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	runPublisher(t, p)
+	for i := range 20 {
+		mustAppend(t, store, second(i, false))
+	}
+	mustAppend(t, store, minute(0, false))
+	for _, r := range otherRecords(0) {
+		mustAppend(t, store, r)
+	}
+	store.Flush()
+	p.Notify()
+	col.waitFor(20*time.Second, "seconds and minutes", func(msgs []received) bool {
+		c, _ := countSeqs(t, msgs)
+		return c.complete("second", 20) && c.complete("minute", 1)
+	})
+	time.Sleep(300 * time.Millisecond)
+	for _, msg := range col.snapshot() {
+		kind := validate(t, sch, msg.topic, msg.payload)
+		switch kind {
+		case "second":
+			var p struct{ Columns map[string]json.RawMessage }
+			_ = json.Unmarshal(msg.payload, &p)
+			var names []string
+			for k := range p.Columns {
+				names = append(names, k)
+			}
+			slices.Sort(names)
+			if got := strings.Join(names, ","); got != "LAFmax,LAeq,dropped_samples,duration_s,flags,seq,start_ms" {
+				t.Errorf("second columns %s", got)
+			}
+		case "minute", "status":
+		default:
+			t.Errorf("a %s message went out; publish.kinds has only second and minute", kind)
+		}
+	}
+	if st := p.Status(); st.Pending["event"] != 1 || st.Pending["second"] != 0 {
+		t.Errorf("pending %v: want the event kept, the seconds delivered", st.Pending)
 	}
 }

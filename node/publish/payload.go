@@ -69,7 +69,11 @@ func (w *jw) spectrumObject(first int, levels []float64) {
 
 // appendSeconds appends one message holding recs (at least one, in sequence order) in columns:
 // each quantity is an array with one value per record.
-func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool) []byte {
+// quantities selects the level columns (nil: all of secondLevels).
+func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool, quantities []secondLevel) []byte {
+	if quantities == nil {
+		quantities = secondLevels
+	}
 	w := jw{b}
 	e.head(&w, "second", recs[0].Seq(), recs[0].Start)
 	w.key("last_seq")
@@ -108,7 +112,7 @@ func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool) []
 		w.num(r.Duration.Seconds(), 6)
 	}
 	w.end()
-	for _, q := range secondLevels {
+	for _, q := range quantities {
 		w.key(q.name)
 		w.arr()
 		for _, r := range recs {
@@ -172,10 +176,14 @@ func bandSpan(recs []*buffer.Second) (lo, hi int) {
 	return lo, hi
 }
 
-var secondLevels = []struct {
+// secondLevel is one level column of second messages.
+type secondLevel struct {
 	name string
 	get  func(*buffer.Second) float64
-}{
+}
+
+// secondLevels are the quantities of a second record, named as leqnode analyze names them.
+var secondLevels = []secondLevel{
 	{"LAeq", func(r *buffer.Second) float64 { return r.LAeq }},
 	{"LCeq", func(r *buffer.Second) float64 { return r.LCeq }},
 	{"LZeq", func(r *buffer.Second) float64 { return r.LZeq }},

@@ -26,7 +26,7 @@ func TestSecondPayload(t *testing.T) {
 	raw[1].Flags = buffer.Dropped | buffer.Clipped
 	raw[1].DroppedSamples = 480
 	recs := storedSeconds(t, 40, raw) // sequence numbers 41, 42, 43
-	b := appendSeconds(nil, envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryBacklog}, recs, true)
+	b := appendSeconds(nil, envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryBacklog}, recs, true, nil)
 	validate(t, sch, "second", b)
 	var p struct {
 		Seq, LastSeq, Count int64
@@ -216,18 +216,23 @@ func measureVolume(t testing.TB) []volume {
 	top := newTopics(DefaultTopicPrefix, "elm-3")
 	const month = 30 * 24 * 3600
 	var out []volume
-	for _, mode := range []string{SpectraSecond, SpectraMinute, SpectraNone} {
+	lean := []secondLevel{secondLevels[0], secondLevels[3]} // LAeq, LAFmax
+	for _, mode := range []string{SpectraSecond, SpectraMinute, SpectraNone, SpectraMinute + ", seconds LAeq and LAFmax only"} {
 		v := volume{mode: mode}
 		var sb, mb int
+		var q []secondLevel
+		if strings.Contains(mode, "only") {
+			q = lean
+		}
 		for i := 0; i < len(secs); i += DefaultSecondsPerMessage {
-			sb += len(appendSeconds(nil, env, secs[i:i+DefaultSecondsPerMessage], mode == SpectraSecond))
+			sb += len(appendSeconds(nil, env, secs[i:i+DefaultSecondsPerMessage], mode == SpectraSecond, q))
 		}
 		for _, m := range mins {
 			mb += len(appendRecord(nil, env, m, mode != SpectraNone))
 		}
 		v.secondMsg = sb / (len(secs) / DefaultSecondsPerMessage)
 		v.minuteMsg = mb / len(mins)
-		p := &Publisher{id: Identity{NodeID: "elm-3", SoftwareVersion: "0.1.0"}, cfg: Config{Spectra: mode, SecondsPerMessage: 10}}
+		p := &Publisher{id: Identity{NodeID: "elm-3", SoftwareVersion: "0.1.0"}, cfg: Config{Spectra: SpectraMinute, SecondsPerMessage: 10}}
 		v.stat = len(p.appendStatusFields(nil, "online", true, Status{Pending: map[string]uint64{}}, "0123456789abcdef", map[string]uint64{}))
 		v.month = monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, buffer.KindSecond)), month/DefaultSecondsPerMessage) +
 			monthlyBytes(v.minuteMsg, len(top.data(DeliveryLive, buffer.KindMinute)), month/60) +
@@ -252,7 +257,7 @@ func TestMonthlyVolume(t *testing.T) {
 	if v := vols[0]; v.month < 0.8e9 || v.month < 2*vols[1].month {
 		t.Errorf("per-second spectra: %.0f MB a month; the README says about a gigabyte, over twice the per-minute mode", v.month/1e6)
 	}
-	if vols[2].month > vols[1].month || vols[1].month > vols[0].month {
+	if vols[3].month > vols[1].month || vols[2].month > vols[1].month || vols[1].month > vols[0].month {
 		t.Errorf("volumes do not fall from second to minute to none spectra: %+v", vols)
 	}
 }
@@ -264,7 +269,7 @@ func BenchmarkEncodeSecondBatch(b *testing.B) {
 	buf := make([]byte, 0, 8192)
 	b.ReportAllocs()
 	for b.Loop() {
-		buf = appendSeconds(buf[:0], env, secs, true)
+		buf = appendSeconds(buf[:0], env, secs, true, nil)
 	}
 	b.SetBytes(int64(len(buf)))
 }

@@ -11,6 +11,7 @@ import (
 	"math/rand/v2"
 	"net/url"
 	"regexp"
+	"slices"
 	"sync"
 	"sync/atomic"
 	"time"
@@ -83,6 +84,7 @@ type Publisher struct {
 
 	// Owned by the Run goroutine.
 	lanes      []*lane
+	quantities []secondLevel
 	rng        *rand.Rand
 	msgBucket  bucket
 	byteBucket bucket
@@ -131,7 +133,14 @@ func New(cfg Config, store *buffer.Store, ident Identity, logger *slog.Logger) (
 		rng:      rand.New(rand.NewPCG(rand.Uint64(), rand.Uint64())),
 	}
 	for _, k := range buffer.Kinds() {
-		p.lanes = append(p.lanes, &lane{kind: k})
+		p.lanes = append(p.lanes, &lane{kind: k, off: !slices.Contains(cfg.Kinds, k.String())})
+	}
+	for _, q := range cfg.SecondQuantities {
+		for _, l := range secondLevels {
+			if l.name == q {
+				p.quantities = append(p.quantities, l)
+			}
+		}
 	}
 	now := time.Now()
 	p.msgBucket = newBucket(cfg.BacklogMessagesPerSecond, now)

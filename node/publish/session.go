@@ -19,6 +19,7 @@ const fetchChunk = 256
 // the store's cursor (acked) moves only over ranges the broker acknowledged.
 type lane struct {
 	kind  buffer.Kind
+	off   bool   // the kind is not published (Config.Kinds)
 	acked uint64 // the store's cursor for this kind, as last acknowledged
 	done  spans  // ranges above acked that were delivered (or hold no record), in memory only
 
@@ -329,7 +330,7 @@ func (p *Publisher) encode(e envelope, recs []buffer.Record) []byte {
 		for i, r := range recs {
 			secs[i] = r.(*buffer.Second)
 		}
-		return appendSeconds(nil, e, secs, p.cfg.Spectra == SpectraSecond)
+		return appendSeconds(nil, e, secs, p.cfg.Spectra == SpectraSecond, p.quantities)
 	}
 	return appendRecord(nil, e, recs[0], p.cfg.Spectra != SpectraNone)
 }
@@ -350,7 +351,7 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 		}
 	}
 	for _, l := range p.lanes {
-		for s.inflight < p.cfg.MaxInFlight {
+		for !l.off && s.inflight < p.cfg.MaxInFlight {
 			p.fillLive(l)
 			if len(l.lbuf) == 0 {
 				break
@@ -376,6 +377,9 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 	for s.inflight < p.cfg.MaxInFlight {
 		var oldest *lane
 		for _, l := range p.lanes {
+			if l.off {
+				continue
+			}
 			p.fillBacklog(l)
 			if len(l.bbuf) > 0 && (oldest == nil || l.bbuf[0].Time().Before(oldest.bbuf[0].Time())) {
 				oldest = l
@@ -410,7 +414,7 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 		p.send(s, m, delivery, payload)
 	}
 	for _, l := range p.lanes {
-		if l.bpos < l.boundary || len(l.bbuf) > 0 {
+		if !l.off && (l.bpos < l.boundary || len(l.bbuf) > 0) {
 			backlog = true
 		}
 	}
