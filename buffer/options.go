@@ -57,8 +57,8 @@ type Options struct {
 	MaxHeld int
 
 	// Retention sets how long records of each kind are kept, measured from their Time against
-	// Now. Kinds not in the map keep their DefaultRetention; a negative duration keeps the
-	// kind until the size cap removes it.
+	// Now. Kinds not in the map, or mapped to zero, keep their DefaultRetention; a negative
+	// duration keeps the kind until the size cap removes it.
 	//
 	// Danger: age retention trusts the wall clock. A clock that jumps years ahead deletes the
 	// records it then believes too old; a node should not start writing before its clock is
@@ -121,7 +121,9 @@ func (o *Options) resolved() Options {
 	}
 	ret := DefaultRetention()
 	for k, d := range r.Retention {
-		ret[k] = d
+		if d != 0 {
+			ret[k] = d
+		}
 	}
 	r.Retention = ret
 	if r.MaxBytes <= 0 {

@@ -567,8 +567,11 @@ func (s *Store) Stats() (Stats, error) {
 
 // Check verifies the store: bbolt's page-level consistency check, then that every record
 // decodes, that the time index and the records match one to one, and that the per-kind counts
-// agree. It reads the whole file. It returns nil or an error joining what it found (at most 20
-// problems).
+// agree. It returns nil or an error joining what it found (at most 20 problems).
+//
+// It reads the whole file in one read transaction: seconds for a large store on a slow card,
+// during which a writer that must grow the file waits (bbolt remaps only when no read
+// transaction is open).
 func (s *Store) Check() error {
 	s.mu.Lock()
 	closed := s.closed
