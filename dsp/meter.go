@@ -164,6 +164,13 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 	return m, nil
 }
 
+// SetSensitivity changes the microphone sensitivity from now on: the levels of the interval in
+// progress, taken at the next Take, use the new one throughout. Filter states are kept, so the
+// change needs no settling; take the interval first to keep the old sensitivity's samples apart.
+func (m *Meter) SetSensitivity(sensitivityDBFS float64) {
+	m.offset = LevelOffset(sensitivityDBFS)
+}
+
 // SampleRate returns the sample rate in Hz.
 func (m *Meter) SampleRate() float64 { return m.fs }
 

@@ -140,6 +140,29 @@ type Node struct {
 	log        *slog.Logger
 	Counters   Counters
 	lastHealth atomic.Pointer[buffer.Health]
+	sampleRate atomic.Int64
+	openGen    atomic.Int64 // counts successful opens of the source (the watchdog's guard)
+	started    time.Time
+	settings   chan Settings
+}
+
+// Settings are the options that can change while the node runs, without a restart.
+type Settings struct {
+	SensitivityDBFS float64
+	OverloadLevel   float64
+	UnderRangeLevel float64
+}
+
+// Reconfigure applies new settings at the processing goroutine's next step: the second in
+// progress is closed, and a new session record is written when the sensitivity changed. It
+// returns false when the node is not running to take them.
+func (n *Node) Reconfigure(s Settings) bool {
+	select {
+	case n.settings <- s:
+		return true
+	case <-time.After(5 * time.Second):
+		return false
+	}
 }
 
 // Health returns the latest health snapshot, or nil before the first.
@@ -151,7 +174,7 @@ func New(o Options) (*Node, error) {
 		return nil, errors.New("node: a source and a store are required")
 	}
 	r := o.withDefaults()
-	n := &Node{o: r, log: r.Logger}
+	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings)}
 	n.Counters.FastLevel.Store(math.Float64bits(math.NaN()))
 	return n, nil
 }
@@ -252,6 +275,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 			continue
 		}
 		opened = true
+		n.openGen.Add(1)
 		backoff = min(time.Second, o.RetryMax)
 		fs = float64(f.SampleRate)
 		if !send(event{kind: evOpened, format: f, arrival: stamp()}) {

@@ -147,13 +147,23 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 				}
 			}
 			watchdog.Reset(o.Watchdog)
+		case st := <-p.n.settings:
+			if err := p.reconfigure(st); err != nil {
+				return err
+			}
 		case <-watchdog.C:
 			watchdog.Reset(o.Watchdog)
 			if open && ctx.Err() == nil && !o.SampleTimed {
 				p.n.log.Warn("no samples from the audio source: closing it to recover", "source", o.Source.Describe(), "waited", o.Watchdog)
 				p.lostWhy = fmt.Sprintf("no samples for %v (watchdog)", o.Watchdog)
-				// Closing makes the blocked Read fail; the capture goroutine then re-opens.
-				go o.Source.Close()
+				// Closing makes the blocked Read fail; the capture goroutine then re-opens. A
+				// Close that comes late must not close the stream opened after it.
+				gen := p.n.openGen.Load()
+				go func() {
+					if p.n.openGen.Load() == gen {
+						o.Source.Close()
+					}
+				}()
 			}
 		}
 	}
@@ -171,6 +181,7 @@ func (p *processor) opened(ev event) error {
 		p.lostAt, p.lostWhy = time.Time{}, ""
 	}
 	fs := float64(ev.format.SampleRate)
+	p.n.sampleRate.Store(int64(ev.format.SampleRate))
 	if p.meter == nil || fs != p.fs {
 		m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands})
 		if err != nil {
@@ -208,6 +219,46 @@ func sameSession(a, b *buffer.Session) bool {
 	return a.SoftwareVersion == b.SoftwareVersion && a.ConfigHash == b.ConfigHash &&
 		a.SensitivityDBFS == b.SensitivityDBFS && a.SampleRate == b.SampleRate &&
 		a.Device == b.Device && a.TimeZone == b.TimeZone
+}
+
+// reconfigure applies settings that change while the node runs.
+func (p *processor) reconfigure(st Settings) error {
+	o := p.o
+	sensChanged := st.SensitivityDBFS != o.SensitivityDBFS
+	if sensChanged && p.meter != nil && p.anchored {
+		// The samples measured so far belong to the old sensitivity.
+		if err := p.closeSecondAt(); err != nil {
+			return err
+		}
+	}
+	o.SensitivityDBFS, o.OverloadLevel, o.UnderRangeLevel = st.SensitivityDBFS, st.OverloadLevel, st.UnderRangeLevel
+	if !sensChanged {
+		return nil
+	}
+	if p.meter != nil {
+		p.meter.SetSensitivity(st.SensitivityDBFS)
+	}
+	p.n.log.Info("microphone sensitivity changed", "sensitivity_dbfs", st.SensitivityDBFS)
+	if p.lastSess == nil {
+		return nil
+	}
+	sess := *p.lastSess
+	sess.At = o.Now().UTC()
+	sess.SensitivityDBFS = st.SensitivityDBFS
+	p.lastSess = &sess
+	cp := sess
+	return p.append(&cp)
+}
+
+// closeSecondAt ends the interval in progress at the current sample, short of its boundary;
+// the next interval runs from here to the boundary.
+func (p *processor) closeSecondAt() error {
+	next := p.nextSecond
+	now := p.clock.Time(p.pos)
+	p.nextSecond = now
+	err := p.closeSecond()
+	p.secStart, p.nextSecond = now, next
+	return err
 }
 
 // lost closes the partial second and remembers when the source went away.

@@ -30,7 +30,7 @@ func runDB(ctx context.Context, std stdio, args []string) error {
 
 // runDBCheck verifies a store (bbolt's page check, every record decodes, the time index and the
 // counters agree) and prints a one-line summary.
-func runDBCheck(_ context.Context, std stdio, args []string) error {
+func runDBCheck(ctx context.Context, std stdio, args []string) error {
 	fl := newFlags("db check", "(--db FILE | --config FILE) [--format table|json]", std.err)
 	sf := addStoreFlags(fl)
 	format := fl.String("format", "table", "output: table (one line) or json")
@@ -44,11 +44,11 @@ func runDBCheck(_ context.Context, std stdio, args []string) error {
 	if err := oneOf("format", *format, "table", "json"); err != nil {
 		return err
 	}
-	st, _, err := sf.openReadOnly()
+	st, _, done, err := sf.open(ctx, std)
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	defer done()
 	checkErr := st.Check()
 	stats, err := st.Stats()
 	if err != nil {

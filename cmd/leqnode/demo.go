@@ -50,7 +50,7 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	err = runNode(ctx, cfg, nil, log, func(o *node.Options) {
 		o.OnSecond = func(s *buffer.Second) { fmt.Fprintln(std.out, liveLine(s)) }
 		o.OnMinute = func(m *buffer.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
-	})
+	}, nil)
 	if err != nil {
 		return err
 	}

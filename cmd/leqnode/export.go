@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"strconv"
 	"strings"
 	"time"
@@ -14,6 +15,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp/reference"
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/control"
 )
 
 // storeFlags are the flags every reading command uses to find its store.
@@ -30,22 +32,14 @@ func addStoreFlags(fl interface {
 	}
 }
 
-// openStoreReadOnly opens the store named by --db or --config read-only, with the 1 s lock
+// openReadOnly opens the store named by --db or --config read-only, with the 1 s lock
 // timeout of a reading command. It also returns the time zone for dates: the configured one with
-// --config, else that of the latest session record, else UTC.
+// --config, else that of the latest session record, else UTC. It does not read through the
+// daemon's control socket: reading commands use open.
 func (f storeFlags) openReadOnly() (*buffer.Store, *time.Location, error) {
-	path, zone := *f.db, ""
-	switch {
-	case *f.db != "" && *f.config != "":
-		return nil, nil, badInput("give either --db FILE or --config FILE, not both")
-	case *f.config != "":
-		cfg, err := config.Load(*f.config)
-		if err != nil {
-			return nil, nil, badInput("%v", err)
-		}
-		path, zone = cfg.Store.Path, cfg.Node.TimeZone
-	case path == "":
-		return nil, nil, badInput("give the store with --db FILE or the node's configuration with --config FILE")
+	path, zone, err := f.target()
+	if err != nil {
+		return nil, nil, err
 	}
 	st, err := buffer.OpenReadOnly(path, time.Second)
 	if err != nil {
@@ -54,18 +48,101 @@ func (f storeFlags) openReadOnly() (*buffer.Store, *time.Location, error) {
 		}
 		return nil, nil, err
 	}
+	return st, zoneOf(st, zone), nil
+}
+
+// target returns the store path and configured zone that the flags name.
+func (f storeFlags) target() (path, zone string, err error) {
+	path = *f.db
+	switch {
+	case *f.db != "" && *f.config != "":
+		return "", "", badInput("give either --db FILE or --config FILE, not both")
+	case *f.config != "":
+		cfg, err := config.Load(*f.config)
+		if err != nil {
+			return "", "", badInput("%v", err)
+		}
+		return cfg.Store.Path, cfg.Node.TimeZone, nil
+	case path == "":
+		return "", "", badInput("give the store with --db FILE or the node's configuration with --config FILE")
+	}
+	return path, "", nil
+}
+
+// zoneOf returns the zone for dates: the configured one, else that of the store's latest
+// session record, else UTC.
+func zoneOf(st *buffer.Store, zone string) *time.Location {
 	if zone == "" {
 		if r, err := st.Last(buffer.KindSession); err == nil && r != nil {
 			zone = r.(*buffer.Session).TimeZone
 		}
 	}
-	loc := time.UTC
 	if zone != "" {
 		if l, err := time.LoadLocation(zone); err == nil {
-			loc = l
+			return l
 		}
 	}
-	return st, loc, nil
+	return time.UTC
+}
+
+// errDoneByDaemon reports that the running daemon carried out the command through its control
+// socket; the command has nothing left to do and succeeded.
+var errDoneByDaemon = errors.New("carried out by the daemon")
+
+// open is openReadOnly for a reading command, with read-through: inside the daemon (a request
+// on its control socket) it lends the daemon's own store; when the daemon holds the file, it
+// sends the whole command to the daemon's control socket, copies the answer to standard output
+// and returns errDoneByDaemon. done releases the store (it never closes the daemon's).
+func (f storeFlags) open(ctx context.Context, std stdio) (st *buffer.Store, loc *time.Location, done func(), err error) {
+	path, zone, err := f.target()
+	if err != nil {
+		return nil, nil, nil, err
+	}
+	if std.daemon != nil {
+		return std.daemon, zoneOf(std.daemon, zone), func() {}, nil
+	}
+	st, err = buffer.OpenReadOnly(path, time.Second)
+	switch {
+	case err == nil:
+		return st, zoneOf(st, zone), func() { st.Close() }, nil
+	case strings.HasPrefix(err.Error(), "no store at"):
+		return nil, nil, nil, badInput("%v", err)
+	case !errors.Is(err, buffer.ErrLocked):
+		return nil, nil, nil, err
+	}
+	sock := f.socket()
+	c := control.NewClient(sock)
+	if !c.Available() {
+		return nil, nil, nil, fmt.Errorf("%w (no daemon answers on the control socket %s: give --config with the node's [control] socket, or set LEQNODE_CONTROL)", err, sock)
+	}
+	rerr := c.Exec(ctx, std.args, std.out)
+	var ee *control.ExecError
+	if errors.As(rerr, &ee) {
+		if ee.Code == 2 {
+			return nil, nil, nil, usageError{errors.New(ee.Message)}
+		}
+		return nil, nil, nil, errors.New(ee.Message)
+	}
+	if rerr != nil {
+		return nil, nil, nil, rerr
+	}
+	return nil, nil, nil, errDoneByDaemon
+}
+
+// socket returns the control socket to try: LEQNODE_CONTROL, the configured one, or the
+// default under systemd's runtime directory.
+func (f storeFlags) socket() string {
+	if p := os.Getenv("LEQNODE_CONTROL"); p != "" {
+		return p
+	}
+	if *f.config != "" {
+		if cfg, err := config.Load(*f.config); err == nil {
+			if p := cfg.Control.Socket; p != "" && p != "none" {
+				return p
+			}
+		}
+	}
+	return control.DefaultPath
 }
 
 // parseWhen parses the value of a time flag: RFC 3339, or a date YYYY-MM-DD meaning its
@@ -104,11 +181,11 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 	if err := oneOf("format", *format, "csv", "jsonl"); err != nil {
 		return err
 	}
-	st, loc, err := sf.openReadOnly()
+	st, loc, done, err := sf.open(ctx, std)
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	defer done()
 	lo, hi := time.Unix(0, 0), time.Date(2200, 1, 1, 0, 0, 0, 0, time.UTC)
 	if *from != "" {
 		if lo, err = parseWhen("from", *from, loc); err != nil {

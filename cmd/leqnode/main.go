@@ -21,6 +21,8 @@ import (
 	"os/signal"
 	"sort"
 	"syscall"
+
+	"github.com/leqnode/leqnode/buffer"
 )
 
 // stdio is what a command reads and writes; tests swap it.
@@ -30,6 +32,12 @@ type stdio struct {
 	err      io.Writer
 	outIsTTY bool
 	errIsTTY bool
+	// args is the whole command line after the program's name, for read-through: a reading
+	// command that finds the store held by the daemon sends it to the daemon's control socket.
+	args []string
+	// daemon, when set, is the store of the daemon this command runs inside (a request on the
+	// control socket): reading commands use it instead of opening the file.
+	daemon *buffer.Store
 }
 
 // command is one subcommand: a thin function over the packages.
@@ -47,6 +55,10 @@ func commands() map[string]command {
 		"db":        {"check a store file and summarise what it holds", runDB},
 		"calibrate": {"find a sound calibrator's tone and derive the microphone sensitivity", runCalibrate},
 		"verify":    {"run the electrical self-tests of the measurement chain", runVerify},
+		"run":       {"run the node: capture, measure, store (and publish)", runRun},
+		"demo":      {"run the node on the synthetic street scene, no microphone needed", runDemo},
+		"config":    {"check a configuration file: config check FILE", runConfig},
+		"devices":   {"list capture devices and the sample rates they take", runDevices},
 	}
 }
 
@@ -81,6 +93,7 @@ func run(ctx context.Context, io stdio, args []string) int {
 		}
 		return 0
 	}
+	io.args = args
 	c, ok := cmds[args[0]]
 	if !ok {
 		fmt.Fprintf(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
@@ -90,7 +103,7 @@ func run(ctx context.Context, io stdio, args []string) int {
 	switch {
 	case err == nil:
 		return 0
-	case errors.Is(err, errHelpShown):
+	case errors.Is(err, errHelpShown), errors.Is(err, errDoneByDaemon):
 		return 0
 	default:
 		fmt.Fprintf(io.err, "leqnode %s: %v\n", args[0], err)

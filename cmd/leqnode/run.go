@@ -7,7 +7,14 @@ import (
 	"io"
 	"log/slog"
 	"os"
+	"os/signal"
+	"os/user"
+	"reflect"
 	"runtime/debug"
+	"strconv"
+	"strings"
+	"sync"
+	"syscall"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
@@ -15,6 +22,7 @@ import (
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/control"
 )
 
 // softwareVersion returns the module version and VCS revision the binary was built from.
@@ -106,12 +114,25 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 		level = slog.LevelDebug
 	}
 	log := newLogger(std.err, std.errIsTTY, level).With("node", cfg.Node.ID)
-	return runNode(ctx, cfg, std.in, log, nil)
+	hup := make(chan os.Signal, 1)
+	signal.Notify(hup, syscall.SIGHUP)
+	defer signal.Stop(hup)
+	return runNode(ctx, cfg, std.in, log, nil, func(n *node.Node) {
+		for {
+			select {
+			case <-ctx.Done():
+				return
+			case <-hup:
+				reload(*cfgPath, cfg, n, log)
+			}
+		}
+	})
 }
 
 // runNode runs a node on cfg until ctx ends (or a finite source ends). hooks, when set,
-// adjusts the options (the demo's live display).
-func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog.Logger, hooks func(*node.Options)) error {
+// adjusts the options (the demo's live display); watch, when set, runs beside the node until
+// it stops (the reload on SIGHUP).
+func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog.Logger, hooks func(*node.Options), watch func(*node.Node)) error {
 	st, err := openStore(cfg, log)
 	if err != nil {
 		return err
@@ -130,7 +151,27 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 		return err
 	}
 	log.Info("node starting", "version", o.Session.SoftwareVersion, "source", src.Describe(), "store", cfg.Store.Path, "store_id", st.ID())
+	ctx, cancel := context.WithCancel(ctx)
+	var bg sync.WaitGroup
+	defer bg.Wait()
+	defer cancel()
+	if path := cfg.ControlSocket(); path != "" {
+		srv, err := startControl(cfg, path, n, st, log)
+		if err != nil {
+			return err
+		}
+		bg.Go(func() {
+			if err := srv.Serve(ctx); err != nil {
+				log.Error("control socket stopped", "err", err)
+			}
+		})
+		log.Info("control socket listening", "path", path)
+	}
+	if watch != nil {
+		bg.Go(func() { watch(n) })
+	}
 	err = n.Run(ctx)
+	cancel()
 	if errors.Is(err, context.Canceled) {
 		err = nil
 	}
@@ -139,4 +180,89 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 	}
 	log.Info("node stopped", "seconds", n.Counters.Seconds.Load(), "minutes", n.Counters.Minutes.Load(), "gaps", n.Counters.Gaps.Load(), "dropped_samples", n.Counters.DroppedSamples.Load())
 	return err
+}
+
+// startControl opens the control socket of a running node.
+func startControl(cfg *config.Config, path string, n *node.Node, st *buffer.Store, log *slog.Logger) (*control.Server, error) {
+	gid := -1
+	if cfg.Control.Group != "" {
+		g, err := user.LookupGroup(cfg.Control.Group)
+		if err != nil {
+			return nil, usageError{fmt.Errorf("control.group %q: no such group: create it or leave the key empty", cfg.Control.Group)}
+		}
+		gid, _ = strconv.Atoi(g.Gid)
+	}
+	status := func() any {
+		return map[string]any{
+			"node": cfg.Node.ID, "site": cfg.Node.Site, "version": softwareVersion(),
+			"store":  map[string]any{"id": st.ID(), "path": cfg.Store.Path},
+			"status": n.Status(),
+		}
+	}
+	h := control.Handlers{
+		Status: status,
+		Live: func() any {
+			return map[string]any{"at": time.Now().UTC(), "LAF": n.Status().LAF}
+		},
+		Health: func() any {
+			if h := n.Health(); h != nil {
+				return node.HealthJSON(h)
+			}
+			return map[string]any{}
+		},
+		// Reading commands run here, against the store this daemon holds.
+		Exec: func(ctx context.Context, args []string, stdout io.Writer) (bool, error) {
+			var errb strings.Builder
+			code := run(ctx, stdio{in: strings.NewReader(""), out: stdout, err: &errb, daemon: st}, args)
+			if code == 0 {
+				return false, nil
+			}
+			msg := strings.TrimSpace(errb.String())
+			if i := strings.LastIndex(msg, "\n"); i >= 0 {
+				msg = msg[i+1:]
+			}
+			msg = strings.TrimPrefix(msg, "leqnode "+args[0]+": ")
+			return code == 2, errors.New(msg)
+		},
+	}
+	return control.Listen(path, gid, h, log)
+}
+
+// reload re-reads the configuration on SIGHUP: the microphone settings apply at once; every
+// other change is named as needing a restart. A file with problems changes nothing.
+func reload(path string, cur *config.Config, n *node.Node, log *slog.Logger) {
+	next, err := config.Load(path)
+	if err != nil {
+		log.Error("reload: the configuration has problems; nothing changed", "err", strings.ReplaceAll(err.Error(), "\n", "; "))
+		return
+	}
+	var restart []string
+	for _, c := range []struct {
+		name string
+		a, b any
+	}{
+		{"node", cur.Node, next.Node}, {"capture", cur.Capture, next.Capture},
+		{"measure", cur.Measure, next.Measure}, {"store", cur.Store, next.Store},
+		{"control", cur.Control, next.Control},
+	} {
+		if !reflect.DeepEqual(c.a, c.b) {
+			restart = append(restart, "["+c.name+"]")
+		}
+	}
+	if next.Microphone != cur.Microphone {
+		m := next.Microphone
+		st := node.Settings{SensitivityDBFS: m.SensitivityDBFS, OverloadLevel: m.OverloadDB}
+		if m.SelfNoiseDBA > 0 {
+			st.UnderRangeLevel = m.SelfNoiseDBA + m.UnderRangeMarginDB
+		}
+		if n.Reconfigure(st) {
+			cur.Microphone = m
+			log.Info("reload: microphone settings applied", "sensitivity_dbfs", m.SensitivityDBFS)
+		}
+	}
+	if len(restart) > 0 {
+		log.Warn("reload: these sections changed and need a restart to apply: "+strings.Join(restart, " "), "apply", "systemctl restart leqnode")
+	} else {
+		log.Info("reload: done")
+	}
 }

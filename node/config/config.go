@@ -36,6 +36,18 @@ type Config struct {
 	Capture    capture.Config `toml:"capture"`
 	Measure    Measure        `toml:"measure"`
 	Store      Store          `toml:"store"`
+	Control    Control        `toml:"control"`
+}
+
+// Control sets up the daemon's control socket, through which local commands read the store
+// the daemon holds and ask for status and calibration checks.
+type Control struct {
+	// Socket is the path of the Unix socket. Empty means $RUNTIME_DIRECTORY/control.sock when
+	// systemd provides a runtime directory, else no socket. "none" turns it off.
+	Socket string `toml:"socket"`
+	// Group names the group whose members may use the socket (besides root and the daemon's
+	// user). Empty means the daemon's own group.
+	Group string `toml:"group"`
 }
 
 // Node identifies the node.
@@ -219,6 +231,9 @@ func (c *Config) Validate() []error {
 	if d, err := time.ParseDuration(c.Store.CommitInterval); err != nil || d < time.Second || d > time.Minute {
 		bad("store.commit_interval", fmt.Sprintf("%q", c.Store.CommitInterval), `allowed "1s" to "60s" (the worst-case loss on a power cut)`)
 	}
+	if c.Control.Socket != "" && c.Control.Socket != "none" && !strings.HasPrefix(c.Control.Socket, "/") {
+		bad("control.socket", fmt.Sprintf("%q", c.Control.Socket), `give an absolute path, "none", or leave it empty`)
+	}
 	if c.Store.MaxMB < 0 || c.Store.MaxMB > 1<<20 {
 		bad("store.max_mb", c.Store.MaxMB, "allowed 0 (default) to 1048576")
 	}
@@ -246,6 +261,20 @@ func (c *Config) SampleTimed() bool {
 		return false
 	}
 	return (c.Capture.Kind == capture.KindFile || c.Capture.Kind == capture.KindSynthetic) && !c.Capture.Realtime
+}
+
+// ControlSocket returns the control socket's path, or "" for none.
+func (c *Config) ControlSocket() string {
+	switch c.Control.Socket {
+	case "none":
+		return ""
+	case "":
+		if d := os.Getenv("RUNTIME_DIRECTORY"); d != "" {
+			return strings.Split(d, ":")[0] + "/control.sock"
+		}
+		return ""
+	}
+	return c.Control.Socket
 }
 
 // CommitInterval returns the parsed commit interval.
