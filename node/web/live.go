@@ -1,0 +1,98 @@
+package web
+
+import (
+	"bytes"
+	"encoding/json"
+	"net/http"
+	"strconv"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+)
+
+// liveJSON is the data of a "level" event.
+type liveJSON struct {
+	Time string `json:"time"`
+	LAF  level  `json:"LAF"`
+}
+
+// apiLive streams server-sent events until the client leaves or the server stops:
+//
+//	event: level    data: {"time": ..., "LAF": dB or null}, every LiveInterval
+//	event: second   data: one second record as in /api/seconds, when a new one is stored
+//
+// Each write has a deadline of ten intervals (at least 5 s), so a client that stops reading
+// frees its slot.
+func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
+	select {
+	case s.live <- struct{}{}:
+		defer func() { <-s.live }()
+	default:
+		w.Header().Set("Retry-After", "5")
+		writeError(w, http.StatusServiceUnavailable, "too many live pages open at once: close one, or raise the live client limit")
+		return
+	}
+	h := w.Header()
+	h.Set("Content-Type", "text/event-stream")
+	h.Set("Cache-Control", "no-store")
+	h.Set("X-Accel-Buffering", "no") // a buffering proxy in front would hold the events back
+	if r.Method == http.MethodHead {
+		w.WriteHeader(http.StatusOK)
+		return
+	}
+	rc := http.NewResponseController(w)
+	timeout := max(5*time.Second, 10*s.o.LiveInterval)
+	var buf bytes.Buffer
+	send := func() bool {
+		rc.SetWriteDeadline(time.Now().Add(timeout))
+		_, err := w.Write(buf.Bytes())
+		if err == nil {
+			err = rc.Flush()
+		}
+		buf.Reset()
+		return err == nil
+	}
+	event := func(name string, v any) {
+		b, err := json.Marshal(v)
+		if err != nil {
+			return
+		}
+		buf.WriteString("event: ")
+		buf.WriteString(name)
+		buf.WriteString("\ndata: ")
+		buf.Write(b)
+		buf.WriteString("\n\n")
+	}
+	buf.WriteString("retry: 2000\n\n")
+	var lastSeq uint64
+	if s.o.Store != nil {
+		lastSeq = s.o.Store.LastSeq(buffer.KindSecond)
+	}
+	tick := time.NewTicker(s.o.LiveInterval)
+	defer tick.Stop()
+	for {
+		if s.o.Live != nil {
+			l := s.o.Live()
+			event("level", liveJSON{Time: stamp(l.At), LAF: level(l.LAF)})
+		}
+		if s.o.Store != nil {
+			if seq := s.o.Store.LastSeq(buffer.KindSecond); seq != lastSeq {
+				lastSeq = seq
+				if rec, err := s.o.Store.Last(buffer.KindSecond); err == nil && rec != nil {
+					event("second", secondOf(rec.(*buffer.Second)))
+				}
+			}
+		}
+		if buf.Len() == 0 {
+			buf.WriteString(": " + strconv.FormatInt(time.Now().Unix(), 10) + "\n\n") // keep-alive comment
+		}
+		if !send() {
+			return
+		}
+		select {
+		case <-r.Context().Done():
+			return
+		case <-tick.C:
+		}
+	}
+}
