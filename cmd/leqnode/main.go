@@ -53,6 +53,7 @@ func commands() map[string]command {
 		"analyze":   {"measure a WAV recording with the node's own chain", runAnalyze},
 		"export":    {"write stored records of one kind as CSV or JSON lines", runExport},
 		"db":        {"check a store file and summarise what it holds", runDB},
+		"report":    {"write an HTML report and CSV files of regulatory indicators for a range", runReport},
 		"calibrate": {"find a sound calibrator's tone and derive the microphone sensitivity", runCalibrate},
 		"verify":    {"run the electrical self-tests of the measurement chain", runVerify},
 		"run":       {"run the node: capture, measure, store (and publish)", runRun},

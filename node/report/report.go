@@ -1,0 +1,103 @@
+// Package report turns a store's records into regulatory indicators and a report: a
+// self-contained HTML page with plots (gonum.org/v1/plot, embedded as data URIs), and CSV files
+// of the daily and hourly indicators.
+//
+// # Model
+//
+// Compute reads the records of a range from a buffer.Store (second, minute, event, gap and
+// calibration records, in short read transactions through Store.Range) into an
+// indicator.Builder and returns its Result. The computation itself lives in the pure
+// sub-package indicator; this package does the reading and the writing.
+//
+// ClosedPeriod computes the indicators of the period that closed last, for publishing when a
+// period ends. Write renders a Result into a directory.
+//
+// Every report carries its cautions: leqnode's numbers are indicative unless the whole chain (a
+// type-approved class 1 instrument with traceable calibration) is verified, and local rules and
+// accredited practice prevail.
+package report
+
+import (
+	"context"
+	"fmt"
+	"time"
+
+	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/configs/profiles"
+	"github.com/leqnode/leqnode/node/report/indicator"
+)
+
+// Config selects what a report covers.
+type Config struct {
+	Profile  *profiles.Profile
+	Zone     *profiles.Zone // nil: no limits
+	Location *time.Location // the node's time zone; nil means UTC
+	From, To time.Time      // [From, To)
+	Options  indicator.Options
+}
+
+// Compute reads the records of [cfg.From, cfg.To) from st and computes the indicators.
+func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Result, error) {
+	if cfg.Profile == nil {
+		return nil, fmt.Errorf("report: no profile given")
+	}
+	if !cfg.From.Before(cfg.To) {
+		return nil, fmt.Errorf("report: range start %s is not before its end %s", cfg.From.Format(time.RFC3339), cfg.To.Format(time.RFC3339))
+	}
+	loc := cfg.Location
+	if loc == nil {
+		loc = time.UTC
+	}
+	b := indicator.NewBuilder(cfg.Profile, cfg.Zone, loc, cfg.From, cfg.To, cfg.Options)
+	var n int
+	check := func() error {
+		n++
+		if n&4095 == 0 {
+			return ctx.Err()
+		}
+		return nil
+	}
+	steps := []struct {
+		kind     buffer.Kind
+		from, to time.Time
+		add      func(buffer.Record)
+	}{
+		{buffer.KindSecond, cfg.From, cfg.To, func(r buffer.Record) { b.AddSecond(r.(*buffer.Second)) }},
+		{buffer.KindMinute, cfg.From, cfg.To, func(r buffer.Record) { b.AddMinute(r.(*buffer.Minute)) }},
+		{buffer.KindEvent, cfg.From, cfg.To, func(r buffer.Record) { b.AddEvent(r.(*buffer.Event)) }},
+		// A gap that began before the range may reach into it: read gaps from the start.
+		{buffer.KindGap, time.Unix(0, 0), cfg.To, func(r buffer.Record) { b.AddGap(r.(*buffer.Gap)) }},
+		{buffer.KindCalibration, cfg.From, cfg.To, func(r buffer.Record) { b.AddCalibration(r.(*buffer.Calibration)) }},
+	}
+	for _, s := range steps {
+		err := st.Range(s.kind, s.from, s.to, func(r buffer.Record) error {
+			s.add(r)
+			return check()
+		})
+		if err != nil {
+			return nil, fmt.Errorf("report: reading %s records: %w", s.kind, err)
+		}
+	}
+	return b.Result(), nil
+}
+
+// ClosedPeriod computes the indicators of the latest period of prof that ended at or before
+// now, for publishing when a period closes: the caller calls it once the period's last
+// records are stored (say a minute after the boundary). It returns the period's indicators and
+// its interval.
+func ClosedPeriod(ctx context.Context, st *buffer.Store, prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, now time.Time, opt indicator.Options) (*indicator.Period, profiles.Interval, error) {
+	if loc == nil {
+		loc = time.UTC
+	}
+	iv := prof.LastClosed(now, loc)
+	r, err := Compute(ctx, st, Config{Profile: prof, Zone: zone, Location: loc, From: iv.From, To: iv.To, Options: opt})
+	if err != nil {
+		return nil, iv, err
+	}
+	for i := range r.Periods {
+		if r.Periods[i].From.Equal(iv.From) {
+			return &r.Periods[i], iv, nil
+		}
+	}
+	return nil, iv, fmt.Errorf("report: period %s to %s not found", iv.From.Format(time.RFC3339), iv.To.Format(time.RFC3339))
+}
