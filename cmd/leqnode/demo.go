@@ -13,6 +13,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/publish"
 )
 
 func runDemo(ctx context.Context, std stdio, args []string) error {
@@ -20,6 +21,7 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	dur := fl.Duration("duration", 65*time.Second, "how long to run (0: until interrupted)")
 	fast := fl.Bool("fast", false, "run the synthetic scene as fast as the processor allows instead of in real time")
 	dir := fl.String("dir", "", "directory for the demo's store (default: a new temporary directory, kept)")
+	noBroker := fl.Bool("no-broker", false, "do not start the in-process MQTT broker (publish nothing)")
 	pos, err := parseFlags(fl, args)
 	if err != nil {
 		return err
@@ -42,6 +44,16 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, *dur)
 		defer cancel()
+	}
+	if !*noBroker {
+		url, stop, err := publish.StartLocalBroker(ctx, "127.0.0.1:0")
+		if err != nil {
+			return err
+		}
+		defer stop()
+		cfg.Publish.Brokers = []string{url}
+		host, port, _ := strings.Cut(strings.TrimPrefix(url, "tcp://"), ":")
+		fmt.Fprintf(std.out, "MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
 	}
 	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
 	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)

@@ -23,6 +23,7 @@ import (
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
+	"github.com/leqnode/leqnode/node/publish"
 )
 
 // softwareVersion returns the module version and VCS revision the binary was built from.
@@ -143,6 +144,17 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 		return usageError{fmt.Errorf("capture: %w", err)}
 	}
 	o := nodeOptions(cfg, src, st, log)
+	var pub *publish.Publisher
+	if len(cfg.Publish.Brokers) > 0 {
+		id := publish.Identity{NodeID: cfg.Node.ID, Site: cfg.Node.Site, SoftwareVersion: o.Session.SoftwareVersion}
+		if lat, lon, ok := cfg.Location(); ok {
+			id.Location = &publish.Location{Latitude: lat, Longitude: lon}
+		}
+		if pub, err = publish.New(cfg.Publish, st, id, log); err != nil {
+			return usageError{err}
+		}
+		o.Notify = pub.Notify
+	}
 	if hooks != nil {
 		hooks(&o)
 	}
@@ -169,6 +181,23 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 	}
 	if watch != nil {
 		bg.Go(func() { watch(n) })
+	}
+	if pub != nil {
+		bg.Go(func() {
+			if err := pub.Run(ctx); err != nil && ctx.Err() == nil {
+				log.Error("publisher stopped", "err", err)
+			}
+		})
+		bg.Go(func() {
+			for {
+				select {
+				case <-ctx.Done():
+					return
+				case r := <-pub.Requests():
+					log.Info("remote request received; this node cannot act on it yet", "action", r.Action, "id", r.ID)
+				}
+			}
+		})
 	}
 	err = n.Run(ctx)
 	cancel()

@@ -22,6 +22,7 @@ import (
 	"github.com/pelletier/go-toml/v2"
 
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/publish"
 )
 
 // Version is the configuration format this release reads and writes.
@@ -37,6 +38,8 @@ type Config struct {
 	Measure    Measure        `toml:"measure"`
 	Store      Store          `toml:"store"`
 	Control    Control        `toml:"control"`
+	// Publish sets up MQTT publishing; with no brokers listed the node publishes nothing.
+	Publish publish.Config `toml:"publish"`
 }
 
 // Control sets up the daemon's control socket, through which local commands read the store
@@ -234,6 +237,9 @@ func (c *Config) Validate() []error {
 	if c.Control.Socket != "" && c.Control.Socket != "none" && !strings.HasPrefix(c.Control.Socket, "/") {
 		bad("control.socket", fmt.Sprintf("%q", c.Control.Socket), `give an absolute path, "none", or leave it empty`)
 	}
+	if len(c.Publish.Brokers) > 0 {
+		errs = append(errs, c.Publish.Validate()...) // each names its publish.* key
+	}
 	if c.Store.MaxMB < 0 || c.Store.MaxMB > 1<<20 {
 		bad("store.max_mb", c.Store.MaxMB, "allowed 0 (default) to 1048576")
 	}
@@ -261,6 +267,15 @@ func (c *Config) SampleTimed() bool {
 		return false
 	}
 	return (c.Capture.Kind == capture.KindFile || c.Capture.Kind == capture.KindSynthetic) && !c.Capture.Realtime
+}
+
+// Location returns the node's position rounded to LocationDecimals, or nil when none is set.
+func (c *Config) Location() (lat, lon float64, ok bool) {
+	if c.Node.Latitude == 0 && c.Node.Longitude == 0 {
+		return 0, 0, false
+	}
+	p := math.Pow(10, float64(c.Node.LocationDecimals))
+	return math.Round(c.Node.Latitude*p) / p, math.Round(c.Node.Longitude*p) / p, true
 }
 
 // ControlSocket returns the control socket's path, or "" for none.
