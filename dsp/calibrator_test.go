@@ -332,3 +332,35 @@ func BenchmarkCalibratorDetector(b *testing.B) {
 	}
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/float64(len(x)), "ns/sample")
 }
+
+// FuzzCalibratorDetector: any samples (16-bit values, 8 kHz, 1 s minimum) give detections
+// that keep the detector's promises, and never a panic.
+func FuzzCalibratorDetector(f *testing.F) {
+	tone := calSignal{fs: 8000, freq: 1000, levelDBFS: -10, lead: 0.2, fade: 0.3, hold: 1.6, tail: 0.2, belowDB: 30, seed: 1}.render()
+	seed := make([]byte, 0, 2*len(tone))
+	for _, v := range tone {
+		s := int16(v * 32767)
+		seed = append(seed, byte(s), byte(s>>8))
+	}
+	f.Add(seed)
+	f.Add([]byte{0, 0, 1, 0})
+	f.Fuzz(func(t *testing.T, data []byte) {
+		x := make([]float32, len(data)/2)
+		for i := range x {
+			x[i] = float32(int16(uint16(data[2*i])|uint16(data[2*i+1])<<8)) / 32768
+		}
+		d, err := NewCalibratorDetector(CalibratorConfig{SampleRate: 8000, MinStable: 1})
+		if err != nil {
+			t.Fatal(err)
+		}
+		check := func(det Detection) {
+			if !(det.Start < det.End && det.End <= int64(len(x)) && det.ToneStart <= det.Start) ||
+				math.Abs(det.FrequencyHz-1000) > 20 || det.StabilityDB > 0.1 || det.DominanceDB < 20 ||
+				math.IsNaN(det.LevelDBFS) || det.Stable < 1 {
+				t.Fatalf("detection breaks a promise: %+v", det)
+			}
+		}
+		d.Process(x, check)
+		d.Flush(check)
+	})
+}
