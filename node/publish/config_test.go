@@ -136,7 +136,7 @@ func TestBackoff(t *testing.T) {
 
 func TestBucket(t *testing.T) {
 	now := time.Unix(0, 0)
-	b := newBucket(10, now)
+	b := newBucket(100, now) // a tenth of a second saved: 10 tokens
 	for range 10 {
 		if ok, _ := b.ready(now, 1); !ok {
 			t.Fatal("a full bucket refuses")
@@ -144,11 +144,15 @@ func TestBucket(t *testing.T) {
 		b.take(now, 1)
 	}
 	ok, wait := b.ready(now, 1)
-	if ok || wait != 100*time.Millisecond {
-		t.Fatalf("empty bucket: ready %v wait %s, want false 100ms", ok, wait)
+	if ok || wait != 10*time.Millisecond {
+		t.Fatalf("empty bucket: ready %v wait %s, want false 10ms", ok, wait)
 	}
-	if ok, _ := b.ready(now.Add(100*time.Millisecond), 1); !ok {
+	if ok, _ := b.ready(now.Add(10*time.Millisecond), 1); !ok {
 		t.Fatal("refilled bucket refuses")
+	}
+	b.take(now.Add(10*time.Millisecond), 5000) // a large message puts it in debt
+	if ok, wait := b.ready(now.Add(10*time.Millisecond), 1); ok || wait < 49*time.Second {
+		t.Fatalf("in debt: ready %v wait %s", ok, wait)
 	}
 	free := newBucket(-1, now)
 	if ok, _ := free.ready(now, 1e9); !ok {

@@ -2,22 +2,25 @@ package publish
 
 import "time"
 
-// bucket is a token bucket: rate tokens a second, at most one second's worth saved. A rate of
-// zero or less means no limit. Taking may leave it in debt, so a large message is never stuck.
+// bucket is a token bucket: rate tokens a second, at most a tenth of a second's worth (and at
+// least one) saved, so a backlog starts without a burst. A rate of zero or less means no limit.
+// Taking may leave it in debt, so a large message is never stuck.
 type bucket struct {
 	rate, tokens float64
 	last         time.Time
 }
 
 func newBucket(rate float64, now time.Time) bucket {
-	return bucket{rate: rate, tokens: max(rate, 1), last: now}
+	return bucket{rate: rate, tokens: burst(rate), last: now}
 }
+
+func burst(rate float64) float64 { return max(rate/10, 1) }
 
 func (b *bucket) refill(now time.Time) {
 	if b.rate <= 0 {
 		return
 	}
-	b.tokens = min(max(b.rate, 1), b.tokens+b.rate*now.Sub(b.last).Seconds())
+	b.tokens = min(burst(b.rate), b.tokens+b.rate*now.Sub(b.last).Seconds())
 	b.last = now
 }
 
@@ -27,7 +30,7 @@ func (b *bucket) ready(now time.Time, n float64) (bool, time.Duration) {
 		return true, 0
 	}
 	b.refill(now)
-	n = min(n, max(b.rate, 1))
+	n = min(n, burst(b.rate))
 	if b.tokens >= n {
 		return true, 0
 	}

@@ -2,11 +2,13 @@ package publish
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"os"
 	"os/exec"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"syscall"
 	"testing"
 	"time"
@@ -132,6 +134,12 @@ func TestCrashDuringBackfill(t *testing.T) {
 		t.Fatal(err)
 	}
 	_ = first.Wait()
+	// The broker publishes the node's last will: the retained status turns "offline".
+	col.waitFor(10*time.Second, "the last will", func(msgs []received) bool {
+		return len(msgs) > 0 && statusState(msgs) == "offline"
+	})
+	late := newCollector(t, m.url("tcp"), "millbrook/elm-3/status", nil)
+	late.waitFor(10*time.Second, "the retained status", func(msgs []received) bool { return statusState(msgs) == "offline" })
 	got, _ := countSeqs(t, col.snapshot())
 	if got.complete("second", nSec) {
 		t.Fatalf("the backlog was complete before the kill: the test proves nothing")
@@ -190,4 +198,18 @@ func signalContext() (context.Context, context.CancelFunc) {
 		}
 	}()
 	return ctx, cancel
+}
+
+// statusState returns the state of the last status message in msgs ("" if none).
+func statusState(msgs []received) string {
+	state := ""
+	for _, m := range msgs {
+		if strings.HasSuffix(m.topic, "/status") {
+			var st struct{ State string }
+			if json.Unmarshal(m.payload, &st) == nil {
+				state = st.State
+			}
+		}
+	}
+	return state
 }
