@@ -252,7 +252,7 @@ func Parse(data []byte, name, where string) (*Profile, error) {
 		var de *toml.DecodeError
 		if errors.As(err, &de) {
 			row, _ := de.Position()
-			msg := de.Error()
+			msg := strings.TrimPrefix(de.Error(), "toml: ")
 			if k := de.Key(); len(k) > 0 {
 				msg = fmt.Sprintf("key %q: %s", strings.Join(k, "."), msg)
 			}
