@@ -114,7 +114,8 @@ type Detection struct {
 //
 // The samples pass the DC blocker of DCBlockSections and are cut into blocks of
 // CalibratorBlock (0.25 s), counted from the first sample, so that results never depend on how
-// the caller cuts its input. For each block the detector computes
+// the caller cuts its input. For each block in which a second-order band-pass at 1 kHz (Q =
+// 4.33, the one-third-octave width) passes at least half the energy, the detector computes
 //
 //   - the block's mean square, whose level is the block level;
 //   - the power spectrum of the block's last 2^k samples (the largest power of two that fits)
@@ -140,8 +141,9 @@ type Detection struct {
 // A stretch is reported when it ends (a block that is not tonal or breaks the spread), when it
 // reaches MaxStable, or at Flush; stretches shorter than MinStable are dropped.
 //
-// Cost: one FFT of 8192 points and one complex multiply-add per sample every 0.25 s at 48 kHz,
-// a small fraction of a Meter's work. Process allocates nothing. A CalibratorDetector is not
+// Cost: a DC blocker and a 1 kHz band-pass per sample; only a block in which the band-pass
+// output holds at least half the energy (as it must when the tone dominates) gets the FFT
+// (8192 points at 48 kHz) and, when tonal, the complex amplitude. Process allocates nothing. A CalibratorDetector is not
 // safe for concurrent use.
 type CalibratorDetector struct {
 	cfg      CalibratorConfig
@@ -151,6 +153,9 @@ type CalibratorDetector struct {
 
 	dc     *Cascade
 	buf    []float64 // the block being filled, DC-blocked
+	gate   *Cascade  // band-pass around 1 kHz: the cheap test that spares most FFTs
+	gbuf   []float64 // scratch for the band-pass
+	gsum   float64   // energy of the band-pass output over the block so far
 	fill   int
 	pos    int64 // samples fed since construction or Reset
 	fft    *fourier.FFT
@@ -215,6 +220,8 @@ func NewCalibratorDetector(cfg CalibratorConfig) (*CalibratorDetector, error) {
 		d.nfft *= 2
 	}
 	d.buf = make([]float64, d.blockLen)
+	d.gbuf = make([]float64, d.blockLen)
+	d.gate = NewCascade(bandPassSection(CalibratorFrequency, 1/reference.ReferenceBandwidth(3), fs))
 	d.fft = fourier.NewFFT(d.nfft)
 	d.window = make([]float64, d.nfft)
 	for i := range d.window {
@@ -256,7 +263,8 @@ func (d *CalibratorDetector) SampleRate() float64 { return d.fs }
 // are dropped.
 func (d *CalibratorDetector) Reset() {
 	d.dc.Reset()
-	d.fill = 0
+	d.gate.Reset()
+	d.fill, d.gsum = 0, 0
 	d.pos = 0
 	d.toneStart = -1
 	d.run = stretch{}
@@ -282,12 +290,18 @@ func (d *CalibratorDetector) Process(x []float32, found func(Detection)) {
 			b[i] = float64(v)
 		}
 		d.dc.Process(b)
+		g := d.gbuf[:n]
+		copy(g, b)
+		d.gate.Process(g)
+		for _, v := range g {
+			d.gsum += v * v
+		}
 		d.fill += n
 		d.pos += int64(n)
 		x = x[n:]
 		if d.fill == d.blockLen {
 			d.block(found)
-			d.fill = 0
+			d.fill, d.gsum = 0, 0
 		}
 	}
 }
@@ -308,7 +322,10 @@ func (d *CalibratorDetector) block(found func(Detection)) {
 		sumSq += v * v
 	}
 	tonal, fc, dom := false, 0.0, 0.0
-	if sumSq > 0 {
+	// A tone whose band is DominanceDB above each of the other bands carries most of the
+	// block's energy, so the 1 kHz band-pass (second order, wider than the band) passes at
+	// least half of it; blocks that fail this skip the spectrum.
+	if sumSq > 0 && d.gsum >= 0.5*sumSq {
 		fc, dom, tonal = d.spectrum()
 	}
 	if !tonal {
@@ -444,6 +461,16 @@ func (d *CalibratorDetector) finish(found func(Detection)) {
 	if found != nil {
 		found(det)
 	}
+}
+
+// bandPassSection returns a second-order band-pass of 0 dB peak gain at f0 with quality factor
+// q (the audio-EQ cookbook formulas).
+func bandPassSection(f0, q, fs float64) Section {
+	w := 2 * math.Pi * f0 / fs
+	sn, cs := math.Sincos(w)
+	alpha := sn / (2 * q)
+	a0 := 1 + alpha
+	return Section{B0: alpha / a0, B2: -alpha / a0, A1: -2 * cs / a0, A2: (1 - alpha) / a0}
 }
 
 // CalibratorClass is a performance class of sound calibrators in IEC 60942:2017: ClassLS
