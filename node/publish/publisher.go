@@ -49,18 +49,18 @@ type Request struct {
 
 // Status is a snapshot of the publisher. It never holds credentials.
 type Status struct {
-	Connected   bool
-	Broker      string    // the broker in use or last tried (URL without user information)
-	Since       time.Time // when the current connection was made or lost
-	Attempts    int       // failed connection attempts since the last success
-	LastError   string    // the last connection or store error ("" when none yet)
-	LastErrorAt time.Time
-	Backlog     bool              // records stored during an outage are still being sent
-	Pending     map[string]uint64 // per kind: stored records the broker has not acknowledged
-	InFlight    int               // messages published and not yet acknowledged
-	Messages    uint64            // messages acknowledged by the broker since New
-	Bytes       uint64            // payload bytes of those messages
-	LastPublish time.Time         // when the broker last acknowledged a message
+	Connected   bool              `json:"connected"`
+	Broker      string            `json:"broker"`        // the broker in use or last tried (URL without user information)
+	Since       time.Time         `json:"since"`         // when the current connection was made or lost
+	Attempts    int               `json:"attempts"`      // failed connection attempts since the last success
+	LastError   string            `json:"last_error"`    // the last connection or store error ("" when none yet)
+	LastErrorAt time.Time         `json:"last_error_at"` // when it happened
+	Backlog     bool              `json:"backlog"`       // records stored during an outage are still being sent
+	Pending     map[string]uint64 `json:"pending"`       // per kind: stored records the broker has not acknowledged
+	InFlight    int               `json:"in_flight"`     // messages published and not yet acknowledged
+	Messages    uint64            `json:"messages"`      // messages acknowledged by the broker since New
+	Bytes       uint64            `json:"bytes"`         // payload bytes of those messages
+	LastPublish time.Time         `json:"last_publish"`  // when the broker last acknowledged a message
 }
 
 // Publisher delivers the store's records to an MQTT broker. Create one with New and call Run;
