@@ -339,7 +339,7 @@ func bankHalfBand(l int, beta float64) []float64 {
 	sum := 0.0
 	for j := 1; j <= m; j += 2 {
 		r := float64(j) / float64(m)
-		w := bankBesselI0(beta*math.Sqrt(1-r*r)) / bankBesselI0(beta)
+		w := besselI0(beta*math.Sqrt(1-r*r)) / besselI0(beta)
 		h := math.Sin(math.Pi*float64(j)/2) / (math.Pi * float64(j)) * w
 		odd = append(odd, h)
 		sum += h
@@ -348,21 +348,6 @@ func bankHalfBand(l int, beta float64) []float64 {
 		odd[i] *= 0.25 / sum
 	}
 	return odd
-}
-
-// bankBesselI0 returns the modified Bessel function of the first kind of order zero,
-// I0(x) = Σ ((x/2)^k / k!)², summed until the terms no longer matter.
-func bankBesselI0(x float64) float64 {
-	sum, term := 1.0, 1.0
-	for k := 1; k < 200; k++ {
-		term *= (x / 2) / float64(k)
-		t := term * term
-		sum += t
-		if t < 1e-17*sum {
-			break
-		}
-	}
-	return sum
 }
 
 // response returns the frequency response of the decimator's filter at f for input rate fs.

@@ -32,25 +32,6 @@ func addStoreFlags(fl interface {
 	}
 }
 
-// openReadOnly opens the store named by --db or --config read-only, with the 1 s lock
-// timeout of a reading command. It also returns the time zone for dates: the configured one with
-// --config, else that of the latest session record, else UTC. It does not read through the
-// daemon's control socket: reading commands use open.
-func (f storeFlags) openReadOnly() (*buffer.Store, *time.Location, error) {
-	path, zone, err := f.target()
-	if err != nil {
-		return nil, nil, err
-	}
-	st, err := buffer.OpenReadOnly(path, time.Second)
-	if err != nil {
-		if strings.HasPrefix(err.Error(), "no store at") {
-			return nil, nil, badInput("%v", err)
-		}
-		return nil, nil, err
-	}
-	return st, zoneOf(st, zone), nil
-}
-
 // target returns the store path and configured zone that the flags name.
 func (f storeFlags) target() (path, zone string, err error) {
 	path = *f.db
@@ -89,7 +70,8 @@ func zoneOf(st *buffer.Store, zone string) *time.Location {
 // socket; the command has nothing left to do and succeeded.
 var errDoneByDaemon = errors.New("carried out by the daemon")
 
-// open is openReadOnly for a reading command, with read-through: inside the daemon (a request
+// open opens the store named by --db or --config read-only for a reading command, with the 1 s
+// lock timeout, and returns the zone for dates (zoneOf). It reads through: inside the daemon (a request
 // on its control socket) it lends the daemon's own store; when the daemon holds the file, it
 // sends the whole command to the daemon's control socket, copies the answer to standard output
 // and returns errDoneByDaemon. done releases the store (it never closes the daemon's).

@@ -49,11 +49,11 @@ func runReport(ctx context.Context, std stdio, args []string) error {
 			return badInput("--zone: %v", err)
 		}
 	}
-	st, loc, err := sf.openReadOnly()
+	st, loc, done, err := sf.open(ctx, std)
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	defer done()
 	lo, err := parseWhen("from", *from, loc)
 	if err != nil {
 		return err
