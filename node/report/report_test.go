@@ -372,7 +372,8 @@ func repoRoot(t *testing.T) string {
 }
 
 // BenchmarkReport computes and renders a report over days of second and minute records from a
-// real bbolt store: LEQNODE_REPORT_DAYS days (default 2; the README figure uses 30).
+// real bbolt store: LEQNODE_REPORT_DAYS days (default 2; the README figure uses 30). With
+// LEQNODE_REPORT_STORE=FILE the store is built there once and reused by later runs.
 func BenchmarkReport(b *testing.B) {
 	days := 2
 	if v := os.Getenv("LEQNODE_REPORT_DAYS"); v != "" {
@@ -382,9 +383,14 @@ func BenchmarkReport(b *testing.B) {
 		}
 		days = n
 	}
-	path := filepath.Join(b.TempDir(), "bench.db")
 	start := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
-	testStore(b, path, start, days)
+	path := os.Getenv("LEQNODE_REPORT_STORE")
+	if path == "" {
+		path = filepath.Join(b.TempDir(), "bench.db")
+	}
+	if _, err := os.Stat(path); err != nil {
+		testStore(b, path, start, days)
+	}
 	prof := loadProfile(b, "eu-lden")
 	out := b.TempDir()
 	b.ResetTimer()

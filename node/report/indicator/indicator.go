@@ -132,6 +132,7 @@ type Builder struct {
 	gaps    []*buffer.Gap
 	cals    []*buffer.Calibration
 	events  []*buffer.Event
+	etab    []float64 // energies of centi-decibel levels, made on first use
 }
 
 // NewBuilder returns a builder for [from, to) (whole minutes; from is rounded down, to up) with
@@ -186,6 +187,26 @@ func (b *Builder) bin(t time.Time) *minuteBin {
 
 func energy(l float64) float64 { return math.Pow(10, l/10) }
 
+// Stored levels have 0.01 dB steps (buffer keeps int16 centi-decibels), so the energies of the
+// levels that occur are tabulated once per Builder: 10^(k/1000) for k = -32768 ... 32767.
+const energySteps = 1 << 16
+
+// energy returns 10^(l/10), from the table when l is a whole number of centi-decibels.
+func (b *Builder) energy(l float64) float64 {
+	c := l * 100
+	k := math.Round(c)
+	if math.Abs(c-k) < 1e-6 && k >= -energySteps/2 && k < energySteps/2 {
+		if b.etab == nil {
+			b.etab = make([]float64, energySteps)
+			for i := range b.etab {
+				b.etab[i] = math.Exp(float64(i-energySteps/2) * (math.Ln10 / 1000))
+			}
+		}
+		return b.etab[int(k)+energySteps/2]
+	}
+	return energy(l)
+}
+
 // AddSecond adds a second record.
 func (b *Builder) AddSecond(s *buffer.Second) {
 	m := b.bin(s.Start)
@@ -203,9 +224,9 @@ func (b *Builder) AddSecond(s *buffer.Second) {
 		m.inv += d
 	default:
 		m.valid += d
-		m.eA += energy(s.LAeq) * d
+		m.eA += b.energy(s.LAeq) * d
 		if !math.IsNaN(s.LCeq) {
-			m.eC += energy(s.LCeq) * d
+			m.eC += b.energy(s.LCeq) * d
 		}
 	}
 }
@@ -228,10 +249,10 @@ func (b *Builder) AddMinute(r *buffer.Minute) {
 		m.mValid = valid
 		m.mInv = 60 - valid
 		if !math.IsNaN(r.LAeq) {
-			m.mA = energy(r.LAeq) * valid
+			m.mA = b.energy(r.LAeq) * valid
 		}
 		if !math.IsNaN(r.LCeq) {
-			m.mC = energy(r.LCeq) * valid
+			m.mC = b.energy(r.LCeq) * valid
 		}
 	}
 	if m.period < 0 || r.Flags&(flagCalibrating|flagSuspect) != 0 {
@@ -249,7 +270,7 @@ func (b *Builder) AddMinute(r *buffer.Minute) {
 	for i, l := range r.Spectrum {
 		k := r.FirstBand + i - bandLo
 		if k >= 0 && k < bandN && !math.IsNaN(l) && !math.IsInf(l, 0) {
-			p.specE[k] += energy(l)
+			p.specE[k] += b.energy(l)
 			p.specN[k]++
 		}
 	}
