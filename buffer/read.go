@@ -524,7 +524,7 @@ func (s *Store) Stats() (Stats, error) {
 	s.mu.Unlock()
 
 	dbs := s.db.Stats()
-	st.WrittenBytes = dbs.TxStats.GetPageAlloc() + int64(s.commits)*int64(s.db.Info().PageSize)
+	st.WrittenBytes = dbs.TxStats.GetPageAlloc() + int64(st.Commits)*int64(s.pageSize)
 	err := s.view(func(tx *bolt.Tx) error {
 		st.UsedBytes = s.usedBytes(tx)
 		for _, k := range Kinds() {

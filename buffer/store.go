@@ -99,6 +99,7 @@ type Store struct {
 	opts     Options
 	readOnly bool
 	closed   bool
+	pageSize int // bbolt's page size, read once at open (DB.Info races with a remap)
 
 	held        []held
 	nextSeq     [KindSession + 1]uint64 // next sequence number to assign
@@ -203,6 +204,7 @@ func (s *Store) open() (err error) {
 		return fmt.Errorf("store %s: %w", s.path, err)
 	}
 	s.db = db
+	s.pageSize = db.Info().PageSize
 	if s.readOnly {
 		err = db.View(s.load)
 	} else {
