@@ -3,6 +3,7 @@ package publish
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"slices"
@@ -219,5 +220,49 @@ func TestSelectedKindsAndQuantities(t *testing.T) {
 	}
 	if st := p.Status(); st.Pending["event"] != 1 || st.Pending["second"] != 0 {
 		t.Errorf("pending %v: want the event kept, the seconds delivered", st.Pending)
+	}
+}
+
+// TestBrokerFailover: a dead first broker is skipped; the publisher settles on the next one.
+func TestBrokerFailover(t *testing.T) {
+	m := startMosquitto(t, brokerOpts{})
+	dead := fmt.Sprintf("tcp://127.0.0.1:%d", freePort(t))
+	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+	defer store.Close()
+	var logs logBuffer
+	p, err := New(Config{Brokers: []string{dead, m.url("tcp")}, ReconnectMaxDelay: Duration(time.Second)}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+	if err != nil {
+		t.Fatal(err)
+	}
+	runPublisher(t, p)
+	waitConnected(t, p)
+	if st := p.Status(); st.Broker != m.url("tcp") || !strings.Contains(st.LastError, dead) {
+		t.Errorf("status %+v: want connected to the second broker after an error naming the first", st)
+	}
+}
+
+// TestAbsorb: sequence numbers with no stored record (removed by retention) and numbers already
+// delivered are passed over, and the cursor moves across them.
+func TestAbsorb(t *testing.T) {
+	var in []buffer.Record
+	for i := range 8 {
+		in = append(in, second(i, false))
+	}
+	recs := stored(t, 0, in) // 1..8
+	l := &lane{kind: buffer.KindSecond}
+	l.done = l.done.add(6, 6) // delivered live in an earlier connection
+	// 2, 3 and 5 were removed by retention; 8 lies past the boundary 7.
+	pos, buf, past := l.absorb(0, 7, []buffer.Record{recs[0], recs[3], recs[5], recs[6], recs[7]}, nil)
+	var got []uint64
+	for _, r := range buf {
+		got = append(got, r.Seq())
+	}
+	if pos != 7 || !past || fmt.Sprint(got) != "[1 4 7]" {
+		t.Fatalf("absorb: pos %d past %v records %v, want 7 true [1 4 7]", pos, past, got)
+	}
+	l.done = l.done.add(1, 1).add(4, 4) // the broker acknowledges 1 and 4
+	acked, rest := l.done.advance(0)
+	if acked != 6 || len(rest) != 0 {
+		t.Errorf("cursor %d rest %v, want 6 (2, 3, 5 removed, 6 delivered before) and nothing left", acked, rest)
 	}
 }

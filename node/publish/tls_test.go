@@ -100,6 +100,24 @@ func TestTLSWithPassword(t *testing.T) {
 		noSecret(t, &logs, p, secret)
 	})
 
+	t.Run("insecure is warned about", func(t *testing.T) {
+		store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+		defer store.Close()
+		var logs logBuffer
+		p, err := New(Config{Brokers: []string{url}, Username: user, PasswordFile: k.pass,
+			TLS: TLSConfig{InsecureSkipVerify: true, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+		if err != nil {
+			t.Fatal(err)
+		}
+		stop := runPublisher(t, p)
+		waitConnected(t, p)
+		stop()
+		if !strings.Contains(logs.String(), "level=WARN") || !strings.Contains(logs.String(), "insecure_skip_verify is set") {
+			t.Errorf("no warning about insecure_skip_verify at start:\n%s", logs.String())
+		}
+		noSecret(t, &logs, p, secret)
+	})
+
 	cases := []struct {
 		name, want string
 		cfg        Config
