@@ -68,6 +68,12 @@ type Options struct {
 	// Health sets up the health checks and snapshots.
 	Health HealthOptions
 
+	// Events, when set, detects noise events and stores an event record for each (start, end,
+	// LAFmax, LAeq, LAE, LCpeak, spectrum). Its SensitivityDBFS is taken from the node's.
+	// Trade-off: the detector runs its own weighting and, with a spectrum, its own band filter
+	// bank beside the meter's, roughly doubling the per-sample cost.
+	Events *dsp.EventConfig
+
 	// Session holds what the node writes in its session records besides the sample rate and
 	// device, which it fills in: software version, config hash, time zone.
 	Session buffer.Session

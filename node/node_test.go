@@ -406,3 +406,39 @@ func TestNodeStartupGap(t *testing.T) {
 }
 
 var _ = errors.New
+
+func TestNodeEvents(t *testing.T) {
+	// A 3 s pass at 80 dB over a 50 dB background, starting 4 s into the stream: one event
+	// record, at the right wall time, with LAFmax 80 dB and SEL = LAeq,T + 10 lg(T / 1 s)
+	// (ISO 1996-1:2016 3.1.8).
+	sig := func(i int64) float32 {
+		t := float64(i) / 48000
+		l := 50.0
+		if t >= 4 && t < 7 {
+			l = 80
+		}
+		return float32(ampFor(l) * math.Sin(2*math.Pi*1000*t))
+	}
+	src := &fakeSource{fs: 48000, signal: sig, total: 12 * 48000, t0: t0}
+	cfg := dsp.DefaultEventConfig(-26)
+	r := newRig(t, src, func(o *Options) { o.Events = &cfg })
+	r.run(t)
+	evs := records[*buffer.Event](t, r.store, buffer.KindEvent)
+	if len(evs) != 1 {
+		t.Fatalf("%d events, want 1: %+v", len(evs), evs)
+	}
+	e := evs[0]
+	if d := e.Start.Sub(t0.Add(4 * time.Second)); d < 0 || d > 300*time.Millisecond {
+		t.Errorf("event starts %v after the pass began", d)
+	}
+	if math.Abs(e.LAFmax-80) > 0.1 {
+		t.Errorf("LAFmax %.2f, want 80", e.LAFmax)
+	}
+	T := e.End.Sub(e.Start).Seconds()
+	if math.Abs(e.LAE-(e.LAeq+10*math.Log10(T))) > 0.02 {
+		t.Errorf("LAE %.2f, LAeq %.2f over %.2f s", e.LAE, e.LAeq, T)
+	}
+	if len(e.Spectrum) == 0 {
+		t.Error("event without a spectrum")
+	}
+}

@@ -40,6 +40,11 @@ type processor struct {
 
 	health healthState
 
+	events   *dsp.EventDetector
+	event    dsp.Event
+	evSkew   int64 // samples skipped since the detector started: its positions lag pos by this
+	evStream int64 // pos at which the detector started
+
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
 	lostWhy  string
@@ -200,6 +205,15 @@ func (p *processor) opened(ev event) error {
 	p.clock = NewSampleClock(fs)
 	p.anchored = false
 	p.pos = 0
+	if o.Events != nil {
+		cfg := *o.Events
+		cfg.SensitivityDBFS = o.SensitivityDBFS
+		d, err := dsp.NewEventDetector(cfg, fs)
+		if err != nil {
+			return fmt.Errorf("node: %w", err)
+		}
+		p.events, p.evSkew = d, 0
+	}
 	p.settleUntil = now.Add(o.Settling)
 	p.device = o.Source.Describe()
 	sess := o.Session
@@ -265,6 +279,7 @@ func (p *processor) closeSecondAt() error {
 func (p *processor) lost(why string) error {
 	if p.meter != nil && p.anchored {
 		p.closeSecond()
+		p.flushEvents()
 	}
 	p.lostAt = p.lastEnd
 	if p.lostAt.IsZero() {
@@ -328,12 +343,49 @@ func (p *processor) data(ev event) error {
 	}
 	p.lastEnd = p.clock.Time(p.pos)
 	p.n.Counters.FastLevel.Store(math.Float64bits(p.meter.FastLevel()))
+	if p.events != nil {
+		p.events.Process(ev.samples)
+		return p.storeEvents()
+	}
 	return nil
+}
+
+// storeEvents stores the events the detector has closed.
+func (p *processor) storeEvents() error {
+	for p.events.Next(&p.event) {
+		e := &p.event
+		from := p.clock.Time(e.Start + p.evSkew)
+		rec := &buffer.Event{
+			Start: from.UTC(), End: from.Add(time.Duration(e.Duration * 1e9)).UTC(),
+			LAFmax: e.LAFmax, LAeq: e.LAeq, LAE: e.LAE, LCpeak: e.LCpeak,
+		}
+		if !p.synced {
+			rec.Flags |= buffer.ClockUnsynced
+		}
+		if len(e.Bands) > 0 {
+			rec.Spectrum = append([]float64(nil), e.Bands...)
+			rec.FirstBand = p.events.Bands()[0].X
+		}
+		if err := p.append(rec); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// flushEvents closes an event in progress when the stream ends.
+func (p *processor) flushEvents() error {
+	if p.events == nil {
+		return nil
+	}
+	p.events.Flush()
+	return p.storeEvents()
 }
 
 // skip accounts for samples lost before the next block: the sample count (and so time) moves
 // on, the seconds they fall in are flagged.
 func (p *processor) skip(k int64) {
+	p.evSkew += k
 	for k > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
 		take := min(k, end-p.pos)
@@ -453,6 +505,7 @@ func (p *processor) finish() {
 	if p.meter != nil && p.anchored {
 		p.closeSecond()
 		p.closeMinute()
+		p.flushEvents()
 		p.anchored = false
 	}
 }

@@ -76,6 +76,17 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 	if cfg.Microphone.SelfNoiseDBA > 0 {
 		o.UnderRangeLevel = cfg.Microphone.SelfNoiseDBA + cfg.Microphone.UnderRangeMarginDB
 	}
+	if e := cfg.Events; e.Enabled {
+		ec := dsp.EventConfig{
+			SensitivityDBFS: cfg.Microphone.SensitivityDBFS, Threshold: e.ThresholdDB,
+			Hysteresis: e.HysteresisDB, Hold: e.HoldS, MinDuration: e.MinDurationS,
+			MaxDuration: e.MaxDurationS, Slow: e.Slow,
+		}
+		if e.Spectrum {
+			ec.Bands = dsp.Third
+		}
+		o.Events = &ec
+	}
 	return o
 }
 

@@ -38,6 +38,7 @@ type Config struct {
 	Measure    Measure        `toml:"measure"`
 	Store      Store          `toml:"store"`
 	Control    Control        `toml:"control"`
+	Events     Events         `toml:"events"`
 	// Publish sets up MQTT publishing; with no brokers listed the node publishes nothing.
 	Publish publish.Config `toml:"publish"`
 }
@@ -100,6 +101,30 @@ type Measure struct {
 	Timestamps string `toml:"timestamps"`
 }
 
+// Events sets up the detection of noise events: a threshold on LAF (or LAS) with hysteresis,
+// a hold time and a duration window; each event is stored with LAFmax, LAeq, LAE (SEL), LCpeak
+// and its one-third-octave spectrum.
+type Events struct {
+	// Enabled turns event detection on (default true).
+	Enabled bool `toml:"enabled"`
+	// ThresholdDB is the level at which an event starts (default 70 dB). Set it some 10 dB
+	// above the site's usual background: too low turns the background into one endless event.
+	ThresholdDB float64 `toml:"threshold_db"`
+	// HysteresisDB lowers the level at which an event ends (default 3 dB).
+	HysteresisDB float64 `toml:"hysteresis_db"`
+	// HoldS bridges dips shorter than this many seconds (default 1).
+	HoldS float64 `toml:"hold_s"`
+	// MinDurationS drops shorter events (default 1 s); MaxDurationS closes longer ones
+	// (default 300 s), marked truncated.
+	MinDurationS float64 `toml:"min_duration_s"`
+	MaxDurationS float64 `toml:"max_duration_s"`
+	// Slow detects on LAS instead of LAF.
+	Slow bool `toml:"slow"`
+	// Spectrum stores each event's one-third-octave spectrum (default true). Trade-off: it runs
+	// a second band filter bank, about doubling the node's processing cost.
+	Spectrum bool `toml:"spectrum"`
+}
+
 // Store sets up the bbolt store.
 type Store struct {
 	// Path of the store file. Default: the systemd state directory's leqnode.db.
@@ -123,6 +148,8 @@ func Default() *Config {
 		Capture: capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
 		Measure: Measure{Bands: "third", SettlingSeconds: 5},
 		Store:   Store{Path: "leqnode.db", CommitInterval: "10s"},
+		Events: Events{Enabled: true, ThresholdDB: 70, HysteresisDB: 3, HoldS: 1, MinDurationS: 1,
+			MaxDurationS: 300, Spectrum: true},
 	}
 }
 
@@ -227,6 +254,23 @@ func (c *Config) Validate() []error {
 	}
 	if c.Measure.SettlingSeconds < 0 || c.Measure.SettlingSeconds > 600 {
 		bad("measure.settling_s", c.Measure.SettlingSeconds, "allowed 0 to 600")
+	}
+	if e := c.Events; e.Enabled {
+		if e.ThresholdDB < 20 || e.ThresholdDB > 140 {
+			bad("events.threshold_db", e.ThresholdDB, "allowed 20 to 140 dB")
+		}
+		if e.HysteresisDB < 0 || e.HysteresisDB > 20 {
+			bad("events.hysteresis_db", e.HysteresisDB, "allowed 0 to 20 dB")
+		}
+		if e.HoldS < 0 || e.HoldS > 60 {
+			bad("events.hold_s", e.HoldS, "allowed 0 to 60 s")
+		}
+		if e.MinDurationS < 0 || e.MinDurationS > 3600 {
+			bad("events.min_duration_s", e.MinDurationS, "allowed 0 to 3600 s")
+		}
+		if e.MaxDurationS <= e.MinDurationS || e.MaxDurationS > 86400 {
+			bad("events.max_duration_s", e.MaxDurationS, "allowed above min_duration_s, up to 86400 s")
+		}
 	}
 	if c.Store.Path == "" {
 		bad("store.path", `""`, "give the store file's path")
