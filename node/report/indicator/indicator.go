@@ -162,11 +162,10 @@ func NewBuilder(prof *profiles.Profile, zone *profiles.Zone, loc *time.Location,
 			b.bins[i].period = int32(p)
 		}
 		if !t.Before(hourEnd) {
+			// The local hour holding t starts lt.Minute() minutes earlier: unambiguous even in
+			// the hour that repeats when clocks go back.
 			lt := t.In(loc)
-			start := time.Date(lt.Year(), lt.Month(), lt.Day(), lt.Hour(), 0, 0, 0, loc)
-			if start.After(t) { // a zone whose offset is no whole number of hours at this instant
-				start = t
-			}
+			start := t.Add(-time.Duration(lt.Minute()) * time.Minute)
 			b.hours = append(b.hours, start)
 			h++
 			hourEnd = start.Add(time.Hour)
