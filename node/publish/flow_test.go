@@ -266,3 +266,30 @@ func TestAbsorb(t *testing.T) {
 		t.Errorf("cursor %d rest %v, want 6 (2, 3, 5 removed, 6 delivered before) and nothing left", acked, rest)
 	}
 }
+
+// TestStoreClosedUnderneath: a store closed while the publisher runs (a node shutting down in
+// the wrong order) gives an error in the status and one log line, not a crash or a log flood.
+func TestStoreClosedUnderneath(t *testing.T) {
+	m := startMosquitto(t, brokerOpts{})
+	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+	var logs logBuffer
+	p, err := New(Config{Brokers: []string{m.url("tcp")}}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+	if err != nil {
+		t.Fatal(err)
+	}
+	stop := runPublisher(t, p)
+	waitConnected(t, p)
+	mustAppend(t, store, second(0, false))
+	store.Close()
+	for range 20 {
+		p.Notify()
+		time.Sleep(10 * time.Millisecond)
+	}
+	stop()
+	if n := strings.Count(logs.String(), "level=ERROR"); n != 1 {
+		t.Errorf("%d error lines, want 1:\n%s", n, logs.String())
+	}
+	if st := p.Status(); !strings.Contains(st.LastError, "store") {
+		t.Errorf("last error %q: want the store named", st.LastError)
+	}
+}

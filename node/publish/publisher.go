@@ -90,6 +90,7 @@ type Publisher struct {
 	byteBucket bucket
 	jobs       []*resendJob
 	ignored    rateLog
+	storeErrs  rateLog
 }
 
 var nodeIDRe = regexp.MustCompile(`^[A-Za-z0-9._-]{1,64}$`)
@@ -146,6 +147,7 @@ func New(cfg Config, store *buffer.Store, ident Identity, logger *slog.Logger) (
 	p.msgBucket = newBucket(cfg.BacklogMessagesPerSecond, now)
 	p.byteBucket = newBucket(float64(cfg.BacklogBytesPerSecond), now)
 	p.ignored.every = time.Minute
+	p.storeErrs.every = time.Minute
 	return p, nil
 }
 

@@ -260,8 +260,11 @@ func (p *Publisher) advance(l *lane) {
 	l.acked = acked
 }
 
+// storeError records a store error in the status and logs it at most once a minute.
 func (p *Publisher) storeError(err error) {
-	p.log.Error("store", "err", err)
+	if ok, held := p.storeErrs.allow(time.Now()); ok {
+		p.log.Error("store", "err", err, "errors_since_last_log", held)
+	}
 	p.setStatus(func(st *Status) { st.LastError, st.LastErrorAt = "store: "+err.Error(), time.Now() })
 }
 
