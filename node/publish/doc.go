@@ -17,7 +17,9 @@
 // On every connection, the records stored before it are backlog: they go out oldest first
 // (across kinds, by record time), rate-limited (Config.BacklogMessagesPerSecond and
 // BacklogBytesPerSecond), on their own topic and marked "delivery": "backlog". Records stored
-// after it are live and go out at once, beside the backlog. Second records travel in batches of
+// after it are live and go out as soon as the store has committed them (the node calls
+// Publisher.Notify after each commit; the store's commit interval bounds the delay), beside the
+// backlog. Second records travel in batches of
 // Config.SecondsPerMessage, in columns (one array per quantity).
 //
 // # Topics
