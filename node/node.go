@@ -142,14 +142,15 @@ func (c *Counters) Level() float64 { return math.Float64frombits(c.FastLevel.Loa
 
 // Node is a running measurement node.
 type Node struct {
-	o          Options
-	log        *slog.Logger
-	Counters   Counters
-	lastHealth atomic.Pointer[buffer.Health]
-	sampleRate atomic.Int64
-	openGen    atomic.Int64 // counts successful opens of the source (the watchdog's guard)
-	started    time.Time
-	settings   chan Settings
+	o           Options
+	log         *slog.Logger
+	Counters    Counters
+	lastHealth  atomic.Pointer[buffer.Health]
+	sampleRate  atomic.Int64
+	openGen     atomic.Int64  // counts successful opens of the source (the watchdog's guard)
+	sensitivity atomic.Uint64 // math.Float64bits of the sensitivity in use
+	started     time.Time
+	settings    chan Settings
 }
 
 // Settings are the options that can change while the node runs, without a restart.
@@ -182,6 +183,7 @@ func New(o Options) (*Node, error) {
 	r := o.withDefaults()
 	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings)}
 	n.Counters.FastLevel.Store(math.Float64bits(math.NaN()))
+	n.sensitivity.Store(math.Float64bits(r.SensitivityDBFS))
 	return n, nil
 }
 

@@ -252,6 +252,7 @@ func (p *processor) reconfigure(st Settings) error {
 	if p.meter != nil {
 		p.meter.SetSensitivity(st.SensitivityDBFS)
 	}
+	p.n.sensitivity.Store(math.Float64bits(st.SensitivityDBFS))
 	p.n.log.Info("microphone sensitivity changed", "sensitivity_dbfs", st.SensitivityDBFS)
 	if p.lastSess == nil {
 		return nil

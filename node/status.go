@@ -62,3 +62,6 @@ func finite(v float64) *float64 {
 	}
 	return &v
 }
+
+// Sensitivity returns the microphone sensitivity in use (dBFS for 94 dB SPL at 1 kHz).
+func (n *Node) Sensitivity() float64 { return math.Float64frombits(n.sensitivity.Load()) }

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"log/slog"
 	"math"
+	"net"
 	"os"
 	"path/filepath"
 	"strings"
@@ -54,6 +55,11 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 		cfg.Publish.Brokers = []string{url}
 		host, port, _ := strings.Cut(strings.TrimPrefix(url, "tcp://"), ":")
 		fmt.Fprintf(std.out, "MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
+	}
+	if ln, err := net.Listen("tcp", "127.0.0.1:0"); err == nil {
+		cfg.Web.Enabled, cfg.Web.Addr = true, ln.Addr().String()
+		ln.Close()
+		fmt.Fprintf(std.out, "status page: http://%s/ (this computer only)\n", cfg.Web.Addr)
 	}
 	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
 	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)

@@ -24,6 +24,7 @@ import (
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
 	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/web"
 )
 
 // softwareVersion returns the module version and VCS revision the binary was built from.
@@ -193,6 +194,17 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 	if watch != nil {
 		bg.Go(func() { watch(n) })
 	}
+	if cfg.Web.Enabled {
+		srv, err := startWeb(cfg, n, st, pub, log)
+		if err != nil {
+			return err
+		}
+		bg.Go(func() {
+			if err := srv.Run(ctx); err != nil && ctx.Err() == nil {
+				log.Error("status page stopped", "err", err)
+			}
+		})
+	}
 	if pub != nil {
 		bg.Go(func() {
 			if err := pub.Run(ctx); err != nil && ctx.Err() == nil {
@@ -305,4 +317,40 @@ func reload(path string, cur *config.Config, n *node.Node, log *slog.Logger) {
 	} else {
 		log.Info("reload: done")
 	}
+}
+
+// startWeb sets up the status page and metrics of a running node.
+func startWeb(cfg *config.Config, n *node.Node, st *buffer.Store, pub *publish.Publisher, log *slog.Logger) (*web.Server, error) {
+	var token string
+	if cfg.Web.TokenFile != "" {
+		b, err := os.ReadFile(cfg.Web.TokenFile)
+		if err != nil {
+			return nil, usageError{fmt.Errorf("web.token_file: %w: create the file or leave the key empty", err)}
+		}
+		token = strings.TrimRight(string(b), "\r\n")
+	}
+	version := softwareVersion()
+	return web.New(web.Options{
+		Addr: cfg.Web.Addr, Token: token, Store: st, Logger: log,
+		Live: web.LiveFrom(&n.Counters),
+		Status: func() web.Status {
+			ns := n.Status()
+			s := web.Status{
+				NodeID: cfg.Node.ID, Site: cfg.Node.Site, Version: version, TimeZone: cfg.Node.TimeZone,
+				Started: ns.Started, Source: ns.Source, SampleRate: ns.SampleRate,
+				Counters: web.CountersFrom(&n.Counters),
+				Calibration: &web.CalibrationStatus{
+					SensitivityDBFS: n.Sensitivity(), NominalDBFS: cfg.Microphone.SensitivityDBFS,
+				},
+			}
+			if h := n.Health(); h != nil {
+				synced := h.ClockSynced
+				s.ClockSynced = &synced
+			}
+			if pub != nil {
+				s.MQTT = web.MQTTFrom(pub.Status())
+			}
+			return s
+		},
+	})
 }

@@ -15,6 +15,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"net"
 	"os"
 	"strings"
 	"time"
@@ -39,6 +40,7 @@ type Config struct {
 	Store      Store          `toml:"store"`
 	Control    Control        `toml:"control"`
 	Events     Events         `toml:"events"`
+	Web        Web            `toml:"web"`
 	// Publish sets up MQTT publishing; with no brokers listed the node publishes nothing.
 	Publish publish.Config `toml:"publish"`
 }
@@ -125,6 +127,19 @@ type Events struct {
 	Spectrum bool `toml:"spectrum"`
 }
 
+// Web sets up the status page and the Prometheus metrics endpoint.
+type Web struct {
+	// Enabled serves the page (default false).
+	Enabled bool `toml:"enabled"`
+	// Addr is host:port to listen on (default "127.0.0.1:8080"). Danger: any host other than
+	// a loopback address serves the page to the whole network; set a token and use an SSH
+	// tunnel or a TLS proxy, since the page speaks plain HTTP.
+	Addr string `toml:"addr"`
+	// TokenFile names a file holding an access token (trailing newline removed); empty means
+	// no token. Over plain HTTP the token is readable by anyone on the network path.
+	TokenFile string `toml:"token_file"`
+}
+
 // Store sets up the bbolt store.
 type Store struct {
 	// Path of the store file. Default: the systemd state directory's leqnode.db.
@@ -148,6 +163,7 @@ func Default() *Config {
 		Capture: capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
 		Measure: Measure{Bands: "third", SettlingSeconds: 5},
 		Store:   Store{Path: "leqnode.db", CommitInterval: "10s"},
+		Web:     Web{Addr: "127.0.0.1:8080"},
 		Events: Events{Enabled: true, ThresholdDB: 70, HysteresisDB: 3, HoldS: 1, MinDurationS: 1,
 			MaxDurationS: 300, Spectrum: true},
 	}
@@ -270,6 +286,11 @@ func (c *Config) Validate() []error {
 		}
 		if e.MaxDurationS <= e.MinDurationS || e.MaxDurationS > 86400 {
 			bad("events.max_duration_s", e.MaxDurationS, "allowed above min_duration_s, up to 86400 s")
+		}
+	}
+	if c.Web.Enabled {
+		if _, _, err := net.SplitHostPort(c.Web.Addr); err != nil {
+			bad("web.addr", fmt.Sprintf("%q", c.Web.Addr), `write host:port, such as "127.0.0.1:8080"`)
 		}
 	}
 	if c.Store.Path == "" {
