@@ -255,3 +255,34 @@ func TestCommandsOffByDefault(t *testing.T) {
 		t.Errorf("%d replies with commands off", n)
 	}
 }
+
+// TestCommandsAfterReconnect: the command subscription is made again on every connection (a
+// broker restarted without persistence has forgotten it).
+func TestCommandsAfterReconnect(t *testing.T) {
+	m := startMosquitto(t, brokerOpts{})
+	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
+	defer store.Close()
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", ReconnectMaxDelay: Duration(time.Second),
+		Commands: CommandsConfig{Enabled: true}}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	runPublisher(t, p)
+	waitConnected(t, p)
+	m.stop()
+	m.start()
+	deadline := time.Now().Add(10 * time.Second)
+	for p.Status().Attempts == 0 && p.Status().LastError == "" && time.Now().Before(deadline) {
+		time.Sleep(10 * time.Millisecond) // the loss is noticed
+	}
+	waitConnected(t, p)
+	col := newCollector(t, m.url("tcp"), "millbrook/elm-3/reply", nil)
+	cmd := mqtt.NewClient(mqtt.NewClientOptions().AddBroker(m.url("tcp")).SetClientID("commander"))
+	if tok := cmd.Connect(); !tok.WaitTimeout(5*time.Second) || tok.Error() != nil {
+		t.Fatal(tok.Error())
+	}
+	defer cmd.Disconnect(100)
+	time.Sleep(200 * time.Millisecond) // the subscription made in the connect handler
+	cmd.Publish("millbrook/elm-3/command", 1, false, `{"schema_version":1,"id":"after-restart","action":"publish_status"}`).Wait()
+	col.waitFor(10*time.Second, "a reply after the reconnect", func(msgs []received) bool { return len(msgs) > 0 })
+}
