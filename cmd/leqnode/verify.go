@@ -124,6 +124,9 @@ func writeVerifyTable(w io.Writer, rep selftest.Report) {
 	}
 	tw.Flush()
 	fmt.Fprintln(w)
+	if len(rep.Skipped) > 0 {
+		fmt.Fprintf(w, "Not tested at %g Hz (at or above 0.45 fs): %s.\n", rep.SampleRate, strings.Join(rep.Skipped, "; "))
+	}
 	fmt.Fprintln(w, verifySummary(rep))
 	fmt.Fprintln(w, verifyScope)
 }
@@ -154,6 +157,7 @@ footer { font-size: .85rem; color: #5a6a70; }
 <h1>leqnode self-verification at {{.Report.SampleRate}} Hz{{if .Report.Full}} (full set){{end}}</h1>
 <p class="summary{{if not .Report.Pass}} failed{{end}}">{{.Summary}}</p>
 {{if .Report.Error}}<p class="summary failed">{{.Report.Error}}</p>{{end}}
+{{if .Report.Skipped}}<p>Not tested at this sample rate (at or above 0.45 fs): {{range $i, $s := .Report.Skipped}}{{if $i}}; {{end}}{{$s}}{{end}}.</p>{{end}}
 {{range .Groups}}<table>
 <caption>{{.Name}}</caption>
 <thead><tr><th>test</th><th>expected dB</th><th>measured dB</th><th>tolerance dB</th><th>result</th><th>source</th></tr></thead>
