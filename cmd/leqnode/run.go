@@ -14,11 +14,13 @@ import (
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"syscall"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/dsp/selftest"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
@@ -194,8 +196,10 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 	if watch != nil {
 		bg.Go(func() { watch(n) })
 	}
+	var selfCheck atomic.Pointer[web.SelfCheckStatus]
+	bg.Go(func() { verifyDaily(ctx, n, &selfCheck, log) })
 	if cfg.Web.Enabled {
-		srv, err := startWeb(cfg, n, st, pub, log)
+		srv, err := startWeb(cfg, n, st, pub, &selfCheck, log)
 		if err != nil {
 			return err
 		}
@@ -320,7 +324,7 @@ func reload(path string, cur *config.Config, n *node.Node, log *slog.Logger) {
 }
 
 // startWeb sets up the status page and metrics of a running node.
-func startWeb(cfg *config.Config, n *node.Node, st *buffer.Store, pub *publish.Publisher, log *slog.Logger) (*web.Server, error) {
+func startWeb(cfg *config.Config, n *node.Node, st *buffer.Store, pub *publish.Publisher, selfCheck *atomic.Pointer[web.SelfCheckStatus], log *slog.Logger) (*web.Server, error) {
 	var token string
 	if cfg.Web.TokenFile != "" {
 		b, err := os.ReadFile(cfg.Web.TokenFile)
@@ -350,7 +354,49 @@ func startWeb(cfg *config.Config, n *node.Node, st *buffer.Store, pub *publish.P
 			if pub != nil {
 				s.MQTT = web.MQTTFrom(pub.Status())
 			}
+			s.SelfCheck = selfCheck.Load()
 			return s
 		},
 	})
+}
+
+// verifyDaily runs the electrical self-tests of the measurement chain (`leqnode verify`) at the
+// node's sample rate once it runs, and then every day, and logs the outcome; the status page
+// shows the latest.
+func verifyDaily(ctx context.Context, n *node.Node, last *atomic.Pointer[web.SelfCheckStatus], log *slog.Logger) {
+	for {
+		fs := n.Status().SampleRate
+		if fs == 0 { // not open yet
+			if !sleepFor(ctx, time.Second) {
+				return
+			}
+			continue
+		}
+		at := time.Now()
+		rep := selftest.Run(float64(fs), false)
+		last.Store(web.SelfCheckFrom(at, rep))
+		if rep.Pass {
+			log.Info("self-verification passed", "checks", len(rep.Checks), "sample_rate", fs)
+		} else {
+			var names []string
+			for _, c := range rep.Failed() {
+				names = append(names, c.Test)
+			}
+			log.Error("self-verification FAILED: the measurement chain is not to be trusted", "failed", strings.Join(names, ", "), "error", rep.Error)
+		}
+		if !sleepFor(ctx, 24*time.Hour) {
+			return
+		}
+	}
+}
+
+func sleepFor(ctx context.Context, d time.Duration) bool {
+	t := time.NewTimer(d)
+	defer t.Stop()
+	select {
+	case <-t.C:
+		return true
+	case <-ctx.Done():
+		return false
+	}
 }
