@@ -8,8 +8,9 @@ BIN := bin/leqnode
 
 # Debian packages the tests use: sox (reference measurements of real recordings), alsa-utils
 # (arecord, and recordings under /usr/share/sounds/alsa), portaudio19-dev (the PortAudio capture
-# source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA).
-TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd
+# source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA), systemd
+# (systemd-analyze for the unit) and chromium (the status page and report in a real browser).
+TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium
 # What building the daemon with PortAudio needs.
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev
@@ -37,7 +38,8 @@ test: test-deps
 	@test -z "$$(gofmt -l $$(git ls-files '*.go' 2>/dev/null || find . -name '*.go'))" || { echo "gofmt needed:"; gofmt -l .; exit 1; }
 	$(GO) vet ./...
 	$(GO) test -count=1 ./...
-	CGO_ENABLED=0 $(GO) test -count=1 -tags noportaudio ./node/capture/... ./cmd/... ./dsp/... ./buffer/...
+	CGO_ENABLED=0 $(GO) build -tags noportaudio ./...
+	CGO_ENABLED=0 $(GO) test -count=1 -tags noportaudio ./node/capture/... ./node ./dsp/... ./buffer/...
 	$(GO) test -count=1 -run '^$$' -bench . -benchtime 1x ./...
 
 # The figures recorded in the README: benchmarks at full size, five runs each (quote medians).
