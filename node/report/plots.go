@@ -172,11 +172,29 @@ func dailyPlot(r *indicator.Result) ([]byte, error) {
 			}
 		}
 	}
-	p.NominalX(names...)
+	p.NominalX(thinLabels(names, 16)...)
 	p.Y.Tick.Marker = offsetTicks(base)
+	p.Y.Min = 0
+	if top := p.Y.Max; top > 0 {
+		p.Y.Max = top + 0.25*top // room for the legend above the bars
+	}
 	p.Legend.Top = true
 	p.Add(plotter.NewGrid())
 	return renderPNG(p, plotW, plotH)
+}
+
+// thinLabels blanks all but every k-th label so that at most n show.
+func thinLabels(names []string, n int) []string {
+	if len(names) <= n {
+		return names
+	}
+	k := (len(names) + n - 1) / n
+	for i := range names {
+		if i%k != 0 {
+			names[i] = ""
+		}
+	}
+	return names
 }
 
 // offsetTicks labels a y axis whose values were shifted down by base.
@@ -269,15 +287,7 @@ func hourMapPlot(r *indicator.Result) ([]byte, error) {
 	for _, d := range g.days {
 		names = append(names, d.Format("01-02"))
 	}
-	if len(names) > 16 { // label every few days on long ranges
-		k := (len(names) + 15) / 16
-		for i := range names {
-			if i%k != 0 {
-				names[i] = ""
-			}
-		}
-	}
-	p.NominalX(names...)
+	p.NominalX(thinLabels(names, 16)...)
 	p.Y.Min, p.Y.Max = 0, 24
 	p.Y.Tick.Marker = plot.ConstantTicks([]plot.Tick{{Value: 0, Label: "0"}, {Value: 6, Label: "6"}, {Value: 12, Label: "12"}, {Value: 18, Label: "18"}, {Value: 24, Label: "24"}})
 	return renderPNG(p, plotW, plotH)
@@ -354,8 +364,8 @@ func coveragePlot(r *indicator.Result) ([]byte, error) {
 	p.Add(l, plotter.NewGrid())
 	p.Legend.Add(fmt.Sprintf("floor %.0f %%", floor), l)
 	p.Legend.Top = true
-	p.Y.Min, p.Y.Max = 0, 105
-	p.NominalX(names...)
+	p.Y.Min, p.Y.Max = 0, 115
+	p.NominalX(thinLabels(names, 16)...)
 	return renderPNG(p, plotW, 6*vg.Centimeter)
 }
 

@@ -372,7 +372,7 @@ func (b *Builder) Result() *Result {
 				ov.Exceedances++
 			}
 			h.Merge(&b.per[i].hist)
-			length += p.Hours
+			length += p.Coverage.Length / 3600 // the part inside the range
 		}
 		ov.Coverage.finish(o.MinCoverage)
 		ov.LAeq = level(e, ov.Coverage.Valid)
