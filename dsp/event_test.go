@@ -367,3 +367,37 @@ func BenchmarkEventDetector(b *testing.B) {
 		})
 	}
 }
+
+// TestEventSlow detects on LAS: the Slow level of a 2 s burst of 80 dB rises as
+// 80 + 10 lg(1 - e^(-t/τ)) with τ = 1 s (IEC 61672-1:2013, Eq. 7 and 5.8.1), reaching 70 dB after
+// -ln(0.9) s and LASmax = 80 + 10 lg(1 - e^(-2)) at the end of the burst; it then falls
+// 4.343 dB/s to the 65 dB end level.
+func TestEventSlow(t *testing.T) {
+	const l, tb, tau = 80.0, 2.0, 1.0
+	cfg := testEventConfig()
+	cfg.Slow = true
+	events, _ := detect(t, cfg, burst(10, 1, tb, l), 4800)
+	if len(events) != 1 {
+		t.Fatalf("%d events, want 1", len(events))
+	}
+	e := events[0]
+	t1 := -tau * math.Log(1-math.Pow(10, (70-l)/10))
+	lmax := l + 10*math.Log10(1-math.Exp(-tb/tau))
+	t2 := tb + tau*math.Log(math.Pow(10, (lmax-65)/10))
+	if got := float64(e.Start) / testFS; math.Abs(got-(1+t1)) > 0.002 {
+		t.Errorf("start %.4f s, want %.4f s", got, 1+t1)
+	}
+	if math.Abs(e.Duration-(t2-t1)) > 0.005 {
+		t.Errorf("duration %.4f s, want %.4f s", e.Duration, t2-t1)
+	}
+	if math.Abs(e.LASmax-lmax) > 0.1 {
+		t.Errorf("LASmax %.2f dB, want %.2f dB", e.LASmax, lmax)
+	}
+	// The Fast level reaches the burst's level: LAFmax 80 dB (Eq. 7 with τ = 0.125 s).
+	if math.Abs(e.LAFmax-l) > 0.1 {
+		t.Errorf("LAFmax %.2f dB, want %.2f dB", e.LAFmax, l)
+	}
+	if want := l + 10*math.Log10(tb-t1); math.Abs(e.LAE-want) > 0.1 {
+		t.Errorf("LAE %.2f dB, want %.2f dB", e.LAE, want)
+	}
+}
