@@ -102,6 +102,10 @@ type Detection struct {
 
 	// Stable is the window's length in seconds, (End - Start) / fs.
 	Stable float64
+
+	// Clipped counts the window's samples at or beyond ClipThreshold. A clipped tone's level
+	// is wrong: the calibrator is too loud for the microphone and converter.
+	Clipped int64
 }
 
 // CalibratorDetector finds sound calibrator tones in a stream of samples: a steady sine near
@@ -156,6 +160,7 @@ type CalibratorDetector struct {
 	gate   *Cascade  // band-pass around 1 kHz: the cheap test that spares most FFTs
 	gbuf   []float64 // scratch for the band-pass
 	gsum   float64   // energy of the band-pass output over the block so far
+	gclip  int64     // clipped samples in the block so far
 	fill   int
 	pos    int64 // samples fed since construction or Reset
 	fft    *fourier.FFT
@@ -180,6 +185,7 @@ type stretch struct {
 	lmin, lmax float64 // block levels, dB
 	dom        float64 // smallest dominance
 	blocks     int
+	clipped    int64
 	prevPhase  float64
 	phase      float64 // unwrapped phase of the last block
 	// least-squares sums of (t, phase)
@@ -264,7 +270,7 @@ func (d *CalibratorDetector) SampleRate() float64 { return d.fs }
 func (d *CalibratorDetector) Reset() {
 	d.dc.Reset()
 	d.gate.Reset()
-	d.fill, d.gsum = 0, 0
+	d.fill, d.gsum, d.gclip = 0, 0, 0
 	d.pos = 0
 	d.toneStart = -1
 	d.run = stretch{}
@@ -288,6 +294,9 @@ func (d *CalibratorDetector) Process(x []float32, found func(Detection)) {
 		b := d.buf[d.fill : d.fill+n]
 		for i, v := range x[:n] {
 			b[i] = float64(v)
+			if math.Abs(b[i]) >= ClipThreshold {
+				d.gclip++
+			}
 		}
 		d.dc.Process(b)
 		g := d.gbuf[:n]
@@ -301,7 +310,7 @@ func (d *CalibratorDetector) Process(x []float32, found func(Detection)) {
 		x = x[n:]
 		if d.fill == d.blockLen {
 			d.block(found)
-			d.fill, d.gsum = 0, 0
+			d.fill, d.gsum, d.gclip = 0, 0, 0
 		}
 	}
 }
@@ -377,6 +386,7 @@ func (d *CalibratorDetector) block(found func(Detection)) {
 	r.stp += t * r.phase
 	r.blocks++
 	r.sumSq += sumSq
+	r.clipped += d.gclip
 	r.end = d.pos
 	r.lmin, r.lmax = math.Min(r.lmin, lvl), math.Max(r.lmax, lvl)
 	r.dom = math.Min(r.dom, dom)
@@ -457,6 +467,7 @@ func (d *CalibratorDetector) finish(found func(Detection)) {
 		Start: r.start, End: r.end, ToneStart: d.toneStart,
 		MeanSquare: ms, LevelDBFS: DBFS(ms), FrequencyHz: f,
 		StabilityDB: r.lmax - r.lmin, DominanceDB: r.dom, Stable: float64(n) / d.fs,
+		Clipped: r.clipped,
 	}
 	if found != nil {
 		found(det)

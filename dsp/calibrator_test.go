@@ -219,6 +219,24 @@ func TestCalibratorRejects(t *testing.T) {
 	}
 }
 
+// TestCalibratorClipped: a 114 dB calibrator on a microphone of -18 dBFS would be a sine of
+// +2 dBFS (AN-1112 definition); the converter clips it at full scale. The tone is still found,
+// and the detection says it clipped.
+func TestCalibratorClipped(t *testing.T) {
+	x := calSignal{fs: 48000, freq: 1000, levelDBFS: 2, lead: 0.5, fade: 1, hold: 7, tail: 0.5, seed: 1}.render()
+	for i, v := range x {
+		x[i] = max(-1, min(1, v))
+	}
+	dets := detectAll(t, CalibratorConfig{SampleRate: 48000}, x, 4800)
+	if len(dets) != 1 || dets[0].Clipped == 0 {
+		t.Fatalf("detections %+v, want one with clipped samples", dets)
+	}
+	clean := detectAll(t, CalibratorConfig{SampleRate: 48000}, calSignal{fs: 48000, freq: 1000, levelDBFS: -1, lead: 0.5, fade: 1, hold: 7, tail: 0.5, seed: 1}.render(), 4800)
+	if len(clean) != 1 || clean[0].Clipped != 0 {
+		t.Errorf("a -1 dBFS tone: %+v, want no clipped samples", clean)
+	}
+}
+
 // TestCalibratorBlockSizeIndependence checks that the detections do not depend on how the
 // input is cut (the dsp package's contract).
 func TestCalibratorBlockSizeIndependence(t *testing.T) {

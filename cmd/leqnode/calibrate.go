@@ -125,7 +125,9 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	// the allowed range around the nominal.
 	var problem error
 	tol := dsp.CalibratorTolerances(cls)
-	if !res.FrequencyPlausible {
+	if n := res.Detection.Clipped; n > 0 {
+		problem = fmt.Errorf("%s: the tone clipped (%d samples at full scale), so its level is wrong: use the calibrator's 94 dB setting or lower the input gain", name, n)
+	} else if !res.FrequencyPlausible {
 		problem = fmt.Errorf("%s: the tone at %.2f Hz is more than %.1f %% from 1 kHz, outside the tolerance of a class %s calibrator (IEC 60942:2017 Table 4): check the calibrator, or the converter's sample rate",
 			name, res.Detection.FrequencyHz, 100*(tol.Frequency+tol.FrequencyUncertainty), cls)
 	}

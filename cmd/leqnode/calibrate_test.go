@@ -82,6 +82,11 @@ func TestCalibrateErrors(t *testing.T) {
 	tone250 := writeWAV(t, dir, "tone250.wav", f, calibratorRecording(16000, 250, -20, 7))
 	cal := writeWAV(t, dir, "cal.wav", f, calibratorRecording(16000, 1000, -20, 7))     // S = -20 at 94 dB
 	offFreq := writeWAV(t, dir, "off.wav", f, calibratorRecording(16000, 1013, -20, 7)) // 1.3 % off
+	clipped := calibratorRecording(16000, 1000, 2, 7)                                   // +2 dBFS: 114 dB on a -18 dBFS microphone
+	for i, v := range clipped {
+		clipped[i] = max(-1, min(1, v))
+	}
+	clip := writeWAV(t, dir, "clip.wav", f, clipped)
 	junk := filepath.Join(dir, "junk.wav")
 	os.WriteFile(junk, []byte("not a wav file at all"), 0o644)
 	for _, tc := range []struct {
@@ -96,6 +101,7 @@ func TestCalibrateErrors(t *testing.T) {
 		{"frequency off for class 1", []string{"--format", "json", offFreq}, 1, "class 1 calibrator", false},
 		{"frequency fine for class 2", []string{"--format", "json", "--class", "2", offFreq}, 0, "", true},
 		{"within a wider range", []string{"--format", "json", "--sensitivity", "-26", "--range", "7", cal}, 0, "", true},
+		{"clipped tone", []string{"--format", "json", "--reference", "114", clip}, 1, "clipped", false},
 		{"missing file", []string{filepath.Join(dir, "nope.wav")}, 2, "cannot open", nil},
 		{"not a WAV file", []string{junk}, 2, "junk.wav", nil},
 		{"two files", []string{cal, cal}, 2, "at most one", nil},

@@ -216,19 +216,23 @@ const CheckTolerance = DriftLimit
 // NewCheck turns a detection made while the node measured with sensitivity inUse (dBFS) into
 // a calibration record ending at at: the level the node read (LdBFS - inUse + 94), its
 // deviation from the calibrator's stated level reference, the tone's frequency and stability.
-// OK is set when the deviation is within CheckTolerance and the frequency is plausible for a
-// calibrator of class c. The record's sensitivities are both inUse; a caller that applies a
+// OK is set when the deviation is within CheckTolerance, the frequency is plausible for a
+// calibrator of class c and no sample clipped (a clipped check also carries buffer.Clipped). The record's sensitivities are both inUse; a caller that applies a
 // new sensitivity sets SensitivityAfter and Applied.
 func NewCheck(at time.Time, d dsp.Detection, reference, inUse float64, c dsp.CalibratorClass) *buffer.Calibration {
 	measured := d.LevelDBFS - inUse + dsp.ReferenceLevel
 	dev := measured - reference
 	plausible := dsp.CalibratorTolerances(c).FrequencyPlausible(d.FrequencyHz, dsp.CalibratorFrequency)
-	return &buffer.Calibration{
+	rec := &buffer.Calibration{
 		At: at.UTC(), Reference: reference, Measured: measured, Deviation: dev,
 		Frequency: d.FrequencyHz, Stability: d.StabilityDB,
 		SensitivityBefore: inUse, SensitivityAfter: inUse,
-		OK: math.Abs(dev) <= CheckTolerance && plausible,
+		OK: math.Abs(dev) <= CheckTolerance && plausible && d.Clipped == 0,
 	}
+	if d.Clipped > 0 {
+		rec.Flags |= buffer.Clipped
+	}
+	return rec
 }
 
 // Implied returns the microphone sensitivity a stored check implies: the dBFS the tone

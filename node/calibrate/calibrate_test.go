@@ -367,3 +367,31 @@ func TestSummarize(t *testing.T) {
 		t.Errorf("summary %+v", s)
 	}
 }
+
+// TestNewCheckOK: a check passes when it reads within 0.5 dB of the calibrator (common
+// practice), its frequency is within ±(0.7 + 0.2) % of 1 kHz (IEC 60942:2017 Table 4 and
+// Table A.2, class 1) and nothing clipped.
+func TestNewCheckOK(t *testing.T) {
+	at := time.Date(2026, 6, 6, 9, 0, 0, 0, time.UTC)
+	for _, tc := range []struct {
+		name    string
+		reading float64
+		freq    float64
+		clipped int64
+		ok      bool
+	}{
+		{"good", 94.3, 1000.2, 0, true},
+		{"0.5 dB off", 94.5, 1000, 0, true},
+		{"0.6 dB off", 93.4, 1000, 0, false},
+		{"frequency 1.2 % off", 94, 1012, 0, false},
+		{"frequency 0.85 % off", 94, 991.5, 0, true},
+		{"clipped", 94, 1000, 12, false},
+	} {
+		d := detection(tc.reading, -26)
+		d.FrequencyHz, d.Clipped = tc.freq, tc.clipped
+		rec := NewCheck(at, d, 94, -26, dsp.CalibratorClass1)
+		if rec.OK != tc.ok || rec.Flags.Has(buffer.Clipped) != (tc.clipped > 0) {
+			t.Errorf("%s: OK %v flags %v, want OK %v", tc.name, rec.OK, rec.Flags, tc.ok)
+		}
+	}
+}
