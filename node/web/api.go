@@ -311,35 +311,48 @@ type hourSummary struct {
 	Silent         int            `json:"silent_seconds"`  // digital silence (no level)
 }
 
-// summarizeHour reads the second records of the hour before now.
+// summarizeHour reads the second records of the hour before now. The seconds expected are
+// those since the later of an hour ago and the earlier of the node's start and its first
+// second record in the hour: a node started ten minutes ago on an empty store expects 600,
+// one that was off for half of the hour expects 3600.
 func (s *Server) summarizeHour(now time.Time, started time.Time) (hourSummary, error) {
 	h := hourSummary{Flagged: map[string]int{}}
 	from := now.Add(-time.Hour)
-	h.Expected = 3600
-	if !started.IsZero() && started.After(from) {
-		h.Expected = int(math.Ceil(now.Sub(started).Seconds()))
-	}
 	for f := buffer.Flags(1); f != 0 && f <= buffer.Excluded; f <<= 1 {
 		h.Flagged[f.String()] = 0
 	}
-	if s.o.Store == nil {
-		return h, nil
-	}
-	err := s.o.Store.Range(buffer.KindSecond, from, now, func(rec buffer.Record) error {
-		sec := rec.(*buffer.Second)
-		h.Seconds++
-		h.DroppedSamples += sec.DroppedSamples
-		if math.IsNaN(sec.LAeq) {
-			h.Silent++
-		}
-		for f := buffer.Flags(1); f != 0 && f <= buffer.Excluded; f <<= 1 {
-			if sec.Flags.Has(f) {
-				h.Flagged[f.String()]++
+	var first time.Time
+	if s.o.Store != nil {
+		err := s.o.Store.Range(buffer.KindSecond, from, now, func(rec buffer.Record) error {
+			sec := rec.(*buffer.Second)
+			if h.Seconds == 0 {
+				first = sec.Start
 			}
+			h.Seconds++
+			h.DroppedSamples += sec.DroppedSamples
+			if math.IsNaN(sec.LAeq) {
+				h.Silent++
+			}
+			for f := buffer.Flags(1); f != 0 && f <= buffer.Excluded; f <<= 1 {
+				if sec.Flags.Has(f) {
+					h.Flagged[f.String()]++
+				}
+			}
+			return nil
+		})
+		if err != nil {
+			return h, err
 		}
-		return nil
-	})
-	return h, err
+	}
+	begin := started
+	if begin.IsZero() || !first.IsZero() && first.Before(begin) {
+		begin = first
+	}
+	if begin.IsZero() || begin.Before(from) {
+		begin = from
+	}
+	h.Expected = max(h.Seconds, int(math.Ceil(now.Sub(begin).Seconds())))
+	return h, nil
 }
 
 // healthJSON is the latest health snapshot.

@@ -13,6 +13,7 @@ import (
 	"log/slog"
 	"net"
 	"net/http"
+	"strconv"
 	"strings"
 	"time"
 
@@ -194,8 +195,14 @@ func (s *Server) warnAccess(addr string) {
 func (s *Server) routes() http.Handler {
 	mux := http.NewServeMux()
 	assets, _ := fs.Sub(assetFS, "assets")
-	static := http.FileServerFS(assets)
-	mux.Handle("GET /assets/", http.StripPrefix("/assets/", noDirs(static)))
+	mux.HandleFunc("GET /assets/{name...}", func(w http.ResponseWriter, r *http.Request) {
+		name := r.PathValue("name")
+		if fi, err := fs.Stat(assets, name); !fs.ValidPath(name) || err != nil || fi.IsDir() {
+			writeError(w, http.StatusNotFound, "no such asset "+strconv.Quote(name))
+			return
+		}
+		http.ServeFileFS(w, r, assets, name)
+	})
 	mux.HandleFunc("GET /{$}", func(w http.ResponseWriter, r *http.Request) {
 		http.ServeFileFS(w, r, assets, "index.html")
 	})
@@ -213,17 +220,6 @@ func (s *Server) routes() http.Handler {
 		writeError(w, http.StatusNotFound, fmt.Sprintf("no such page %s: see / for the status page and /api/status for JSON", r.URL.Path))
 	})
 	return s.guard(mux)
-}
-
-// noDirs refuses directory listings of the embedded assets.
-func noDirs(h http.Handler) http.Handler {
-	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
-		if r.URL.Path == "" || strings.HasSuffix(r.URL.Path, "/") {
-			writeError(w, http.StatusNotFound, "no such asset")
-			return
-		}
-		h.ServeHTTP(w, r)
-	})
 }
 
 // securityHeaders apply to every response: nothing outside the node may be loaded, the page

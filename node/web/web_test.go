@@ -607,3 +607,46 @@ func TestRunAndWarnings(t *testing.T) {
 		t.Errorf("Run on a busy port: %v", err)
 	}
 }
+
+// The coverage of the last hour counts the seconds expected since the later of an hour ago
+// and the node's start or its first stored second.
+func TestCoverage(t *testing.T) {
+	now := testNow()
+	for _, tc := range []struct {
+		name     string
+		stored   int           // seconds stored, ending now
+		started  time.Duration // node started this long ago (0: unknown)
+		expected int
+	}{
+		{"fresh node on an empty store", 0, 5 * time.Minute, 300},
+		{"fresh node, its own seconds", 600, 10 * time.Minute, 600},
+		{"start unknown, first second counts", 600, 0, 600},
+		{"running two hours, half the hour missing", 1800, 2 * time.Hour, 3600},
+		{"nothing known", 0, 0, 3600},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			st := openStore(t)
+			for i := tc.stored; i > 0; i-- {
+				if _, err := st.Append(&buffer.Second{Start: now.Add(-time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50}); err != nil {
+					t.Fatal(err)
+				}
+			}
+			var started time.Time
+			if tc.started > 0 {
+				started = now.Add(-tc.started)
+			}
+			s := newServer(t, web.Options{Store: st, Status: func() web.Status { return web.Status{Started: started} }})
+			_, body := get(t, s.Handler(), http.MethodGet, "/api/health")
+			var h struct {
+				LastHour struct {
+					Seconds  int `json:"seconds"`
+					Expected int `json:"expected_seconds"`
+				} `json:"last_hour"`
+			}
+			decode(t, body, &h)
+			if h.LastHour.Seconds != tc.stored || h.LastHour.Expected != tc.expected {
+				t.Errorf("%d of %d seconds, want %d of %d", h.LastHour.Seconds, h.LastHour.Expected, tc.stored, tc.expected)
+			}
+		})
+	}
+}

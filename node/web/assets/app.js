@@ -155,7 +155,7 @@
     const c = $('live-trace');
     const { g, w, h } = prepare(c);
     const pts = state.trace;
-    const x0 = 30, x1 = w - 4, y0 = h - 4, y1 = 4;
+    const x0 = 30, x1 = w - 4, y0 = h - 6, y1 = 8;
     const [lo, hi] = niceRange(pts.map(p => p.laf), 20);
     const y = (v) => y0 - (v - lo) / (hi - lo) * (y0 - y1);
     yGrid(g, x0, x1, y, lo, hi);
@@ -410,8 +410,8 @@
     body.replaceChildren();
     for (const k of checks.slice(0, 12)) {
       const tr = document.createElement('tr');
-      const cells = [fmtDateTime(k.time), num(k.reference_dB, 1) + ' dB', num(k.measured_dB, 2) + ' dB',
-        (k.deviation_dB >= 0 ? '+' : '') + num(k.deviation_dB, 2) + ' dB',
+      const cells = [fmtDateTime(k.time), num(k.measured_dB, 2) + ' / ' + num(k.reference_dB, 1),
+        (k.deviation_dB >= 0 ? '+' : '') + num(k.deviation_dB, 2),
         (k.ok ? 'passed' : 'failed') + (k.applied ? ', applied' : '') + (k.flags.includes('suspect') ? ', drift' : '')];
       for (const v of cells) {
         const td = document.createElement('td');
@@ -423,7 +423,7 @@
     if (!checks.length) {
       const tr = document.createElement('tr');
       const td = document.createElement('td');
-      td.colSpan = 5;
+      td.colSpan = 4;
       td.className = 'na';
       td.textContent = 'no calibration checks stored';
       tr.append(td);

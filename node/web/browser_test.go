@@ -1,0 +1,340 @@
+package web_test
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"image/png"
+	"math"
+	"math/rand/v2"
+	"net"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/chromedp/chromedp"
+
+	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node"
+	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/web"
+)
+
+// chromiumPath is where Debian's chromium package puts the browser itself (/usr/bin/chromium
+// is a shell wrapper).
+const chromiumPath = "/usr/lib/chromium/chromium"
+
+// artefactsEnv names the directory the browser test writes its screenshots to.
+const artefactsEnv = "LEQNODE_WEB_ARTIFACTS"
+
+// The levels of the test signal, in dB SPL with the node's sensitivity of -30 dBFS for
+// 94 dB: a 1 kHz sine of level L dBFS (AES17: peak A reads 20 lg A dBFS) reads
+// 94 + L - (-30) dB, and A-weighting is 0 dB at 1 kHz (IEC 61672-1:2013 Table 3).
+const (
+	sensitivityDBFS = -30.0
+	loudDBFS        = -20.0 // 104 dB
+	quietDBFS       = -50.0 // 74 dB
+	phase           = 3     // seconds per loud or quiet phase
+)
+
+// writeSignal writes a WAV file of seconds of a 1 kHz sine that alternates every phase
+// seconds between loudDBFS and quietDBFS, over a little white noise so that every band of
+// the spectrum has a level.
+func writeSignal(t *testing.T, path string, seconds int) {
+	t.Helper()
+	const fs = 48000
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	w, err := wav.NewWriter(f, wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.PCM16})
+	if err != nil {
+		t.Fatal(err)
+	}
+	rng := rand.New(rand.NewPCG(7, 11))
+	block := make([]float32, fs/10)
+	for n := 0; n < seconds*fs; n += len(block) {
+		for i := range block {
+			k := n + i
+			l := loudDBFS
+			if (k/fs/phase)%2 == 1 {
+				l = quietDBFS
+			}
+			amp := math.Pow(10, l/20) // AES17: a sine of peak A reads 20 lg A dBFS
+			block[i] = float32(amp*math.Sin(2*math.Pi*1000*float64(k)/fs) + 0.0005*(rng.Float64()*2-1))
+		}
+		if err := w.Write(block); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := w.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if err := f.Close(); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// The status page in headless chromium against a real node replaying a WAV file in real time
+// into a real store: the page loads without console errors, the live level follows the signal,
+// the chart and the spectrum are drawn, and screenshots at phone and desktop widths are kept.
+func TestBrowser(t *testing.T) {
+	if _, err := os.Stat(chromiumPath); err != nil {
+		if os.Geteuid() != 0 {
+			t.Skipf("chromium is not installed at %s and this user cannot install it: run .ci/install-debs chromium as root", chromiumPath)
+		}
+		t.Fatalf("chromium is not installed at %s: run .ci/install-debs chromium (make test does)", chromiumPath)
+	}
+	dir := t.TempDir()
+	art := os.Getenv(artefactsEnv)
+	if art == "" {
+		art = t.TempDir()
+	} else if err := os.MkdirAll(art, 0o755); err != nil {
+		t.Fatal(err)
+	}
+
+	// The node: the file source in real time, one-third-octave spectra every second, and a
+	// store that already holds 50 minutes of invented history.
+	wavPath := filepath.Join(dir, "harrowby-lane.wav")
+	writeSignal(t, wavPath, 60)
+	st := openStore(t)
+	fillHistory(t, st, time.Now().Add(-20*time.Second), true)
+	log := debugLogger(&logBuffer{})
+	src, err := capture.New(capture.Config{Kind: capture.KindFile, File: wavPath, Realtime: true}, log)
+	if err != nil {
+		t.Fatal(err)
+	}
+	n, err := node.New(node.Options{Source: src, Store: st, SensitivityDBFS: sensitivityDBFS, Bands: dsp.Third,
+		SecondSpectra: true, Settling: time.Nanosecond, Logger: log})
+	if err != nil {
+		t.Fatal(err)
+	}
+	started := time.Now()
+	status := func() web.Status {
+		return web.Status{NodeID: "wc-harrowby-02", Site: "Harrowby Lane, Wendle Cross (invented)",
+			Version: "leqnode browser test", TimeZone: "Europe/London", Started: started, Source: src.Describe(),
+			SampleRate: 48000, Counters: web.CountersFrom(&n.Counters),
+			Calibration: &web.CalibrationStatus{SensitivityDBFS: sensitivityDBFS, NominalDBFS: -30},
+			SelfCheck:   &web.SelfCheckStatus{At: started, Pass: true, Checks: 96, SampleRate: 48000}}
+	}
+	srv, err := web.New(web.Options{Store: st, Live: web.LiveFrom(&n.Counters), Status: status, Logger: log})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx, cancel := context.WithTimeout(context.Background(), 90*time.Second)
+	defer cancel()
+	var wg sync.WaitGroup
+	defer wg.Wait()
+	defer cancel()
+	wg.Add(2)
+	go func() {
+		defer wg.Done()
+		if err := n.Run(ctx); err != nil && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+			t.Errorf("node: %v", err)
+		}
+	}()
+	go func() {
+		defer wg.Done()
+		if err := srv.Serve(ctx, ln); err != nil {
+			t.Errorf("web: %v", err)
+		}
+	}()
+	url := "http://" + ln.Addr().String() + "/"
+
+	opts := append(chromedp.DefaultExecAllocatorOptions[:],
+		chromedp.ExecPath(chromiumPath),
+		chromedp.NoSandbox,
+		chromedp.Headless,
+		chromedp.DisableGPU,
+		chromedp.NoFirstRun,
+		chromedp.Flag("disable-background-networking", true),
+		chromedp.Flag("disable-component-update", true),
+		chromedp.Flag("disable-sync", true),
+		chromedp.Flag("disable-dev-shm-usage", true),
+		chromedp.UserDataDir(t.TempDir()),
+	)
+	actx, acancel := chromedp.NewExecAllocator(ctx, opts...)
+	defer acancel()
+	bctx, bcancel := chromedp.NewContext(actx)
+	defer bcancel()
+	if err := chromedp.Do(bctx); err != nil {
+		t.Fatalf("starting chromium: %v", err)
+	}
+
+	// Listen to the console API calls, uncaught exceptions and browser log entries from the
+	// start: any error among them fails the test.
+	var mu sync.Mutex
+	var problems, messages []string
+	consoleDone := make(chan struct{})
+	console := chromedp.Console(bctx)
+	go func() {
+		defer close(consoleDone)
+		for m, err := range console {
+			if err != nil {
+				return
+			}
+			line := fmt.Sprintf("%s: %s (%s:%d)", m.Type, m.Text, m.URL, m.Line+1)
+			mu.Lock()
+			messages = append(messages, line)
+			if m.Type == chromedp.ConsoleError || m.IsException() {
+				problems = append(problems, line)
+			}
+			mu.Unlock()
+		}
+	}()
+
+	if err := chromedp.Do(bctx,
+		chromedp.EmulateViewport(390, 844),
+		chromedp.Navigate(url),
+		chromedp.WaitVisible(chromedp.ID("live-level")),
+	); err != nil {
+		t.Fatalf("loading %s: %v", url, err)
+	}
+
+	// The live level follows the signal: it must read near the loud level and near the quiet
+	// level, each more than once, as the phases alternate. The Fast detector settles within a
+	// few time constants of 125 ms (IEC 61672-1:2013 5.8), far inside a 3 s phase.
+	loud, quiet := 94+loudDBFS-sensitivityDBFS, 94+quietDBFS-sensitivityDBFS
+	var readings []float64
+	seenLoud, seenQuiet, changes := 0, 0, 0
+	last := 0 // 1 loud, -1 quiet
+	deadline := time.Now().Add(30 * time.Second)
+	for time.Now().Before(deadline) && (seenLoud < 2 || seenQuiet < 2 || changes < 2) {
+		txt, err := chromedp.Run(bctx, chromedp.Evaluate[string](`document.getElementById('live-level').textContent`))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if v, err := strconv.ParseFloat(txt, 64); err == nil {
+			readings = append(readings, v)
+			switch {
+			case math.Abs(v-loud) < 1.5:
+				seenLoud++
+				if last == -1 {
+					changes++
+				}
+				last = 1
+			case math.Abs(v-quiet) < 1.5:
+				seenQuiet++
+				if last == 1 {
+					changes++
+				}
+				last = -1
+			}
+		}
+		time.Sleep(150 * time.Millisecond)
+	}
+	if seenLoud < 2 || seenQuiet < 2 || changes < 2 {
+		t.Fatalf("the live level did not follow the signal (want readings near %.0f and %.0f dB, alternating): %v", loud, quiet, readings)
+	}
+	t.Logf("live level readings: %d, near %.0f dB: %d, near %.0f dB: %d, changes: %d", len(readings), loud, seenLoud, quiet, seenQuiet, changes)
+
+	// The chart and the spectrum are drawn: count the pixels in the line and bar colour, and
+	// read what the script says it drew.
+	countLead := func(id string) int {
+		js := `(() => {
+			const c = document.getElementById(` + strconv.Quote(id) + `);
+			const d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
+			const hex = getComputedStyle(document.documentElement).getPropertyValue('--lead').trim();
+			const r = parseInt(hex.slice(1, 3), 16), g = parseInt(hex.slice(3, 5), 16), b = parseInt(hex.slice(5, 7), 16);
+			let n = 0;
+			for (let i = 0; i < d.length; i += 4) {
+				if (d[i + 3] > 200 && Math.abs(d[i] - r) + Math.abs(d[i + 1] - g) + Math.abs(d[i + 2] - b) < 40) n++;
+			}
+			return n;
+		})()`
+		v, err := chromedp.Run(bctx, chromedp.Evaluate[int](js))
+		if err != nil {
+			t.Fatalf("reading the pixels of #%s: %v", id, err)
+		}
+		return v
+	}
+	attr := func(id, name string) int {
+		v, err := chromedp.Run(bctx, chromedp.Evaluate[string](`document.getElementById(`+strconv.Quote(id)+`).dataset.`+name+` || '0'`))
+		if err != nil {
+			t.Fatal(err)
+		}
+		i, _ := strconv.Atoi(v)
+		return i
+	}
+	// Wait for a spectrum from the node's own second records (not only the history's).
+	if err := chromedp.Do(bctx, chromedp.Sleep(2500*time.Millisecond)); err != nil {
+		t.Fatal(err)
+	}
+	if pts, px := attr("hour-chart", "points"), countLead("hour-chart"); pts < 3000 || px < 300 {
+		t.Errorf("hour chart: %d points drawn, %d line pixels; want at least 3000 points (the history) and 300 pixels", pts, px)
+	} else {
+		t.Logf("hour chart: %d seconds, %d pixels in the line colour", pts, px)
+	}
+	if bands, px := attr("spectrum", "bands"), countLead("spectrum"); bands < 30 || px < 2000 {
+		t.Errorf("spectrum: %d bands drawn, %d bar pixels", bands, px)
+	} else {
+		t.Logf("spectrum: %d bands, %d pixels in the bar colour", bands, px)
+	}
+	if pts := attr("live-trace", "points"); pts < 10 {
+		t.Errorf("live trace: %d points", pts)
+	}
+	body, err := chromedp.Run(bctx, chromedp.Text(chromedp.CSS("body")))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"Node wc-harrowby-02", "Harrowby Lane", "passed", "not available", "indicative", "hearing"} {
+		if !strings.Contains(body, want) {
+			t.Errorf("the page does not show %q", want)
+		}
+	}
+	rows, err := chromedp.Run(bctx, chromedp.Evaluate[int](`document.querySelectorAll('#cal-table tbody tr').length`))
+	if err != nil || rows != 3 {
+		t.Errorf("calibration table: %d rows (%v), want the 3 stored checks", rows, err)
+	}
+
+	// Screenshots at phone and desktop widths. At 390 px nothing may stick out sideways.
+	for _, vp := range []struct {
+		name          string
+		width, height int64
+	}{{"phone-390", 390, 844}, {"desktop-1280", 1280, 900}} {
+		if err := chromedp.Do(bctx, chromedp.EmulateViewport(vp.width, vp.height), chromedp.Sleep(600*time.Millisecond)); err != nil {
+			t.Fatal(err)
+		}
+		overflow, err := chromedp.Run(bctx, chromedp.Evaluate[bool](`document.documentElement.scrollWidth > window.innerWidth`))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if overflow {
+			t.Errorf("%s: the page is wider than the screen", vp.name)
+		}
+		shot, err := chromedp.Run(bctx, chromedp.FullScreenshot(100))
+		if err != nil {
+			t.Fatal(err)
+		}
+		cfg, err := png.DecodeConfig(bytes.NewReader(shot))
+		if err != nil || int64(cfg.Width) != vp.width {
+			t.Errorf("%s: screenshot %dx%d (%v), want width %d", vp.name, cfg.Width, cfg.Height, err, vp.width)
+		}
+		path := filepath.Join(art, "status-page-"+vp.name+".png")
+		if err := os.WriteFile(path, shot, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		t.Logf("screenshot %s (%dx%d)", path, cfg.Width, cfg.Height)
+	}
+
+	bcancel()
+	<-consoleDone
+	mu.Lock()
+	defer mu.Unlock()
+	if len(problems) > 0 {
+		t.Errorf("console errors:\n%s", strings.Join(problems, "\n"))
+	}
+	if testing.Verbose() && len(messages) > 0 {
+		t.Logf("console:\n%s", strings.Join(messages, "\n"))
+	}
+}
