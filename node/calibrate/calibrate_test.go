@@ -395,3 +395,27 @@ func TestNewCheckOK(t *testing.T) {
 		}
 	}
 }
+
+// TestApply: a check reading 94.8 dB with -26 in use implies -25.2 dBFS (AN-1112 definition):
+// applied and saved; one then reading 98 dB with -25.2 in use implies -21.2, 4.8 dB from the
+// nominal -26: refused as a
+// microphone fault, the state unchanged.
+func TestApply(t *testing.T) {
+	dir := t.TempDir()
+	at := time.Date(2026, 6, 7, 9, 0, 0, 0, time.UTC)
+	c := NewCheck(at, detection(94.8, -26), 94, -26, dsp.CalibratorClass1)
+	st, err := Apply(dir, c, -26, 0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(st.SensitivityDBFS+25.2) > 1e-9 || !c.Applied || c.SensitivityAfter != st.SensitivityDBFS {
+		t.Errorf("state %+v, check %+v", st, c)
+	}
+	bad := NewCheck(at.Add(time.Hour), detection(98, -25.2), 94, -25.2, dsp.CalibratorClass1)
+	if _, err := Apply(dir, bad, -26, 0); !errors.Is(err, ErrMicrophoneFault) || bad.Applied {
+		t.Errorf("4 dB off: %v, applied %v", err, bad.Applied)
+	}
+	if got, err := LoadState(dir); err != nil || got.SensitivityDBFS != st.SensitivityDBFS {
+		t.Errorf("state after a refusal: %+v, %v", got, err)
+	}
+}

@@ -9,6 +9,8 @@ import (
 	"os"
 	"path/filepath"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer"
 )
 
 // StateFile is the name of the sensitivity state file in the node's state directory.
@@ -108,4 +110,26 @@ func SaveState(dir string, s State) error {
 		return fmt.Errorf("sensitivity state: syncing %s: %w", dir, err)
 	}
 	return nil
+}
+
+// Apply puts the sensitivity a check implies into use: it refuses (an error wrapping
+// ErrMicrophoneFault, nothing changed) when the sensitivity lies beyond rangeDB (default
+// DefaultAdjustRange) of nominal or the check clipped; otherwise it saves the state file in dir
+// and marks the check Applied with its SensitivityAfter. Call it before RecordCheck so that the
+// stored check says what was applied. The caller then measures with State.SensitivityDBFS and
+// writes a new session record.
+func Apply(dir string, c *buffer.Calibration, nominal, rangeDB float64) (*State, error) {
+	if c.Flags.Has(buffer.Clipped) {
+		return nil, fmt.Errorf("%w: the calibrator's tone clipped: use its 94 dB setting or lower the input gain", ErrMicrophoneFault)
+	}
+	s, err := Adjust(nominal, Implied(c), rangeDB)
+	if err != nil {
+		return nil, err
+	}
+	st := State{SensitivityDBFS: s, NominalDBFS: nominal, At: c.At, Reference: c.Reference, FrequencyHz: c.Frequency}
+	if err := SaveState(dir, st); err != nil {
+		return nil, err
+	}
+	c.SensitivityAfter, c.Applied = s, true
+	return &st, nil
 }
