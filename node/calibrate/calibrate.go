@@ -25,6 +25,15 @@
 // nominal sensitivity; beyond it the microphone, its port or its wiring is more likely at
 // fault than its sensitivity, and Adjust refuses with ErrMicrophoneFault.
 //
+// # Use
+//
+// While running, the node feeds its samples to a dsp.CalibratorDetector and passes each
+// detection, placed on the wall clock, to Handle: it marks the tone's seconds Calibrating,
+// matches the tone to a calibrator level (94 or 114 dB), and stores the check through
+// RecordCheck. To adjust, Apply checks the range, saves the state file (SaveState) and marks
+// the check applied; at start the node reads the state with LoadState. Offline, FromFile and
+// FromReader find the tone in a recording.
+//
 // Numbers from a low-cost node are indicative. Legally valid measurements need a type-approved
 // class 1 instrument with traceable calibration; local regulations and accredited practice
 // prevail. Calibrators produce 94 dB or 114 dB: keep them on the microphone, not near an ear.

@@ -398,8 +398,7 @@ func TestNewCheckOK(t *testing.T) {
 
 // TestApply: a check reading 94.8 dB with -26 in use implies -25.2 dBFS (AN-1112 definition):
 // applied and saved; one then reading 98 dB with -25.2 in use implies -21.2, 4.8 dB from the
-// nominal -26: refused as a
-// microphone fault, the state unchanged.
+// nominal -26: refused as a microphone fault, the state unchanged.
 func TestApply(t *testing.T) {
 	dir := t.TempDir()
 	at := time.Date(2026, 6, 7, 9, 0, 0, 0, time.UTC)
