@@ -411,3 +411,30 @@ func BenchmarkReport(b *testing.B) {
 	b.ReportMetric(float64(days), "days")
 	b.ReportMetric(b.Elapsed().Seconds()/float64(b.N), "s/report")
 }
+
+// TestReportEmptyRange: a range without records still gives a report, every period marked low
+// (coverage 0 %), no level invented.
+func TestReportEmptyRange(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "s.db")
+	start := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
+	testStore(t, path, start, 1)
+	st, err := buffer.OpenReadOnly(path, time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	from := time.Date(2026, 3, 1, 0, 0, 0, 0, time.UTC)
+	r, err := Compute(context.Background(), st, Config{Profile: loadProfile(t, "eu-lden"), From: from, To: from.Add(24 * time.Hour)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range r.Periods {
+		if !math.IsNaN(p.LAeq) || !p.Coverage.Low || p.Coverage.Share != 0 {
+			t.Errorf("%s: LAeq %v coverage %+v", p.Name, p.LAeq, p.Coverage)
+		}
+	}
+	if err := Write(filepath.Join(dir, "out"), r, Meta{Node: "empty"}); err != nil {
+		t.Fatal(err)
+	}
+}
