@@ -44,7 +44,8 @@ test: test-deps
 
 # The figures recorded in the README: benchmarks at full size, five runs each (quote medians).
 bench: test-deps
-	$(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
+	LEQNODE_BENCH_HOURS=24 $(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
+	.ci/callgrind-meter | tee -a bench.txt
 
 lint:
 	$(GO) vet ./...
