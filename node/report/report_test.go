@@ -321,15 +321,30 @@ func manyColours(img image.Image) bool {
 func screenshot(t *testing.T, page string) {
 	t.Helper()
 	const browser = "/usr/lib/chromium/chromium"
-	if _, err := os.Stat(browser); err != nil {
-		install := filepath.Join(repoRoot(t), ".ci", "install-debs")
+	install := filepath.Join(repoRoot(t), ".ci", "install-debs")
+	// Another package's test may be installing it at the same moment (go test runs packages in
+	// parallel, and dpkg takes one installer at a time): retry for a few minutes.
+	deadline := time.Now().Add(5 * time.Minute)
+	installed := func() bool {
+		st, err := exec.Command("dpkg-query", "-W", "-f=${Status}", "chromium").Output()
+		if err != nil || strings.TrimSpace(string(st)) != "install ok installed" {
+			return false
+		}
+		_, err = os.Stat(browser)
+		return err == nil
+	}
+	for !installed() {
 		if os.Geteuid() != 0 {
 			t.Skipf("no %s and not root to install it: run %s chromium", browser, install)
 		}
 		out, err := exec.Command(install, "chromium").CombinedOutput()
-		if err != nil {
-			t.Fatalf("installing chromium: %v: %s", err, out)
+		if err == nil && installed() {
+			break
 		}
+		if time.Now().After(deadline) {
+			t.Fatalf("installing chromium: %v: %s", err, lastLines(out))
+		}
+		time.Sleep(5 * time.Second)
 	}
 	shot := filepath.Join(t.TempDir(), "report.png")
 	ctx, cancel := context.WithTimeout(context.Background(), 90*time.Second)
