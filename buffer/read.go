@@ -7,20 +7,26 @@ import (
 	"fmt"
 	"math"
 	"os"
+	"runtime/debug"
 	"slices"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
 )
 
-// view runs fn in a read transaction, turning a bbolt panic on a damaged page into an error.
+// view runs fn in a read transaction, turning a bbolt panic on a damaged page, or a memory fault
+// on a page pointer beyond the mapped file, into an error wrapping ErrDamaged.
 func (s *Store) view(fn func(tx *bolt.Tx) error) (err error) {
-	defer func() {
-		if p := recover(); p != nil {
-			err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, p)
-		}
-	}()
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer s.recoverDamage(&err)
 	return s.db.View(fn)
+}
+
+// recoverDamage turns a panic into an error wrapping ErrDamaged; deferred by view and commit.
+func (s *Store) recoverDamage(err *error) {
+	if p := recover(); p != nil {
+		*err = fmt.Errorf("store %s: %w: %v", s.path, ErrDamaged, p)
+	}
 }
 
 func checkStream(stream string) error {
@@ -588,15 +594,10 @@ func (s *Store) check() error {
 		errs = append(errs, err)
 		return len(errs) < 20
 	}
+	// The store's own walk comes first: it runs in this goroutine, where view turns a fault on a
+	// damaged page into an error. bbolt's check runs in a goroutine of its own, where a fault
+	// would end the process, so it runs only over trees the walk has read safely.
 	err := s.view(func(tx *bolt.Tx) error {
-		for cerr := range tx.Check() {
-			if !add(fmt.Errorf("bbolt: %w", cerr)) {
-				return nil
-			}
-		}
-		if len(errs) > 0 {
-			return nil // the B+trees themselves are unsound: walking them could panic
-		}
 		for _, k := range Kinds() {
 			rb, xb := tx.Bucket(recBucket(k)), tx.Bucket(runsBucket(k))
 			if rb == nil || xb == nil {
@@ -665,6 +666,21 @@ func (s *Store) check() error {
 	})
 	if err != nil {
 		return err
+	}
+	if len(errs) == 0 {
+		err = s.view(func(tx *bolt.Tx) error {
+			// Drain the channel: bbolt's check goroutine reads pages of this transaction until
+			// it has sent everything.
+			for cerr := range tx.Check() {
+				if len(errs) < 20 {
+					add(fmt.Errorf("bbolt: %w", cerr))
+				}
+			}
+			return nil
+		})
+		if err != nil {
+			return err
+		}
 	}
 	if len(errs) > 0 {
 		return fmt.Errorf("store %s: %w: %w", s.path, ErrDamaged, errors.Join(errs...))

@@ -10,6 +10,7 @@ import (
 	"io/fs"
 	"os"
 	"path/filepath"
+	"runtime/debug"
 	"slices"
 	"sync"
 	"time"
@@ -125,7 +126,10 @@ type Store struct {
 // valid bbolt database but not a store is refused with ErrNotStore.
 func Open(path string, opts *Options) (*Store, error) {
 	o := opts.resolved()
-	s := &Store{path: path, opts: o, cursors: map[streamKind]*cursor{}, firstCommit: true}
+	fresh := func() *Store {
+		return &Store{path: path, opts: o, cursors: map[streamKind]*cursor{}, firstCommit: true}
+	}
+	s := fresh()
 	err := s.open()
 	if err != nil && errors.Is(err, ErrDamaged) {
 		moved, merr := moveAside(path, o.Now())
@@ -134,6 +138,7 @@ func Open(path string, opts *Options) (*Store, error) {
 		}
 		o.Logger.Error("store file damaged: moved aside, starting a fresh store",
 			"path", path, "moved_to", moved, "err", err)
+		s = fresh() // nothing of the damaged file's state carries over
 		s.recovered = moved
 		err = s.open()
 	}
@@ -504,7 +509,7 @@ func (s *Store) commit(final bool) error {
 	}
 	var last [KindSession + 1]uint64
 	var runsEmpty [KindSession + 1]bool
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.update(func(tx *bolt.Tx) error {
 		for _, h := range s.held {
 			rb := tx.Bucket(recBucket(h.kind))
 			rb.FillPercent = fillPercent
@@ -596,6 +601,16 @@ func (s *Store) commit(final bool) error {
 	s.firstCommit = false
 	s.commits++
 	return nil
+}
+
+// update runs fn in a write transaction; a panic or memory fault on a damaged page rolls the
+// transaction back (bbolt's Update does so on a panic) and becomes an error wrapping ErrDamaged.
+// The store stays open; a node that sees ErrDamaged should Close it and Open it again with
+// CheckOnOpen, which moves the damaged file aside.
+func (s *Store) update(fn func(tx *bolt.Tx) error) (err error) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer s.recoverDamage(&err)
+	return s.db.Update(fn)
 }
 
 func outboxKey(sk streamKind) []byte {

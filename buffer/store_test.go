@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"log/slog"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"strings"
@@ -622,5 +623,47 @@ func TestRecentAndNoReuseAfterCrash(t *testing.T) {
 	}
 	if err := s.Check(); err != nil {
 		t.Fatal(err)
+	}
+}
+
+// Damaged pages inside a file whose meta pages are intact (bit rot on a card): reading commands
+// report the damage in an error, never crash, and an Open with CheckOnOpen moves the file aside.
+func TestDamagedPagesReported(t *testing.T) {
+	for seed := range uint64(12) {
+		path := filepath.Join(t.TempDir(), "node.db")
+		s := openTest(t, path, nil)
+		for i := range 3000 {
+			s.Append(second(t0.Add(time.Duration(i)*time.Second), 50))
+		}
+		s.Close()
+		b, err := os.ReadFile(path)
+		if err != nil {
+			t.Fatal(err)
+		}
+		rng := rand.New(rand.NewPCG(seed, 1))
+		for range 20 { // flip bytes in data pages, never in the two meta pages
+			p := 2 + rng.IntN(len(b)/4096-2)
+			b[p*4096+rng.IntN(4096)] ^= byte(1 + rng.IntN(255))
+		}
+		if err := os.WriteFile(path, b, 0o600); err != nil {
+			t.Fatal(err)
+		}
+		r, err := OpenReadOnly(path, 0)
+		if err == nil {
+			err = r.Check()
+			r.Close()
+		}
+		if !errors.Is(err, ErrDamaged) {
+			t.Errorf("seed %d: damaged pages gave %v, want an error wrapping ErrDamaged", seed, err)
+			continue
+		}
+		w, err := Open(path, &Options{CheckOnOpen: true, NoSync: true, Logger: quietLogger(), Now: func() time.Time { return t0.Add(time.Hour) }})
+		if err != nil {
+			t.Fatalf("seed %d: %v", seed, err)
+		}
+		if w.Recovered() == "" {
+			t.Errorf("seed %d: CheckOnOpen kept a damaged file", seed)
+		}
+		w.Close()
 	}
 }
