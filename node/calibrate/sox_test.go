@@ -46,6 +46,7 @@ func TestSoxRecordings(t *testing.T) {
 		if err != nil {
 			t.Fatalf("%s: %v", tc.name, err)
 		}
+		t.Logf("%s: sensitivity %.4f dBFS, %.4f Hz, stable %.2f s", tc.name, res.SensitivityDBFS, res.Detection.FrequencyHz, res.Detection.Stable)
 		if math.Abs(res.SensitivityDBFS-tc.sens) > 0.1 || math.Abs(res.Detection.FrequencyHz-1000) > 0.1 {
 			t.Errorf("%s: sensitivity %.3f dBFS, %.3f Hz; want %g within 0.1 dB, 1000 Hz within 0.1 Hz", tc.name, res.SensitivityDBFS, res.Detection.FrequencyHz, tc.sens)
 		}
