@@ -147,8 +147,10 @@ type Detection struct {
 //
 // Cost: a DC blocker and a 1 kHz band-pass per sample; only a block in which the band-pass
 // output holds at least half the energy (as it must when the tone dominates) gets the FFT
-// (8192 points at 48 kHz) and, when tonal, the complex amplitude. Process allocates nothing. A CalibratorDetector is not
-// safe for concurrent use.
+// (8192 points at 48 kHz) and, when tonal, the complex amplitude: about 0.13 times the work
+// of a Meter without bands in ordinary sound, 1.2 times while a calibrator is on (medians of
+// BenchmarkCalibratorDetector and BenchmarkMeter in one run). Process allocates nothing. A
+// CalibratorDetector is not safe for concurrent use.
 type CalibratorDetector struct {
 	cfg      CalibratorConfig
 	fs       float64
