@@ -204,7 +204,8 @@ func TestReportFromStore(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"Lden", "type-approved", "Calibration history", "power cut", "data:image/png;base64,"} {
+	for _, want := range []string{"Lden", "type-approved", "Calibration history", "power cut", "data:image/png;base64,",
+		"6 events in the range", "<td class=\"l\">2026-06-01 23:30:00</td><td class=\"l\">night</td><td>6.0</td><td>80.0</td>"} {
 		if !bytes.Contains(page, []byte(want)) {
 			t.Errorf("report.html lacks %q", want)
 		}

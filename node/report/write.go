@@ -9,10 +9,12 @@ import (
 	"math"
 	"os"
 	"path/filepath"
+	"sort"
 	"strconv"
 	"strings"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/report/indicator"
 )
@@ -146,6 +148,8 @@ type page struct {
 	Tones    string
 	Cals     []calRow
 	Gaps     []gapRow
+	Events   []eventRow
+	NEvents  int
 	Cov      indicator.Coverage
 	Comp     string
 	CompAll  string
@@ -189,6 +193,11 @@ type overallRow struct {
 type calRow struct{ At, Ref, Measured, Dev, Freq, Applied, OK string }
 
 type gapRow struct{ From, To, Length, Reason string }
+
+type eventRow struct{ Start, Period, Duration, LAFmax, LAeq, LAE, LCpeak string }
+
+// loudestEvents is the number of events listed in the report, loudest LAE first.
+const loudestEvents = 20
 
 func dataURI(png []byte) template.URL {
 	return template.URL("data:image/png;base64," + base64.StdEncoding.EncodeToString(png))
@@ -276,6 +285,19 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 	for _, g := range r.Gaps {
 		pg.Gaps = append(pg.Gaps, gapRow{From: lt(g.From), To: lt(g.To), Length: g.To.Sub(g.From).Round(time.Second).String(), Reason: g.Reason})
 	}
+	evs := append([]*buffer.Event(nil), r.Events...)
+	sort.SliceStable(evs, func(i, j int) bool { return evs[i].LAE > evs[j].LAE })
+	pg.NEvents = len(evs)
+	for _, e := range evs[:min(len(evs), loudestEvents)] {
+		per := ""
+		for _, p := range r.Periods {
+			if !e.Start.Before(p.From) && e.Start.Before(p.To) {
+				per = p.Name
+			}
+		}
+		pg.Events = append(pg.Events, eventRow{Start: e.Start.In(loc).Format("2006-01-02 15:04:05"), Period: per,
+			Duration: fmt.Sprintf("%.1f", e.End.Sub(e.Start).Seconds()), LAFmax: num(e.LAFmax), LAeq: num(e.LAeq), LAE: num(e.LAE), LCpeak: num(e.LCpeak)})
+	}
 	var buf bytes.Buffer
 	if err := pageTemplate.Execute(&buf, pg); err != nil {
 		return nil, fmt.Errorf("report: rendering HTML: %w", err)
@@ -343,6 +365,12 @@ above about 85 dB(A) over long periods damages hearing: protect yourself when wo
 {{$adj := .Adjust}}{{range .Periods}}<tr class="{{if .Exceeds}}over{{else if .Low}}low{{end}}{{if .Partial}} part{{end}}"><td class="l">{{.Day}}</td><td class="l">{{.Name}}</td><td class="l">{{.From}}</td><td>{{.Hours}}</td><td>{{.LAeq}}</td><td>{{.Limit}}</td><td>{{.Margin}}</td><td>{{.LAF10}}</td><td>{{.LAF90}}</td><td>{{.LAFmax}}</td><td>{{.LF}}</td><td>{{.Imp}}</td>{{if $adj}}<td>{{.Rating}}</td>{{end}}<td>{{.Events}}</td><td>{{.MaxLAE}}</td><td>{{.Cov}}</td><td class="l">{{.Tones}}</td></tr>
 {{end}}</table>
 <p>Tonal screen over the whole range: {{if .Tones}}{{.Tones}}{{else}}no band stands out{{end}}.</p>
+
+<h2>Loudest events</h2>
+{{if .Events}}<p>{{.NEvents}} events in the range (flagged ones left out); the {{len .Events}} with the largest sound exposure level:</p>
+<table><tr><th class="l">Start</th><th class="l">Period</th><th>Duration s</th><th>LAFmax</th><th>LAeq</th><th>LAE</th><th>LCpeak</th></tr>
+{{range .Events}}<tr><td class="l">{{.Start}}</td><td class="l">{{.Period}}</td><td>{{.Duration}}</td><td>{{.LAFmax}}</td><td>{{.LAeq}}</td><td>{{.LAE}}</td><td>{{.LCpeak}}</td></tr>
+{{end}}</table>{{else}}<p>No events in the range.</p>{{end}}
 
 <h2>Calibration history</h2>
 {{if .Cals}}<table><tr><th class="l">When</th><th>Calibrator dB</th><th>Measured dB</th><th>Deviation dB</th><th>Hz</th><th>New sensitivity applied</th><th>Result</th></tr>
