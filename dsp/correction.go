@@ -82,7 +82,8 @@ func CorrectionSections(points []CorrectionPoint, fs float64) ([]Section, error)
 // the one-third-octave midbands) the largest error on the grid is 0.06 dB and the RMS error
 // 0.03 dB at 48 kHz (0.03 and 0.006 dB at 16 kHz), and sines through the meter read within
 // 0.2 dB of the shape. The fit takes about a second of one core: do it once at start-up, not
-// per stream. FitCorrection refuses a fit that leaves more
+// per stream. As for the weighting design, the optimiser runs its evaluations on a goroutine
+// of its own while FitCorrection waits; nothing is left running when it returns. FitCorrection refuses a fit that leaves more
 // than CorrectionAccept (0.15 dB) anywhere on the grid, which happens for tables with steps
 // or ripple finer than a third of an octave. The filter's gain below the grid follows the low
 // shelf, so a table should start at 20 Hz or lower.
