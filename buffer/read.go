@@ -506,6 +506,9 @@ type Stats struct {
 	// page per commit.
 	WrittenBytes int64
 	Recovered    string // see Store.Recovered
+	// CommitError is the error of the last commit when it failed (records are then held in
+	// memory and retried), or "". A node raises a health flag on it.
+	CommitError string
 }
 
 // Stats returns the store's statistics. It reads only the ends of each index.
@@ -518,6 +521,9 @@ func (s *Store) Stats() (Stats, error) {
 	st := Stats{
 		ID: s.id, Path: s.path, MaxBytes: s.opts.MaxBytes, Held: len(s.held), Commits: s.commits,
 		Recovered: s.recovered, Kinds: map[Kind]KindStats{}, Streams: map[string]map[Kind]StreamStats{},
+	}
+	if s.commitErr != nil {
+		st.CommitError = s.commitErr.Error()
 	}
 	for _, k := range Kinds() {
 		st.Kinds[k] = KindStats{Count: s.kstat[k].count, Bytes: s.kstat[k].bytes, LastSeq: s.committed[k],

@@ -667,3 +667,28 @@ func TestDamagedPagesReported(t *testing.T) {
 		w.Close()
 	}
 }
+
+// When commits fail (here: the file closed under the store), records stay held, the failure is
+// reported in Stats, and once MaxHeld records are held Append refuses more instead of growing.
+func TestCommitFailureHoldsRecords(t *testing.T) {
+	clk := &clock{t: t0}
+	s := openTest(t, filepath.Join(t.TempDir(), "node.db"), &Options{Now: clk.Now, MaxHeld: 5})
+	if _, err := s.Append(second(t0, 50)); err != nil {
+		t.Fatal(err)
+	}
+	s.db.Close()
+	var errs int
+	for i := 1; i <= 8; i++ {
+		clk.Add(time.Minute) // every append is due to commit
+		if _, err := s.Append(second(t0.Add(time.Duration(i)*time.Second), 50)); err != nil {
+			errs++
+		}
+	}
+	st, _ := s.Stats()
+	if errs != 8 || st.CommitError == "" || st.Held != 5 {
+		t.Errorf("%d append errors, commit error %q, %d held; want 8, an error, 5", errs, st.CommitError, st.Held)
+	}
+	if n := s.LastSeq(KindSecond); n != 6 { // one committed, five held, three refused
+		t.Errorf("last number handed out %d, want 6", n)
+	}
+}
