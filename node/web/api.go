@@ -2,6 +2,7 @@ package web
 
 import (
 	"bytes"
+	"cmp"
 	"compress/gzip"
 	"encoding/json"
 	"fmt"
@@ -93,6 +94,18 @@ func (s *Server) status() Status {
 			st.Store = ss
 		} else {
 			s.log.Warn("status page: reading the store's statistics", "err", err)
+		}
+	}
+	if st.SampleRate == 0 || st.Version == "" || st.TimeZone == "" || st.Source == "" || st.Calibration == nil {
+		if r, err := s.o.Store.Last(buffer.KindSession); err == nil && r != nil {
+			sess := r.(*buffer.Session)
+			st.SampleRate = cmp.Or(st.SampleRate, sess.SampleRate)
+			st.Version = cmp.Or(st.Version, sess.SoftwareVersion)
+			st.TimeZone = cmp.Or(st.TimeZone, sess.TimeZone)
+			st.Source = cmp.Or(st.Source, sess.Device)
+			if st.Calibration == nil && sess.SensitivityDBFS != 0 {
+				st.Calibration = &CalibrationStatus{SensitivityDBFS: sess.SensitivityDBFS}
+			}
 		}
 	}
 	if st.ClockSynced == nil {

@@ -23,8 +23,10 @@ func LiveFrom(c *node.Counters) func() Live {
 }
 
 // Status is what the running node reports about itself. Every field is optional: a field the
-// caller cannot fill stays zero (nil for the groups) and the page shows "not available". The
-// server fills Store, and ClockSynced when nil, from the store itself.
+// caller cannot fill stays zero (nil for the groups) and the page shows "not available". Where
+// the caller leaves them zero, the server fills Store from the store's statistics, SampleRate,
+// Version, TimeZone, Source and Calibration (the sensitivity in use) from the latest session
+// record, and ClockSynced from the latest health snapshot.
 type Status struct {
 	NodeID     string    `json:"node_id,omitempty"`
 	Site       string    `json:"site,omitempty"`

@@ -650,3 +650,37 @@ func TestCoverage(t *testing.T) {
 		})
 	}
 }
+
+// What the caller leaves out of Status comes from the latest session record where it can.
+func TestStatusFromSession(t *testing.T) {
+	st := openStore(t)
+	sess := &buffer.Session{At: testNow().Add(-time.Hour), SoftwareVersion: "leqnode v0.9.0", SensitivityDBFS: -37.5,
+		SampleRate: 48000, Device: "hw:CARD=Mic,DEV=0", TimeZone: "Europe/Berlin"}
+	if _, err := st.Append(sess); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		name   string
+		status func() web.Status
+		want   web.Status
+	}{
+		{"nothing from the caller", nil, web.Status{Version: "leqnode v0.9.0", SampleRate: 48000, Source: "hw:CARD=Mic,DEV=0",
+			TimeZone: "Europe/Berlin", Calibration: &web.CalibrationStatus{SensitivityDBFS: -37.5}}},
+		{"the caller wins", func() web.Status {
+			return web.Status{Version: "leqnode v1", SampleRate: 44100, Source: "file: a.wav", TimeZone: "UTC",
+				Calibration: &web.CalibrationStatus{SensitivityDBFS: -38, Calibrating: true}}
+		}, web.Status{Version: "leqnode v1", SampleRate: 44100, Source: "file: a.wav", TimeZone: "UTC",
+			Calibration: &web.CalibrationStatus{SensitivityDBFS: -38, Calibrating: true}}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			s := newServer(t, web.Options{Store: st, Status: tc.status})
+			_, body := get(t, s.Handler(), http.MethodGet, "/api/status")
+			var got web.Status
+			decode(t, body, &got)
+			if got.Version != tc.want.Version || got.SampleRate != tc.want.SampleRate || got.Source != tc.want.Source ||
+				got.TimeZone != tc.want.TimeZone || got.Calibration == nil || *got.Calibration != *tc.want.Calibration {
+				t.Errorf("status %s, want %+v", body, tc.want)
+			}
+		})
+	}
+}
