@@ -26,6 +26,7 @@ func TestDBCheck(t *testing.T) {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
 	line := strings.TrimSpace(out)
+	t.Log(line)
 	for _, want := range []string{"store " + id + " ok:", "90 second", "1 minute", "1 annotation", "1 session",
 		"2026-05-03T18:29:00Z to 2026-05-03T18:30:29Z", "pending mqtt: second 50"} {
 		if !strings.Contains(line, want) {
