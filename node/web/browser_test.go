@@ -123,7 +123,8 @@ func TestBrowser(t *testing.T) {
 			Calibration: &web.CalibrationStatus{SensitivityDBFS: sensitivityDBFS, NominalDBFS: -30},
 			SelfCheck:   &web.SelfCheckStatus{At: started, Pass: true, Checks: 96, SampleRate: 48000}}
 	}
-	srv, err := web.New(web.Options{Store: st, Live: web.LiveFrom(&n.Counters), Status: status, Logger: log})
+	const token = "harrowby-field-9c1e"
+	srv, err := web.New(web.Options{Store: st, Live: web.LiveFrom(&n.Counters), Status: status, Logger: log, Token: token})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -193,12 +194,17 @@ func TestBrowser(t *testing.T) {
 		}
 	}()
 
+	// Open the page the way a field worker would with a token: once with ?token=, after which
+	// the cookie carries the access for the page's own requests and its live stream.
 	if err := chromedp.Do(bctx,
 		chromedp.EmulateViewport(390, 844),
-		chromedp.Navigate(url),
+		chromedp.Navigate(url+"?token="+token),
 		chromedp.WaitVisible(chromedp.ID("live-level")),
 	); err != nil {
 		t.Fatalf("loading %s: %v", url, err)
+	}
+	if loc, err := chromedp.Run(bctx, chromedp.Location()); err != nil || strings.Contains(loc, token) {
+		t.Errorf("the address bar still holds the token: %q (%v)", loc, err)
 	}
 
 	// The live level follows the signal: it must read near the loud level and near the quiet
@@ -287,7 +293,8 @@ func TestBrowser(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"Node wc-harrowby-02", "Harrowby Lane", "passed", "not available", "indicative", "hearing"} {
+	for _, want := range []string{"Node wc-harrowby-02", "Harrowby Lane", "passed", "not available", "indicative", "hearing",
+		"travel unencrypted"} {
 		if !strings.Contains(body, want) {
 			t.Errorf("the page does not show %q", want)
 		}
