@@ -54,6 +54,15 @@
 // 5 MB per hour with a worst-case loss of 60 s. Measure again on the target card before
 // shortening the interval.
 //
+// Other figures from the same machine (2 shared cores, ext4): a day of node output takes
+// 12.8 MB of the file with spectra and 6.6 MB without (BenchmarkFileBytesPerDay); 30 days make a
+// 379 MB file that opens in 0.02 s with the freelist synced and 0.7 to 1.1 s without
+// (BenchmarkOpen); reading those 30 days of second records through Range takes 3 µs a record
+// (BenchmarkRange); an Append costs 1.29 times as much on a store of 10 million records as on one
+// of a thousand, and writes 1093 instead of 938 bytes, one more B+tree level (BenchmarkAppend).
+// With the 1 GiB default cap, 30 days of seconds (about 390 MB) and the minute records (about
+// 0.45 MB a day) fit for about three years; after that the cap trims the oldest seconds first.
+//
 // # Retention
 //
 // Inside the same transaction that adds new records, the store deletes records older than their
