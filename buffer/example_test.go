@@ -118,3 +118,37 @@ func ExampleFlags_String() {
 	fmt.Println(f)
 	// Output: settling|clock-unsynced
 }
+
+// A live publisher sends held records at once with Recent instead of waiting for the commit;
+// After returns only what is durable.
+func ExampleStore_Recent() {
+	dir, _ := os.MkdirTemp("", "leqnode-example")
+	defer os.RemoveAll(dir)
+	start := time.Date(2026, 3, 14, 7, 0, 0, 0, time.UTC)
+	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
+	defer s.Close()
+	for i := range 3 {
+		s.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 48})
+	}
+	durable, _ := s.After(buffer.KindSecond, 0, 10)
+	live, _ := s.Recent(buffer.KindSecond, 0, 10)
+	fmt.Println(len(durable), "committed,", len(live), "including held")
+	// Output: 1 committed, 3 including held
+}
+
+// Check verifies the whole file; Stats summarises it.
+func ExampleStore_Check() {
+	dir, _ := os.MkdirTemp("", "leqnode-example")
+	defer os.RemoveAll(dir)
+	start := time.Date(2026, 3, 14, 7, 0, 0, 0, time.UTC)
+	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
+	defer s.Close()
+	s.Append(&buffer.Gap{From: start, To: start.Add(90 * time.Second), Reason: "audio device lost"})
+	s.Flush()
+	fmt.Println(s.Check())
+	st, _ := s.Stats()
+	fmt.Println(st.Kinds[buffer.KindGap].Count, st.Kinds[buffer.KindGap].Oldest.Format(time.RFC3339))
+	// Output:
+	// <nil>
+	// 1 2026-03-14T07:00:00Z
+}
