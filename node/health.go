@@ -43,7 +43,7 @@ func (h HealthOptions) withDefaults() HealthOptions {
 }
 
 // healthFlags are the flags the health checks raise and clear.
-const healthFlags = buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset | buffer.Clipped
+const healthFlags = buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset | buffer.Clipped | buffer.MicFault
 
 // healthState accumulates what the health snapshots report.
 type healthState struct {
@@ -51,6 +51,7 @@ type healthState struct {
 
 	silentRun, stuckRun time.Duration
 	flags               buffer.Flags // the health flags now raised
+	sticky              buffer.Flags // flags raised until cleared by their cause (microphone fault)
 
 	// Since the last snapshot.
 	clipped       uint64
@@ -100,7 +101,7 @@ func (h *healthState) second(r *dsp.Result, secFlags buffer.Flags, dropped uint6
 	if r.Clipped > 0 {
 		f |= buffer.Clipped
 	}
-	return f
+	return f | h.sticky
 }
 
 // snapshot builds a health record and starts a new snapshot period.

@@ -74,6 +74,15 @@ type Options struct {
 	// bank beside the meter's, roughly doubling the per-sample cost.
 	Events *dsp.EventConfig
 
+	// Calibration, when set, detects sound calibrators on the microphone (see
+	// CalibrationOptions) and takes calibration requests.
+	Calibration *CalibrationOptions
+
+	// Correction, when set, is a measured microphone and windscreen response, fitted as a
+	// filter on the meter's input when the source opens (dsp.CorrectionSections; the fit takes
+	// about a second). The event detector's own chain runs without it.
+	Correction []dsp.CorrectionPoint
+
 	// Session holds what the node writes in its session records besides the sample rate and
 	// device, which it fills in: software version, config hash, time zone.
 	Session buffer.Session
@@ -151,6 +160,7 @@ type Node struct {
 	sensitivity atomic.Uint64 // math.Float64bits of the sensitivity in use
 	started     time.Time
 	settings    chan Settings
+	calRequests chan calRequest
 }
 
 // Settings are the options that can change while the node runs, without a restart.
@@ -181,7 +191,7 @@ func New(o Options) (*Node, error) {
 		return nil, errors.New("node: a source and a store are required")
 	}
 	r := o.withDefaults()
-	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings)}
+	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings), calRequests: make(chan calRequest)}
 	n.Counters.FastLevel.Store(math.Float64bits(math.NaN()))
 	n.sensitivity.Store(math.Float64bits(r.SensitivityDBFS))
 	return n, nil

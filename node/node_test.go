@@ -8,6 +8,7 @@ import (
 	"log/slog"
 	"math"
 	"math/rand/v2"
+	"os"
 	"path/filepath"
 	"strings"
 	"sync"
@@ -440,5 +441,61 @@ func TestNodeEvents(t *testing.T) {
 	}
 	if len(e.Spectrum) == 0 {
 		t.Error("event without a spectrum")
+	}
+}
+
+func TestNodeCalibration(t *testing.T) {
+	// A 94 dB calibrator on a microphone 1 dB less sensitive than its data sheet says (-27
+	// dBFS instead of -26): the node, asked to calibrate, takes the tone, stores the check and
+	// a calibrating annotation, applies -27 dBFS (within the ±3 dB range), keeps it in the state
+	// directory and writes a new session record. No event is raised for the tone.
+	const actual = -27.0
+	tone := func(i int64) float32 {
+		t := float64(i) / 48000
+		noise := float32(1e-4 * math.Sin(2*math.Pi*137*t))
+		if t >= 3 && t < 13 {
+			// 94 dB SPL at the true sensitivity: peak 10^(actual/20) (AES17).
+			return float32(math.Pow(10, actual/20)*math.Sin(2*math.Pi*1000*t)) + noise
+		}
+		return noise
+	}
+	state := t.TempDir()
+	src := &fakeSource{fs: 48000, signal: tone, total: 20 * 48000, t0: t0}
+	ev := dsp.DefaultEventConfig(-26)
+	r := newRig(t, src, func(o *Options) {
+		o.Calibration = &CalibrationOptions{NominalDBFS: -26, StateDir: state}
+		o.Events = &ev
+	})
+	done := make(chan *CalibrationResult, 1)
+	go func() {
+		res, err := r.node.RequestCalibration(context.Background(), 94)
+		if err != nil {
+			t.Error(err)
+		}
+		done <- res
+	}()
+	time.Sleep(50 * time.Millisecond)
+	r.run(t)
+	res := <-done
+	if res == nil || !res.Applied {
+		t.Fatalf("calibration not applied: %+v", res)
+	}
+	if math.Abs(res.Check.SensitivityAfter-actual) > 0.1 {
+		t.Errorf("applied sensitivity %.3f dBFS, want %.1f within 0.1 dB", res.Check.SensitivityAfter, actual)
+	}
+	if math.Abs(res.Check.Deviation-(-1)) > 0.1 {
+		t.Errorf("deviation %.3f dB, want -1 (the microphone reads 1 dB low)", res.Check.Deviation)
+	}
+	checks := records[*buffer.Calibration](t, r.store, buffer.KindCalibration)
+	anns := records[*buffer.Annotation](t, r.store, buffer.KindAnnotation)
+	sess := records[*buffer.Session](t, r.store, buffer.KindSession)
+	if len(checks) != 1 || len(anns) != 1 || !anns[0].Flags.Has(buffer.Calibrating) || len(sess) != 2 || math.Abs(sess[1].SensitivityDBFS-actual) > 0.1 {
+		t.Errorf("checks %d, annotations %+v, sessions %+v", len(checks), anns, sess)
+	}
+	if evs := records[*buffer.Event](t, r.store, buffer.KindEvent); len(evs) != 0 {
+		t.Errorf("events during the calibrator tone: %+v", evs)
+	}
+	if _, err := os.Stat(filepath.Join(state, "sensitivity.json")); err != nil {
+		t.Errorf("no sensitivity kept in the state directory: %v", err)
 	}
 }

@@ -2,6 +2,7 @@ package node
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"time"
@@ -39,6 +40,12 @@ type processor struct {
 	syncChecked time.Time
 
 	health healthState
+
+	correction []dsp.Section // fitted from Options.Correction for the current rate
+	cal        *dsp.CalibratorDetector
+	calSkew    int64 // samples skipped since the calibrator detector started
+	calPending *calRequest
+	calErr     error
 
 	events   *dsp.EventDetector
 	event    dsp.Event
@@ -152,6 +159,12 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 				}
 			}
 			watchdog.Reset(o.Watchdog)
+		case r := <-p.n.calRequests:
+			if p.calPending != nil {
+				r.reply <- calReply{err: errors.New("another calibration request is waiting for a tone: try again later")}
+			} else {
+				p.calPending = &r
+			}
 		case st := <-p.n.settings:
 			if err := p.reconfigure(st); err != nil {
 				return err
@@ -187,8 +200,15 @@ func (p *processor) opened(ev event) error {
 	}
 	fs := float64(ev.format.SampleRate)
 	p.n.sampleRate.Store(int64(ev.format.SampleRate))
+	if len(o.Correction) > 0 && (p.correction == nil || fs != p.fs) {
+		secs, err := dsp.CorrectionSections(o.Correction, fs)
+		if err != nil {
+			return fmt.Errorf("node: microphone correction: %w", err)
+		}
+		p.correction = secs
+	}
 	if p.meter == nil || fs != p.fs {
-		m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands})
+		m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction})
 		if err != nil {
 			return fmt.Errorf("node: %w", err)
 		}
@@ -199,12 +219,19 @@ func (p *processor) opened(ev event) error {
 	} else {
 		// Same settings: a fresh meter all the same, so the old filter state does not smear
 		// into the new stream.
-		m, _ := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands})
+		m, _ := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction})
 		p.meter = m
 	}
 	p.clock = NewSampleClock(fs)
 	p.anchored = false
 	p.pos = 0
+	if o.Calibration != nil {
+		d, err := dsp.NewCalibratorDetector(dsp.CalibratorConfig{SampleRate: fs})
+		if err != nil {
+			return fmt.Errorf("node: %w", err)
+		}
+		p.cal, p.calSkew = d, 0
+	}
 	if o.Events != nil {
 		cfg := *o.Events
 		cfg.SensitivityDBFS = o.SensitivityDBFS
@@ -328,6 +355,16 @@ func (p *processor) data(ev event) error {
 	if now := o.Now(); now.Sub(p.syncChecked) >= time.Minute {
 		p.synced, p.syncChecked = o.ClockSynced(), now
 	}
+	inTone := false
+	if p.cal != nil {
+		p.cal.Process(x, p.onTone)
+		if p.calErr != nil {
+			return p.calErr
+		}
+		if _, inTone = p.cal.InTone(); inTone {
+			p.secFlags |= buffer.Calibrating
+		}
+	}
 	for len(x) > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
 		take := min(int64(len(x)), end-p.pos)
@@ -345,6 +382,7 @@ func (p *processor) data(ev event) error {
 	p.lastEnd = p.clock.Time(p.pos)
 	p.n.Counters.FastLevel.Store(math.Float64bits(p.meter.FastLevel()))
 	if p.events != nil {
+		p.events.SetSuppressed(inTone)
 		p.events.Process(ev.samples)
 		return p.storeEvents()
 	}
@@ -387,6 +425,7 @@ func (p *processor) flushEvents() error {
 // on, the seconds they fall in are flagged.
 func (p *processor) skip(k int64) {
 	p.evSkew += k
+	p.calSkew += k
 	for k > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
 		take := min(k, end-p.pos)

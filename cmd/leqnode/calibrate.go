@@ -15,6 +15,7 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/control"
 )
 
 // optFloat is a float flag that remembers whether it was given.
@@ -211,9 +212,26 @@ func deref(p *float64) float64 {
 }
 
 // connectDaemon returns the running node's calibration service, reached through its control
-// socket. This is the seam the control socket fills: until it exists, it says so in one line.
+// socket (the configured one, LEQNODE_CONTROL, or the default under systemd).
 func connectDaemon(ctx context.Context, cfgPath string) (calibrate.Requester, error) {
-	_ = ctx
-	_ = cfgPath
-	return nil, fmt.Errorf("%w in this release: give a recording of the calibrator instead, e.g. leqnode calibrate --reference 94 check.wav (record it with arecord -f S16_LE -r 48000 -d 15 check.wav)", calibrate.ErrNoControlSocket)
+	sf := storeFlags{db: new(string), config: &cfgPath}
+	c := control.NewClient(sf.socket())
+	if !c.Available() {
+		return nil, fmt.Errorf("%w at %s: start the node, give --config with its [control] socket, or give a recording of the calibrator instead, e.g. leqnode calibrate --reference 94 check.wav", calibrate.ErrNoControlSocket, sf.socket())
+	}
+	return daemonCalibrator{c}, nil
+}
+
+// daemonCalibrator asks a running node, through its control socket, to take the next tone.
+type daemonCalibrator struct{ c *control.Client }
+
+func (d daemonCalibrator) RequestCheck(ctx context.Context, req calibrate.Request) (calibrate.Summary, error) {
+	if req.Timeout > 0 {
+		var cancel context.CancelFunc
+		ctx, cancel = context.WithTimeout(ctx, req.Timeout)
+		defer cancel()
+	}
+	var sum calibrate.Summary
+	err := d.c.Calibrate(ctx, req.Reference, &sum)
+	return sum, err
 }

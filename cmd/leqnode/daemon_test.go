@@ -113,3 +113,60 @@ socket = %q
 		t.Errorf("sessions after the reload:\n%s", sess)
 	}
 }
+
+func TestDaemonCalibrate(t *testing.T) {
+	// `leqnode calibrate --config FILE` without a recording asks the running node to take the
+	// next stable calibrator tone: the synthetic scene starts with 8 s of a 94 dB tone at the
+	// configured sensitivity (-26 dBFS), so the node finds -26 dBFS, applies it, keeps it in the
+	// state directory, and answers with the contract's JSON keys.
+	dir := t.TempDir()
+	sock := filepath.Join(dir, "control.sock")
+	cfg := filepath.Join(dir, "node.toml")
+	err := os.WriteFile(cfg, []byte(fmt.Sprintf(`version = 1
+[node]
+id = "wendle-cross-08"
+[capture]
+kind = "synthetic"
+realtime = true
+calibrator_s = 8
+[store]
+path = %q
+[control]
+socket = %q
+[calibration]
+state_dir = %q
+`, filepath.Join(dir, "node.db"), sock, dir)), 0o644)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cmd := childCmd(t, "run", "--config", cfg)
+	var stderr strings.Builder
+	cmd.Stderr = &stderr
+	if err := cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	defer cmd.Process.Kill()
+	c := control.NewClient(sock)
+	for deadline := time.Now().Add(15 * time.Second); !c.Available(); time.Sleep(50 * time.Millisecond) {
+		if time.Now().After(deadline) {
+			t.Fatalf("no control socket\n%s", stderr.String())
+		}
+	}
+	code, out, errs := runCmd(t, nil, "calibrate", "--config", cfg, "--reference", "94", "--format", "json")
+	if code != 0 {
+		t.Fatalf("exit %d: %s\n%s", code, errs, stderr.String())
+	}
+	for _, k := range []string{`"frequency_hz"`, `"measured_dBFS"`, `"sensitivity_dBFS"`, `"stable_s"`, `"ok": true`} {
+		if !strings.Contains(strings.ReplaceAll(out, `":true`, `": true`), k) {
+			t.Errorf("answer lacks %s: %s", k, out)
+		}
+	}
+	if !strings.Contains(out, "-26") {
+		t.Errorf("sensitivity should be -26 dBFS: %s", out)
+	}
+	if _, err := os.Stat(filepath.Join(dir, "sensitivity.json")); err != nil {
+		t.Errorf("the applied sensitivity was not kept: %v", err)
+	}
+	cmd.Process.Signal(syscall.SIGTERM)
+	cmd.Wait()
+}

@@ -22,6 +22,7 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/dsp/selftest"
 	"github.com/leqnode/leqnode/node"
+	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
@@ -79,6 +80,16 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 	if cfg.Microphone.SelfNoiseDBA > 0 {
 		o.UnderRangeLevel = cfg.Microphone.SelfNoiseDBA + cfg.Microphone.UnderRangeMarginDB
 	}
+	if c := cfg.Calibration; c.Detect {
+		o.Calibration = &node.CalibrationOptions{
+			References: c.References, NominalDBFS: cfg.Microphone.SensitivityDBFS,
+			Class:       map[string]dsp.CalibratorClass{"LS": dsp.CalibratorClassLS, "1": dsp.CalibratorClass1, "2": dsp.CalibratorClass2}[c.Class],
+			AdjustRange: c.AdjustRangeDB, StateDir: cfg.StateDir(),
+		}
+	}
+	for _, pt := range cfg.Microphone.Correction {
+		o.Correction = append(o.Correction, dsp.CorrectionPoint{FrequencyHz: pt[0], CorrectionDB: pt[1]})
+	}
 	if e := cfg.Events; e.Enabled {
 		ec := dsp.EventConfig{
 			SensitivityDBFS: cfg.Microphone.SensitivityDBFS, Threshold: e.ThresholdDB,
@@ -91,6 +102,27 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 		o.Events = &ec
 	}
 	return o
+}
+
+// sensitivityInUse returns the microphone sensitivity to measure with: the one a calibration
+// applied and kept in the state directory, when it was judged against the configured nominal
+// sensitivity; else the configured one.
+func sensitivityInUse(cfg *config.Config, log *slog.Logger) float64 {
+	nominal := cfg.Microphone.SensitivityDBFS
+	st, err := calibrate.LoadState(cfg.StateDir())
+	switch {
+	case errors.Is(err, os.ErrNotExist):
+		return nominal
+	case err != nil:
+		log.Error("the kept calibration cannot be read; measuring with the configured sensitivity", "err", err)
+		return nominal
+	case st.NominalDBFS != nominal:
+		log.Warn("the kept calibration was made for another nominal sensitivity; measuring with the configured one: calibrate again",
+			"kept_nominal_dbfs", st.NominalDBFS, "configured_dbfs", nominal)
+		return nominal
+	}
+	log.Info("measuring with the calibrated sensitivity", "sensitivity_dbfs", st.SensitivityDBFS, "calibrated_at", st.At, "nominal_dbfs", nominal)
+	return st.SensitivityDBFS
 }
 
 // openStore opens the configured store for writing.
@@ -158,6 +190,7 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 		return usageError{fmt.Errorf("capture: %w", err)}
 	}
 	o := nodeOptions(cfg, src, st, log)
+	o.SensitivityDBFS = sensitivityInUse(cfg, log)
 	var pub *publish.Publisher
 	if len(cfg.Publish.Brokers) > 0 {
 		id := publish.Identity{NodeID: cfg.Node.ID, Site: cfg.Node.Site, SoftwareVersion: o.Session.SoftwareVersion}
@@ -266,6 +299,19 @@ func startControl(cfg *config.Config, path string, n *node.Node, st *buffer.Stor
 			}
 			return map[string]any{}
 		},
+		Calibrate: func(ctx context.Context, reference float64) (any, error) {
+			ctx, cancel := context.WithTimeout(ctx, 2*time.Minute)
+			defer cancel()
+			res, err := n.RequestCalibration(ctx, reference)
+			if res == nil {
+				return nil, err
+			}
+			sum := (&calibrate.Result{Detection: res.Detection, SensitivityDBFS: calibrate.Implied(res.Check)}).Summarize(res.Applied && res.Check.OK)
+			if err != nil {
+				return nil, fmt.Errorf("%v (tone at %.2f Hz, %.2f dBFS)", err, res.Detection.FrequencyHz, res.Detection.LevelDBFS)
+			}
+			return sum, nil
+		},
 		// Reading commands run here, against the store this daemon holds.
 		Exec: func(ctx context.Context, args []string, stdout io.Writer) (bool, error) {
 			var errb strings.Builder
@@ -305,15 +351,23 @@ func reload(path string, cur *config.Config, n *node.Node, log *slog.Logger) {
 			restart = append(restart, "["+c.name+"]")
 		}
 	}
-	if next.Microphone != cur.Microphone {
+	if !reflect.DeepEqual(next.Microphone.Correction, cur.Microphone.Correction) {
+		restart = append(restart, "[microphone] correction")
+	}
+	if !reflect.DeepEqual(next.Microphone, cur.Microphone) {
 		m := next.Microphone
-		st := node.Settings{SensitivityDBFS: m.SensitivityDBFS, OverloadLevel: m.OverloadDB}
+		// A calibrated sensitivity stays in use unless the nominal one changed.
+		sens := n.Sensitivity()
+		if m.SensitivityDBFS != cur.Microphone.SensitivityDBFS {
+			sens = sensitivityInUse(next, log)
+		}
+		st := node.Settings{SensitivityDBFS: sens, OverloadLevel: m.OverloadDB}
 		if m.SelfNoiseDBA > 0 {
 			st.UnderRangeLevel = m.SelfNoiseDBA + m.UnderRangeMarginDB
 		}
 		if n.Reconfigure(st) {
 			cur.Microphone = m
-			log.Info("reload: microphone settings applied", "sensitivity_dbfs", m.SensitivityDBFS)
+			log.Info("reload: microphone settings applied", "sensitivity_dbfs", sens)
 		}
 	}
 	if len(restart) > 0 {

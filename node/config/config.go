@@ -17,6 +17,7 @@ import (
 	"math"
 	"net"
 	"os"
+	"path/filepath"
 	"strings"
 	"time"
 
@@ -32,15 +33,16 @@ const Version = 1
 // Config is the whole configuration of a node.
 type Config struct {
 	// Version of the file's format; must be Version.
-	Version    int            `toml:"version"`
-	Node       Node           `toml:"node"`
-	Microphone Microphone     `toml:"microphone"`
-	Capture    capture.Config `toml:"capture"`
-	Measure    Measure        `toml:"measure"`
-	Store      Store          `toml:"store"`
-	Control    Control        `toml:"control"`
-	Events     Events         `toml:"events"`
-	Web        Web            `toml:"web"`
+	Version     int            `toml:"version"`
+	Node        Node           `toml:"node"`
+	Microphone  Microphone     `toml:"microphone"`
+	Capture     capture.Config `toml:"capture"`
+	Measure     Measure        `toml:"measure"`
+	Store       Store          `toml:"store"`
+	Control     Control        `toml:"control"`
+	Events      Events         `toml:"events"`
+	Web         Web            `toml:"web"`
+	Calibration Calibration    `toml:"calibration"`
 	// Publish sets up MQTT publishing; with no brokers listed the node publishes nothing.
 	Publish publish.Config `toml:"publish"`
 }
@@ -81,6 +83,11 @@ type Microphone struct {
 	SelfNoiseDBA float64 `toml:"self_noise_dba"`
 	// UnderRangeMarginDB is added to the self-noise to set the under-range limit (default 5).
 	UnderRangeMarginDB float64 `toml:"under_range_margin_db"`
+	// Correction is an optional measured response of the microphone (and windscreen): pairs
+	// [frequency Hz, correction dB] added to the levels, fitted as a filter at start (method and
+	// residual error: dsp.FitCorrection; a fit off by more than 0.15 dB is refused). Empty means
+	// none. Danger: a correction that is not 0 dB at 1 kHz moves the calibrator reading too.
+	Correction [][2]float64 `toml:"correction"`
 	// OverloadDB is the acoustic overload point, dB SPL (peak); LZpeak at or above it flags
 	// overload. 0 disables the check (clipped samples still flag it).
 	OverloadDB float64 `toml:"overload_db"`
@@ -127,6 +134,25 @@ type Events struct {
 	Spectrum bool `toml:"spectrum"`
 }
 
+// Calibration sets up the detection of sound calibrators while the node runs and the
+// adjustment of the sensitivity on request (`leqnode calibrate` without a file).
+type Calibration struct {
+	// Detect turns the detection on (default true): every stable 1 kHz calibrator tone is
+	// stored as a check and its seconds are left out of statistics.
+	Detect bool `toml:"detect"`
+	// References are the stated levels of the calibrators used (default [94, 114]).
+	References []float64 `toml:"references"`
+	// Class is the calibrators' IEC 60942 class: "LS", "1" or "2" (default "1").
+	Class string `toml:"class"`
+	// AdjustRangeDB is the largest adjustment from the data-sheet sensitivity (default 3 dB);
+	// beyond it the node refuses and raises the microphone-fault health flag. Danger: a wider
+	// range lets a failing microphone be calibrated back into apparent health.
+	AdjustRangeDB float64 `toml:"adjust_range_db"`
+	// StateDir keeps the applied sensitivity across restarts. Empty means systemd's
+	// $STATE_DIRECTORY, else the store's directory.
+	StateDir string `toml:"state_dir"`
+}
+
 // Web sets up the status page and the Prometheus metrics endpoint.
 type Web struct {
 	// Enabled serves the page (default false).
@@ -160,10 +186,11 @@ func Default() *Config {
 		Microphone: Microphone{
 			SensitivityDBFS: -26, SelfNoiseDBA: 29, UnderRangeMarginDB: 5, OverloadDB: 120,
 		},
-		Capture: capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
-		Measure: Measure{Bands: "third", SettlingSeconds: 5},
-		Store:   Store{Path: "leqnode.db", CommitInterval: "10s"},
-		Web:     Web{Addr: "127.0.0.1:8080"},
+		Capture:     capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
+		Measure:     Measure{Bands: "third", SettlingSeconds: 5},
+		Store:       Store{Path: "leqnode.db", CommitInterval: "10s"},
+		Web:         Web{Addr: "127.0.0.1:8080"},
+		Calibration: Calibration{Detect: true, References: []float64{94, 114}, Class: "1", AdjustRangeDB: 3},
 		Events: Events{Enabled: true, ThresholdDB: 70, HysteresisDB: 3, HoldS: 1, MinDurationS: 1,
 			MaxDurationS: 300, Spectrum: true},
 	}
@@ -288,6 +315,29 @@ func (c *Config) Validate() []error {
 			bad("events.max_duration_s", e.MaxDurationS, "allowed above min_duration_s, up to 86400 s")
 		}
 	}
+	if cal := c.Calibration; cal.Detect {
+		if len(cal.References) == 0 {
+			bad("calibration.references", "[]", "give the calibrators' levels, e.g. [94.0, 114.0]")
+		}
+		for _, r := range cal.References {
+			if r < 70 || r > 140 {
+				bad("calibration.references", r, "allowed 70 to 140 dB")
+			}
+		}
+		switch cal.Class {
+		case "LS", "1", "2":
+		default:
+			bad("calibration.class", fmt.Sprintf("%q", cal.Class), `use "LS", "1" or "2" (IEC 60942)`)
+		}
+		if cal.AdjustRangeDB <= 0 || cal.AdjustRangeDB > 10 {
+			bad("calibration.adjust_range_db", cal.AdjustRangeDB, "allowed above 0, up to 10 dB")
+		}
+	}
+	for i, pt := range c.Microphone.Correction {
+		if !(pt[0] >= 10 && pt[0] <= 24000) || math.Abs(pt[1]) > 20 {
+			bad(fmt.Sprintf("microphone.correction[%d]", i), fmt.Sprintf("[%g, %g]", pt[0], pt[1]), "give [frequency 10 to 24000 Hz, correction within ±20 dB]")
+		}
+	}
 	if c.Web.Enabled {
 		if _, _, err := net.SplitHostPort(c.Web.Addr); err != nil {
 			bad("web.addr", fmt.Sprintf("%q", c.Web.Addr), `write host:port, such as "127.0.0.1:8080"`)
@@ -341,6 +391,17 @@ func (c *Config) Location() (lat, lon float64, ok bool) {
 	}
 	p := math.Pow(10, float64(c.Node.LocationDecimals))
 	return math.Round(c.Node.Latitude*p) / p, math.Round(c.Node.Longitude*p) / p, true
+}
+
+// StateDir returns the directory where the node keeps its applied sensitivity.
+func (c *Config) StateDir() string {
+	if c.Calibration.StateDir != "" {
+		return c.Calibration.StateDir
+	}
+	if d := os.Getenv("STATE_DIRECTORY"); d != "" {
+		return strings.Split(d, ":")[0]
+	}
+	return filepath.Dir(c.Store.Path)
 }
 
 // ControlSocket returns the control socket's path, or "" for none.

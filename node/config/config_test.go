@@ -87,3 +87,14 @@ func TestDefaultsAndHash(t *testing.T) {
 		t.Error("round trip changes the configuration")
 	}
 }
+
+func TestSectionsKeepDefaults(t *testing.T) {
+	// A section that sets one key keeps the defaults of the others.
+	c, err := Parse([]byte("version = 1\n[microphone]\nsensitivity_dbfs = -30\n[calibration]\nstate_dir = \"/x\"\n[events]\nthreshold_db = 65\n"), "t.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c.Microphone.SelfNoiseDBA != 29 || !c.Calibration.Detect || len(c.Calibration.References) != 2 || !c.Events.Enabled || c.Events.HoldS != 1 {
+		t.Errorf("defaults lost: %+v %+v %+v", c.Microphone, c.Calibration, c.Events)
+	}
+}
