@@ -254,7 +254,17 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 				case <-ctx.Done():
 					return
 				case r := <-pub.Requests():
-					log.Info("remote request received; this node cannot act on it yet", "action", r.Action, "id", r.ID)
+					// A remote calibration check: take the next stable tone (the reply on the
+					// reply topic said the request was accepted; the check is published as a
+					// calibration record).
+					log.Info("remote calibration request", "id", r.ID)
+					bg.Go(func() {
+						cctx, cancel := context.WithTimeout(ctx, 2*time.Minute)
+						defer cancel()
+						if _, err := n.RequestCalibration(cctx, 0); err != nil {
+							log.Warn("remote calibration request ended without a check", "id", r.ID, "err", err)
+						}
+					})
 				}
 			}
 		})
