@@ -43,6 +43,7 @@ type CalibrationResult struct {
 
 type calRequest struct {
 	reference float64
+	apply     bool
 	reply     chan calReply
 }
 
@@ -52,13 +53,13 @@ type calReply struct {
 }
 
 // RequestCalibration asks the node to take the next stable calibrator tone of the given level
-// (0: any configured reference) and to apply the sensitivity it implies, within the adjustment
-// range. It waits until the tone has been measured or ctx ends.
-func (n *Node) RequestCalibration(ctx context.Context, reference float64) (*CalibrationResult, error) {
+// (0: any configured reference) and, with apply, to put the sensitivity it implies into use,
+// within the adjustment range. It waits until the tone has been measured or ctx ends.
+func (n *Node) RequestCalibration(ctx context.Context, reference float64, apply bool) (*CalibrationResult, error) {
 	if n.o.Calibration == nil {
 		return nil, errors.New("this node does not detect calibrators: enable [calibration] in its configuration")
 	}
-	r := calRequest{reference: reference, reply: make(chan calReply, 1)}
+	r := calRequest{reference: reference, apply: apply, reply: make(chan calReply, 1)}
 	select {
 	case n.calRequests <- r:
 	case <-ctx.Done():
@@ -95,7 +96,7 @@ func (p *processor) onTone(d dsp.Detection) {
 	applied := false
 	var applyErr error
 	var newSens float64
-	if req != nil {
+	if req != nil && req.apply {
 		if o.StateDir == "" {
 			applyErr = errors.New("no state directory to keep the new sensitivity: set [calibration] state_dir")
 		} else if st, err := calibrate.Apply(o.StateDir, rec, o.NominalDBFS, o.AdjustRange); err != nil {

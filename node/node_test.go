@@ -468,7 +468,7 @@ func TestNodeCalibration(t *testing.T) {
 	})
 	done := make(chan *CalibrationResult, 1)
 	go func() {
-		res, err := r.node.RequestCalibration(context.Background(), 94)
+		res, err := r.node.RequestCalibration(context.Background(), 94, true)
 		if err != nil {
 			t.Error(err)
 		}

@@ -254,14 +254,14 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 				case <-ctx.Done():
 					return
 				case r := <-pub.Requests():
-					// A remote calibration check: take the next stable tone (the reply on the
+					// A remote calibration check: take the next stable tone, without adjusting (the reply on the
 					// reply topic said the request was accepted; the check is published as a
 					// calibration record).
 					log.Info("remote calibration request", "id", r.ID)
 					bg.Go(func() {
 						cctx, cancel := context.WithTimeout(ctx, 2*time.Minute)
 						defer cancel()
-						if _, err := n.RequestCalibration(cctx, 0); err != nil {
+						if _, err := n.RequestCalibration(cctx, 0, false); err != nil {
 							log.Warn("remote calibration request ended without a check", "id", r.ID, "err", err)
 						}
 					})
@@ -312,7 +312,7 @@ func startControl(cfg *config.Config, path string, n *node.Node, st *buffer.Stor
 		Calibrate: func(ctx context.Context, reference float64) (any, error) {
 			ctx, cancel := context.WithTimeout(ctx, 2*time.Minute)
 			defer cancel()
-			res, err := n.RequestCalibration(ctx, reference)
+			res, err := n.RequestCalibration(ctx, reference, true)
 			if res == nil {
 				return nil, err
 			}
