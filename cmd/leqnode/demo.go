@@ -41,6 +41,7 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 		return err
 	}
 	cfg.Store.Path = filepath.Join(*dir, "leqnode.db")
+	cfg.Store.CommitInterval = "5s" // the demo's store is not on a flash card: show records soon
 	if *dur > 0 {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, *dur)

@@ -170,8 +170,10 @@ type Web struct {
 type Store struct {
 	// Path of the store file. Default: the systemd state directory's leqnode.db.
 	Path string `toml:"path"`
-	// CommitInterval is the group-commit period (Go duration, default "10s"). Trade-off:
-	// longer writes less to flash; a power cut loses up to one interval.
+	// CommitInterval is the group-commit period (Go duration, default "60s"). Trade-off:
+	// longer writes less to flash (measured: 3.7 MB per hour at 60 s, 12.3 MB at 10 s, see
+	// package buffer); a power cut loses up to one interval, and MQTT consumers see live records
+	// only once they are committed.
 	CommitInterval string `toml:"commit_interval"`
 	// MaxMB caps the store's size in megabytes (0: the store's default cap).
 	MaxMB int64 `toml:"max_mb"`
