@@ -19,7 +19,7 @@ type liveJSON struct {
 // apiLive streams server-sent events until the client leaves or the server stops:
 //
 //	event: level    data: {"time": ..., "LAF": dB or null}, every LiveInterval
-//	event: second   data: one second record as in /api/seconds, when a new one is stored
+//	event: second   data: one second record as in /api/seconds, for each new one stored
 //
 // Each write has a deadline of ten intervals (at least 5 s), so a client that stops reading
 // frees its slot.
@@ -76,11 +76,19 @@ func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
 			event("level", liveJSON{Time: stamp(l.At), LAF: level(l.LAF)})
 		}
 		if s.o.Store != nil {
-			if seq := s.o.Store.LastSeq(buffer.KindSecond); seq != lastSeq {
-				lastSeq = seq
-				if rec, err := s.o.Store.Last(buffer.KindSecond); err == nil && rec != nil {
+			if seq := s.o.Store.LastSeq(buffer.KindSecond); seq > lastSeq {
+				// Every second stored since the last tick, in order (held ones included), so
+				// the page's chart misses none; after a long stall only the latest 64.
+				recs, err := s.o.Store.Recent(buffer.KindSecond, max(lastSeq, seq-64), 64)
+				if err != nil {
+					s.log.Warn("live stream: reading new second records", "err", err)
+				}
+				for _, rec := range recs {
 					event("second", secondOf(rec.(*buffer.Second)))
 				}
+				lastSeq = seq
+			} else if seq < lastSeq {
+				lastSeq = seq // a store replaced after damage starts its numbers again
 			}
 		}
 		if buf.Len() == 0 {

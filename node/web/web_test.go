@@ -453,7 +453,7 @@ func TestNothingKnown(t *testing.T) {
 }
 
 // The live stream sends level events at the configured interval and a second event for each
-// new second record.
+// new second record, also when several arrive between two ticks.
 func TestLive(t *testing.T) {
 	st := openStore(t)
 	fillHistory(t, st, time.Now(), false)
@@ -476,7 +476,7 @@ func TestLive(t *testing.T) {
 	var levels, seconds int
 	var name string
 	appended := false
-	for sc.Scan() && (levels < 8 || seconds < 1) {
+	for sc.Scan() && (levels < 8 || seconds < 3) {
 		line := sc.Text()
 		switch {
 		case strings.HasPrefix(line, "event: "):
@@ -505,12 +505,15 @@ func TestLive(t *testing.T) {
 		}
 		if levels == 3 && !appended {
 			appended = true
-			if _, err := st.Append(&buffer.Second{Start: time.Now().Truncate(time.Second), Duration: time.Second, LAeq: 70.5}); err != nil {
-				t.Fatal(err)
+			for i := range 3 { // three at once: each gets its own event
+				if _, err := st.Append(&buffer.Second{Start: time.Now().Truncate(time.Second).Add(time.Duration(i) * time.Second),
+					Duration: time.Second, LAeq: 70.5}); err != nil {
+					t.Fatal(err)
+				}
 			}
 		}
 	}
-	if levels < 8 || seconds != 1 {
+	if levels < 8 || seconds != 3 {
 		t.Fatalf("%d level and %d second events: %v", levels, seconds, sc.Err())
 	}
 }
