@@ -1,8 +1,10 @@
 package web_test
 
 import (
+	"context"
 	"fmt"
 	"log"
+	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -10,6 +12,11 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/dsp/selftest"
+	"github.com/leqnode/leqnode/node"
+	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/web"
 )
 
@@ -50,4 +57,60 @@ func ExampleNew() {
 	// Output:
 	// 200 application/json; charset=utf-8
 	// 405 GET, HEAD
+}
+
+// How a daemon wires the status server to a running node: the live level from the node's
+// counters, the rest of its state through Status. (Compiled, not run: it would serve until
+// interrupted.)
+func Example_daemon() {
+	ctx := context.Background() // the daemon's signal-aware context
+	logger := slog.Default()
+	st, err := buffer.Open("/var/lib/leqnode/node.db", nil)
+	if err != nil {
+		log.Fatal(err)
+	}
+	defer st.Close()
+	src, err := capture.New(capture.Config{Kind: capture.KindSynthetic, Realtime: true}, logger)
+	if err != nil {
+		log.Fatal(err)
+	}
+	n, err := node.New(node.Options{Source: src, Store: st, SensitivityDBFS: -38, Bands: dsp.Third, Logger: logger})
+	if err != nil {
+		log.Fatal(err)
+	}
+	started := time.Now()
+	check := selftest.Run(48000, false) // the self-verification run at start
+	checkedAt := time.Now()
+	var mqtt func() publish.Status // the publisher's Status method, when MQTT is configured
+
+	srv, err := web.New(web.Options{
+		Addr:  web.DefaultAddr,
+		Store: st,
+		Live:  web.LiveFrom(&n.Counters),
+		Status: func() web.Status {
+			synced := node.KernelClockSynced()
+			s := web.Status{
+				NodeID: "wc-harrowby-02", Site: "Harrowby Lane, Wendle Cross (invented)", TimeZone: "Europe/London",
+				Started: started, Source: src.Describe(), Counters: web.CountersFrom(&n.Counters),
+				ClockSynced: &synced, SelfCheck: web.SelfCheckFrom(checkedAt, check),
+				Calibration: &web.CalibrationStatus{SensitivityDBFS: -38, NominalDBFS: -38},
+			}
+			if mqtt != nil {
+				s.MQTT = web.MQTTFrom(mqtt())
+			}
+			return s
+		},
+		Logger: logger.With("part", "web"),
+	})
+	if err != nil {
+		log.Fatal(err)
+	}
+	go func() {
+		if err := srv.Run(ctx); err != nil {
+			logger.Error("status page stopped", "err", err)
+		}
+	}()
+	if err := n.Run(ctx); err != nil {
+		log.Fatal(err)
+	}
 }
