@@ -315,8 +315,25 @@ func (d *EventDetector) processChunk(x []float32) {
 	d.cw.Process(c)
 	copy(a, c)
 	d.aw.Process(a)
+	d.analyse(z, c, a)
+}
 
-	base := d.pos // position of x[0]
+// ProcessWeighted feeds the detector with signals a Meter has already filtered: z the
+// DC-blocked (Z-weighted) samples, c and a the C- and A-weighted ones, all of one length. It
+// saves the detector its own weighting filters; give it the samples of a Meter of the same
+// sample rate, through MeterConfig.Tap, and do not also call Process. It allocates nothing.
+func (d *EventDetector) ProcessWeighted(z, c, a []float64) {
+	for len(z) > 0 {
+		n := min(len(z), chunk)
+		d.analyse(z[:n], c[:n], a[:n])
+		z, c, a = z[n:], c[n:], a[n:]
+	}
+}
+
+// analyse runs the time weightings and the event rule over one chunk of weighted samples.
+func (d *EventDetector) analyse(z, c, a []float64) {
+	n := len(z)
+	base := d.pos // position of z[0]
 	done := 0     // samples of this chunk already fed to the bank and the peak detector
 	f, s := d.f, d.s
 	slow := d.cfg.Slow
@@ -343,7 +360,6 @@ func (d *EventDetector) processChunk(x []float32) {
 	d.pos = base + int64(n)
 }
 
-// feed runs the bank and the peak detector over samples of the current stretch.
 func (d *EventDetector) feed(z, c []float64) {
 	if len(z) == 0 {
 		return

@@ -53,6 +53,12 @@ type MeterConfig struct {
 	// the self-verification (package selftest) show that it catches a damaged chain. Danger:
 	// any value other than the designed one gives wrong levels; a measuring node leaves them nil.
 	CSections, ASections []Section
+	// Tap, when set, receives every chunk of filtered samples: z Z-weighted (after the DC
+	// blocker and any Correction), c C-weighted, a A-weighted. The slices are the meter's
+	// scratch, valid only during the call: EventDetector.ProcessWeighted reads them without
+	// filtering the signal again. It runs on the goroutine that calls Process and must not
+	// allocate, or the meter does.
+	Tap func(z, c, a []float64)
 }
 
 // Result holds the measurements of one interval, in dB re 20 µPa. A level that does not exist
@@ -90,6 +96,7 @@ type Meter struct {
 
 	dc, cw, aw *Cascade
 	bank       *FilterBank
+	tap        func(z, c, a []float64)
 	z, c, a    [chunk]float64
 
 	kF, kS, kI, decI float64 // time-weighting coefficients
@@ -150,6 +157,7 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 		kI:     -math.Expm1(-1 / (fs * TauImpulseRise)),
 		decI:   math.Exp(-1 / (fs * TauImpulseDecay)),
 		step:   int(math.Round(fs * PercentileStep)),
+		tap:    cfg.Tap,
 		peakC:  newPeakDetector(),
 		peakZ:  newPeakDetector(),
 	}
@@ -228,6 +236,9 @@ func (m *Meter) processChunk(x []float32) {
 	m.cw.Process(c)
 	copy(a, c)
 	m.aw.Process(a)
+	if m.tap != nil {
+		m.tap(z, c, a)
+	}
 
 	f, s, r, d := m.f, m.s, m.r, m.d
 	kF, kS, kI, decI := m.kF, m.kS, m.kI, m.decI

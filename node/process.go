@@ -47,6 +47,7 @@ type processor struct {
 	calPending *calRequest
 	calErr     error
 
+	spectra  spectrumHistory // band levels of the recent seconds, for event spectra
 	events   *dsp.EventDetector
 	event    dsp.Event
 	evSkew   int64 // samples skipped since the detector started: its positions lag pos by this
@@ -201,26 +202,36 @@ func (p *processor) opened(ev event) error {
 	fs := float64(ev.format.SampleRate)
 	p.n.sampleRate.Store(int64(ev.format.SampleRate))
 	if len(o.Correction) > 0 && (p.correction == nil || fs != p.fs) {
+		// Fitted once per rate; the fit takes about a second.
 		secs, err := dsp.CorrectionSections(o.Correction, fs)
 		if err != nil {
 			return fmt.Errorf("node: microphone correction: %w", err)
 		}
 		p.correction = secs
 	}
-	if p.meter == nil || fs != p.fs {
-		m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction})
+	// The event detector reads the meter's filtered signals (MeterConfig.Tap) rather than
+	// filtering every sample again; its spectrum comes from the seconds' band levels.
+	var tap func(z, c, a []float64)
+	p.events = nil
+	if o.Events != nil {
+		cfg := *o.Events
+		cfg.SensitivityDBFS = o.SensitivityDBFS
+		cfg.Bands = 0
+		d, err := dsp.NewEventDetector(cfg, fs)
 		if err != nil {
 			return fmt.Errorf("node: %w", err)
 		}
-		p.meter, p.fs = m, fs
-		if b := m.Bands(); len(b) > 0 {
-			p.firstBand = b[0].X
-		}
-	} else {
-		// Same settings: a fresh meter all the same, so the old filter state does not smear
-		// into the new stream.
-		m, _ := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction})
-		p.meter = m
+		p.events, p.evSkew = d, 0
+		tap = d.ProcessWeighted
+	}
+	// A fresh meter at every open, so the old filter state does not smear into the new stream.
+	m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction, Tap: tap})
+	if err != nil {
+		return fmt.Errorf("node: %w", err)
+	}
+	p.meter, p.fs = m, fs
+	if b := m.Bands(); len(b) > 0 {
+		p.firstBand = b[0].X
 	}
 	p.clock = NewSampleClock(fs)
 	p.anchored = false
@@ -232,15 +243,7 @@ func (p *processor) opened(ev event) error {
 		}
 		p.cal, p.calSkew = d, 0
 	}
-	if o.Events != nil {
-		cfg := *o.Events
-		cfg.SensitivityDBFS = o.SensitivityDBFS
-		d, err := dsp.NewEventDetector(cfg, fs)
-		if err != nil {
-			return fmt.Errorf("node: %w", err)
-		}
-		p.events, p.evSkew = d, 0
-	}
+
 	p.settleUntil = now.Add(o.Settling)
 	p.device = o.Source.Describe()
 	sess := o.Session
@@ -365,6 +368,9 @@ func (p *processor) data(ev event) error {
 			p.secFlags |= buffer.Calibrating
 		}
 	}
+	if p.events != nil {
+		p.events.SetSuppressed(inTone) // no event while a calibrator is on
+	}
 	for len(x) > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
 		take := min(int64(len(x)), end-p.pos)
@@ -382,9 +388,7 @@ func (p *processor) data(ev event) error {
 	p.lastEnd = p.clock.Time(p.pos)
 	p.n.Counters.FastLevel.Store(math.Float64bits(p.meter.FastLevel()))
 	if p.events != nil {
-		p.events.SetSuppressed(inTone)
-		p.events.Process(ev.samples)
-		return p.storeEvents()
+		return p.storeEvents() // the meter's tap fed the detector
 	}
 	return nil
 }
@@ -401,9 +405,10 @@ func (p *processor) storeEvents() error {
 		if !p.synced {
 			rec.Flags |= buffer.ClockUnsynced
 		}
-		if len(e.Bands) > 0 {
-			rec.Spectrum = append([]float64(nil), e.Bands...)
-			rec.FirstBand = p.events.Bands()[0].X
+		if p.o.Events.Bands != 0 {
+			if sp := p.spectra.over(rec.Start, rec.End); sp != nil {
+				rec.Spectrum, rec.FirstBand = sp, p.firstBand
+			}
 		}
 		if err := p.append(rec); err != nil {
 			return err
@@ -479,6 +484,9 @@ func (p *processor) closeSecond() error {
 			LAeq: r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
 			LASmax: r.LASmax, LASmin: r.LASmin, LAImax: r.LAImax, LCpeak: r.LCpeak, LZpeak: r.LZpeak,
 			LAE: r.LAE, Flags: f, DroppedSamples: p.secDropped,
+		}
+		if o.Events != nil && o.Events.Bands != 0 && len(r.Bands) > 0 {
+			p.spectra.add(start, r.Duration, r.Bands)
 		}
 		if o.SecondSpectra && len(r.Bands) > 0 {
 			rec.Spectrum = append([]float64(nil), r.Bands...)
