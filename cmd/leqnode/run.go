@@ -161,6 +161,11 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 		level = slog.LevelDebug
 	}
 	log := newLogger(std.err, std.errIsTTY, level).With("node", cfg.Node.ID)
+	// A node lives on a small board for months: collect garbage more eagerly than Go's default
+	// and aim to keep the heap under 16 MB (a soft limit: the runtime exceeds it rather than
+	// fail). Costs a little CPU at start-up, when the filters are designed.
+	debug.SetGCPercent(50)
+	debug.SetMemoryLimit(16 << 20)
 	hup := make(chan os.Signal, 1)
 	signal.Notify(hup, syscall.SIGHUP)
 	defer signal.Stop(hup)
@@ -439,6 +444,9 @@ func verifyDaily(ctx context.Context, n *node.Node, last *atomic.Pointer[web.Sel
 		at := time.Now()
 		rep := selftest.Run(float64(fs), false)
 		last.Store(web.SelfCheckFrom(at, rep))
+		// The tests build many meters; hand their memory back to the system at once rather
+		// than over the next minutes (a small board's memory is the node's budget).
+		debug.FreeOSMemory()
 		if rep.Pass {
 			log.Info("self-verification passed", "checks", len(rep.Checks), "sample_rate", fs)
 		} else {
