@@ -56,3 +56,27 @@ fmt:
 
 clean:
 	rm -rf bin bench.txt
+
+# --- packaging (issue 10) ---
+# `make package` builds leqnode for amd64, arm64 and armhf with PortAudio (cgo, Debian's cross
+# compilers against sysroots of Debian's own arm64/armhf packages) and pure Go for ARMv6 and as a
+# fallback, and packages the cgo builds as .deb files: everything lands in dist/ (see
+# deploy/debpkg and .ci/package-build). `make package-test` checks the packages in full: their
+# contents with dpkg-deb, the binaries' ELF headers, the dsp and buffer tests of the pure-Go ARM
+# builds under qemu-user-static, an install, upgrade and purge of the amd64 package (as root),
+# and the unit with systemd-analyze. `make test` runs the small default of the same tests (the
+# amd64 package only).
+DIST := dist
+PKG_VERSION ?= $(shell .ci/package-version)
+PKG_TARGETS ?= amd64 arm64 armhf armv6 purego
+
+.PHONY: package package-deps package-test
+
+package-deps:
+	@.ci/package-deps $(DIST)/sysroot
+
+package: package-deps
+	.ci/package-build $(DIST) $(PKG_VERSION) $(PKG_TARGETS)
+
+package-test: package
+	LEQNODE_PACKAGE_DIST=$(abspath $(DIST)) LEQNODE_PACKAGE_INSTALL=1 $(GO) test -count=1 -v -timeout 60m ./deploy/debpkg
