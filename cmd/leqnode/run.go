@@ -247,6 +247,9 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 			}
 		})
 	}
+	if pub != nil && cfg.Indicators.Profile != "" {
+		bg.Go(func() { publishPeriods(ctx, cfg, st, pub, log) })
+	}
 	if pub != nil {
 		bg.Go(func() {
 			if err := pub.Run(ctx); err != nil && ctx.Err() == nil {

@@ -23,6 +23,7 @@ import (
 
 	"github.com/pelletier/go-toml/v2"
 
+	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/publish"
 )
@@ -43,6 +44,7 @@ type Config struct {
 	Events      Events         `toml:"events"`
 	Web         Web            `toml:"web"`
 	Calibration Calibration    `toml:"calibration"`
+	Indicators  Indicators     `toml:"indicators"`
 	// Publish sets up MQTT publishing; with no brokers listed the node publishes nothing.
 	Publish publish.Config `toml:"publish"`
 }
@@ -151,6 +153,16 @@ type Calibration struct {
 	// StateDir keeps the applied sensitivity across restarts. Empty means systemd's
 	// $STATE_DIRECTORY, else the store's directory.
 	StateDir string `toml:"state_dir"`
+}
+
+// Indicators sets up the period indicators the node publishes over MQTT when a period of
+// its profile closes (each day, evening and night of eu-lden, say).
+type Indicators struct {
+	// Profile names a built-in profile (eu-lden, ldn, india-2000) or a profile file; empty
+	// publishes no period indicators.
+	Profile string `toml:"profile"`
+	// Zone names the profile's zone whose limits apply (e.g. "residential"); empty: none.
+	Zone string `toml:"zone"`
 }
 
 // Web sets up the status page and the Prometheus metrics endpoint.
@@ -338,6 +350,15 @@ func (c *Config) Validate() []error {
 	for i, pt := range c.Microphone.Correction {
 		if !(pt[0] >= 10 && pt[0] <= 24000) || math.Abs(pt[1]) > 20 {
 			bad(fmt.Sprintf("microphone.correction[%d]", i), fmt.Sprintf("[%g, %g]", pt[0], pt[1]), "give [frequency 10 to 24000 Hz, correction within ±20 dB]")
+		}
+	}
+	if c.Indicators.Profile != "" {
+		if prof, err := profiles.Load(c.Indicators.Profile); err != nil {
+			bad("indicators.profile", fmt.Sprintf("%q", c.Indicators.Profile), fmt.Sprintf("use a built-in profile (%s) or a profile file: %v", strings.Join(profiles.Names(), ", "), err))
+		} else if c.Indicators.Zone != "" {
+			if _, err := prof.Zone(c.Indicators.Zone); err != nil {
+				bad("indicators.zone", fmt.Sprintf("%q", c.Indicators.Zone), err.Error())
+			}
 		}
 	}
 	if c.Web.Enabled {

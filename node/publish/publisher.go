@@ -75,6 +75,7 @@ type Publisher struct {
 	topics   topics
 
 	notify   chan struct{}
+	periods  chan []byte // closed periods' indicators waiting for a broker
 	requests chan Request
 	cmdIn    chan []byte
 	running  atomic.Bool
@@ -129,6 +130,7 @@ func New(cfg Config, store *buffer.Store, ident Identity, logger *slog.Logger) (
 		password: pw, tls: tc,
 		topics:   newTopics(cfg.TopicPrefix, ident.NodeID),
 		notify:   make(chan struct{}, 1),
+		periods:  make(chan []byte, periodQueue),
 		requests: make(chan Request, 4),
 		cmdIn:    make(chan []byte, 16),
 		rng:      rand.New(rand.NewPCG(rand.Uint64(), rand.Uint64())),

@@ -168,6 +168,8 @@ func (p *Publisher) session(ctx context.Context, broker string) (connected bool,
 			}
 		case b := <-p.cmdIn:
 			p.command(s, b)
+		case b := <-p.periods:
+			s.client.Publish(p.topics.base+"/"+DeliveryLive+"/period", 1, false, b)
 		case <-statusTick.C:
 			p.publishStatus(s)
 		}
