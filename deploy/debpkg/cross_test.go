@@ -136,3 +136,20 @@ func TestQemuPackageTests(t *testing.T) {
 	}
 	os.RemoveAll(filepath.Join(d, "bin", "qemu-tests"))
 }
+
+// TestLintian checks every package with lintian, Debian's own package checker (Debian policy
+// as code): no error may remain; warnings are logged. The departures that are meant are
+// overridden in the package, with their reason.
+func TestLintian(t *testing.T) {
+	fullRun(t)
+	need(t, "lintian")
+	for arch, deb := range debs(t) {
+		t.Run(arch, func(t *testing.T) {
+			out, err := runCmd(context.Background(), "", nil, "lintian", "--fail-on", "error", "--tag-display-limit", "0", deb)
+			t.Logf("lintian %s:\n%s", filepath.Base(deb), out)
+			if err != nil {
+				t.Errorf("lintian found errors in %s: %v", filepath.Base(deb), err)
+			}
+		})
+	}
+}

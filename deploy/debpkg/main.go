@@ -195,11 +195,17 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	if err != nil {
 		return "", err
 	}
-	changelogPath, err := gen("changelog.Debian.gz", changelog)
+	// A version without a Debian revision ("-1") is a native package: its changelog is
+	// changelog.gz (policy 12.7).
+	changelogPath, err := gen("changelog.gz", changelog)
 	if err != nil {
 		return "", err
 	}
-	copyrightPath, err := gen("copyright", []byte(copyrightText))
+	copyrightPath, err := gen("copyright", fmt.Appendf(nil, copyrightText, s.MTime.Year()))
+	if err != nil {
+		return "", err
+	}
+	overridesPath, err := gen("lintian-overrides", []byte(lintianOverrides))
 	if err != nil {
 		return "", err
 	}
@@ -247,7 +253,8 @@ func Build(ctx context.Context, s Spec) (string, error) {
 		{Source: src("README.md"), Destination: doc + "README.md", FileInfo: fi(0o644)},
 		{Source: src("deploy/leqnode.toml"), Destination: doc + "leqnode.toml", FileInfo: fi(0o644)},
 		{Source: copyrightPath, Destination: doc + "copyright", FileInfo: fi(0o644)},
-		{Source: changelogPath, Destination: doc + "changelog.Debian.gz", FileInfo: fi(0o644)},
+		{Source: changelogPath, Destination: doc + "changelog.gz", FileInfo: fi(0o644)},
+		{Source: overridesPath, Destination: "/usr/share/lintian/overrides/leqnode", FileInfo: fi(0o644)},
 	}
 	for _, f := range fleetDocs {
 		contents = append(contents, &files.Content{Source: src(f), Destination: doc + "fleet/" + filepath.Base(f), FileInfo: fi(0o644)})
@@ -318,7 +325,7 @@ Upstream-Name: leqnode
 Source: the leqnode source repository
 
 Files: *
-Copyright: the leqnode developers
+Copyright: %d the leqnode developers
 License: Apache-2.0
 
 License: Apache-2.0
@@ -359,6 +366,16 @@ func ArecordConfig(data []byte) ([]byte, error) {
 	}
 	return out, nil
 }
+
+// lintianOverrides explains to lintian (Debian's package checker) the departures that are
+// meant: the configuration may hold broker credentials and the state directory holds the
+// measurements, so neither is world-readable.
+const lintianOverrides = `# The configuration may hold MQTT credentials: readable by the service's group only.
+leqnode: non-standard-dir-perm 0750 != 0755 [etc/leqnode/]
+leqnode: non-standard-file-perm 0640 != 0644 [etc/leqnode/leqnode.toml]
+# The measurements: readable by the service's group only.
+leqnode: non-standard-dir-perm 0750 != 0755 [var/lib/leqnode/]
+`
 
 // changelogEntry returns a one-entry Debian changelog (policy 4.4) for the build.
 func changelogEntry(s Spec) []byte {
