@@ -42,9 +42,6 @@ func (h HealthOptions) withDefaults() HealthOptions {
 	return h
 }
 
-// healthFlags are the flags the health checks raise and clear.
-const healthFlags = buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset | buffer.Clipped | buffer.MicFault
-
 // healthState accumulates what the health snapshots report.
 type healthState struct {
 	o HealthOptions

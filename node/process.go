@@ -47,11 +47,10 @@ type processor struct {
 	calPending *calRequest
 	calErr     error
 
-	spectra  spectrumHistory // band levels of the recent seconds, for event spectra
-	events   *dsp.EventDetector
-	event    dsp.Event
-	evSkew   int64 // samples skipped since the detector started: its positions lag pos by this
-	evStream int64 // pos at which the detector started
+	spectra spectrumHistory // band levels of the recent seconds, for event spectra
+	events  *dsp.EventDetector
+	event   dsp.Event
+	evSkew  int64 // samples skipped since the detector started: its positions lag pos by this
 
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
