@@ -49,14 +49,7 @@ socket = %q
 		t.Fatal(err)
 	}
 	defer cmd.Process.Kill()
-	c := control.NewClient(sock)
-	deadline := time.Now().Add(15 * time.Second)
-	for !c.Available() {
-		if time.Now().After(deadline) {
-			t.Fatalf("no control socket after 15 s\n%s", stderr.String())
-		}
-		time.Sleep(50 * time.Millisecond)
-	}
+	c := waitForSocket(t, sock, &stderr)
 	ctx := context.Background()
 	var st map[string]any
 	if err := c.Get(ctx, "status", &st); err != nil || st["node"] != "wendle-cross-07" {
@@ -85,17 +78,7 @@ socket = %q
 	}
 	cmd.Process.Signal(syscall.SIGHUP)
 	time.Sleep(1500 * time.Millisecond)
-	cmd.Process.Signal(syscall.SIGTERM)
-	done := make(chan error, 1)
-	go func() { done <- cmd.Wait() }()
-	select {
-	case err := <-done:
-		if err != nil {
-			t.Fatalf("leqnode run: %v\n%s", err, stderr.String())
-		}
-	case <-time.After(20 * time.Second):
-		t.Fatalf("leqnode run did not stop\n%s", stderr.String())
-	}
+	stopChild(t, cmd, &stderr)
 	if _, err := os.Stat(sock); !os.IsNotExist(err) {
 		t.Error("the control socket was left behind")
 	}
@@ -146,12 +129,7 @@ state_dir = %q
 		t.Fatal(err)
 	}
 	defer cmd.Process.Kill()
-	c := control.NewClient(sock)
-	for deadline := time.Now().Add(15 * time.Second); !c.Available(); time.Sleep(50 * time.Millisecond) {
-		if time.Now().After(deadline) {
-			t.Fatalf("no control socket\n%s", stderr.String())
-		}
-	}
+	waitForSocket(t, sock, &stderr)
 	code, out, errs := runCmd(t, nil, "calibrate", "--config", cfg, "--reference", "94", "--format", "json")
 	if code != 0 {
 		t.Fatalf("exit %d: %s\n%s", code, errs, stderr.String())
@@ -167,6 +145,17 @@ state_dir = %q
 	if _, err := os.Stat(filepath.Join(dir, "sensitivity.json")); err != nil {
 		t.Errorf("the applied sensitivity was not kept: %v", err)
 	}
-	cmd.Process.Signal(syscall.SIGTERM)
-	cmd.Wait()
+	stopChild(t, cmd, &stderr)
+}
+
+// waitForSocket waits up to 15 s for a child daemon's control socket to answer.
+func waitForSocket(t *testing.T, sock string, stderr *strings.Builder) *control.Client {
+	t.Helper()
+	c := control.NewClient(sock)
+	for deadline := time.Now().Add(15 * time.Second); !c.Available(); time.Sleep(50 * time.Millisecond) {
+		if time.Now().After(deadline) {
+			t.Fatalf("no control socket after 15 s\n%s", stderr.String())
+		}
+	}
+	return c
 }

@@ -32,6 +32,24 @@ func TestMain(m *testing.M) {
 	os.Exit(m.Run())
 }
 
+// stopChild ends a child `leqnode run` with SIGTERM, as systemd does, and fails the test if it
+// does not stop cleanly within 20 s.
+func stopChild(t *testing.T, cmd *exec.Cmd, stderr *strings.Builder) {
+	t.Helper()
+	cmd.Process.Signal(syscall.SIGTERM)
+	done := make(chan error, 1)
+	go func() { done <- cmd.Wait() }()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Fatalf("leqnode run: %v\n%s", err, stderr.String())
+		}
+	case <-time.After(20 * time.Second):
+		cmd.Process.Kill()
+		t.Fatalf("leqnode run did not stop on SIGTERM\n%s", stderr.String())
+	}
+}
+
 // childCmd returns a command that runs leqnode with args in a child process.
 func childCmd(t *testing.T, args ...string) *exec.Cmd {
 	t.Helper()
@@ -202,18 +220,7 @@ frames_per_buffer = 960`, "")
 	}
 	tick.Stop()
 	time.Sleep(300 * time.Millisecond)
-	cmd.Process.Signal(syscall.SIGTERM)
-	done := make(chan error, 1)
-	go func() { done <- cmd.Wait() }()
-	select {
-	case err := <-done:
-		if err != nil {
-			t.Fatalf("leqnode run: %v\n%s", err, stderr.String())
-		}
-	case <-time.After(20 * time.Second):
-		cmd.Process.Kill()
-		t.Fatalf("leqnode run did not stop on SIGTERM\n%s", stderr.String())
-	}
+	stopChild(t, cmd, &stderr)
 	pw.Close()
 	secs := storedSeconds(t, filepath.Join(dir, "node.db"))
 	if len(secs) < 7 {
@@ -308,17 +315,7 @@ frames_per_buffer = 960`, `timestamps = "samples"`)
 	// 8 s of audio take well under a second to measure; past the end of the file the plugin
 	// repeats its last frames, which the comparison leaves out.
 	time.Sleep(3 * time.Second)
-	cmd.Process.Signal(syscall.SIGTERM)
-	done := make(chan error, 1)
-	go func() { done <- cmd.Wait() }()
-	select {
-	case err := <-done:
-		if err != nil {
-			t.Fatalf("leqnode run: %v\n%s", err, stderr.String())
-		}
-	case <-time.After(20 * time.Second):
-		t.Fatalf("leqnode run did not stop on SIGTERM\n%s", stderr.String())
-	}
+	stopChild(t, cmd, &stderr)
 	secs := storedSeconds(t, filepath.Join(dir, "node.db"))
 	if len(secs) < 7 {
 		t.Fatalf("%d seconds stored\n%s", len(secs), stderr.String())
