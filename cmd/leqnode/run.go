@@ -169,7 +169,7 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 	hup := make(chan os.Signal, 1)
 	signal.Notify(hup, syscall.SIGHUP)
 	defer signal.Stop(hup)
-	return runNode(ctx, cfg, std.in, log, nil, func(n *node.Node) {
+	return runNode(ctx, cfg, std.in, log, nil, func(ctx context.Context, n *node.Node) {
 		for {
 			select {
 			case <-ctx.Done():
@@ -184,7 +184,7 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 // runNode runs a node on cfg until ctx ends (or a finite source ends). hooks, when set,
 // adjusts the options (the demo's live display); watch, when set, runs beside the node until
 // it stops (the reload on SIGHUP).
-func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog.Logger, hooks func(*node.Options), watch func(*node.Node)) error {
+func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog.Logger, hooks func(*node.Options), watch func(context.Context, *node.Node)) error {
 	st, err := openStore(cfg, log)
 	if err != nil {
 		return err
@@ -232,7 +232,7 @@ func runNode(ctx context.Context, cfg *config.Config, stdin io.Reader, log *slog
 		log.Info("control socket listening", "path", path)
 	}
 	if watch != nil {
-		bg.Go(func() { watch(n) })
+		bg.Go(func() { watch(ctx, n) })
 	}
 	var selfCheck atomic.Pointer[web.SelfCheckStatus]
 	bg.Go(func() { verifyDaily(ctx, n, &selfCheck, log) })
