@@ -72,12 +72,13 @@ const (
 	StuckInput     // the input repeated one value for longer than the health limit (dead converter)
 	DCOffset       // the input carried a DC offset above the health limit
 	MicFault       // the microphone failed a check (e.g. a calibration beyond the allowed adjustment)
+	ChainFault     // the self-verification of the digital measurement chain failed
 )
 
 var flagNames = [...]string{
 	"overload", "under-range", "clipped", "dropped", "calibrating", "settling",
 	"clock-unsynced", "suspect", "excluded", "digital-silence", "stuck-input", "dc-offset",
-	"mic-fault",
+	"mic-fault", "chain-fault",
 }
 
 // Has reports whether every flag of g is set in f.

@@ -172,6 +172,11 @@ type Health struct {
 	ClockSynced       bool    // the system clock reports synchronisation
 	ClockErrorMs      float64 // estimated clock error, ms
 	TemperatureC      float64 // board temperature, °C
+	// SelfTestChecks and SelfTestFailed report a self-verification of the digital chain run
+	// since the previous snapshot (leqnode verify): the checks run and those that failed; both
+	// 0 when none ran.
+	SelfTestChecks uint64
+	SelfTestFailed uint64
 }
 
 // Gap states that no data exists from From to To, and why (device lost, start after a crash,
@@ -534,11 +539,14 @@ const (
 	tagClockSynced
 	tagClockError
 	tagTemperature
+	tagSelfTestChecks
+	tagSelfTestFailed
 )
 
 func (r *Health) fields() (ints map[uint64]*uint64, bools map[uint64]*bool, floats map[uint64]*float64) {
 	return map[uint64]*uint64{tagClipped: &r.Clipped, tagUnderRange: &r.UnderRangeSeconds, tagDropped: &r.DroppedSamples,
-			tagQueueOverflows: &r.QueueOverflows, tagStoreBytes: &r.StoreBytes},
+			tagQueueOverflows: &r.QueueOverflows, tagStoreBytes: &r.StoreBytes,
+			tagSelfTestChecks: &r.SelfTestChecks, tagSelfTestFailed: &r.SelfTestFailed},
 		map[uint64]*bool{tagSilent: &r.Silent, tagStuck: &r.Stuck, tagClockSynced: &r.ClockSynced},
 		map[uint64]*float64{tagDCOffset: &r.DCOffset, tagCPU: &r.CPU, tagMemory: &r.MemoryMB, tagDiskFree: &r.DiskFreeMB,
 			tagClockError: &r.ClockErrorMs, tagTemperature: &r.TemperatureC}
@@ -553,7 +561,7 @@ func (r *Health) AppendBinary(b []byte) ([]byte, error) {
 	f := enc{}
 	n := 0
 	ints, bools, floats := r.fields()
-	for tag := uint64(1); tag <= tagTemperature; tag++ {
+	for tag := uint64(1); tag <= tagSelfTestFailed; tag++ {
 		switch {
 		case tag == tagFlags:
 			if r.Flags != 0 {

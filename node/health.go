@@ -46,9 +46,10 @@ func (h HealthOptions) withDefaults() HealthOptions {
 type healthState struct {
 	o HealthOptions
 
-	silentRun, stuckRun time.Duration
-	flags               buffer.Flags // the health flags now raised
-	sticky              buffer.Flags // flags raised until cleared by their cause (microphone fault)
+	silentRun, stuckRun    time.Duration
+	flags                  buffer.Flags // the health flags now raised
+	sticky                 buffer.Flags // flags raised until cleared by their cause (microphone fault)
+	selfChecks, selfFailed uint64       // a self-verification to report in the next snapshot
 
 	// Since the last snapshot.
 	clipped       uint64
@@ -142,6 +143,8 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 	} else {
 		rec.TemperatureC = math.NaN()
 	}
+	rec.SelfTestChecks, rec.SelfTestFailed = h.selfChecks, h.selfFailed
+	h.selfChecks, h.selfFailed = 0, 0
 	h.clipped, h.dcSum, h.dcTime, h.underRange, h.dropped = 0, 0, 0, 0, 0
 	h.lastSnap = now
 	return rec
@@ -167,6 +170,25 @@ func (p *processor) healthAfter(f buffer.Flags, now time.Time) error {
 	}
 	if !changed && now.Sub(h.lastSnap) < h.o.Interval {
 		return nil
+	}
+	rec := p.healthSnapshot(now)
+	p.n.lastHealth.Store(rec)
+	return p.append(rec)
+}
+
+// selfTest stores a health snapshot at once with the outcome of a self-verification.
+func (p *processor) selfTest(checks, failed int) error {
+	h := &p.health
+	h.selfChecks, h.selfFailed = uint64(checks), uint64(failed)
+	if failed > 0 {
+		h.sticky |= buffer.ChainFault
+	} else {
+		h.sticky &^= buffer.ChainFault
+	}
+	h.flags = h.flags&^buffer.ChainFault | h.sticky&buffer.ChainFault
+	now := p.o.Now()
+	if p.anchored {
+		now = p.lastEnd
 	}
 	rec := p.healthSnapshot(now)
 	p.n.lastHealth.Store(rec)

@@ -68,3 +68,25 @@ func TestHealthFlags(t *testing.T) {
 		})
 	}
 }
+
+func TestHealthSelfTest(t *testing.T) {
+	// A failed self-verification is stored (and so published) at once with a health snapshot
+	// carrying its counts and the chain-fault flag.
+	tone := func(i int64) float32 { return float32(ampFor(60) * math.Sin(2*math.Pi*1000*float64(i)/48000)) }
+	src := &fakeSource{fs: 48000, signal: tone, total: 60 * 48000, t0: t0}
+	r := newRig(t, src, func(o *Options) { o.Health = HealthOptions{Interval: time.Hour} })
+	go func() {
+		time.Sleep(20 * time.Millisecond)
+		r.node.ReportSelfTest(65, 2)
+	}()
+	r.run(t)
+	var found *buffer.Health
+	for _, h := range records[*buffer.Health](t, r.store, buffer.KindHealth) {
+		if h.SelfTestChecks > 0 {
+			found = h
+		}
+	}
+	if found == nil || found.SelfTestChecks != 65 || found.SelfTestFailed != 2 || !found.Flags.Has(buffer.ChainFault) {
+		t.Fatalf("self-test snapshot: %+v", found)
+	}
+}

@@ -161,6 +161,17 @@ type Node struct {
 	started     time.Time
 	settings    chan Settings
 	calRequests chan calRequest
+	selfTests   chan [2]int // checks run, checks failed
+}
+
+// ReportSelfTest records the outcome of a self-verification of the digital chain (leqnode
+// verify): the processing goroutine stores a health snapshot with it at once, raising the
+// chain-fault flag when a check failed (and clearing it when all pass). It does not wait.
+func (n *Node) ReportSelfTest(checks, failed int) {
+	select {
+	case n.selfTests <- [2]int{checks, failed}:
+	default: // one is already waiting: the node is busy; the next run reports again
+	}
 }
 
 // Settings are the options that can change while the node runs, without a restart.
@@ -191,7 +202,7 @@ func New(o Options) (*Node, error) {
 		return nil, errors.New("node: a source and a store are required")
 	}
 	r := o.withDefaults()
-	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings), calRequests: make(chan calRequest)}
+	n := &Node{o: r, log: r.Logger, started: r.Now().UTC(), settings: make(chan Settings), calRequests: make(chan calRequest), selfTests: make(chan [2]int, 1)}
 	n.Counters.FastLevel.Store(math.Float64bits(math.NaN()))
 	n.sensitivity.Store(math.Float64bits(r.SensitivityDBFS))
 	return n, nil

@@ -159,6 +159,10 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 				}
 			}
 			watchdog.Reset(o.Watchdog)
+		case st := <-p.n.selfTests:
+			if err := p.selfTest(st[0], st[1]); err != nil {
+				return err
+			}
 		case r := <-p.n.calRequests:
 			if p.calPending != nil {
 				r.reply <- calReply{err: errors.New("another calibration request is waiting for a tone: try again later")}

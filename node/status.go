@@ -52,7 +52,8 @@ func HealthJSON(h *buffer.Health) map[string]any {
 		"dropped_samples": h.DroppedSamples, "queue_overflows": h.QueueOverflows,
 		"cpu_percent": finite(h.CPU), "memory_mb": finite(h.MemoryMB), "disk_free_mb": finite(h.DiskFreeMB),
 		"store_bytes": h.StoreBytes, "clock_synced": h.ClockSynced, "clock_error_ms": finite(h.ClockErrorMs),
-		"temperature_c": finite(h.TemperatureC),
+		"temperature_c":    finite(h.TemperatureC),
+		"self_test_checks": h.SelfTestChecks, "self_test_failed": h.SelfTestFailed,
 	}
 }
 

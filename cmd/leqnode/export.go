@@ -332,6 +332,7 @@ func (e *exporter) fields(r buffer.Record) []field {
 		f = append(f, stamp("start", v.At), flagList(v.Flags), integer("clipped_samples", v.Clipped),
 			integer("under_range_seconds", v.UnderRangeSeconds), integer("dropped_samples", v.DroppedSamples),
 			integer("queue_overflows", v.QueueOverflows), integer("store_bytes", v.StoreBytes),
+			integer("self_test_checks", v.SelfTestChecks), integer("self_test_failed", v.SelfTestFailed),
 			boolean("silent", v.Silent), boolean("stuck", v.Stuck), boolean("clock_synced", v.ClockSynced),
 			number("dc_offset", v.DCOffset), number("cpu_percent", v.CPU), number("memory_mb", v.MemoryMB),
 			number("disk_free_mb", v.DiskFreeMB), number("clock_error_ms", v.ClockErrorMs), number("temperature_c", v.TemperatureC))

@@ -447,6 +447,13 @@ func verifyDaily(ctx context.Context, n *node.Node, last *atomic.Pointer[web.Sel
 		at := time.Now()
 		rep := selftest.Run(float64(fs), false)
 		last.Store(web.SelfCheckFrom(at, rep))
+		// Stored and published with a health snapshot (self_test_checks, self_test_failed,
+		// the chain-fault flag).
+		failed := len(rep.Failed())
+		if !rep.Pass && failed == 0 {
+			failed = 1 // the chain could not even be built (rep.Error)
+		}
+		n.ReportSelfTest(len(rep.Checks), failed)
 		// The tests build many meters; hand their memory back to the system at once rather
 		// than over the next minutes (a small board's memory is the node's budget).
 		debug.FreeOSMemory()

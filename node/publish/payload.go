@@ -259,7 +259,8 @@ func appendRecord(b []byte, e envelope, rec buffer.Record, spectra bool) []byte 
 			n string
 			v uint64
 		}{{"clipped_samples", r.Clipped}, {"under_range_seconds", r.UnderRangeSeconds}, {"dropped_samples", r.DroppedSamples},
-			{"queue_overflows", r.QueueOverflows}, {"store_bytes", r.StoreBytes}} {
+			{"queue_overflows", r.QueueOverflows}, {"store_bytes", r.StoreBytes},
+			{"self_test_checks", r.SelfTestChecks}, {"self_test_failed", r.SelfTestFailed}} {
 			w.key(q.n)
 			w.uint(q.v)
 		}
