@@ -512,7 +512,7 @@ func (c CalibratorClass) String() string {
 
 // CalibratorTolerance holds the acceptance limits of IEC 60942:2017 for a calibrator whose
 // frequency lies between 160 Hz and 1250 Hz (so for a 1 kHz calibrator), as read via the
-// phonometry transcription (tests/reference_data/calibrators.py) of Tables 2, 4, A.1 and A.2.
+// phonometry open-source copy (tests/reference_data/calibrators.py) of Tables 2, 4, A.1 and A.2.
 type CalibratorTolerance struct {
 	Class CalibratorClass
 	// Level is the limit on the deviation of the generated level from the stated level, dB

@@ -119,7 +119,7 @@ func TestCalibratorSensitivity(t *testing.T) {
 
 // TestCalibratorFrequency checks the frequency estimate to 0.1 Hz over the ±2 % window, and
 // that tones within it but outside IEC 60942:2017 Table 4's ±0.7 % (class 1, via the phonometry
-// transcription) are still found and then judged implausible for class 1.
+// open-source copy) are still found and then judged implausible for class 1.
 func TestCalibratorFrequency(t *testing.T) {
 	tol1 := CalibratorTolerances(CalibratorClass1)
 	for _, tc := range []struct {
@@ -309,7 +309,7 @@ func TestCalibratorConfigErrors(t *testing.T) {
 
 // TestCalibratorTolerances checks the IEC 60942:2017 class limits for 1 kHz calibrators
 // (Table 2 level and fluctuation, Table 4 frequency, Tables A.1/A.2 uncertainties, via the
-// phonometry transcription tests/reference_data/calibrators.py).
+// phonometry open-source copy tests/reference_data/calibrators.py).
 func TestCalibratorTolerances(t *testing.T) {
 	for _, tc := range []struct {
 		c                   CalibratorClass

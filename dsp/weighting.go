@@ -9,7 +9,7 @@ import (
 
 // Pole frequencies and normalisation constants of the frequency weightings, IEC 61672-1:2013
 // Annex E, E.4 (the unrounded values, as derived in E.2–E.3 from fr = 1 kHz, fL = 10^1.5 Hz,
-// fH = 10^3.9 Hz, D² = 1/2 and fA = 10^2.45 Hz; via the pyfar transcription of Annex E and
+// fH = 10^3.9 Hz, D² = 1/2 and fA = 10^2.45 Hz; via the pyfar open-source copy of Annex E and
 // recomputed from that derivation).
 const (
 	weightF1    = 20.598997 // Hz, double real pole of C and A (low side)

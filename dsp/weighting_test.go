@@ -12,7 +12,7 @@ import (
 
 // annexA and annexC are the IEC 61672-1:2013 Annex E weightings, formulas E.1 and E.6, written
 // out here independently of the code under test, with the pole frequencies of E.4 (via the pyfar
-// transcription of Annex E) and the normalisation constants A1000 = -2.000 dB, C1000 = -0.062 dB.
+// open-source copy of Annex E) and the normalisation constants A1000 = -2.000 dB, C1000 = -0.062 dB.
 func annexA(f float64) float64 {
 	const f1, f2, f3, f4 = 20.598997, 107.65265, 737.86223, 12194.217
 	ff := f * f

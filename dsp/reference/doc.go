@@ -9,7 +9,7 @@
 // is no package-level mutable state.
 //
 // The standards were not read directly. Each table names the standard and its table or clause,
-// and "via" the open transcription from which the values were read. A value that could not be
+// and "via" the open-source copy from which the values were read. A value that could not be
 // read from any source is marked "from memory" beside it. Limits are on the deviation of a
 // measured response from its design goal, in decibels; a missing limit is math.Inf(-1) (no
 // lower limit) or math.Inf(+1) (no upper limit). Passing these checks shows only that a digital

@@ -9,7 +9,7 @@ import (
 )
 
 // annexEA and annexEC are the IEC 61672-1:2013 Annex E formulas E.1 and E.6, written out here
-// independently of package dsp, with the pole frequencies of E.4 (via the pyfar transcription
+// independently of package dsp, with the pole frequencies of E.4 (via the pyfar open-source copy
 // of Annex E) and A1000 = -2.000 dB, C1000 = -0.062 dB.
 func annexEA(f float64) float64 {
 	const f1, f2, f3, f4 = 20.598997, 107.65265, 737.86223, 12194.217
@@ -68,7 +68,7 @@ func TestWeightingTableShape(t *testing.T) {
 // Annex E formulas at the exact frequencies: the table is the formulas rounded to 0.1 dB, so
 // they agree within 0.05 dB, except A at 158.49 Hz (-13.34996 dB, on the rounding boundary,
 // tabulated -13.4), which gets 0.06 dB (acoustics-check-values notes, from the pyfar and
-// python-acoustics transcriptions).
+// python-acoustics open-source copies).
 func TestWeightingTableMatchesAnnexE(t *testing.T) {
 	for _, p := range reference.WeightingTable() {
 		tolA := 0.05 + 1e-9

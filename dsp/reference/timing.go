@@ -7,7 +7,7 @@ package reference
 //	Lτ(t) = 10 lg[ (1/τ) ∫₋∞ᵗ p²(ξ) e^(-(t-ξ)/τ) dξ / p0² ],
 //
 // a squarer followed by a low-pass with one real pole at -1/τ (IEC 61672-1:2002 Figure 1, via
-// a public transcription of IS 15575 (Part 1):2005; IEC 61672-1:2013 clause 3, from memory).
+// a public copy of IS 15575 (Part 1):2005; IEC 61672-1:2013 clause 3, from memory).
 const (
 	// TimeConstantFast is τ of time weighting F: 0.125 s (IEC 61672-1:2013 5.8.1, clause
 	// number from memory; value via python-acoustics and IEC 61672-1:2002 5.7.1).

@@ -34,7 +34,7 @@ type WeightingPoint struct {
 // Each call returns a fresh slice.
 //
 // Sources: the A and C design goals from IEC 61672-1:2013 Table 3, via three open
-// transcriptions that agree (python-acoustics data/iec_61672_1_2013.csv, pyfar
+// open-source copies that agree (python-acoustics data/iec_61672_1_2013.csv, pyfar
 // constants/frequency_weighting.py, phonometry tests/reference_data/sound_level_meters.py);
 // they also equal the Annex E formulas E.1/E.6 at the exact frequencies, rounded to 0.1 dB,
 // except A at 158.49 Hz (-13.34996 dB), which sits on the rounding boundary and is tabulated
@@ -119,7 +119,7 @@ const (
 	ReferenceLevel = 94.0
 
 	// ReferenceFrequency is the reference frequency in Hz, at which Table 3 is normalised
-	// to 0 dB (from memory; the normalisation is visible in the Table 3 transcriptions).
+	// to 0 dB (from memory; the normalisation is visible in the Table 3 open-source copies).
 	ReferenceFrequency = 1000.0
 
 	// WeightingDifferenceAt1kHz is the limit on the difference, at 1 kHz, between the level

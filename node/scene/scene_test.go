@@ -178,7 +178,7 @@ func TestCalibrator(t *testing.T) {
 		}
 		// Steady to 0.01 dB: every 100 ms window holds a whole number of cycles and reads the
 		// same level (IEC 60942:2017 Table 2 allows a class LS calibrator 0.03 dB of short-term
-		// fluctuation, via the phonometry transcription of calibrators.py).
+		// fluctuation, via the phonometry open-source copy of calibrators.py).
 		win := tc.fs / 10
 		for i := tc.fs / 4; i+win <= 11*tc.fs/4; i += win {
 			if d := 20 * math.Log10(rmsOf(x[i:i+win])/want); math.Abs(d) > 0.01 {
