@@ -333,7 +333,7 @@ func TestPackageContents(t *testing.T) {
 			if b, _ := os.ReadFile(filepath.Join(ctl, "conffiles")); strings.TrimSpace(string(b)) != "/etc/leqnode/leqnode.toml" {
 				t.Errorf("conffiles = %q, want /etc/leqnode/leqnode.toml", b)
 			}
-			for _, s := range []string{"postinst", "prerm", "postrm"} {
+			for _, s := range []string{"preinst", "postinst", "prerm", "postrm"} {
 				p := filepath.Join(ctl, s)
 				st, err := os.Stat(p)
 				if err != nil {
@@ -450,6 +450,40 @@ func TestUnit(t *testing.T) {
 	// The hardening goal of the unit (issue 5): exposure at most 3.0 on systemd's 0-10 scale.
 	if exposure > 3.0 {
 		t.Errorf("unit exposure %.1f exceeds the goal of 3.0; open items:\n  %s", exposure, strings.Join(worst, "\n  "))
+	}
+}
+
+func TestPreinstRefusesARMv6(t *testing.T) {
+	// The preinst script as dpkg runs it (dpkg's maintainer-script interface: "install"), with
+	// uname(1) replaced by a stand-in that reports the processor of each case.
+	root := repoRoot(t)
+	script := filepath.Join(root, "deploy", "debpkg", "scripts", "preinst")
+	tests := []struct {
+		machine string
+		ok      bool
+	}{
+		{"x86_64", true}, {"aarch64", true}, {"armv7l", true}, {"armv8l", true},
+		{"armv6l", false}, {"armv5tel", false},
+	}
+	for _, tc := range tests {
+		t.Run(tc.machine, func(t *testing.T) {
+			bin := t.TempDir()
+			writeFile(t, filepath.Join(bin, "uname"), "#!/bin/sh\necho "+tc.machine+"\n")
+			if err := os.Chmod(filepath.Join(bin, "uname"), 0o755); err != nil {
+				t.Fatal(err)
+			}
+			for _, arg := range []string{"install", "upgrade"} {
+				cmd := exec.Command("sh", script, arg)
+				cmd.Env = append(os.Environ(), "PATH="+bin+":"+os.Getenv("PATH"))
+				out, err := cmd.CombinedOutput()
+				if tc.ok && err != nil {
+					t.Errorf("preinst %s on %s: %v\n%s", arg, tc.machine, err, out)
+				}
+				if !tc.ok && (err == nil || !strings.Contains(string(out), "linux-armv6-purego")) {
+					t.Errorf("preinst %s on %s: %v, %q; want a refusal naming the ARMv6 build", arg, tc.machine, err, out)
+				}
+			}
+		})
 	}
 }
 

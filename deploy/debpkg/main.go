@@ -11,8 +11,8 @@
 // /lib/systemd/system), the default configuration (deploy/leqnode.toml, installed as the
 // conffile /etc/leqnode/leqnode.toml, which dpkg keeps on upgrade), the state directory
 // /var/lib/leqnode, the documentation in /usr/share/doc/leqnode, and the maintainer scripts in
-// deploy/debpkg/scripts (the system user "leqnode" in group "audio", the configuration check on
-// upgrade, the service).
+// deploy/debpkg/scripts (a processor check before unpacking, the system user "leqnode" in group
+// "audio", the configuration check on upgrade, the service).
 //
 // The dependencies come from the binary itself: every shared library its ELF header needs
 // (DT_NEEDED) maps to the Debian package that ships it, and the highest GLIBC symbol version it
@@ -212,7 +212,7 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	// Every file comes from a snapshot in tmp: nfpm takes a file's size and its bytes at
 	// different moments, and a file being edited between the two breaks the archive.
 	sources := []string{"deploy/leqnode.service", "deploy/leqnode.toml", "README.md",
-		"deploy/debpkg/scripts/postinst", "deploy/debpkg/scripts/prerm", "deploy/debpkg/scripts/postrm"}
+		"deploy/debpkg/scripts/preinst", "deploy/debpkg/scripts/postinst", "deploy/debpkg/scripts/prerm", "deploy/debpkg/scripts/postrm"}
 	fleet, err := filepath.Glob(filepath.Join(s.Root, "deploy", "fleet", "*"))
 	if err != nil {
 		return "", err
@@ -278,6 +278,7 @@ func Build(ctx context.Context, s Spec) (string, error) {
 			Contents:   contents,
 			Umask:      0o022,
 			Scripts: nfpm.Scripts{
+				PreInstall:  src("deploy/debpkg/scripts/preinst"),
 				PostInstall: src("deploy/debpkg/scripts/postinst"),
 				PreRemove:   src("deploy/debpkg/scripts/prerm"),
 				PostRemove:  src("deploy/debpkg/scripts/postrm"),
