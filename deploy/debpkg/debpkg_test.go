@@ -121,7 +121,7 @@ func buildDeb(t *testing.T, dir, version string) string {
 	t.Helper()
 	p, err := Build(context.Background(), Spec{
 		Arch: "amd64", Binary: amd64Binary(t), Version: version, Root: repoRoot(t), OutDir: dir,
-		MTime: time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC),
+		MTime: time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC), ManFrom: amd64Binary(t),
 	})
 	if err != nil {
 		t.Fatalf("Build: %v", err)
@@ -355,6 +355,18 @@ func TestPackageContents(t *testing.T) {
 			mustRun(t, "dpkg-deb", "--extract", deb, data)
 			if out, err := runCmd(context.Background(), data, nil, "md5sum", "--check", "--quiet", filepath.Join(ctl, "md5sums")); err != nil {
 				t.Errorf("md5sums do not match the data: %v %s", err, out)
+			}
+			// The manual page: lexgrog (man-db) finds its NAME line, and man renders it without
+			// a warning from groff.
+			if _, err := exec.LookPath("lexgrog"); err == nil {
+				page := filepath.Join(data, "usr", "share", "man", "man1", "leqnode.1.gz")
+				if out := mustRun(t, "lexgrog", page); !strings.Contains(out, "leqnode - noise monitoring node") {
+					t.Errorf("lexgrog %s: %q", page, out)
+				}
+				out, err := runCmd(context.Background(), "", []string{"MANWIDTH=80", "MAN_KEEP_STDERR=1"}, "man", "--warnings", "-l", page)
+				if err != nil || !strings.Contains(out, "COMMANDS") || !strings.Contains(out, "config check") || strings.Contains(out, "warning") {
+					t.Errorf("man -l %s: %v\n%s", page, err, out)
+				}
 			}
 			// The packaged binary is of the package's architecture.
 			checkELF(t, filepath.Join(data, "usr", "bin", "leqnode"), arch)

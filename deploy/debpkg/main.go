@@ -36,6 +36,7 @@ import (
 	"io"
 	"log/slog"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"regexp"
 	"slices"
@@ -66,6 +67,9 @@ type Spec struct {
 	// Compression is gzip (the default: every dpkg reads it), xz (smaller, slower to build)
 	// or none.
 	Compression string
+	// ManFrom, when not empty, is a leqnode binary that runs on the build machine; the manual
+	// page leqnode(1) is made from its `leqnode help`. Empty leaves the page out.
+	ManFrom string
 }
 
 // debArch maps Debian architectures to the ELF machine and class their binaries must have.
@@ -240,6 +244,24 @@ func Build(ctx context.Context, s Spec) (string, error) {
 		}
 	}
 	src := func(p string) string { return filepath.Join(tmp, "src", filepath.FromSlash(p)) }
+	var manPath string
+	if s.ManFrom != "" {
+		help, err := exec.CommandContext(ctx, s.ManFrom, "help").Output()
+		if err != nil {
+			return "", fmt.Errorf("manual page: %s help: %w", s.ManFrom, err)
+		}
+		page, err := ManPage(help, s)
+		if err != nil {
+			return "", fmt.Errorf("manual page from %s help: %w", s.ManFrom, err)
+		}
+		gz, err := gzipped(page)
+		if err != nil {
+			return "", err
+		}
+		if manPath, err = gen("leqnode.1.gz", gz); err != nil {
+			return "", err
+		}
+	}
 	fi := func(mode os.FileMode) *files.ContentFileInfo {
 		return &files.ContentFileInfo{Owner: "root", Group: "root", Mode: mode, MTime: s.MTime}
 	}
@@ -255,6 +277,9 @@ func Build(ctx context.Context, s Spec) (string, error) {
 		{Source: copyrightPath, Destination: doc + "copyright", FileInfo: fi(0o644)},
 		{Source: changelogPath, Destination: doc + "changelog.gz", FileInfo: fi(0o644)},
 		{Source: overridesPath, Destination: "/usr/share/lintian/overrides/leqnode", FileInfo: fi(0o644)},
+	}
+	if manPath != "" {
+		contents = append(contents, &files.Content{Source: manPath, Destination: "/usr/share/man/man1/leqnode.1.gz", FileInfo: fi(0o644)})
 	}
 	for _, f := range fleetDocs {
 		contents = append(contents, &files.Content{Source: src(f), Destination: doc + "fleet/" + filepath.Base(f), FileInfo: fi(0o644)})
@@ -368,6 +393,90 @@ func ArecordConfig(data []byte) ([]byte, error) {
 	return out, nil
 }
 
+// ManPage returns the manual page leqnode(1) in man(7) format, its command list taken from
+// the output of `leqnode help` (lines "  NAME  SUMMARY" after "commands:").
+func ManPage(help []byte, s Spec) ([]byte, error) {
+	esc := strings.NewReplacer(`\`, `\e`, "-", `\-`, "'", `\(aq`)
+	var cmds [][2]string
+	in := false
+	for _, line := range strings.Split(string(help), "\n") {
+		switch {
+		case strings.TrimSpace(line) == "commands:":
+			in = true
+		case in && strings.HasPrefix(line, "  "):
+			name, summary, ok := strings.Cut(strings.TrimSpace(line), " ")
+			if !ok {
+				return nil, fmt.Errorf("command line %q has no summary", line)
+			}
+			cmds = append(cmds, [2]string{name, strings.TrimSpace(summary)})
+		case in && strings.TrimSpace(line) == "":
+			in = len(cmds) == 0
+		}
+	}
+	if len(cmds) == 0 {
+		return nil, errors.New("no commands listed after \"commands:\"")
+	}
+	var b bytes.Buffer
+	fmt.Fprintf(&b, ".TH LEQNODE 1 %q \"leqnode %s\" \"User Commands\"\n", s.MTime.UTC().Format("2006-01-02"), esc.Replace(s.Version))
+	b.WriteString(`.SH NAME
+leqnode \- noise monitoring node and its tools
+.SH SYNOPSIS
+.B leqnode
+.I command
+.RI [ flags ]
+.RI [ args ]
+.SH DESCRIPTION
+.B leqnode
+turns a single\-board computer with a measurement microphone into an unattended noise
+monitoring node: A\- and C\-weighted levels with Fast, Slow and Impulse time weighting,
+one\-third\-octave spectra, events, a crash\-safe store and MQTT publishing, checked against a
+sound calibrator.
+Every command follows one set of conventions: a recording is a positional FILE
+.RB ( \- " is standard input);"
+the store comes from
+.B \-\-config
+.I FILE
+or
+.B \-\-db
+.IR FILE ;
+time ranges are
+.B \-\-from
+and
+.B \-\-to
+(RFC 3339 or YYYY\-MM\-DD, half\-open). Run
+.B leqnode
+.I command
+.B \-h
+for a command's flags.
+.SH COMMANDS
+`)
+	for _, c := range cmds {
+		fmt.Fprintf(&b, ".TP\n.B %s\n%s\n", esc.Replace(c[0]), esc.Replace(c[1]))
+	}
+	b.WriteString(`.SH EXIT STATUS
+0 on success, 2 for bad input or usage, 1 for a failure at run time.
+.SH FILES
+.TP
+.I /etc/leqnode/leqnode.toml
+the node's configuration; check it with
+.B leqnode config check
+.TP
+.I /var/lib/leqnode
+the store and the calibration state
+.TP
+.I /lib/systemd/system/leqnode.service
+the service
+.TP
+.I /usr/share/doc/leqnode
+the documentation, the example configuration and the fleet examples
+.SH CAUTIONS
+Levels are indicative: legally valid measurements need a type\-approved class 1 instrument with
+traceable calibration, the whole chain verified; defer to local regulations and accredited
+practice. Long exposure to levels above 85 dB(A), a sound calibrator's included, damages hearing.
+`)
+	return b.Bytes(), nil
+}
+
 // lintianOverrides explains to lintian (Debian's package checker) the departures that are
 // meant: the configuration may hold broker credentials and the state directory holds the
 // measurements, so neither is world-readable.
@@ -416,6 +525,7 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	fs.StringVar(&s.OutDir, "out", "dist", "output directory")
 	fs.Int64Var(&mtime, "mtime", 0, "time of the files in the package, Unix seconds (default: $SOURCE_DATE_EPOCH, else 0)")
 	fs.StringVar(&s.Compression, "compression", "gzip", "gzip, xz or none")
+	fs.StringVar(&s.ManFrom, "man-from", "", "a leqnode binary that runs here: make the manual page from its help (default: none)")
 	arecordFrom := fs.String("arecord-config", "", "print this configuration turned to the arecord source (for builds without PortAudio) and exit")
 	if err := fs.Parse(args); err != nil {
 		if errors.Is(err, flag.ErrHelp) {
