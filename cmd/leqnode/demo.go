@@ -33,6 +33,9 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	cfg := config.Default()
 	cfg.Capture.Realtime = !*fast
 	cfg.Capture.CalibratorSeconds = 8
+	// The scene follows the hour of its start time (quiet nights, rush hours): let it begin on
+	// a weekday morning whatever the time of the demo, so there is traffic to hear.
+	cfg.Capture.Start = time.Now().UTC().Format("2006-01-02") + "T08:00:00Z"
 	if *dir == "" {
 		if *dir, err = os.MkdirTemp("", "leqnode-demo-"); err != nil {
 			return err
