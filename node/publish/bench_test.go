@@ -52,8 +52,8 @@ func BenchmarkBacklog(b *testing.B) {
 				if err := store.Flush(); err != nil {
 					b.Fatal(err)
 				}
-				p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", BacklogMessagesPerSecond: bc.rate},
-					store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+				p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", BacklogMessagesPerSecond: bc.rate},
+					store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
 				if err != nil {
 					b.Fatal(err)
 				}

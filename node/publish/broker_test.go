@@ -21,10 +21,10 @@ func TestLocalBroker(t *testing.T) {
 	if !strings.HasPrefix(url, "tcp://127.0.0.1:") || strings.HasSuffix(url, ":0") {
 		t.Fatalf("url %q", url)
 	}
-	col := newCollector(t, url, "millbrook/#", nil)
+	col := newCollector(t, url, "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{url}, TopicPrefix: "millbrook"}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{url}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}

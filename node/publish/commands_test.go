@@ -107,7 +107,7 @@ func FuzzParseCommand(f *testing.F) {
 func TestRemoteCommands(t *testing.T) {
 	sch := schemas(t)
 	m := startMosquitto(t, brokerOpts{})
-	col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
 	for i := range 120 {
@@ -118,8 +118,8 @@ func TestRemoteCommands(t *testing.T) {
 	}
 	store.Flush()
 	var logs logBuffer
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Commands: CommandsConfig{Enabled: true}},
-		store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Commands: CommandsConfig{Enabled: true}},
+		store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -137,7 +137,7 @@ func TestRemoteCommands(t *testing.T) {
 	}
 	defer cmd.Disconnect(100)
 	send := func(s string) {
-		if tok := cmd.Publish("millbrook/elm-3/command", 1, false, s); !tok.WaitTimeout(5*time.Second) || tok.Error() != nil {
+		if tok := cmd.Publish("wendlecross/wendle-cross-03/command", 1, false, s); !tok.WaitTimeout(5*time.Second) || tok.Error() != nil {
 			t.Fatal(tok.Error())
 		}
 	}
@@ -166,7 +166,7 @@ func TestRemoteCommands(t *testing.T) {
 	replies := func(msgs []received) []reply {
 		var out []reply
 		for _, m := range msgs {
-			if m.topic == "millbrook/elm-3/reply" {
+			if m.topic == "wendlecross/wendle-cross-03/reply" {
 				var r reply
 				_ = json.Unmarshal(m.payload, &r)
 				out = append(out, r)
@@ -234,10 +234,10 @@ func TestRemoteCommands(t *testing.T) {
 // TestCommandsOffByDefault: without commands enabled the node does not even subscribe.
 func TestCommandsOffByDefault(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{})
-	col := newCollector(t, m.url("tcp"), "millbrook/elm-3/reply", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/wendle-cross-03/reply", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook"}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -249,7 +249,7 @@ func TestCommandsOffByDefault(t *testing.T) {
 		t.Fatal(tok.Error())
 	}
 	defer cmd.Disconnect(100)
-	cmd.Publish("millbrook/elm-3/command", 1, false, `{"schema_version":1,"id":"st-1","action":"publish_status"}`).Wait()
+	cmd.Publish("wendlecross/wendle-cross-03/command", 1, false, `{"schema_version":1,"id":"st-1","action":"publish_status"}`).Wait()
 	time.Sleep(500 * time.Millisecond)
 	if n := len(col.snapshot()); n != 0 {
 		t.Errorf("%d replies with commands off", n)
@@ -262,8 +262,8 @@ func TestCommandsAfterReconnect(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{})
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", ReconnectMaxDelay: Duration(time.Second),
-		Commands: CommandsConfig{Enabled: true}}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", ReconnectMaxDelay: Duration(time.Second),
+		Commands: CommandsConfig{Enabled: true}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -276,13 +276,13 @@ func TestCommandsAfterReconnect(t *testing.T) {
 		time.Sleep(10 * time.Millisecond) // the loss is noticed
 	}
 	waitConnected(t, p)
-	col := newCollector(t, m.url("tcp"), "millbrook/elm-3/reply", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/wendle-cross-03/reply", nil)
 	cmd := mqtt.NewClient(mqtt.NewClientOptions().AddBroker(m.url("tcp")).SetClientID("commander"))
 	if tok := cmd.Connect(); !tok.WaitTimeout(5*time.Second) || tok.Error() != nil {
 		t.Fatal(tok.Error())
 	}
 	defer cmd.Disconnect(100)
 	time.Sleep(200 * time.Millisecond) // the subscription made in the connect handler
-	cmd.Publish("millbrook/elm-3/command", 1, false, `{"schema_version":1,"id":"after-restart","action":"publish_status"}`).Wait()
+	cmd.Publish("wendlecross/wendle-cross-03/command", 1, false, `{"schema_version":1,"id":"after-restart","action":"publish_status"}`).Wait()
 	col.waitFor(10*time.Second, "a reply after the reconnect", func(msgs []received) bool { return len(msgs) > 0 })
 }

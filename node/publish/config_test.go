@@ -19,7 +19,7 @@ func TestConfigValidate(t *testing.T) {
 	if err := os.WriteFile(pw, []byte("s3cret\n"), 0o600); err != nil {
 		t.Fatal(err)
 	}
-	ok := Config{Brokers: []string{"tcp://broker.millbrook.invalid:1883"}}
+	ok := Config{Brokers: []string{"tcp://broker.wendlecross.invalid:1883"}}
 	tests := []struct {
 		name string
 		edit func(*Config)
@@ -28,7 +28,7 @@ func TestConfigValidate(t *testing.T) {
 		{"defaults", func(*Config) {}, nil},
 		{"full", func(c *Config) {
 			c.Brokers = []string{"ssl://a.invalid:8883", "wss://b.invalid/mqtt"}
-			c.Username, c.PasswordFile = "elm-3", pw
+			c.Username, c.PasswordFile = "wendle-cross-03", pw
 			c.Spectra, c.SecondsPerMessage, c.MaxInFlight = SpectraSecond, 60, 1000
 			c.BacklogMessagesPerSecond, c.BacklogBytesPerSecond = -1, 4096
 			c.Commands = CommandsConfig{Enabled: true, Allow: []string{ActionResend}, MaxResendRange: Duration(time.Hour)}
@@ -44,7 +44,7 @@ func TestConfigValidate(t *testing.T) {
 		{"missing password file", func(c *Config) { c.Username, c.PasswordFile = "u", filepath.Join(dir, "none") }, []string{"password_file"}},
 		{"unset env", func(c *Config) { c.Username, c.PasswordEnv = "u", "LEQNODE_TEST_SURELY_UNSET" }, []string{"is not set"}},
 		{"cert without key", func(c *Config) { c.TLS.CertFile = pw }, []string{"give both or neither"}},
-		{"prefix wildcard", func(c *Config) { c.TopicPrefix = "millbrook/#" }, []string{"publish.topic_prefix"}},
+		{"prefix wildcard", func(c *Config) { c.TopicPrefix = "wendlecross/#" }, []string{"publish.topic_prefix"}},
 		{"spectra", func(c *Config) { c.Spectra = "hourly" }, []string{`publish.spectra "hourly"`}},
 		{"batch", func(c *Config) { c.SecondsPerMessage = 61 }, []string{"seconds_per_message 61"}},
 		{"window", func(c *Config) { c.MaxInFlight = -1 }, []string{"max_in_flight -1"}},
@@ -195,15 +195,15 @@ func TestTakeBatch(t *testing.T) {
 
 // exampleTOML is the [publish] section as the README documents it.
 const exampleTOML = `
-brokers = ["ssl://mqtt.millbrook.invalid:8883", "ssl://mqtt-backup.millbrook.invalid:8883"]
-client_id = "leqnode-elm-3"
+brokers = ["ssl://mqtt.wendlecross.invalid:8883", "ssl://mqtt-backup.wendlecross.invalid:8883"]
+client_id = "leqnode-wendle-cross-03"
 keep_alive = "30s"
 connect_timeout = "10s"
 persistent_session = false
 reconnect_max_delay = "2m"
-username = "elm-3"
+username = "wendle-cross-03"
 password_file = "/etc/leqnode/mqtt-password"
-topic_prefix = "millbrook/noise"
+topic_prefix = "wendlecross/noise"
 spectra = "minute"
 seconds_per_message = 10
 max_in_flight = 32
@@ -213,7 +213,7 @@ status_interval = "1m"
 stream = "mqtt"
 
 [tls]
-ca_file = "/etc/leqnode/millbrook-ca.pem"
+ca_file = "/etc/leqnode/wendlecross-ca.pem"
 cert_file = ""
 key_file = ""
 server_name = ""

@@ -81,12 +81,12 @@ func TestNormalFlow(t *testing.T) {
 		t.Run(mode, func(t *testing.T) {
 			sch := schemas(t)
 			m := startMosquitto(t, brokerOpts{})
-			col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+			col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 			store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 			defer store.Close()
 			var logs logBuffer
-			p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Spectra: mode},
-				store, Identity{NodeID: "elm-3", Site: "Harrow Lane, Millbrook", Location: &Location{10.04, -20.17}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
+			p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Spectra: mode},
+				store, Identity{NodeID: "wendle-cross-03", Site: "Harrowby Lane, Wendle Cross", Location: &Location{10.04, -20.17}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -137,7 +137,7 @@ func TestNormalFlow(t *testing.T) {
 					Bands       []string        `json:"bands_hz"`
 				}
 				_ = json.Unmarshal(msg.payload, &env)
-				if env.Node != "elm-3" || env.Store != store.ID() {
+				if env.Node != "wendle-cross-03" || env.Store != store.ID() {
 					t.Errorf("%s: node %q store %q", msg.topic, env.Node, env.Store)
 				}
 				switch {
@@ -176,11 +176,11 @@ func TestNormalFlow(t *testing.T) {
 func TestSelectedKindsAndQuantities(t *testing.T) {
 	sch := schemas(t)
 	m := startMosquitto(t, brokerOpts{})
-	col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", Kinds: []string{"second", "minute"},
-		SecondQuantities: []string{"LAFmax", "LAeq"}}, store, Identity{NodeID: "elm-3"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Kinds: []string{"second", "minute"},
+		SecondQuantities: []string{"LAFmax", "LAeq"}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -230,7 +230,7 @@ func TestBrokerFailover(t *testing.T) {
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
 	var logs logBuffer
-	p, err := New(Config{Brokers: []string{dead, m.url("tcp")}, ReconnectMaxDelay: Duration(time.Second)}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+	p, err := New(Config{Brokers: []string{dead, m.url("tcp")}, ReconnectMaxDelay: Duration(time.Second)}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -273,7 +273,7 @@ func TestStoreClosedUnderneath(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{})
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	var logs logBuffer
-	p, err := New(Config{Brokers: []string{m.url("tcp")}}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -287,7 +287,7 @@ func openStore(t testing.TB, path string) *buffer.Store {
 	return s
 }
 
-// The demo scenario: node "elm-3" at Harrow Lane in the invented town of Millbrook.
+// The demo scenario: node "wendle-cross-03" at Harrowby Lane in the invented town of Wendle Cross.
 var t0 = time.Date(2031, 5, 4, 8, 0, 0, 0, time.UTC)
 
 // spectrum returns 33 one-third-octave levels, bands -19 (12.5 Hz) to 13 (20 kHz).
@@ -330,7 +330,7 @@ func otherRecords(i int) []buffer.Record {
 		&buffer.Calibration{At: at, Reference: 94, Measured: 94.12, Deviation: 0.12, Frequency: 1000.2, Stability: 0.03, SensitivityBefore: -26.1, SensitivityAfter: -26.0, Applied: true, OK: true},
 		&buffer.Health{At: at, CPU: 12.5, MemoryMB: 31, DiskFreeMB: 5120, DCOffset: math.NaN(), ClockErrorMs: math.NaN(), TemperatureC: 44, StoreBytes: 1 << 20, ClockSynced: true},
 		&buffer.Gap{From: at, To: at.Add(2 * time.Second), Reason: "device lost"},
-		&buffer.Annotation{From: at, To: at.Add(30 * time.Second), Flags: buffer.Excluded, Reason: "road works on Harrow Lane"},
+		&buffer.Annotation{From: at, To: at.Add(30 * time.Second), Flags: buffer.Excluded, Reason: "road works on Harrowby Lane"},
 		&buffer.Session{At: at, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "testsig", TimeZone: "UTC"},
 	}
 }

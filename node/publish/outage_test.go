@@ -22,14 +22,14 @@ import (
 // connection died), bounded by the in-flight window.
 func TestOutage(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{persistent: true})
-	col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
 	var logs logBuffer
 	const window = 8
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "millbrook", ReconnectMaxDelay: Duration(time.Second),
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", ReconnectMaxDelay: Duration(time.Second),
 		MaxInFlight: window, BacklogMessagesPerSecond: 500, KeepAlive: Duration(5 * time.Second)},
-		store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+		store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -105,7 +105,7 @@ func TestOutage(t *testing.T) {
 // SIGKILL while it sends a backlog; a new process on the same store file sends what is missing.
 func TestCrashDuringBackfill(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{persistent: true})
-	col := newCollector(t, m.url("tcp"), "millbrook/#", nil)
+	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	path := filepath.Join(t.TempDir(), "node.db")
 	store := openStore(t, path)
 	const nSec, nMin = 3000, 50
@@ -138,7 +138,7 @@ func TestCrashDuringBackfill(t *testing.T) {
 	col.waitFor(10*time.Second, "the last will", func(msgs []received) bool {
 		return len(msgs) > 0 && statusState(msgs) == "offline"
 	})
-	late := newCollector(t, m.url("tcp"), "millbrook/elm-3/status", nil)
+	late := newCollector(t, m.url("tcp"), "wendlecross/wendle-cross-03/status", nil)
 	late.waitFor(10*time.Second, "the retained status", func(msgs []received) bool { return statusState(msgs) == "offline" })
 	got, _ := countSeqs(t, col.snapshot())
 	if got.complete("second", nSec) {
@@ -172,8 +172,8 @@ func TestPublisherChild(t *testing.T) {
 	store := openStore(t, os.Getenv("LEQNODE_CHILD_DB"))
 	defer store.Close()
 	rate, _ := strconv.Atoi(os.Getenv("LEQNODE_CHILD_RATE"))
-	p, err := New(Config{Brokers: []string{os.Getenv("LEQNODE_CHILD_BROKER")}, TopicPrefix: "millbrook",
-		BacklogMessagesPerSecond: float64(rate), Spectra: SpectraSecond}, store, Identity{NodeID: "elm-3"}, nil)
+	p, err := New(Config{Brokers: []string{os.Getenv("LEQNODE_CHILD_BROKER")}, TopicPrefix: "wendlecross",
+		BacklogMessagesPerSecond: float64(rate), Spectra: SpectraSecond}, store, Identity{NodeID: "wendle-cross-03"}, nil)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -26,7 +26,7 @@ func TestSecondPayload(t *testing.T) {
 	raw[1].Flags = buffer.Dropped | buffer.Clipped
 	raw[1].DroppedSamples = 480
 	recs := storedSeconds(t, 40, raw) // sequence numbers 41, 42, 43
-	b := appendSeconds(nil, envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryBacklog}, recs, true, nil)
+	b := appendSeconds(nil, envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryBacklog}, recs, true, nil)
 	validate(t, sch, "second", b)
 	var p struct {
 		Seq, LastSeq, Count int64
@@ -72,7 +72,7 @@ func TestRecordPayloads(t *testing.T) {
 	recs := stored(t, 0, append([]buffer.Record{minute(3, true)}, otherRecords(3)...))
 	for _, r := range recs {
 		for _, spectra := range []bool{true, false} {
-			b := appendRecord(nil, envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryLive}, r, spectra)
+			b := appendRecord(nil, envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryLive}, r, spectra)
 			kind := validate(t, sch, r.Kind().String(), b)
 			if kind != r.Kind().String() {
 				t.Errorf("kind %s for a %s record", kind, r.Kind())
@@ -212,8 +212,8 @@ type volume struct {
 
 func measureVolume(t testing.TB) []volume {
 	secs, mins := realistic(t, 600)
-	env := envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryLive}
-	top := newTopics(DefaultTopicPrefix, "elm-3")
+	env := envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryLive}
+	top := newTopics(DefaultTopicPrefix, "wendle-cross-03")
 	const month = 30 * 24 * 3600
 	var out []volume
 	lean := []secondLevel{secondLevels[0], secondLevels[3]} // LAeq, LAFmax
@@ -232,7 +232,7 @@ func measureVolume(t testing.TB) []volume {
 		}
 		v.secondMsg = sb / (len(secs) / DefaultSecondsPerMessage)
 		v.minuteMsg = mb / len(mins)
-		p := &Publisher{id: Identity{NodeID: "elm-3", SoftwareVersion: "0.1.0"}, cfg: Config{Spectra: SpectraMinute, SecondsPerMessage: 10}}
+		p := &Publisher{id: Identity{NodeID: "wendle-cross-03", SoftwareVersion: "0.1.0"}, cfg: Config{Spectra: SpectraMinute, SecondsPerMessage: 10}}
 		v.stat = len(p.appendStatusFields(nil, "online", true, Status{Pending: map[string]uint64{}}, "0123456789abcdef", map[string]uint64{}))
 		v.month = monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, buffer.KindSecond)), month/DefaultSecondsPerMessage) +
 			monthlyBytes(v.minuteMsg, len(top.data(DeliveryLive, buffer.KindMinute)), month/60) +
@@ -265,7 +265,7 @@ func TestMonthlyVolume(t *testing.T) {
 // BenchmarkEncodeSecondBatch measures building one 10-second message with spectra.
 func BenchmarkEncodeSecondBatch(b *testing.B) {
 	secs, _ := realistic(b, 10)
-	env := envelope{node: "elm-3", store: "0123456789abcdef", delivery: DeliveryLive}
+	env := envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryLive}
 	buf := make([]byte, 0, 8192)
 	b.ReportAllocs()
 	for b.Loop() {

@@ -35,7 +35,7 @@ func makePKI(t *testing.T) pki {
 	d := t.TempDir()
 	ec := []string{"-newkey", "ec", "-pkeyopt", "ec_paramgen_curve:prime256v1", "-nodes"}
 	ca := func(name string) {
-		openssl(t, d, append(append([]string{"req", "-x509"}, ec...), "-keyout", name+".key", "-out", name+".crt", "-days", "2", "-subj", "/CN=Millbrook test CA "+name)...)
+		openssl(t, d, append(append([]string{"req", "-x509"}, ec...), "-keyout", name+".key", "-out", name+".crt", "-days", "2", "-subj", "/CN=Wendle Cross test CA "+name)...)
 	}
 	ca("ca")
 	ca("other")
@@ -49,7 +49,7 @@ func makePKI(t *testing.T) pki {
 	}
 	// Go's TLS client ignores the CN: the server certificate names its hosts in subjectAltName.
 	leaf("server", "localhost", "subjectAltName=DNS:localhost,IP:127.0.0.1")
-	leaf("client", "elm-3", "extendedKeyUsage=clientAuth")
+	leaf("client", "wendle-cross-03", "extendedKeyUsage=clientAuth")
 	p := func(n string) string { return filepath.Join(d, n) }
 	return pki{dir: d, ca: p("ca.crt"), serverCert: p("server.crt"), serverKey: p("server.key"),
 		clientCert: p("client.crt"), clientKey: p("client.key"), otherCA: p("other.crt"), pass: p("password")}
@@ -60,7 +60,7 @@ func makePKI(t *testing.T) pki {
 // the publisher keeps retrying with backoff, and no credential reaches the logs or the status.
 func TestTLSWithPassword(t *testing.T) {
 	k := makePKI(t)
-	const user, secret = "elm-3", "kestrel-bridge-4471"
+	const user, secret = "wendle-cross-03", "kestrel-bridge-4471"
 	const wrong = "wrong-horse-9923"
 	m := startMosquitto(t, brokerOpts{user: user, pass: secret, ca: k.ca, cert: k.serverCert, key: k.serverKey,
 		extraConfigLines: []string{"require_certificate true"}})
@@ -70,7 +70,7 @@ func TestTLSWithPassword(t *testing.T) {
 	url := m.url("ssl")
 
 	t.Run("delivers", func(t *testing.T) {
-		col := newCollector(t, url, "millbrook/#", func(o *mqtt.ClientOptions) {
+		col := newCollector(t, url, "wendlecross/#", func(o *mqtt.ClientOptions) {
 			cfg := Config{TLS: TLSConfig{CAFile: k.ca, CertFile: k.clientCert, KeyFile: k.clientKey}}
 			tc, err := cfg.tlsConfig()
 			if err != nil {
@@ -81,8 +81,8 @@ func TestTLSWithPassword(t *testing.T) {
 		store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 		defer store.Close()
 		var logs logBuffer
-		p, err := New(Config{Brokers: []string{url}, TopicPrefix: "millbrook", Username: user, PasswordFile: k.pass,
-			TLS: TLSConfig{CAFile: k.ca, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+		p, err := New(Config{Brokers: []string{url}, TopicPrefix: "wendlecross", Username: user, PasswordFile: k.pass,
+			TLS: TLSConfig{CAFile: k.ca, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -105,7 +105,7 @@ func TestTLSWithPassword(t *testing.T) {
 		defer store.Close()
 		var logs logBuffer
 		p, err := New(Config{Brokers: []string{url}, Username: user, PasswordFile: k.pass,
-			TLS: TLSConfig{InsecureSkipVerify: true, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+			TLS: TLSConfig{InsecureSkipVerify: true, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -134,8 +134,8 @@ func TestTLSWithPassword(t *testing.T) {
 			defer store.Close()
 			var logs logBuffer
 			cfg := c.cfg
-			cfg.Brokers, cfg.TopicPrefix, cfg.ReconnectMaxDelay = []string{url}, "millbrook", Duration(time.Second)
-			p, err := New(cfg, store, Identity{NodeID: "elm-3"}, newLogger(&logs))
+			cfg.Brokers, cfg.TopicPrefix, cfg.ReconnectMaxDelay = []string{url}, "wendlecross", Duration(time.Second)
+			p, err := New(cfg, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 			if err != nil {
 				t.Fatal(err)
 			}
