@@ -61,18 +61,11 @@ func runAnalyze(ctx context.Context, std stdio, args []string) error {
 			return badInput("--start %q is not an RFC 3339 time: write e.g. 2026-05-04T07:00:00Z", *start)
 		}
 	}
-	name := pos[0]
-	var in io.Reader = std.in
-	if name != "-" {
-		f, err := os.Open(name)
-		if err != nil {
-			return badInput("%s: cannot open: %v", name, unwrapPath(err))
-		}
-		defer f.Close()
-		in = f
-	} else {
-		name = "standard input"
+	in, name, done, err := openRecording(std, pos[0])
+	if err != nil {
+		return err
 	}
+	defer done()
 	r, err := wav.NewReader(bufio.NewReaderSize(in, 1<<16))
 	if err != nil {
 		return badInput("%s: %v", name, err)

@@ -7,7 +7,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"os"
 	"strconv"
 	"text/tabwriter"
 	"time"
@@ -96,18 +95,11 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 		return calibrateDaemon(ctx, std, *cfgPath, calibrate.Request{Reference: *ref, Timeout: 2 * time.Minute, Apply: true}, *format)
 	}
 
-	name := pos[0]
-	var in io.Reader = std.in
-	if name != "-" {
-		f, err := os.Open(name)
-		if err != nil {
-			return badInput("%s: cannot open: %v", name, unwrapPath(err))
-		}
-		defer f.Close()
-		in = f
-	} else {
-		name = "standard input"
+	in, name, done, err := openRecording(std, pos[0])
+	if err != nil {
+		return err
 	}
+	defer done()
 	res, err := calibrate.FromReader(ctx, in, calibrate.Options{Reference: *ref, Class: cls, Channel: *channel})
 	if errors.Is(err, calibrate.ErrNoTone) {
 		if *format == "json" {

@@ -5,6 +5,7 @@ import (
 	"flag"
 	"fmt"
 	"io"
+	"os"
 	"strings"
 )
 
@@ -50,4 +51,17 @@ func oneOf(name, v string, allowed ...string) error {
 		}
 	}
 	return badInput("--%s %q is not allowed: use one of %s", name, v, strings.Join(allowed, ", "))
+}
+
+// openRecording opens the recording a command names: a file, or "-" for standard input. It
+// returns the reader, the name to use in messages, and a function that closes the file.
+func openRecording(std stdio, name string) (r io.Reader, display string, done func(), err error) {
+	if name == "-" {
+		return std.in, "standard input", func() {}, nil
+	}
+	f, err := os.Open(name)
+	if err != nil {
+		return nil, name, nil, badInput("%s: cannot open: %v", name, unwrapPath(err))
+	}
+	return f, name, func() { f.Close() }, nil
 }
