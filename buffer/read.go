@@ -419,7 +419,16 @@ func applyAnnotations(r Record, anns []*Annotation) {
 	case *Second:
 		start, end, flags = v.Start, v.Start.Add(v.Duration), &v.Flags
 	case *Minute:
-		start, end, flags = v.Start, v.Start.Add(time.Minute), &v.Flags
+		// A minute record cannot be split: an annotation that covers only part of it acts on
+		// the second records (the node's own calibration marks are already inside the minute,
+		// which it builds only after they are known), and flags the minute only when it
+		// covers the whole minute.
+		for _, a := range anns {
+			if !a.From.After(v.Start) && !a.To.Before(v.Start.Add(time.Minute)) {
+				v.Flags |= a.Flags
+			}
+		}
+		return
 	case *Event:
 		start, end, flags = v.Start, v.End, &v.Flags
 	default:

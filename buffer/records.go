@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Record is one stored result. The concrete types are *Second, *Minute, *Event, *Calibration,
@@ -80,8 +82,30 @@ type Minute struct {
 	// percentile levels over any period merge exactly.
 	Histogram LevelHistogram
 
-	ValidSeconds int // seconds of the minute that carried valid data (0 to 60)
-	Flags        Flags
+	// ValidSeconds counts the second records whose levels are in the minute: the seconds the
+	// validity rule (package record) counts. Every level, the histogram and the spectrum come
+	// from these seconds alone.
+	ValidSeconds int
+	// LeftOut counts the second records the rule left out, by reason (LeftOut[record.Counted]
+	// is unused). All zero in records of format version 1, which did not keep them.
+	LeftOut [record.NumReasons]int
+	// OverloadSeconds and UnderRangeSeconds count the valid seconds flagged overload (the
+	// minute's levels are lower bounds) and under-range (upper bounds).
+	OverloadSeconds, UnderRangeSeconds int
+	// Flags are the bound flags of the valid seconds (Overload, UnderRange) and the conditions
+	// of the minute (Clipped, ClockUnsynced); a left-out flag here comes from an annotation
+	// covering the whole minute when the store is read, or from a version 1 record, and
+	// leaves the whole minute out.
+	Flags Flags
+}
+
+// Tally returns the minute's seconds by what the validity rule made of them.
+func (r *Minute) Tally() record.Tally {
+	t := record.Tally{Counted: float64(r.ValidSeconds), Overload: float64(r.OverloadSeconds), UnderRange: float64(r.UnderRangeSeconds)}
+	for i, n := range r.LeftOut {
+		t.LeftOut[i] = float64(n)
+	}
+	return t
 }
 
 // LevelHistogram counts level samples in 0.1 dB bins: Counts[i] is the number of samples with
@@ -276,7 +300,7 @@ func checkSpectrum(first int, s []float64) error {
 // Format versions of the record encodings.
 const (
 	secondVersion      = 1
-	minuteVersion      = 1
+	minuteVersion      = 2 // 2 adds the left-out and bound counts
 	eventVersion       = 1
 	calibrationVersion = 1
 	healthVersion      = 1
@@ -341,8 +365,10 @@ func (r *Minute) AppendBinary(b []byte) ([]byte, error) {
 	if err := checkSpectrum(r.FirstBand, r.Spectrum); err != nil {
 		return b, fmt.Errorf("minute record: %w", err)
 	}
-	if r.ValidSeconds < 0 || r.ValidSeconds > 1<<20 {
-		return b, fmt.Errorf("minute record: valid seconds %d out of range", r.ValidSeconds)
+	for _, n := range append([]int{r.ValidSeconds, r.OverloadSeconds, r.UnderRangeSeconds}, r.LeftOut[:]...) {
+		if n < 0 || n > 1<<20 {
+			return b, fmt.Errorf("minute record: second count %d out of range", n)
+		}
 	}
 	counts, first := r.Histogram.Counts, int64(r.Histogram.First)
 	for len(counts) > 0 && counts[0] == 0 {
@@ -381,13 +407,19 @@ func (r *Minute) AppendBinary(b []byte) ([]byte, error) {
 		e.uvarint(uint64(j-i)<<1 | 1)
 		i = j
 	}
+	e.uvarint(uint64(len(r.LeftOut) - 1))
+	for _, n := range r.LeftOut[1:] {
+		e.uvarint(uint64(n))
+	}
+	e.uvarint(uint64(r.OverloadSeconds))
+	e.uvarint(uint64(r.UnderRangeSeconds))
 	return e.b, nil
 }
 
 // UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
 func (r *Minute) UnmarshalBinary(data []byte) error {
 	d := dec{b: data, what: "minute"}
-	d.version(minuteVersion)
+	v := d.version(minuteVersion)
 	*r = Minute{header: r.header}
 	r.Flags = d.flags()
 	r.Start = d.time()
@@ -424,6 +456,25 @@ func (r *Minute) UnmarshalBinary(data []byte) error {
 				break
 			}
 			i += run
+		}
+	}
+	if v >= 2 {
+		n := d.uvarint()
+		for i := uint64(0); i < n && d.err == nil; i++ {
+			c := d.uvarint()
+			if c > 1<<20 {
+				d.fail("left-out count out of range")
+			}
+			if int(i)+1 < len(r.LeftOut) {
+				r.LeftOut[i+1] = int(c) // reasons a newer build adds are skipped
+			}
+		}
+		for _, p := range [...]*int{&r.OverloadSeconds, &r.UnderRangeSeconds} {
+			c := d.uvarint()
+			if c > 1<<20 {
+				d.fail("bound count out of range")
+			}
+			*p = int(c)
 		}
 	}
 	return d.end()

@@ -83,12 +83,12 @@ func (p *processor) onTone(d dsp.Detection) {
 		refs = []float64{req.reference}
 	}
 	inUse := p.o.SensitivityDBFS
-	ref, ok := calibrate.MatchReference(d.LevelDBFS, inUse, refs, 0)
+	ref, ok := calibrate.MatchReference(d.LevelDBFS, inUse, refs, p.calWindow())
 	if !ok {
 		p.n.log.Warn("a steady 1 kHz tone was heard, but its level matches no configured calibrator", "level_dbfs", d.LevelDBFS, "references", refs)
 		return
 	}
-	if _, err := p.o.Store.Append(calibrate.CalibratingAnnotation(at(d.ToneStart).Add(-2*time.Second), at(d.End).Add(2*time.Second), ref)); err != nil {
+	if _, err := p.o.Store.Append(calibrate.CalibratingAnnotation(at(d.ToneStart).Add(-calMargin), at(d.End).Add(calMargin), ref)); err != nil {
 		p.calErr = err
 		return
 	}
@@ -130,4 +130,59 @@ func (p *processor) onTone(d dsp.Detection) {
 		req.reply <- calReply{res: &CalibrationResult{Detection: d, Check: rec, Applied: applied}, err: applyErr}
 		p.calPending = nil
 	}
+}
+
+// calibratorOn follows the detector's tonal run and reports whether a calibrator is on the
+// microphone now. A tone counts as a calibrator only when its level matches a configured
+// calibrator's within the adjustment range at the sensitivity in use (at 1 kHz the A-weighted
+// Fast level is the tone's level: IEC 61672-1:2013 Table 3 gives A = 0 dB there); any other
+// steady tone, a 1 kHz alarm or machine, is sound and stays in the data. From the moment a run
+// matches, the seconds from calMargin before its start to calMargin after its end are marked
+// calibrating: those already stored by an annotation, those waiting for their minute directly,
+// the rest as they close.
+func (p *processor) calibratorOn() (bool, error) {
+	start, in := p.cal.InTone()
+	if !in {
+		return false, nil
+	}
+	now := p.clock.Time(p.pos)
+	if start == p.calRun {
+		p.calUntil = now.Add(calMargin)
+		return true, nil
+	}
+	refs := p.o.Calibration.References
+	if req := p.calPending; req != nil && req.reference > 0 {
+		refs = []float64{req.reference}
+	}
+	level := p.meter.FastLevel()
+	ref, ok := calibrate.MatchReference(level-dsp.ReferenceLevel+p.o.SensitivityDBFS, p.o.SensitivityDBFS, refs, p.calWindow())
+	if !ok {
+		return false, nil
+	}
+	p.calRun = start
+	p.calFrom = p.clock.Time(start + p.calSkew).Add(-calMargin)
+	p.calUntil = now.Add(calMargin)
+	p.minutes.mark(p.calFrom, p.calUntil, buffer.Calibrating)
+	if p.secStart.After(p.calFrom) {
+		// Seconds already stored: marked when read, as a calibration check's are.
+		if _, err := p.o.Store.Append(calibrate.CalibratingAnnotation(p.calFrom, p.secStart, ref)); err != nil {
+			return false, fmt.Errorf("node: marking calibrating seconds: %w", err)
+		}
+	}
+	return true, nil
+}
+
+// calWindow is how far, in dB, a tone's level may lie from a configured calibrator's and still
+// be taken for it: the adjustment range (default 3 dB), since a calibrator read further off
+// than that cannot be put right by calibration. While a calibration is requested the user has
+// said a calibrator is on, so the wider calibrate.DefaultMatchWindow applies and a microphone
+// fault shows as a failed check rather than as sound.
+func (p *processor) calWindow() float64 {
+	if p.calPending != nil {
+		return calibrate.DefaultMatchWindow
+	}
+	if w := p.o.Calibration.AdjustRange; w > 0 {
+		return w
+	}
+	return 3
 }

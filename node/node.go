@@ -233,7 +233,7 @@ func (n *Node) Run(ctx context.Context) error {
 	o := &n.o
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	p := &processor{n: n, o: o, health: healthState{o: o.Health}}
+	p := &processor{n: n, o: o, health: healthState{o: o.Health}, minutes: newMinuteBuilder(), calRun: -1}
 	if err := p.startupGap(); err != nil {
 		return err
 	}

@@ -489,8 +489,20 @@ func TestNodeCalibration(t *testing.T) {
 	checks := records[*buffer.Calibration](t, r.store, buffer.KindCalibration)
 	anns := records[*buffer.Annotation](t, r.store, buffer.KindAnnotation)
 	sess := records[*buffer.Session](t, r.store, buffer.KindSession)
-	if len(checks) != 1 || len(anns) != 1 || !anns[0].Flags.Has(buffer.Calibrating) || len(sess) != 2 || math.Abs(sess[1].SensitivityDBFS-actual) > 0.1 {
-		t.Errorf("checks %d, annotations %+v, sessions %+v", len(checks), anns, sess)
+	if len(checks) != 1 || len(sess) != 2 || math.Abs(sess[1].SensitivityDBFS-actual) > 0.1 {
+		t.Errorf("checks %d, sessions %+v", len(checks), sess)
+	}
+	// The annotations (one when the tone was recognised, for the seconds already stored; one
+	// with the check) mark calibrating at least the tone and 2 s before it.
+	from, to := t0.Add(20*time.Second), t0
+	for _, a := range anns {
+		if !a.Flags.Has(buffer.Calibrating) {
+			t.Errorf("annotation %+v does not mark calibrating", a)
+		}
+		from, to = minTime(from, a.From), maxTime(to, a.To)
+	}
+	if len(anns) == 0 || from.After(t0.Add(time.Second)) || to.Before(t0.Add(13*time.Second)) {
+		t.Errorf("annotations %+v do not cover the tone with its margins", anns)
 	}
 	if evs := records[*buffer.Event](t, r.store, buffer.KindEvent); len(evs) != 0 {
 		t.Errorf("events during the calibrator tone: %+v", evs)

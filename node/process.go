@@ -22,7 +22,7 @@ type processor struct {
 	fs        float64
 	device    string
 	res       dsp.Result
-	minute    dsp.Accumulator
+	minutes   *minuteBuilder
 	firstBand int
 
 	anchored    bool
@@ -31,10 +31,6 @@ type processor struct {
 	nextSecond  time.Time // the UTC second boundary that ends it
 	secFlags    buffer.Flags
 	secDropped  uint64
-	minuteStart time.Time
-	minFlags    buffer.Flags
-	minValid    int
-	minSeconds  int
 	settleUntil time.Time
 	synced      bool
 	syncChecked time.Time
@@ -46,6 +42,10 @@ type processor struct {
 	calSkew    int64 // samples skipped since the calibrator detector started
 	calPending *calRequest
 	calErr     error
+	// calRun is the detector's tonal run that matched a configured calibrator (-1: none);
+	// [calFrom, calUntil) is the time its seconds are marked calibrating, margins included.
+	calRun            int64
+	calFrom, calUntil time.Time
 
 	spectra spectrumHistory // band levels of the recent seconds, for event spectra
 	events  *dsp.EventDetector
@@ -337,9 +337,6 @@ func (p *processor) data(ev event) error {
 		p.anchored = true
 		p.secStart = p.clock.Time(0)
 		p.nextSecond = p.secStart.Truncate(time.Second).Add(time.Second)
-		p.minuteStart = p.secStart.Truncate(time.Minute)
-		p.minute.Reset()
-		p.minFlags, p.minValid, p.minSeconds = 0, 0, 0
 		p.secFlags, p.secDropped = 0, 0
 	} else {
 		if ev.skipped > 0 {
@@ -352,10 +349,11 @@ func (p *processor) data(ev event) error {
 			if err := p.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {
 				return err
 			}
-			p.closeMinute()
+			if err := p.flushMinutes(); err != nil {
+				return err
+			}
 			p.secStart = after
 			p.nextSecond = after.Truncate(time.Second).Add(time.Second)
-			p.minuteStart = after.Truncate(time.Minute)
 		}
 	}
 	if now := o.Now(); now.Sub(p.syncChecked) >= time.Minute {
@@ -367,8 +365,9 @@ func (p *processor) data(ev event) error {
 		if p.calErr != nil {
 			return p.calErr
 		}
-		if _, inTone = p.cal.InTone(); inTone {
-			p.secFlags |= buffer.Calibrating
+		var err error
+		if inTone, err = p.calibratorOn(); err != nil {
+			return err
 		}
 	}
 	if p.events != nil {
@@ -471,6 +470,9 @@ func (p *processor) closeSecond() error {
 		if !p.synced {
 			f |= buffer.ClockUnsynced
 		}
+		if start.Before(p.calUntil) && p.calFrom.Before(start.Add(time.Duration(r.Duration*1e9))) {
+			f |= buffer.Calibrating
+		}
 		if r.Clipped > 0 {
 			f |= buffer.Clipped | buffer.Overload
 		}
@@ -497,11 +499,8 @@ func (p *processor) closeSecond() error {
 		}
 		err = p.append(rec)
 		p.n.Counters.Seconds.Add(1)
-		p.minute.Add(r)
-		p.minFlags |= f
-		p.minSeconds++
-		if f&(buffer.Settling|buffer.Dropped|buffer.Overload|buffer.Calibrating) == 0 {
-			p.minValid++
+		if err == nil {
+			err = p.minutes.push(start, rec.Duration, f, r, p.storeMinute)
 		}
 		if o.OnSecond != nil {
 			o.OnSecond(rec)
@@ -511,36 +510,14 @@ func (p *processor) closeSecond() error {
 		}
 	}
 	p.secFlags, p.secDropped = 0, 0
-	if err == nil && !p.secStart.Before(p.minuteStart.Add(time.Minute)) {
-		err = p.closeMinute()
-		p.minuteStart = p.secStart.Truncate(time.Minute)
-	}
 	return err
 }
 
-// closeMinute stores the minute record of the seconds accumulated so far, if any.
-func (p *processor) closeMinute() error {
-	if p.minSeconds == 0 {
-		return nil
-	}
-	var r dsp.Result
-	p.minute.Result(&r)
-	first, counts := r.Histogram.Span()
-	rec := &buffer.Minute{
-		Start: p.minuteStart.UTC(),
-		LAeq:  r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
-		LAF1: r.Histogram.Exceeded(1), LAF5: r.Histogram.Exceeded(5), LAF10: r.Histogram.Exceeded(10),
-		LAF50: r.Histogram.Exceeded(50), LAF90: r.Histogram.Exceeded(90), LAF95: r.Histogram.Exceeded(95),
-		LAF99: r.Histogram.Exceeded(99), LAE: r.LAE, LCpeak: r.LCpeak, LAImax: r.LAImax,
-		Histogram:    buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)},
-		ValidSeconds: p.minValid, Flags: p.minFlags,
-	}
-	if len(r.Bands) > 0 {
-		rec.Spectrum = append([]float64(nil), r.Bands...)
+// storeMinute stores a minute record the minute builder completed.
+func (p *processor) storeMinute(rec *buffer.Minute) error {
+	if len(rec.Spectrum) > 0 {
 		rec.FirstBand = p.firstBand
 	}
-	p.minute.Reset()
-	p.minFlags, p.minValid, p.minSeconds = 0, 0, 0
 	p.n.Counters.Minutes.Add(1)
 	if err := p.append(rec); err != nil {
 		return err
@@ -551,11 +528,15 @@ func (p *processor) closeMinute() error {
 	return nil
 }
 
+// flushMinutes puts every waiting second into its minute and stores the minute: the stream
+// ended or the clock stepped.
+func (p *processor) flushMinutes() error { return p.minutes.flush(p.storeMinute) }
+
 // finish stores what is left when the node stops: the partial second and minute.
 func (p *processor) finish() {
 	if p.meter != nil && p.anchored {
 		p.closeSecond()
-		p.closeMinute()
+		p.flushMinutes()
 		p.flushEvents()
 		p.anchored = false
 	}
