@@ -42,7 +42,9 @@ func ExampleCompute() {
 		return
 	}
 	for _, p := range r.Periods {
-		fmt.Printf("%s from %s: LAeq %.1f dB, LCeq-LAeq %.1f dB, %.0f %% valid\n", p.Name, p.From.Format("15:04"), p.LAeq, p.LowFrequency, 100*p.Coverage.Share)
+		// The range holds 2 h of the 4 h evening: the period is partial, and its coverage counts
+		// against its whole length.
+		fmt.Printf("%s from %s: LAeq %.1f dB, LCeq-LAeq %.1f dB, %.0f %% valid, partial %v\n", p.Name, p.From.Format("15:04"), p.LAeq, p.LowFrequency, 100*p.Coverage.Share, p.Partial)
 	}
-	// Output: evening from 19:00: LAeq 67.4 dB, LCeq-LAeq 4.0 dB, 100 % valid
+	// Output: evening from 19:00: LAeq 67.4 dB, LCeq-LAeq 4.0 dB, 50 % valid, partial true
 }

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/report/indicator"
 )
@@ -76,6 +77,15 @@ func num(v float64) string {
 
 func pct(v float64) string { return strconv.FormatFloat(100*v, 'f', 1, 64) }
 
+// bounded formats a level with its bound mark: "≥" for a lower bound (overloaded seconds
+// counted), "≤" for an upper bound (seconds under the measuring range counted).
+func bounded(v float64, b record.Bound) string {
+	if n := num(v); n != "" {
+		return b.Sign() + n
+	}
+	return ""
+}
+
 // DailyCSV returns one row per reporting day: per period LAeq, LAF10, LAF90, limit, exceedance
 // and coverage; the day's LAeq, the whole-day indicator and the day's coverage.
 func DailyCSV(r *indicator.Result) []byte {
@@ -84,9 +94,9 @@ func DailyCSV(r *indicator.Result) []byte {
 	head := []string{"date", "complete"}
 	for _, p := range r.Profile.Periods {
 		n := p.Name
-		head = append(head, n+"_from", n+"_hours", n+"_LAeq", n+"_LAF10", n+"_LAF90", n+"_limit", n+"_exceeds", n+"_events", n+"_coverage_pct", n+"_low_coverage")
+		head = append(head, n+"_from", n+"_hours", n+"_LAeq", n+"_LAeq_bound", n+"_LAF10", n+"_LAF90", n+"_limit", n+"_exceeds", n+"_partial", n+"_events", n+"_coverage_pct", n+"_low_coverage")
 	}
-	head = append(head, "LAeq")
+	head = append(head, "LAeq", "LAeq_bound")
 	if c := r.Profile.Composite; c != "" {
 		head = append(head, c, c+"_limit", c+"_exceeds")
 	}
@@ -102,14 +112,14 @@ func DailyCSV(r *indicator.Result) []byte {
 				}
 			}
 			if p == nil {
-				row = append(row, "", "", "", "", "", "", "", "", "", "")
+				row = append(row, "", "", "", "", "", "", "", "", "", "", "", "")
 				continue
 			}
 			row = append(row, p.From.In(r.Location).Format(time.RFC3339), strconv.FormatFloat(p.Hours, 'g', -1, 64),
-				num(p.LAeq), num(p.LAF10), num(p.LAF90), num(p.Limit), strconv.FormatBool(p.Exceeds),
-				strconv.Itoa(p.Events), pct(p.Coverage.Share), strconv.FormatBool(p.Coverage.Low))
+				num(p.LAeq), p.Bound.String(), num(p.LAF10), num(p.LAF90), num(p.Limit), strconv.FormatBool(p.Exceeds),
+				strconv.FormatBool(p.Partial), strconv.Itoa(p.Events), pct(p.Coverage.Share), strconv.FormatBool(p.Coverage.Low))
 		}
-		row = append(row, num(d.LAeq))
+		row = append(row, num(d.LAeq), d.Bound.String())
 		if r.Profile.Composite != "" {
 			row = append(row, num(d.Composite), num(d.Limit), strconv.FormatBool(d.Exceeds))
 		}
@@ -124,12 +134,19 @@ func DailyCSV(r *indicator.Result) []byte {
 func HourlyCSV(r *indicator.Result) []byte {
 	var buf bytes.Buffer
 	w := csv.NewWriter(&buf)
-	w.Write([]string{"from", "LAeq", "valid_s", "calibrating_s", "suspect_s", "invalid_s", "gap_s", "missing_s", "coverage_pct", "low_coverage"})
+	head := []string{"from", "LAeq", "LAeq_bound", "valid_s", "overload_s", "under_range_s"}
+	for why := record.Calibration; why < record.NumReasons; why++ {
+		head = append(head, why.String()+"_s")
+	}
+	w.Write(append(head, "gap_s", "missing_s", "coverage_pct", "low_coverage"))
 	f := func(v float64) string { return strconv.FormatFloat(v, 'f', 0, 64) }
 	for _, h := range r.Hours {
 		c := h.Coverage
-		w.Write([]string{h.From.In(r.Location).Format(time.RFC3339), num(h.LAeq), f(c.Valid), f(c.Calibrating), f(c.Suspect),
-			f(c.Invalid), f(c.Gap), f(c.Missing), pct(c.Share), strconv.FormatBool(c.Low)})
+		row := []string{h.From.In(r.Location).Format(time.RFC3339), num(h.LAeq), c.Bound().String(), f(c.Valid), f(c.Overload), f(c.UnderRange)}
+		for why := record.Calibration; why < record.NumReasons; why++ {
+			row = append(row, f(c.LeftOut[why]))
+		}
+		w.Write(append(row, f(c.Gap), f(c.Missing), pct(c.Share), strconv.FormatBool(c.Low)))
 	}
 	w.Flush()
 	return buf.Bytes()
@@ -157,6 +174,7 @@ type page struct {
 	Adjust   bool
 	Exceeded int
 	Low      int
+	LeftOut  []string // "calibrating 2 min", ... for every reason
 }
 
 type plotImage struct {
@@ -218,6 +236,9 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 	lt := func(t time.Time) string { return t.In(loc).Format("2006-01-02 15:04") }
 	pg := page{R: r, Meta: meta, From: lt(r.From), To: lt(r.To), Cov: r.Coverage, Comp: r.Profile.Composite,
 		Step: fmt.Sprintf("%g ms", dsp.PercentileStep*1000), Adjust: r.Options.Adjust, CompAll: num(r.Composite)}
+	for why := record.Calibration; why < record.NumReasons; why++ {
+		pg.LeftOut = append(pg.LeftOut, strings.ReplaceAll(why.String(), "_", " ")+" "+(time.Duration(r.Coverage.LeftOut[why])*time.Second).String())
+	}
 	if r.Zone != nil {
 		pg.Zone = r.Zone.Title
 	}
@@ -240,15 +261,15 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 	}
 	for _, p := range r.Periods {
 		row := periodRow{Day: p.Day.Format(time.DateOnly), Name: p.Name, From: lt(p.From), Hours: strconv.FormatFloat(p.Hours, 'g', -1, 64),
-			LAeq: num(p.LAeq), LAF10: num(p.LAF10), LAF90: num(p.LAF90), LAFmax: num(p.LAFmax), LF: num(p.LowFrequency),
+			LAeq: bounded(p.LAeq, p.Bound), LAF10: num(p.LAF10), LAF90: num(p.LAF90), LAFmax: num(p.LAFmax), LF: num(p.LowFrequency),
 			Imp: num(p.Impulsiveness), Rating: num(p.Rating), Limit: num(p.Limit), Exceeds: p.Exceeds,
 			Low: p.Coverage.Low, Partial: p.Partial, Events: p.Events, MaxLAE: num(p.EventMaxLAE),
 			Cov: pct(p.Coverage.Share), Tones: tonesText(p.Tones)}
 		if !math.IsNaN(p.Limit) && !math.IsNaN(p.LAeq) {
 			row.Margin = fmt.Sprintf("%+.1f", p.Margin)
 		}
-		if p.Exceeds {
-			pg.Exceeded++
+		if p.Exceeds && !p.Partial {
+			pg.Exceeded++ // a period the range cuts is never judged
 		}
 		if p.Coverage.Low {
 			pg.Low++
@@ -256,13 +277,13 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 		pg.Periods = append(pg.Periods, row)
 	}
 	for _, d := range r.Days {
-		row := dayRow{Day: d.Day.Format(time.DateOnly), LAeq: num(d.LAeq), Comp: num(d.Composite), Exceeds: d.Exceeds,
+		row := dayRow{Day: d.Day.Format(time.DateOnly), LAeq: bounded(d.LAeq, d.Bound), Comp: num(d.Composite), Exceeds: d.Exceeds,
 			Cov: pct(d.Coverage.Share), Low: d.Coverage.Low, Partial: !d.Complete}
 		for _, per := range r.Profile.Periods {
 			v := ""
 			for _, k := range d.Periods {
 				if r.Periods[k].Name == per.Name {
-					v = num(r.Periods[k].LAeq)
+					v = bounded(r.Periods[k].LAeq, r.Periods[k].Bound)
 					if r.Periods[k].Exceeds {
 						v += " ▲"
 					}
@@ -273,7 +294,7 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 		pg.Days = append(pg.Days, row)
 	}
 	for _, o := range r.Overall {
-		pg.Overall = append(pg.Overall, overallRow{Name: o.Name, LAeq: num(o.LAeq), LAF10: num(o.LAF10), LAF90: num(o.LAF90),
+		pg.Overall = append(pg.Overall, overallRow{Name: o.Name, LAeq: bounded(o.LAeq, o.Bound), LAF10: num(o.LAF10), LAF90: num(o.LAF90),
 			Limit: num(o.Limit), Cov: pct(o.Coverage.Share), Exceedances: o.Exceedances, Events: o.Events, Low: o.Coverage.Low})
 	}
 	pg.Tones = tonesText(r.Tones)
@@ -334,7 +355,7 @@ dl{display:grid;grid-template-columns:max-content auto;gap:.1em 1em}dt{font-weig
 <dt>Node</dt><dd>{{.Meta.Node}}{{if .Meta.StoreID}} (store {{.Meta.StoreID}}){{end}}</dd>
 <dt>Profile</dt><dd>{{.R.Profile.Name}}: {{.R.Profile.Source}}</dd>
 <dt>Zone</dt><dd>{{if .Zone}}{{.Zone}}{{else}}none (no limits){{end}}</dd>
-<dt>Data coverage</dt><dd>{{printf "%.1f" (mulf .Cov.Share)}} % valid; left out: calibrating {{secs .Cov.Calibrating}}, suspect or excluded {{secs .Cov.Suspect}}, settling or overload {{secs .Cov.Invalid}}; in gaps {{secs .Cov.Gap}}; without records {{secs .Cov.Missing}}</dd>
+<dt>Data coverage</dt><dd>{{printf "%.1f" (mulf .Cov.Share)}} % valid; left out: {{range $i, $s := .LeftOut}}{{if $i}}, {{end}}{{$s}}{{end}}; in gaps {{secs .Cov.Gap}}; without records {{secs .Cov.Missing}}{{if .Cov.Overload}}; {{secs .Cov.Overload}} overloaded, kept (levels marked ≥ are lower bounds){{end}}{{if .Cov.UnderRange}}; {{secs .Cov.UnderRange}} under the measuring range, kept (levels marked ≤ are upper bounds){{end}}</dd>
 {{if .Comp}}<dt>{{.Comp}} over the range</dt><dd>{{if .CompAll}}{{.CompAll}} dB (from the long-term period levels){{else}}not available: a period has no data{{end}}</dd>{{end}}
 <dt>Periods above limit</dt><dd>{{.Exceeded}}</dd>
 <dt>Periods under {{printf "%.0f" (mulf .R.Options.MinCoverage)}} % coverage</dt><dd>{{.Low}} (marked in yellow; their levels are shown, not hidden)</dd>
@@ -358,7 +379,7 @@ above about 85 dB(A) over long periods damages hearing: protect yourself when wo
 <table><tr><th class="l">Day</th>{{range .R.Profile.Periods}}<th>{{.Name}} LAeq</th>{{end}}<th>LAeq</th>{{if .Comp}}<th>{{.Comp}}</th>{{end}}<th>Coverage %</th></tr>
 {{$comp := .Comp}}{{range .Days}}<tr class="{{if .Exceeds}}over{{else if .Low}}low{{end}}{{if .Partial}} part{{end}}"><td class="l">{{.Day}}</td>{{range .Levels}}<td>{{.}}</td>{{end}}<td>{{.LAeq}}</td>{{if $comp}}<td>{{.Comp}}</td>{{end}}<td>{{.Cov}}</td></tr>
 {{end}}</table>
-<p>▲ marks a period above the zone's limit. Italic rows are days the range cuts. A whole-day indicator needs every period of the day.</p>
+<p>▲ marks a period above the zone's limit: its level, rounded to 0.1 dB, is greater than the limit (a level equal to the limit complies; common practice). Italic rows are days the range cuts: their coverage counts against the whole period and they are not counted among the periods above limit. A whole-day indicator needs every period of the day. ≥ marks a lower bound (overloaded seconds counted), ≤ an upper bound (seconds under the measuring range counted).</p>
 
 <h2>Periods</h2>
 <table><tr><th class="l">Day</th><th class="l">Period</th><th class="l">Start</th><th>h</th><th>LAeq</th><th>Limit</th><th>Margin</th><th>LAF10</th><th>LAF90</th><th>LAFmax</th><th>LCeq−LAeq</th><th>LAImax−LAFmax</th>{{if .Adjust}}<th>Rating</th>{{end}}<th>Events</th><th>Max LAE</th><th>Coverage %</th><th class="l">Tonal screen</th></tr>
@@ -387,7 +408,7 @@ above about 85 dB(A) over long periods damages hearing: protect yourself when wo
 <li>LAeq per hour and per period: energy mean of the valid one-second LAeq values (ISO 1996-1:2016, 3.1.7); a minute without second records uses its minute record.</li>
 <li>{{if .Comp}}{{.Comp}}: energy mean of the period levels plus their penalties, weighted by the periods' true lengths (Directive 2002/49/EC, Annex I; a night across a daylight-saving change counts 7 or 9 hours).{{else}}This profile has no whole-day indicator.{{end}}</li>
 <li>LAF10 and LAF90: levels exceeded for 10 % and 90 % of the time, from the merged histograms of the A-weighted Fast level sampled every {{.Step}} in 0.1 dB bins.</li>
-<li>Seconds flagged calibrating, suspect, excluded, settling or overload are left out and counted; gaps are missing data. A period under {{printf "%.0f" (mulf .R.Options.MinCoverage)}} % valid seconds is marked.</li>
+<li>Seconds flagged calibrating, settling, excluded, suspect or dropped, and digital silence, are left out and counted; overloaded seconds are kept and make a level a lower bound (≥), seconds under the measuring range an upper bound (≤); gaps are missing data. A period under {{printf "%.0f" (mulf .R.Options.MinCoverage)}} % valid seconds is marked.</li>
 <li>LCeq−LAeq indicates low-frequency content (common practice). LAImax−LAFmax, averaged over the minutes, indicates impulsiveness (common practice).{{if .Adjust}} Rating levels add {{.R.Options.TonalAdjust}} dB for a tone and {{.R.Options.ImpulsiveAdjust}} dB for impulsiveness, in the manner of ISO 1996-1 Annex A.{{end}}</li>
 <li>Tonal screen: a one-third-octave band exceeding both neighbours by 15 dB (25–125 Hz), 8 dB (160–400 Hz) or 5 dB (500 Hz–10 kHz), in the manner of ISO 1996-2:2007 Annex K; a candidate calls for a narrow-band analysis.</li>
 </ul>

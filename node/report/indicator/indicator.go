@@ -17,13 +17,16 @@
 // carry the histogram of the A-weighted Fast level sampled every 10 ms, the minute's
 // one-third-octave spectrum and LAImax.
 //
-// Validity. A second flagged calibrating (a calibrator on the microphone), suspect or excluded
-// (by an annotation, applied when the store is read) is left out and counted; so is a second
-// flagged settling or overload, or one of digital silence. A gap record is missing data. The
-// coverage of a period is the share of its length (the part inside the range) covered by valid
-// seconds; a period under Options.MinCoverage (default 75 %) is marked LowCoverage, never
-// hidden. Minutes flagged calibrating, suspect or excluded add nothing to percentiles,
-// spectra or impulsiveness.
+// Validity. Every second is judged by the one validity rule of package record: seconds flagged
+// calibrating, settling, excluded, suspect or dropped, and digital silence, are left out and
+// counted by reason; overloaded seconds are kept and make the level a lower bound (Bound),
+// seconds under the measuring range an upper bound. Minute records are built by the node from
+// the same seconds, so a period's level from minutes equals its level from seconds. A gap
+// record is missing data. The coverage of a period is the share of its whole length covered
+// by valid seconds, also where the range cuts the period (a cut period is Partial and never
+// reads complete); a period under Options.MinCoverage (default 75 %) is marked Low, never
+// hidden. A minute record flagged calibrating, suspect or excluded (by an annotation covering
+// the whole minute) adds nothing to percentiles, spectra or impulsiveness.
 package indicator
 
 import (
@@ -31,6 +34,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
 )
@@ -74,12 +78,9 @@ func (o Options) resolved() Options {
 	return o
 }
 
-// leftOut are the flags that keep a second out of the indicators, by reason.
-const (
-	flagCalibrating = buffer.Calibrating
-	flagSuspect     = buffer.Suspect | buffer.Excluded
-	flagInvalid     = buffer.Settling | buffer.Overload
-)
+// wholeMinute are the flags that, on a minute record, leave the whole minute out: they come
+// from an annotation covering the whole minute (or from a minute record of format 1).
+const wholeMinute = buffer.Calibrating | buffer.Suspect | buffer.Excluded
 
 // Band numbers kept in spectra: one-third octaves -20 (10 Hz) to 13 (20 kHz).
 const (
@@ -89,15 +90,14 @@ const (
 
 // minuteBin holds what is known of one minute of the range.
 type minuteBin struct {
-	eA, eC                  float64 // Σ 10^(L/10)·T over valid seconds
-	valid, calib, sus, inv  float64 // seconds
-	seconds                 int32   // second records seen
+	eA, eC                  float64      // Σ 10^(L/10)·T over the counted seconds
+	t                       record.Tally // the second records, judged by the validity rule
+	seconds                 int32        // second records seen
 	hasMinute               bool
-	mA, mC                  float64 // the minute record's energies, for the fallback
-	mValid, mCalib, mSus    float64
-	mInv                    float64
-	period                  int32 // index of the interval holding the minute, -1 outside
-	hour                    int32 // index of the local hour holding the minute
+	mA, mC                  float64      // the minute record's energies, for the fallback
+	mT                      record.Tally // the minute record's counts, for the fallback
+	period                  int32        // index of the interval holding the minute, -1 outside
+	hour                    int32        // index of the local hour holding the minute
 	minuteLAeq, minuteLAmax float64
 }
 
@@ -214,15 +214,7 @@ func (b *Builder) AddSecond(s *buffer.Second) {
 	}
 	m.seconds++
 	d := s.Duration.Seconds()
-	switch {
-	case s.Flags&flagCalibrating != 0:
-		m.calib += d
-	case s.Flags&flagSuspect != 0:
-		m.sus += d
-	case s.Flags&flagInvalid != 0 || math.IsNaN(s.LAeq):
-		m.inv += d
-	default:
-		m.valid += d
+	if m.t.Add(s.Flags, s.LAeq, d) == record.Counted {
 		m.eA += b.energy(s.LAeq) * d
 		if !math.IsNaN(s.LCeq) {
 			m.eC += b.energy(s.LCeq) * d
@@ -238,23 +230,20 @@ func (b *Builder) AddMinute(r *buffer.Minute) {
 	}
 	m.hasMinute = true
 	m.minuteLAmax = r.LAFmax
-	valid := float64(r.ValidSeconds)
-	switch {
-	case r.Flags&flagCalibrating != 0:
-		m.mCalib = 60
-	case r.Flags&flagSuspect != 0:
-		m.mSus = 60
-	default:
-		m.mValid = valid
-		m.mInv = 60 - valid
-		if !math.IsNaN(r.LAeq) {
-			m.mA = b.energy(r.LAeq) * valid
-		}
-		if !math.IsNaN(r.LCeq) {
-			m.mC = b.energy(r.LCeq) * valid
-		}
+	if r.Flags&wholeMinute != 0 {
+		m.mT = record.Tally{}
+		m.mT.LeftOut[record.Judge(r.Flags, r.LAeq)] = 60
+		return
 	}
-	if m.period < 0 || r.Flags&(flagCalibrating|flagSuspect) != 0 {
+	m.mT = r.Tally()
+	valid := float64(r.ValidSeconds)
+	if !math.IsNaN(r.LAeq) {
+		m.mA = b.energy(r.LAeq) * valid
+	}
+	if !math.IsNaN(r.LCeq) {
+		m.mC = b.energy(r.LCeq) * valid
+	}
+	if m.period < 0 {
 		return
 	}
 	p := b.per[m.period]
@@ -282,7 +271,7 @@ func (b *Builder) AddEvent(e *buffer.Event) {
 		return
 	}
 	p := b.per[m.period]
-	if e.Flags&(flagCalibrating|flagSuspect) != 0 {
+	if e.Flags&wholeMinute != 0 {
 		p.eventsLeftOut++
 		return
 	}

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
 )
@@ -261,18 +262,23 @@ func TestCoverage(t *testing.T) {
 	seconds(b, h.Add(15*time.Minute), 300, buffer.Suspect, func(int) float64 { return 90 })
 	seconds(b, h.Add(20*time.Minute), 2400, 0, func(int) float64 { return 55 })
 	r := b.Result()
-	c := r.Periods[0].Coverage
-	want := Coverage{Length: 3600, Valid: 2400, Calibrating: 300, Suspect: 300, Gap: 600, Missing: 600, Share: 2400.0 / 3600, Low: true}
+	c := r.Hours[0].Coverage
+	want := Coverage{Length: 3600, Valid: 2400, Gap: 600, Missing: 600, Share: 2400.0 / 3600, Low: true}
+	want.LeftOut[record.Calibration], want.LeftOut[record.Doubtful] = 300, 300
 	if c != want {
 		t.Errorf("coverage %+v, want %+v", c, want)
 	}
 	if !r.Hours[0].Coverage.Low || !r.Periods[0].Coverage.Low {
 		t.Error("hour or period not marked low")
 	}
+	// The range cuts the 15 h day period: its coverage counts against the whole period.
+	if p := r.Periods[0]; !p.Partial || p.Coverage.Length != 15*3600 || math.Abs(p.Coverage.Share-2400.0/(15*3600)) > 1e-12 {
+		t.Errorf("cut day period: partial %v, coverage %+v", p.Partial, p.Coverage)
+	}
 	near(t, "LAeq of the valid seconds", r.Periods[0].LAeq, 55, 1e-9)
 	// With a 60 % floor the same period passes.
 	b.opt.MinCoverage = 0.6
-	if b.Result().Periods[0].Coverage.Low {
+	if b.Result().Hours[0].Coverage.Low {
 		t.Error("67 % marked low with a 60 % floor")
 	}
 	// Annotated minute records are left out of percentiles; a minute without seconds falls
@@ -281,8 +287,8 @@ func TestCoverage(t *testing.T) {
 	b3.AddMinute(&buffer.Minute{Start: h, LAeq: 60, ValidSeconds: 45})
 	b3.AddMinute(&buffer.Minute{Start: h.Add(time.Minute), LAeq: 80, ValidSeconds: 60, Flags: buffer.Excluded})
 	r3 := b3.Result()
-	c3 := r3.Periods[0].Coverage
-	if c3.Valid != 45 || c3.Suspect != 60 || c3.Invalid != 15 {
+	c3 := r3.Hours[0].Coverage
+	if c3.Valid != 45 || c3.LeftOut[record.ByUser] != 60 || c3.Missing != 3600-105 {
 		t.Errorf("fallback coverage %+v", c3)
 	}
 	near(t, "fallback LAeq", r3.Periods[0].LAeq, 60, 1e-9)

@@ -7,34 +7,49 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
 )
 
-// Coverage counts the seconds of a stretch of time by what is known of them.
+// Coverage counts the seconds of a stretch of time by what the validity rule (package record)
+// made of them.
 type Coverage struct {
-	Length      float64 // seconds of the stretch inside the range
-	Valid       float64 // seconds with valid data
-	Calibrating float64 // left out: a calibrator was on the microphone
-	Suspect     float64 // left out: flagged suspect or excluded
-	Invalid     float64 // left out: settling, overload or digital silence
-	Gap         float64 // seconds inside gap records: the node was not measuring
-	Missing     float64 // seconds without any record: Length - Valid - Calibrating - Suspect - Invalid
-	Share       float64 // Valid / Length
-	Low         bool    // Share below Options.MinCoverage
+	// Length is the stretch's whole length in seconds: a period or hour that the range cuts
+	// counts its coverage against its whole length, so a cut period never reads complete.
+	Length float64
+	// Valid counts the seconds whose levels are in the stretch's levels (record.Counted);
+	// Overload and UnderRange count those of them that make the levels lower and upper bounds.
+	Valid, Overload, UnderRange float64
+	// LeftOut counts the seconds left out, by reason (indexed by record.Reason).
+	LeftOut [record.NumReasons]float64
+	Gap     float64 // seconds inside gap records: the node was not measuring
+	Missing float64 // seconds with no record, outside the range included: Length - Valid - left out
+	Share   float64 // Valid / Length
+	Low     bool    // Share below Options.MinCoverage
 }
 
 func (c *Coverage) add(o Coverage) {
 	c.Length += o.Length
 	c.Valid += o.Valid
-	c.Calibrating += o.Calibrating
-	c.Suspect += o.Suspect
-	c.Invalid += o.Invalid
+	c.Overload += o.Overload
+	c.UnderRange += o.UnderRange
+	for i := range c.LeftOut {
+		c.LeftOut[i] += o.LeftOut[i]
+	}
 	c.Gap += o.Gap
 }
 
+// Tally returns the coverage as a record.Tally.
+func (c Coverage) Tally() record.Tally {
+	return record.Tally{Counted: c.Valid, LeftOut: c.LeftOut, Overload: c.Overload, UnderRange: c.UnderRange}
+}
+
+// Bound says which way the stretch's levels may be off (record.Tally.Bound).
+func (c Coverage) Bound() record.Bound { return c.Tally().Bound() }
+
 func (c *Coverage) finish(min float64) {
-	c.Missing = max(0, c.Length-c.Valid-c.Calibrating-c.Suspect-c.Invalid)
+	c.Missing = max(0, c.Length-c.Valid-c.Tally().LeftOutTotal())
 	if c.Length > 0 {
 		c.Share = c.Valid / c.Length
 	}
@@ -78,8 +93,14 @@ type Period struct {
 	// Tones are the bands the one-third-octave tonality screen picked out (see Tonal).
 	Tones []TonalBand
 
-	// Limit is the zone's limit for the period, NaN without one. Exceeds says LAeq > Limit;
-	// Margin is LAeq - Limit.
+	// Bound says which way LAeq may be off: a lower bound when overloaded seconds were counted
+	// (shown "≥"), an upper bound when seconds under the measuring range were (shown "≤").
+	Bound record.Bound
+
+	// Limit is the zone's limit for the period, NaN without one. Exceeds says that LAeq,
+	// rounded to the reported 0.1 dB, is greater than Limit (record.Exceeds: a level equal to
+	// the limit complies); Margin is the rounded LAeq - Limit. A Partial period shows both but
+	// is not counted among the periods above their limit (Overall.Exceedances).
 	Limit   float64
 	Exceeds bool
 	Margin  float64
@@ -95,6 +116,7 @@ type Day struct {
 	From, To time.Time
 	Periods  []int   // indexes into Result.Periods, in the order of the profile
 	LAeq     float64 // equivalent level over the whole reporting day, no penalties
+	Bound    record.Bound
 	// Composite is the whole-day indicator (Lden, Ldn; see Composite) from the period levels
 	// and the periods' true lengths, NaN when a period has no data or the profile has none.
 	Composite float64
@@ -118,7 +140,8 @@ type Overall struct {
 	LAeq         float64
 	LAF10, LAF90 float64
 	Events       int
-	Exceedances  int // periods of this name above the limit
+	Exceedances  int // periods of this name above the limit, among those the range does not cut
+	Bound        record.Bound
 	Limit        float64
 	Coverage     Coverage
 }
@@ -194,15 +217,15 @@ func minTime(a, b time.Time) time.Time {
 func (m *minuteBin) resolve() {
 	if m.seconds == 0 && m.hasMinute {
 		m.eA, m.eC = m.mA, m.mC
-		m.valid, m.calib, m.sus, m.inv = m.mValid, m.mCalib, m.mSus, m.mInv
+		m.t = m.mT
 	}
-	if m.valid > 0 {
-		m.minuteLAeq = 10 * math.Log10(m.eA/m.valid)
+	if m.t.Counted > 0 {
+		m.minuteLAeq = 10 * math.Log10(m.eA/m.t.Counted)
 	}
 }
 
 func (m *minuteBin) coverage() Coverage {
-	return Coverage{Length: 60, Valid: m.valid, Calibrating: m.calib, Suspect: m.sus, Invalid: m.inv}
+	return Coverage{Length: 60, Valid: m.t.Counted, LeftOut: m.t.LeftOut, Overload: m.t.Overload, UnderRange: m.t.UnderRange}
 }
 
 func level(e, t float64) float64 {
@@ -255,6 +278,7 @@ func (b *Builder) Result() *Result {
 		c := hc[h]
 		end := minTime(start.Add(time.Hour), b.to)
 		c.Gap = b.gapSeconds(maxTime(start, b.from), end)
+		c.Length = time.Hour.Seconds() // the whole hour, also where the range cuts it
 		c.finish(o.MinCoverage)
 		r.Hours = append(r.Hours, Hour{From: start, LAeq: level(he[h].eA, c.Valid), Coverage: c})
 	}
@@ -268,6 +292,7 @@ func (b *Builder) Result() *Result {
 		c := pc[i]
 		lo, hi := maxTime(iv.From, b.from), minTime(iv.To, b.to)
 		c.Gap = b.gapSeconds(lo, hi)
+		c.Length = iv.To.Sub(iv.From).Seconds() // the whole period, also where the range cuts it
 		c.finish(o.MinCoverage)
 		p := Period{
 			Name: per.Name, Day: iv.Day, From: iv.From, To: iv.To, Hours: iv.Hours(), Penalty: per.Penalty,
@@ -295,9 +320,10 @@ func (b *Builder) Result() *Result {
 			rangeSpec[k] += acc.specE[k]
 			rangeSpecN[k] += acc.specN[k]
 		}
+		p.Bound = c.Bound()
 		if !math.IsNaN(p.Limit) && !math.IsNaN(p.LAeq) {
-			p.Margin = p.LAeq - p.Limit
-			p.Exceeds = p.Margin > 0
+			p.Margin = record.Round(p.LAeq, 1) - p.Limit
+			p.Exceeds = record.Exceeds(p.LAeq, p.Limit)
 		}
 		if o.Adjust && !math.IsNaN(p.LAeq) {
 			p.Rating = p.LAeq
@@ -308,8 +334,8 @@ func (b *Builder) Result() *Result {
 				p.Rating += o.ImpulsiveAdjust
 			}
 			if !math.IsNaN(p.Limit) {
-				p.Margin = p.Rating - p.Limit
-				p.Exceeds = p.Margin > 0
+				p.Margin = record.Round(p.Rating, 1) - p.Limit
+				p.Exceeds = record.Exceeds(p.Rating, p.Limit)
 			}
 		}
 		r.Periods = append(r.Periods, p)
@@ -343,10 +369,11 @@ func (b *Builder) Result() *Result {
 			d.Coverage.Low = d.Coverage.Low || r.Periods[k].Coverage.Low
 		}
 		d.LAeq = level(e, d.Coverage.Valid)
+		d.Bound = d.Coverage.Bound()
 		if b.prof.Composite != "" && d.Complete {
 			d.Composite = Composite(levels, hours, pens)
 			d.Limit = b.limit(compKey)
-			d.Exceeds = !math.IsNaN(d.Limit) && d.Composite > d.Limit
+			d.Exceeds = record.Exceeds(d.Composite, d.Limit)
 		}
 		r.Days = append(r.Days, d)
 		i = j
@@ -368,14 +395,15 @@ func (b *Builder) Result() *Result {
 			e += pe[i].eA
 			ov.Coverage.add(p.Coverage)
 			ov.Events += p.Events
-			if p.Exceeds {
-				ov.Exceedances++
+			if p.Exceeds && !p.Partial {
+				ov.Exceedances++ // a period the range cuts is never judged
 			}
 			h.Merge(&b.per[i].hist)
-			length += p.Coverage.Length / 3600 // the part inside the range
+			length += minTime(p.To, b.to).Sub(maxTime(p.From, b.from)).Hours() // the part inside the range
 		}
 		ov.Coverage.finish(o.MinCoverage)
 		ov.LAeq = level(e, ov.Coverage.Valid)
+		ov.Bound = ov.Coverage.Bound()
 		ov.LAF10, ov.LAF90 = h.Exceeded(10), h.Exceeded(90)
 		r.Overall = append(r.Overall, ov)
 		levels = append(levels, ov.LAeq)
