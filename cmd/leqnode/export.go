@@ -184,7 +184,7 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 	}
 
 	w := bufio.NewWriterSize(std.out, 1<<16)
-	ex := &exporter{w: w, format: *format, kind: kind, store: st.ID()}
+	ex := &exporter{w: w, format: *format, kind: kind, store: st.ID(), lowBand: 1, highBand: 0} // no band columns unless a spectrum is found
 	if *format == "csv" && hasSpectrum(kind) {
 		// The CSV header needs the span of bands over the whole range: a first pass finds it.
 		ex.lowBand, ex.highBand = math.MaxInt, math.MinInt
@@ -259,9 +259,13 @@ func level(key string, v float64) field {
 	return field{key, s, s}
 }
 
-func number(key string, v float64) field {
+// rounded formats v, already rounded by the record model, in its shortest form.
+func rounded(key string, v float64) field {
 	if math.IsNaN(v) || math.IsInf(v, 0) {
 		return field{key, "", "null"}
+	}
+	if v == 0 {
+		v = 0 // no "-0"
 	}
 	s := strconv.FormatFloat(v, 'f', -1, 64)
 	return field{key, s, s}
@@ -304,47 +308,25 @@ const spectrumKey = "third_octave_LZeq"
 // Annex E, as dsp/reference writes it).
 func bandName(x int) string { return reference.NominalMidband(3, x) }
 
+// fields returns the record's fields as the record model names and rounds them
+// (buffer.Fields), after the store, the sequence number and the record's time.
 func (e *exporter) fields(r buffer.Record) []field {
-	f := []field{text("store", e.store), integer("seq", r.Seq())}
-	switch v := r.(type) {
-	case *buffer.Second:
-		f = append(f, stamp("start", v.Start), number("duration_s", v.Duration.Seconds()),
-			level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq), level("LAFmax", v.LAFmax),
-			level("LAFmin", v.LAFmin), level("LASmax", v.LASmax), level("LASmin", v.LASmin), level("LAImax", v.LAImax),
-			level("LCpeak", v.LCpeak), level("LZpeak", v.LZpeak), level("LAE", v.LAE),
-			flagList(v.Flags), integer("dropped_samples", v.DroppedSamples))
-	case *buffer.Minute:
-		f = append(f, stamp("start", v.Start), level("LAeq", v.LAeq), level("LCeq", v.LCeq), level("LZeq", v.LZeq),
-			level("LAFmax", v.LAFmax), level("LAFmin", v.LAFmin), level("LAF1", v.LAF1), level("LAF5", v.LAF5),
-			level("LAF10", v.LAF10), level("LAF50", v.LAF50), level("LAF90", v.LAF90), level("LAF95", v.LAF95),
-			level("LAF99", v.LAF99), level("LAE", v.LAE), level("LCpeak", v.LCpeak), level("LAImax", v.LAImax),
-			integer("valid_seconds", uint64(v.ValidSeconds)), flagList(v.Flags))
-	case *buffer.Event:
-		f = append(f, stamp("start", v.Start), stamp("end", v.End), number("duration_s", v.End.Sub(v.Start).Seconds()),
-			level("LAFmax", v.LAFmax), level("LAeq", v.LAeq), level("LAE", v.LAE), level("LCpeak", v.LCpeak),
-			flagList(v.Flags))
-	case *buffer.Calibration:
-		f = append(f, stamp("start", v.At), number("reference_dB", v.Reference), number("measured_dB", v.Measured),
-			number("deviation_dB", v.Deviation), number("frequency_hz", v.Frequency), number("stability_dB", v.Stability),
-			number("sensitivity_before_dBFS", v.SensitivityBefore), number("sensitivity_after_dBFS", v.SensitivityAfter),
-			boolean("applied", v.Applied), boolean("passed", v.OK), flagList(v.Flags))
-	case *buffer.Health:
-		f = append(f, stamp("start", v.At), flagList(v.Flags), integer("clipped_samples", v.Clipped),
-			integer("under_range_seconds", v.UnderRangeSeconds), integer("dropped_samples", v.DroppedSamples),
-			integer("queue_overflows", v.QueueOverflows), integer("store_bytes", v.StoreBytes),
-			integer("self_test_checks", v.SelfTestChecks), integer("self_test_failed", v.SelfTestFailed),
-			boolean("silent", v.Silent), boolean("stuck", v.Stuck), boolean("clock_synced", v.ClockSynced),
-			number("dc_offset", v.DCOffset), number("cpu_percent", v.CPU), number("memory_mb", v.MemoryMB),
-			number("disk_free_mb", v.DiskFreeMB), number("clock_error_ms", v.ClockErrorMs), number("temperature_c", v.TemperatureC))
-	case *buffer.Gap:
-		f = append(f, stamp("start", v.From), stamp("end", v.To), number("duration_s", v.To.Sub(v.From).Seconds()),
-			text("reason", v.Reason))
-	case *buffer.Annotation:
-		f = append(f, stamp("start", v.From), stamp("end", v.To), flagList(v.Flags), text("reason", v.Reason))
-	case *buffer.Session:
-		f = append(f, stamp("start", v.At), text("software_version", v.SoftwareVersion), text("config_hash", v.ConfigHash),
-			number("sensitivity_dBFS", v.SensitivityDBFS), integer("sample_rate_hz", uint64(v.SampleRate)),
-			text("device", v.Device), text("time_zone", v.TimeZone))
+	f := []field{text("store", e.store), integer("seq", r.Seq()), stamp("start", r.Time())}
+	for _, m := range buffer.Fields(r.Kind()) {
+		switch v := m.Value(r).(type) {
+		case float64:
+			f = append(f, rounded(m.Name, v))
+		case uint64:
+			f = append(f, integer(m.Name, v))
+		case bool:
+			f = append(f, boolean(m.Name, v))
+		case string:
+			f = append(f, text(m.Name, v))
+		case time.Time:
+			f = append(f, stamp(m.Name, v))
+		case buffer.Flags:
+			f = append(f, flagList(v))
+		}
 	}
 	return f
 }

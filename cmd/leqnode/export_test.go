@@ -174,7 +174,7 @@ func TestExportEveryKind(t *testing.T) {
 	nan := math.NaN()
 	recs := []buffer.Record{
 		&buffer.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 81.5, LAeq: 75, LAE: 81, LCpeak: 99, Flags: buffer.Overload},
-		&buffer.Calibration{At: at, Reference: 94, Measured: 93.9, Deviation: -0.1, Frequency: 1000, Stability: 0.02,
+		&buffer.Calibration{At: at, Reference: 94, Measured: 94.00000007166739, Deviation: 7.166739e-8, Frequency: 1000.0000000000001, Stability: 0.02,
 			SensitivityBefore: -26.1, SensitivityAfter: -26, Applied: true, OK: true},
 		&buffer.Health{At: at, CPU: 4, MemoryMB: 30, DiskFreeMB: 900, TemperatureC: nan, DCOffset: 0.001, ClockErrorMs: nan, ClockSynced: true},
 		&buffer.Gap{From: at, To: at.Add(time.Minute), Reason: "audio device lost"},
@@ -215,6 +215,14 @@ func TestExportEveryKind(t *testing.T) {
 		if code != 0 || err != nil || len(rows) != 2 || len(rows[0]) != len(rows[1]) {
 			t.Errorf("%s csv: exit %d, %v, %q", kind, code, err, out)
 		}
+		if kind != "event" && strings.Contains(out, "third_octave") {
+			t.Errorf("%s csv has a band column without any spectrum: %q", kind, rows[0])
+		}
+	}
+	// Numbers are rounded as the record model says (0.01 dB, 0.1 Hz), not printed in full.
+	if _, out, _ := runCmd(t, nil, "export", "--db", path, "--kind", "calibration"); !strings.Contains(out, `"measured_dB":94,`) ||
+		!strings.Contains(out, `"frequency_hz":1000,`) || !strings.Contains(out, `"deviation_dB":0,`) {
+		t.Errorf("calibration numbers not rounded: %s", out)
 	}
 	if code, out, _ := runCmd(t, nil, "export", "--db", path, "--kind", "health"); !strings.Contains(out, `"temperature_c":null`) {
 		t.Errorf("unmeasured health field must be null: %d %s", code, out)

@@ -197,112 +197,44 @@ var secondLevels = []secondLevel{
 	{"LAE", func(r *buffer.Second) float64 { return r.LAE }},
 }
 
-// appendRecord appends the message for one record of any kind but second.
+// appendRecord appends the message for one record of any kind but second: its fields as the
+// record model names and rounds them (buffer.Fields), then its spectrum.
 func appendRecord(b []byte, e envelope, rec buffer.Record, spectra bool) []byte {
 	w := jw{b}
 	e.head(&w, rec.Kind().String(), rec.Seq(), rec.Time())
+	for _, f := range buffer.Fields(rec.Kind()) {
+		v := f.Value(rec)
+		switch f.Type {
+		case buffer.TimeField:
+			w.times(f.Name, v.(time.Time))
+			continue
+		case buffer.FlagsField:
+			w.key(f.Name)
+			w.flags(v.(buffer.Flags))
+			continue
+		}
+		w.key(f.Name)
+		switch x := v.(type) {
+		case float64:
+			w.num(x, f.Decimals)
+		case uint64:
+			w.uint(x)
+		case bool:
+			w.bool(x)
+		case string:
+			w.str(x)
+		}
+	}
+	var first int
+	var spec []float64
 	switch r := rec.(type) {
 	case *buffer.Minute:
-		for _, q := range []struct {
-			n string
-			v float64
-		}{{"LAeq", r.LAeq}, {"LCeq", r.LCeq}, {"LZeq", r.LZeq}, {"LAFmax", r.LAFmax}, {"LAFmin", r.LAFmin},
-			{"LAF1", r.LAF1}, {"LAF5", r.LAF5}, {"LAF10", r.LAF10}, {"LAF50", r.LAF50}, {"LAF90", r.LAF90},
-			{"LAF95", r.LAF95}, {"LAF99", r.LAF99}, {"LAE", r.LAE}, {"LCpeak", r.LCpeak}, {"LAImax", r.LAImax}} {
-			w.key(q.n)
-			w.level(q.v)
-		}
-		w.key("valid_seconds")
-		w.int(int64(r.ValidSeconds))
-		w.key("flags")
-		w.flags(r.Flags)
-		if spectra && len(r.Spectrum) > 0 {
-			w.spectrumObject(r.FirstBand, r.Spectrum)
-		}
+		first, spec = r.FirstBand, r.Spectrum
 	case *buffer.Event:
-		w.times("end", r.End)
-		w.key("duration_s")
-		w.num(r.End.Sub(r.Start).Seconds(), 3)
-		for _, q := range []struct {
-			n string
-			v float64
-		}{{"LAFmax", r.LAFmax}, {"LAeq", r.LAeq}, {"LAE", r.LAE}, {"LCpeak", r.LCpeak}} {
-			w.key(q.n)
-			w.level(q.v)
-		}
-		w.key("flags")
-		w.flags(r.Flags)
-		if spectra && len(r.Spectrum) > 0 {
-			w.spectrumObject(r.FirstBand, r.Spectrum)
-		}
-	case *buffer.Calibration:
-		for _, q := range []struct {
-			n string
-			v float64
-			d int
-		}{{"reference_dB", r.Reference, 2}, {"measured_dB", r.Measured, 2}, {"deviation_dB", r.Deviation, 2},
-			{"frequency_hz", r.Frequency, 1}, {"stability_dB", r.Stability, 2},
-			{"sensitivity_before_dBFS", r.SensitivityBefore, 2}, {"sensitivity_after_dBFS", r.SensitivityAfter, 2}} {
-			w.key(q.n)
-			w.num(q.v, q.d)
-		}
-		w.key("applied")
-		w.bool(r.Applied)
-		w.key("passed")
-		w.bool(r.OK)
-		w.key("flags")
-		w.flags(r.Flags)
-	case *buffer.Health:
-		w.key("flags")
-		w.flags(r.Flags)
-		for _, q := range []struct {
-			n string
-			v uint64
-		}{{"clipped_samples", r.Clipped}, {"under_range_seconds", r.UnderRangeSeconds}, {"dropped_samples", r.DroppedSamples},
-			{"queue_overflows", r.QueueOverflows}, {"store_bytes", r.StoreBytes},
-			{"self_test_checks", r.SelfTestChecks}, {"self_test_failed", r.SelfTestFailed}} {
-			w.key(q.n)
-			w.uint(q.v)
-		}
-		for _, q := range []struct {
-			n string
-			v bool
-		}{{"silent", r.Silent}, {"stuck", r.Stuck}, {"clock_synced", r.ClockSynced}} {
-			w.key(q.n)
-			w.bool(q.v)
-		}
-		for _, q := range []struct {
-			n string
-			v float64
-			d int
-		}{{"dc_offset", r.DCOffset, 6}, {"cpu_percent", r.CPU, 1}, {"memory_mb", r.MemoryMB, 1}, {"disk_free_mb", r.DiskFreeMB, 1},
-			{"clock_error_ms", r.ClockErrorMs, 3}, {"temperature_c", r.TemperatureC, 1}} {
-			w.key(q.n)
-			w.num(q.v, q.d)
-		}
-	case *buffer.Gap:
-		w.times("end", r.To)
-		w.key("reason")
-		w.str(r.Reason)
-	case *buffer.Annotation:
-		w.times("end", r.To)
-		w.key("flags")
-		w.flags(r.Flags)
-		w.key("reason")
-		w.str(r.Reason)
-	case *buffer.Session:
-		w.key("software_version")
-		w.str(r.SoftwareVersion)
-		w.key("config_hash")
-		w.str(r.ConfigHash)
-		w.key("sensitivity_dBFS")
-		w.num(r.SensitivityDBFS, 3)
-		w.key("sample_rate_hz")
-		w.int(int64(r.SampleRate))
-		w.key("device")
-		w.str(r.Device)
-		w.key("time_zone")
-		w.str(r.TimeZone)
+		first, spec = r.FirstBand, r.Spectrum
+	}
+	if spectra && len(spec) > 0 {
+		w.spectrumObject(first, spec)
 	}
 	w.close()
 	return w.b
