@@ -1,6 +1,7 @@
 package buffer
 
 import (
+	"math"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
@@ -213,4 +214,24 @@ var sessionFields = []Field{
 	count("sample_rate_hz", "Hz", "sample rate", func(r Record) uint64 { return uint64(session(r).SampleRate) }),
 	text("device", "the capture source", func(r Record) string { return session(r).Device }),
 	text("time_zone", "IANA name of the node's configured time zone", func(r Record) string { return session(r).TimeZone }),
+}
+
+// FieldMap returns r's fields (Fields) as a map ready for encoding/json: NaN numbers as nil,
+// flags as their names.
+func FieldMap(r Record) map[string]any {
+	fs := Fields(r.Kind())
+	m := make(map[string]any, len(fs))
+	for _, f := range fs {
+		v := f.Value(r)
+		switch x := v.(type) {
+		case float64:
+			if math.IsNaN(x) || math.IsInf(x, 0) {
+				v = nil
+			}
+		case Flags:
+			v = x.Names()
+		}
+		m[f.Name] = v
+	}
+	return m
 }

@@ -44,17 +44,12 @@ func (n *Node) Status() Status {
 	return s
 }
 
-// HealthJSON returns a health snapshot as a JSON-ready map (NaN readings as null).
+// HealthJSON returns a health snapshot as a JSON-ready map: its fields as the record model
+// names them (buffer.Fields, NaN readings as null) and "at", the time it was taken.
 func HealthJSON(h *buffer.Health) map[string]any {
-	return map[string]any{
-		"at": h.At, "flags": h.Flags.Names(), "clipped": h.Clipped, "dc_offset": finite(h.DCOffset),
-		"silent": h.Silent, "stuck": h.Stuck, "under_range_s": h.UnderRangeSeconds,
-		"dropped_samples": h.DroppedSamples, "queue_overflows": h.QueueOverflows,
-		"cpu_percent": finite(h.CPU), "memory_mb": finite(h.MemoryMB), "disk_free_mb": finite(h.DiskFreeMB),
-		"store_bytes": h.StoreBytes, "clock_synced": h.ClockSynced, "clock_error_ms": finite(h.ClockErrorMs),
-		"temperature_c":    finite(h.TemperatureC),
-		"self_test_checks": h.SelfTestChecks, "self_test_failed": h.SelfTestFailed,
-	}
+	m := buffer.FieldMap(h)
+	m["at"] = h.At
+	return m
 }
 
 func finite(v float64) *float64 {

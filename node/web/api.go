@@ -137,17 +137,17 @@ func (s *Server) apiStatus(w http.ResponseWriter, r *http.Request) {
 
 // secondJSON is one second record as /api/seconds and the live stream write it.
 type secondJSON struct {
-	Start  string `json:"start"`
-	LAeq   level  `json:"LAeq"`
-	LAFmax level  `json:"LAFmax"`
-	LAFmin level  `json:"LAFmin"`
-	LCpeak level  `json:"LCpeak"`
-	Flags  string `json:"flags"`
+	Start  string   `json:"start"`
+	LAeq   level    `json:"LAeq"`
+	LAFmax level    `json:"LAFmax"`
+	LAFmin level    `json:"LAFmin"`
+	LCpeak level    `json:"LCpeak"`
+	Flags  []string `json:"flags"`
 }
 
 func secondOf(r *buffer.Second) secondJSON {
 	return secondJSON{Start: stamp(r.Start), LAeq: level(r.LAeq), LAFmax: level(r.LAFmax),
-		LAFmin: level(r.LAFmin), LCpeak: level(r.LCpeak), Flags: r.Flags.String()}
+		LAFmin: level(r.LAFmin), LCpeak: level(r.LCpeak), Flags: r.Flags.Names()}
 }
 
 // queryInt reads an integer query parameter in [lo, hi], def when absent.
@@ -195,7 +195,7 @@ func (s *Server) apiSeconds(w http.ResponseWriter, r *http.Request) {
 
 // bandJSON is one band of a spectrum.
 type bandJSON struct {
-	Nominal string `json:"nominal_Hz"` // IEC 61260-1 Annex E name, e.g. "31.5"
+	Nominal string `json:"nominal_hz"` // IEC 61260-1 Annex E name, e.g. "31.5"
 	LZeq    level  `json:"LZeq"`
 }
 
@@ -205,7 +205,7 @@ type spectrumJSON struct {
 	Start  string     `json:"start,omitempty"`
 	LAeq   level      `json:"LAeq"`
 	LZeq   level      `json:"LZeq"`
-	Flags  string     `json:"flags"`
+	Flags  []string   `json:"flags"`
 	Bands  []bandJSON `json:"third_octave_LZeq"`
 }
 
@@ -228,7 +228,7 @@ func (s *Server) latestSpectrum() (spectrumJSON, error) {
 		return out, err
 	}
 	if sec, ok := rs.(*buffer.Second); ok && len(sec.Spectrum) > 0 {
-		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "second", stamp(sec.Start), level(sec.LAeq), level(sec.LZeq), sec.Flags.String()
+		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "second", stamp(sec.Start), level(sec.LAeq), level(sec.LZeq), sec.Flags.Names()
 		out.Bands = bands(sec.FirstBand, sec.Spectrum)
 		return out, nil
 	}
@@ -237,7 +237,7 @@ func (s *Server) latestSpectrum() (spectrumJSON, error) {
 		return out, err
 	}
 	if m, ok := rm.(*buffer.Minute); ok && len(m.Spectrum) > 0 {
-		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "minute", stamp(m.Start), level(m.LAeq), level(m.LZeq), m.Flags.String()
+		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "minute", stamp(m.Start), level(m.LAeq), level(m.LZeq), m.Flags.Names()
 		out.Bands = bands(m.FirstBand, m.Spectrum)
 	}
 	return out, nil
@@ -254,17 +254,17 @@ func (s *Server) apiSpectrum(w http.ResponseWriter, r *http.Request) {
 
 // calibrationJSON is one stored calibration check.
 type calibrationJSON struct {
-	Time              string  `json:"time"`
-	Reference         level   `json:"reference_dB"`
-	Measured          level   `json:"measured_dB"`
-	Deviation         level   `json:"deviation_dB"`
-	Frequency         float64 `json:"frequency_Hz"`
-	Stability         level   `json:"stability_dB"`
-	SensitivityBefore level   `json:"sensitivity_before_dBFS"`
-	SensitivityAfter  level   `json:"sensitivity_after_dBFS"`
-	Applied           bool    `json:"applied"`
-	OK                bool    `json:"ok"`
-	Flags             string  `json:"flags"`
+	Time              string   `json:"time"`
+	Reference         level    `json:"reference_dB"`
+	Measured          level    `json:"measured_dB"`
+	Deviation         level    `json:"deviation_dB"`
+	Frequency         float64  `json:"frequency_hz"`
+	Stability         level    `json:"stability_dB"`
+	SensitivityBefore level    `json:"sensitivity_before_dBFS"`
+	SensitivityAfter  level    `json:"sensitivity_after_dBFS"`
+	Applied           bool     `json:"applied"`
+	OK                bool     `json:"passed"`
+	Flags             []string `json:"flags"`
 }
 
 // maxCalibrations bounds /api/calibrations; checks are a few a month.
@@ -305,7 +305,7 @@ func (s *Server) apiCalibrations(w http.ResponseWriter, r *http.Request) {
 			Time: stamp(c.At), Reference: level(c.Reference), Measured: level(c.Measured),
 			Deviation: level(c.Deviation), Frequency: math.Round(c.Frequency*10) / 10, Stability: level(c.Stability),
 			SensitivityBefore: level(c.SensitivityBefore), SensitivityAfter: level(c.SensitivityAfter),
-			Applied: c.Applied, OK: c.OK, Flags: c.Flags.String(),
+			Applied: c.Applied, OK: c.OK, Flags: c.Flags.Names(),
 		})
 	}
 	if len(checks) > 0 {
@@ -370,23 +370,23 @@ func (s *Server) summarizeHour(now time.Time, started time.Time) (hourSummary, e
 
 // healthJSON is the latest health snapshot.
 type healthJSON struct {
-	Time              string  `json:"time"`
-	Flags             string  `json:"flags"`
-	Clipped           uint64  `json:"clipped_samples"`
-	DCOffset          level   `json:"dc_offset"`
-	Silent            bool    `json:"silent"`
-	Stuck             bool    `json:"stuck"`
-	UnderRangeSeconds uint64  `json:"under_range_s"`
-	DroppedSamples    uint64  `json:"dropped_samples"`
-	QueueOverflows    uint64  `json:"queue_overflows"`
-	CPU               level   `json:"cpu_percent"`
-	MemoryMB          level   `json:"memory_MB"`
-	DiskFreeMB        level   `json:"disk_free_MB"`
-	StoreBytes        uint64  `json:"store_bytes"`
-	ClockSynced       bool    `json:"clock_synced"`
-	ClockErrorMs      level   `json:"clock_error_ms"`
-	TemperatureC      level   `json:"temperature_C"`
-	AgeSeconds        float64 `json:"age_s"`
+	Time              string   `json:"time"`
+	Flags             []string `json:"flags"`
+	Clipped           uint64   `json:"clipped_samples"`
+	DCOffset          level    `json:"dc_offset"`
+	Silent            bool     `json:"silent"`
+	Stuck             bool     `json:"stuck"`
+	UnderRangeSeconds uint64   `json:"under_range_seconds"`
+	DroppedSamples    uint64   `json:"dropped_samples"`
+	QueueOverflows    uint64   `json:"queue_overflows"`
+	CPU               level    `json:"cpu_percent"`
+	MemoryMB          level    `json:"memory_mb"`
+	DiskFreeMB        level    `json:"disk_free_mb"`
+	StoreBytes        uint64   `json:"store_bytes"`
+	ClockSynced       bool     `json:"clock_synced"`
+	ClockErrorMs      level    `json:"clock_error_ms"`
+	TemperatureC      level    `json:"temperature_c"`
+	AgeSeconds        float64  `json:"age_s"`
 }
 
 // gapJSON is one stored gap.
@@ -417,7 +417,7 @@ func (s *Server) apiHealth(w http.ResponseWriter, r *http.Request) {
 		Store: st.Store, MQTT: st.MQTT}
 	if h := s.lastHealth(); h != nil {
 		out.Snapshot = &healthJSON{
-			Time: stamp(h.At), Flags: h.Flags.String(), Clipped: h.Clipped, DCOffset: level(h.DCOffset),
+			Time: stamp(h.At), Flags: h.Flags.Names(), Clipped: h.Clipped, DCOffset: level(h.DCOffset),
 			Silent: h.Silent, Stuck: h.Stuck, UnderRangeSeconds: h.UnderRangeSeconds, DroppedSamples: h.DroppedSamples,
 			QueueOverflows: h.QueueOverflows, CPU: level(h.CPU), MemoryMB: level(h.MemoryMB), DiskFreeMB: level(h.DiskFreeMB),
 			StoreBytes: h.StoreBytes, ClockSynced: h.ClockSynced, ClockErrorMs: level(h.ClockErrorMs),

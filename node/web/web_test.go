@@ -236,7 +236,7 @@ func TestSeconds(t *testing.T) {
 			Start  string   `json:"start"`
 			LAeq   *float64 `json:"LAeq"`
 			LAFmax *float64 `json:"LAFmax"`
-			Flags  string   `json:"flags"`
+			Flags  []string `json:"flags"`
 		}
 	}
 	for _, tc := range []struct {
@@ -267,7 +267,7 @@ func TestSeconds(t *testing.T) {
 			Start  string   `json:"start"`
 			LAeq   *float64 `json:"LAeq"`
 			LAFmax *float64 `json:"LAFmax"`
-			Flags  string   `json:"flags"`
+			Flags  []string `json:"flags"`
 		}) int {
 			return strings.Compare(a.Start, b.Start)
 		}) {
@@ -298,7 +298,7 @@ func TestSpectrum(t *testing.T) {
 	type spectrum struct {
 		Record string `json:"record"`
 		Bands  []struct {
-			Nominal string   `json:"nominal_Hz"`
+			Nominal string   `json:"nominal_hz"`
 			LZeq    *float64 `json:"LZeq"`
 		} `json:"third_octave_LZeq"`
 	}
@@ -390,7 +390,7 @@ func TestCalibrationsAndHealth(t *testing.T) {
 		} `json:"last_hour"`
 		Snapshot *struct {
 			Clipped    uint64  `json:"clipped_samples"`
-			DiskFreeMB float64 `json:"disk_free_MB"`
+			DiskFreeMB float64 `json:"disk_free_mb"`
 			AgeSeconds float64 `json:"age_s"`
 		} `json:"snapshot"`
 		Gaps        []struct{ Reason string } `json:"gaps_last_day"`

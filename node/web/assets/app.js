@@ -184,16 +184,16 @@
     const arr = state.seconds;
     if (arr.length && t <= arr[arr.length - 1].t) {
       if (arr.some(p => p.t === t)) return;
-      arr.push({ t, leq: s.LAeq, max: s.LAFmax, flags: s.flags || '' });
+      arr.push({ t, leq: s.LAeq, max: s.LAFmax, flags: (s.flags || []).join('|') });
       arr.sort((a, b) => a.t - b.t);
     } else {
-      arr.push({ t, leq: s.LAeq, max: s.LAFmax, flags: s.flags || '' });
+      arr.push({ t, leq: s.LAeq, max: s.LAFmax, flags: (s.flags || []).join('|') });
     }
     const cut = Date.now() - HOUR_MS - 60000;
     while (arr.length && arr[0].t < cut) arr.shift();
     const l = num(s.LAeq);
     text($('last-second'), 'Last second (' + fmtTime(t, true) + '): LAeq ' + (l === null ? '--' : l) +
-      ' dB, LAFmax ' + (num(s.LAFmax) || '--') + ' dB' + (s.flags ? ' · ' + s.flags.replaceAll('|', ', ') : ''));
+      ' dB, LAFmax ' + (num(s.LAFmax) || '--') + ' dB' + (s.flags && s.flags.length ? ' · ' + s.flags.join(', ') : ''));
   }
 
   const flagged = /clipped|overload|dropped/;
@@ -292,9 +292,9 @@
     g.textBaseline = 'top';
     const octave = new Set(['31.5', '63', '125', '250', '500', '1000', '2000', '4000', '8000', '16000']);
     bands.forEach((b, i) => {
-      if (!octave.has(b.nominal_Hz)) return;
-      if (bw < 9 && !['31.5', '125', '500', '2000', '8000'].includes(b.nominal_Hz)) return;
-      const label = b.nominal_Hz.length > 3 && b.nominal_Hz.endsWith('000') ? b.nominal_Hz.slice(0, -3) + 'k' : b.nominal_Hz;
+      if (!octave.has(b.nominal_hz)) return;
+      if (bw < 9 && !['31.5', '125', '500', '2000', '8000'].includes(b.nominal_hz)) return;
+      const label = b.nominal_hz.length > 3 && b.nominal_hz.endsWith('000') ? b.nominal_hz.slice(0, -3) + 'k' : b.nominal_hz;
       g.fillText(label, x0 + (i + 0.5) * bw, y0 + 6);
     });
     c.dataset.bands = String(drawn);
@@ -386,8 +386,8 @@
     const snap = hd.snapshot;
     if (snap) {
       const parts = [];
-      if (typeof snap.disk_free_MB === 'number') parts.push(fmtBytes(snap.disk_free_MB * 1e6) + ' disk free');
-      if (typeof snap.temperature_C === 'number') parts.push(snap.temperature_C.toFixed(0) + ' °C');
+      if (typeof snap.disk_free_mb === 'number') parts.push(fmtBytes(snap.disk_free_mb * 1e6) + ' disk free');
+      if (typeof snap.temperature_c === 'number') parts.push(snap.temperature_c.toFixed(0) + ' °C');
       if (typeof snap.cpu_percent === 'number') parts.push(snap.cpu_percent.toFixed(0) + ' % CPU');
       if (snap.stuck || snap.silent) parts.push(snap.stuck ? 'input stuck' : 'input silent');
       item(list, snap.stuck || snap.silent ? 'bad' : 'ok', 'Board', parts.join(', ') + ' (' + snap.age_s + ' s ago)');
@@ -404,7 +404,7 @@
       ['Set by', st ? (st.set_at ? 'check of ' + fmtDateTime(st.set_at) : 'nominal value (no check applied)') : null],
       ['Calibrator on', st ? (st.calibrating ? 'yes: levels flagged calibrating' : 'no') : null],
       ['Last check', last ? fmtDateTime(last.time) + ' (' + cd.days_since_last_check + ' days ago)' : 'none stored'],
-      ['Last deviation', last ? (last.deviation_dB >= 0 ? '+' : '') + num(last.deviation_dB, 2) + ' dB' + (last.ok ? '' : ' (failed)') : null],
+      ['Last deviation', last ? (last.deviation_dB >= 0 ? '+' : '') + num(last.deviation_dB, 2) + ' dB' + (last.passed ? '' : ' (failed)') : null],
     ]);
     const body = $('cal-table').tBodies[0];
     body.replaceChildren();
@@ -412,7 +412,7 @@
       const tr = document.createElement('tr');
       const cells = [fmtDateTime(k.time), num(k.measured_dB, 2) + ' / ' + num(k.reference_dB, 1),
         (k.deviation_dB >= 0 ? '+' : '') + num(k.deviation_dB, 2),
-        (k.ok ? 'passed' : 'failed') + (k.applied ? ', applied' : '') + (k.flags.includes('suspect') ? ', drift' : '')];
+        (k.passed ? 'passed' : 'failed') + (k.applied ? ', applied' : '') + (k.flags.includes('suspect') ? ', drift' : '')];
       for (const v of cells) {
         const td = document.createElement('td');
         td.textContent = v;
