@@ -48,7 +48,7 @@ func publishPeriods(ctx context.Context, cfg *config.Config, st *buffer.Store, p
 					Profile: prof.Name, Period: p.Name, Day: p.Day, From: iv.From, To: iv.To, Hours: p.Hours,
 					Penalty: p.Penalty, LAeq: p.LAeq, LCeq: p.LCeq, LAF10: p.LAF10, LAF90: p.LAF90,
 					LAFmax: p.LAFmax, Events: p.Events, Limit: math.NaN(), Coverage: p.Coverage.Share,
-					CoverageLow: p.Coverage.Low,
+					CoverageLow: p.Coverage.Low, Seconds: p.Coverage.Tally(),
 				}
 				if zone != nil {
 					m.Zone, m.Limit, m.Exceeds = zone.Name, p.Limit, p.Exceeds

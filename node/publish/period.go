@@ -4,6 +4,8 @@ import (
 	"encoding/json"
 	"math"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // PublishPeriod hands the publisher the indicators of a closed period (a day, evening or night
@@ -38,6 +40,10 @@ type PeriodMessage struct {
 	Exceeds               bool
 	Coverage              float64 // share of valid data, 0 to 1
 	CoverageLow           bool
+	// Seconds says what the validity rule made of the period's seconds: counted, left out by
+	// reason, overloaded and under range; the payload carries them with the names of the
+	// minute records and the bound they imply.
+	Seconds record.Tally
 }
 
 // PeriodPayload encodes a period message as the JSON of configs/schema/period.schema.json.
@@ -74,6 +80,16 @@ func (p *Publisher) PeriodPayload(m PeriodMessage) []byte {
 		Exceeds       *bool    `json:"exceeds,omitempty"`
 		Coverage      float64  `json:"coverage"`
 		CoverageLow   bool     `json:"coverage_low"`
+		Bound         string   `json:"bound"`
+		ValidSeconds  int64    `json:"valid_seconds"`
+		Overload      int64    `json:"overload_seconds"`
+		UnderRange    int64    `json:"under_range_seconds"`
+		Calibrating   int64    `json:"calibrating_seconds"`
+		Settling      int64    `json:"settling_seconds"`
+		Excluded      int64    `json:"excluded_seconds"`
+		Suspect       int64    `json:"suspect_seconds"`
+		NoData        int64    `json:"no_data_seconds"`
+		Silence       int64    `json:"digital_silence_seconds"`
 	}
 	stamp := func(t time.Time) string { return t.UTC().Format("2006-01-02T15:04:05.000Z") }
 	pl := payload{
@@ -83,7 +99,13 @@ func (p *Publisher) PeriodPayload(m PeriodMessage) []byte {
 		Hours: math.Round(m.Hours*1000) / 1000, Penalty: m.Penalty,
 		LAeq: level(m.LAeq), LCeq: level(m.LCeq), LAF10: level(m.LAF10), LAF90: level(m.LAF90), LAFmax: level(m.LAFmax),
 		Events: m.Events, Coverage: math.Round(m.Coverage*10000) / 10000, CoverageLow: m.CoverageLow,
+		Bound: m.Seconds.Bound().String(),
 	}
+	secs := func(v float64) int64 { return int64(math.Round(v)) }
+	t := m.Seconds
+	pl.ValidSeconds, pl.Overload, pl.UnderRange = secs(t.Counted), secs(t.Overload), secs(t.UnderRange)
+	pl.Calibrating, pl.Settling, pl.Excluded = secs(t.LeftOut[record.Calibration]), secs(t.LeftOut[record.Settle]), secs(t.LeftOut[record.ByUser])
+	pl.Suspect, pl.NoData, pl.Silence = secs(t.LeftOut[record.Doubtful]), secs(t.LeftOut[record.NoData]), secs(t.LeftOut[record.Silence])
 	if l := level(m.Limit); l != nil {
 		pl.Limit, pl.Exceeds = l, &m.Exceeds
 	}

@@ -1,6 +1,7 @@
 package publish
 
 import (
+	"github.com/leqnode/leqnode/buffer/record"
 	"math"
 	"path/filepath"
 	"strings"
@@ -24,6 +25,8 @@ func TestPeriodMessage(t *testing.T) {
 	msg := PeriodMessage{Profile: "eu-lden", Zone: "", Period: "night", Day: time.Date(2026, 5, 3, 0, 0, 0, 0, time.UTC),
 		From: from, To: from.Add(8 * time.Hour), Hours: 8, Penalty: 10, LAeq: 47.123, LCeq: 55.2, LAF10: 49.05,
 		LAF90: 38.95, LAFmax: math.NaN(), Events: 3, Limit: math.NaN(), Coverage: 0.98}
+	msg.Seconds.Counted, msg.Seconds.Overload = 28224, 12
+	msg.Seconds.LeftOut[record.Calibration] = 30
 	payload := p.PeriodPayload(msg)
 	if !p.PublishPeriod(payload) {
 		t.Fatal("the period queue refused the first message")
@@ -42,7 +45,8 @@ func TestPeriodMessage(t *testing.T) {
 		if r.topic == "leqnode/wendle-cross-01/live/period" {
 			validate(t, sch, r.topic, r.payload)
 			s := string(r.payload)
-			for _, want := range []string{`"LAeq":47.12`, `"LAFmax":null`, `"period":"night"`, `"hours":8`} {
+			for _, want := range []string{`"LAeq":47.12`, `"LAFmax":null`, `"period":"night"`, `"hours":8`,
+				`"bound":"lower"`, `"valid_seconds":28224`, `"overload_seconds":12`, `"calibrating_seconds":30`} {
 				if !strings.Contains(s, want) {
 					t.Errorf("payload lacks %s: %s", want, s)
 				}

@@ -10,6 +10,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // newRegistry returns the Server's own registry: the node's collector plus the Go runtime and
@@ -81,8 +82,8 @@ type metricDescs struct {
 func newMetricDescs() *metricDescs {
 	return &metricDescs{
 		descLevel: prometheus.NewDesc("leqnode_level_db",
-			"Latest stored level in dB, by quantity (LAeq, LAFmax, LAF90, ...) and record interval (1s, 1min). Absent for digital silence.",
-			[]string{"quantity", "interval"}, nil),
+			"Latest stored level in dB, by quantity (LAeq, LAFmax, LAF90, ...), record interval (1s, 1min), validity (counted, or why the record is left out of aggregates: calibrating, settling, excluded, suspect, no_data, digital_silence; no_valid_seconds for a minute without any) and bound (exact; lower when overloaded seconds are in it; upper when seconds under the measuring range are). Absent for digital silence.",
+			[]string{"quantity", "interval", "validity", "bound"}, nil),
 		descLevelTime: prometheus.NewDesc("leqnode_level_start_timestamp_seconds",
 			"Start time of the record leqnode_level_db comes from, Unix seconds.", []string{"interval"}, nil),
 		descInfo: prometheus.NewDesc("leqnode_node_info",
@@ -234,29 +235,36 @@ func (c *nodeCollector) Collect(ch chan<- prometheus.Metric) {
 	if s.o.Store == nil {
 		return
 	}
-	if r, err := s.o.Store.Last(buffer.KindSecond); err == nil && r != nil {
-		sec := r.(*buffer.Second)
-		for _, q := range []struct {
-			name string
-			v    float64
-		}{{"LAeq", sec.LAeq}, {"LCeq", sec.LCeq}, {"LZeq", sec.LZeq}, {"LAFmax", sec.LAFmax}, {"LAFmin", sec.LAFmin},
-			{"LASmax", sec.LASmax}, {"LASmin", sec.LASmin}, {"LAImax", sec.LAImax}, {"LCpeak", sec.LCpeak},
-			{"LZpeak", sec.LZpeak}, {"LAE", sec.LAE}} {
-			gauge(d.descLevel, q.v, q.name, "1s")
+	// The latest second and minute, each level labelled with what the validity rule makes of
+	// the record (package record): "counted" or the reason it is left out of every aggregate,
+	// and which way it may be off, so that a calibrator tone never reads as a street level.
+	for _, k := range []struct {
+		kind     buffer.Kind
+		interval string
+	}{{buffer.KindSecond, "1s"}, {buffer.KindMinute, "1min"}} {
+		r, err := s.o.Store.Last(k.kind)
+		if err != nil || r == nil {
+			continue
 		}
-		gauge(d.descLevelTime, unix(sec.Start), "1s")
-	}
-	if r, err := s.o.Store.Last(buffer.KindMinute); err == nil && r != nil {
-		m := r.(*buffer.Minute)
-		for _, q := range []struct {
-			name string
-			v    float64
-		}{{"LAeq", m.LAeq}, {"LCeq", m.LCeq}, {"LZeq", m.LZeq}, {"LAFmax", m.LAFmax}, {"LAFmin", m.LAFmin},
-			{"LAF1", m.LAF1}, {"LAF5", m.LAF5}, {"LAF10", m.LAF10}, {"LAF50", m.LAF50}, {"LAF90", m.LAF90},
-			{"LAF95", m.LAF95}, {"LAF99", m.LAF99}, {"LAE", m.LAE}, {"LCpeak", m.LCpeak}, {"LAImax", m.LAImax}} {
-			gauge(d.descLevel, q.v, q.name, "1min")
+		validity, bound := record.Counted.String(), record.Exact.String()
+		switch v := r.(type) {
+		case *buffer.Second:
+			validity = record.Judge(v.Flags, v.LAeq).String()
+			t := record.Tally{}
+			t.Add(v.Flags, v.LAeq, 1)
+			bound = t.Bound().String()
+		case *buffer.Minute:
+			if v.ValidSeconds == 0 {
+				validity = "no_valid_seconds"
+			}
+			bound = v.Tally().Bound().String()
 		}
-		gauge(d.descLevelTime, unix(m.Start), "1min")
+		for _, f := range buffer.Fields(k.kind) {
+			if f.Type == buffer.LevelField {
+				gauge(d.descLevel, f.Value(r).(float64), f.Name, k.interval, validity, bound)
+			}
+		}
+		gauge(d.descLevelTime, unix(r.Time()), k.interval)
 	}
 	if hour, err := s.summarizeHour(st.Now, time.Time{}); err == nil {
 		gauge(d.descHourSeconds, float64(hour.Seconds))

@@ -14,6 +14,7 @@ import (
 	"github.com/prometheus/common/expfmt"
 	"github.com/prometheus/common/model"
 
+	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/web"
 )
@@ -183,6 +184,33 @@ func TestMetricsPrivateRegistry(t *testing.T) {
 		// Without a store there are no levels and no store series, but the scrape works.
 		if fams["leqnode_level_db"] != nil || fams["leqnode_store_file_bytes"] != nil {
 			t.Error("series from a store that does not exist")
+		}
+	}
+}
+
+// TestMetricsLevelValidity: a calibrator tone's second reads as what it is. The latest second
+// is labelled with the validity rule's verdict (left out: calibrating) and an overloaded
+// minute as a lower bound, so a dashboard never shows a 94 dB calibrator as the street level.
+func TestMetricsLevelValidity(t *testing.T) {
+	st := openStore(t)
+	at := testNow().Add(-2 * time.Minute).Truncate(time.Minute)
+	if _, err := st.Append(&buffer.Minute{Start: at, LAeq: 77.4, ValidSeconds: 60, OverloadSeconds: 1, Flags: buffer.Overload}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.Append(&buffer.Second{Start: at.Add(time.Minute), Duration: time.Second, LAeq: 94, Flags: buffer.Calibrating}); err != nil {
+		t.Fatal(err)
+	}
+	s := newServer(t, web.Options{Store: st, Status: func() web.Status { return web.Status{NodeID: "wc-harrowby-02"} }})
+	fams := scrape(t, s)
+	for _, tc := range []struct {
+		labels map[string]string
+		want   float64
+	}{
+		{map[string]string{"quantity": "LAeq", "interval": "1s", "validity": "calibrating", "bound": "exact"}, 94},
+		{map[string]string{"quantity": "LAeq", "interval": "1min", "validity": "counted", "bound": "lower"}, 77.4},
+	} {
+		if got, ok := value(t, fams, "leqnode_level_db", tc.labels); !ok || got != tc.want {
+			t.Errorf("leqnode_level_db%v = %v (found %v), want %v", tc.labels, got, ok, tc.want)
 		}
 	}
 }
