@@ -247,6 +247,39 @@ func TestAnalyzeBadInput(t *testing.T) {
 	}
 }
 
+// TestTruncatedRecording: a WAV file whose data chunk ends before the size its header declares
+// (a copy cut short at a whole frame: a 10 s header with 5.67 s of data) is refused with exit 2
+// and one line naming the file and the fix, by analyze and by calibrate. The RIFF specification
+// (Multimedia Programming Interface and Data Specifications 1.0) makes the chunk size the size
+// of its data, so the rest of the recording is missing.
+func TestTruncatedRecording(t *testing.T) {
+	dir := t.TempDir()
+	const fs = 16000
+	full := writeWAV(t, dir, "full.wav", wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.PCM16}, sineSamples(10*fs, 1000, 0.1, fs))
+	data, err := os.ReadFile(full)
+	if err != nil {
+		t.Fatal(err)
+	}
+	start := bytes.Index(data, []byte("data")) + 8 // the first sample byte
+	cut := filepath.Join(dir, "cut.wav")
+	if err := os.WriteFile(cut, data[:start+2*int(5.67*fs)], 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, args := range [][]string{{"analyze", "--format", "jsonl", cut}, {"calibrate", "--format", "json", "--sensitivity", "-26", cut}} {
+		code, out, errs := runCmd(t, nil, args...)
+		if code != 2 {
+			t.Errorf("%s: exit %d, want 2 (stderr %q)", args[0], code, errs)
+		}
+		if args[0] == "analyze" && out != "" {
+			t.Errorf("%s: stdout not empty: %q", args[0], out)
+		}
+		if strings.Count(strings.TrimSpace(errs), "\n") != 0 || !strings.Contains(errs, "cut.wav") ||
+			!strings.Contains(errs, "5.67 s of 10.00 s") || !strings.Contains(errs, "sox --ignore-length") {
+			t.Errorf("%s: stderr %q, want one line naming cut.wav, 5.67 s of 10.00 s and the fix", args[0], errs)
+		}
+	}
+}
+
 // soxRMS returns the RMS level in dB (re full-scale amplitude 1.0) of channel 1 of a file, as
 // reported by `sox FILE -n remix 1 stats`.
 func soxRMS(t *testing.T, path string) float64 {
