@@ -108,4 +108,3 @@ func (h *Histogram) Exceeded(n float64) float64 {
 	}
 	return float64(histogramFirstBin) / 10
 }
-

@@ -564,4 +564,3 @@ func TestSteadyLevelReadsItself(t *testing.T) {
 		}
 	}
 }
-
