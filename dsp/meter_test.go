@@ -564,3 +564,46 @@ func TestSteadyLevelReadsItself(t *testing.T) {
 		}
 	}
 }
+
+// TestMeterSettling: the filters start from rest, but no level reports their start-up. Minima
+// count from five time constants on (an exponential detector started from rest reads
+// 10 lg(1 - e^-5) = -0.03 dB below a steady level then: IEC 61672-1:2013 3.10), and are NaN in an
+// interval that ends before; band levels count only settled output. The signal is a steady
+// 1 kHz sine of 70 dB (A = 0 dB at 1 kHz, IEC 61672-1:2013 Table 3).
+func TestMeterSettling(t *testing.T) {
+	m := newTestMeter(t, Third)
+	x := sine(7*48000, 1000, ampFor(70, -26), testFS)
+	var r Result
+	m.Process(x[:24000]) // 0.5 s: before Fast has settled (0.625 s)
+	m.Take(&r)
+	if !math.IsNaN(r.LAFmin) || !math.IsNaN(r.LASmin) {
+		t.Errorf("first 0.5 s: LAFmin %v LASmin %v, want NaN", r.LAFmin, r.LASmin)
+	}
+	if r.LAFmax > 70.01 || math.Abs(r.LAeq-70) > 0.1 {
+		t.Errorf("first 0.5 s: LAFmax %.3f LAeq %.3f: maxima and energy count from the first sample", r.LAFmax, r.LAeq)
+	}
+	i12 := 0 // the 12.5 Hz band settles after about a second
+	if !math.IsNaN(r.Bands[i12]) || r.BandSeconds[i12] != 0 {
+		t.Errorf("12.5 Hz band in the first 0.5 s: %v over %v s, want NaN over 0 s", r.Bands[i12], r.BandSeconds[i12])
+	}
+	m.Process(x[24000 : 6*48000]) // to 6 s: Fast, Slow and every band have settled
+	m.Take(&r)
+	for _, c := range []struct {
+		name string
+		v    float64
+	}{{"LAFmin", r.LAFmin}, {"LASmin", r.LASmin}} {
+		if !(c.v >= 70-0.03-0.01 && c.v <= 70.01) {
+			t.Errorf("0.5 to 6 s: %s = %.3f, want 70 within -0.03 dB", c.name, c.v)
+		}
+	}
+	fb, _ := NewFilterBank(Third, testFS)
+	settle := fb.Settle(i12)
+	if want := (6 - settle) / 5.5 * r.Duration; math.Abs(r.BandSeconds[i12]-want) > 0.01 {
+		t.Errorf("12.5 Hz band covers %.3f s of the interval, want %.3f (settled after %.3f s)", r.BandSeconds[i12], want, settle)
+	}
+	for i, b := range fb.Bands() {
+		if b.Nominal == "1000" && math.Abs(r.Bands[i]-70) > 0.05 {
+			t.Errorf("1000 Hz band %.3f, want 70", r.Bands[i])
+		}
+	}
+}

@@ -138,8 +138,9 @@ type analyzeWriter struct {
 // intervalLevels lists the level keys of an interval line, in order.
 var intervalLevels = []string{"LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LASmax", "LASmin", "LAImax", "LCpeak", "LZpeak", "LAE"}
 
-// summaryLevels lists the level keys of the summary line before the percentiles.
-var summaryLevels = []string{"LAeq", "LCeq", "LZeq", "LAE", "LAFmax", "LASmax", "LAImax", "LCpeak"}
+// summaryLevels lists the level keys of the summary before the percentiles: the same in every
+// format, and the same as an interval's.
+var summaryLevels = intervalLevels
 
 func levelOf(r *dsp.Result, key string) float64 {
 	switch key {
