@@ -347,9 +347,9 @@ const bankSettledShare = 0.999
 
 // bankSettle returns the number of samples after which the impulse response of the sections has
 // delivered bankSettledShare of its energy. cycles is the sample rate divided by the bandwidth;
-// the response is followed for 400 such spans, by which its energy has long converged.
+// the response is followed for 100 such spans, by which its energy has long converged.
 func bankSettle(sec []Section, cycles float64) int {
-	n := int(math.Ceil(400 * cycles))
+	n := int(math.Ceil(100 * cycles))
 	e := make([]float64, n)
 	state := make([][2]float64, len(sec))
 	total := 0.0
