@@ -108,9 +108,14 @@ func (r *Minute) Tally() record.Tally {
 	return t
 }
 
-// LevelHistogram counts level samples in 0.1 dB bins: Counts[i] is the number of samples with
-// levels in [k/10, (k+1)/10) dB, where k = First + i. It is stored with its zero ends trimmed and
-// runs of empty bins compressed.
+// LevelHistogram counts level samples in 0.1 dB bins centred on the 0.1 dB grid: Counts[i] is the
+// number of samples with levels in [k/10 - 0.05, k/10 + 0.05) dB, where k = First + i (the layout
+// of dsp.Histogram). It is stored with its zero ends trimmed and runs of empty bins compressed.
+//
+// Minute records of version 1 held bins [k/10, (k+1)/10); reading one converts it: each old bin
+// straddles the new bins k and k+1, so its count is split evenly between them (the odd sample to
+// k+1), which keeps the total and the mean level. Percentiles of such a record may read 0.1 dB
+// apart from what the same samples give in the new layout.
 type LevelHistogram struct {
 	First  int32
 	Counts []uint32
@@ -300,7 +305,7 @@ func checkSpectrum(first int, s []float64) error {
 // Format versions of the record encodings.
 const (
 	secondVersion      = 1
-	minuteVersion      = 2 // 2 adds the left-out and bound counts
+	minuteVersion      = 2 // 2: histogram bins centred on the 0.1 dB grid (see LevelHistogram), left-out and bound counts
 	eventVersion       = 1
 	calibrationVersion = 1
 	healthVersion      = 1
@@ -457,6 +462,9 @@ func (r *Minute) UnmarshalBinary(data []byte) error {
 			}
 			i += run
 		}
+		if v == 1 {
+			r.Histogram.Counts = centreBins(r.Histogram.Counts)
+		}
 	}
 	if v >= 2 {
 		n := d.uvarint()
@@ -478,6 +486,18 @@ func (r *Minute) UnmarshalBinary(data []byte) error {
 		}
 	}
 	return d.end()
+}
+
+// centreBins converts the counts of version 1 bins, [k/10, (k+1)/10) dB, to bins centred on the
+// 0.1 dB grid, [k/10 - 0.05, k/10 + 0.05): old bin k is split evenly between new bins k and k+1,
+// the odd sample to k+1. The first bin number stays; the result has one bin more.
+func centreBins(old []uint32) []uint32 {
+	out := make([]uint32, len(old)+1)
+	for i, c := range old {
+		out[i] += c / 2
+		out[i+1] += c - c/2
+	}
+	return out
 }
 
 // AppendBinary encodes r: version, flags, start, length, four levels, spectrum.

@@ -20,6 +20,11 @@ const (
 	// TauImpulseDecay is the decay time constant of the Impulse peak detector, 1.5 s
 	// (IEC 60651:1979).
 	TauImpulseDecay = reference.ImpulseDecay
+	// SettleTimeConstants is the number of time constants after which a time-weighted level
+	// counts toward a minimum (LAFmin, LASmin): from rest, the detector then reads within
+	// 10 lg(1 - e^-5) = -0.03 dB of a steady level (the exponential response of IEC 61672-1:2013,
+	// 3.10, to a step): 0.625 s for Fast, 5 s for Slow.
+	SettleTimeConstants = 5
 	// PercentileStep is the interval at which the Fast level is sampled into the level
 	// histogram for percentile levels: 10 ms.
 	PercentileStep = 0.010
@@ -68,12 +73,13 @@ type Result struct {
 	Duration float64 // seconds: Samples / sample rate
 
 	LAeq, LCeq, LZeq float64   // equivalent continuous levels (IEC 61672-1:2013, 3.9)
-	LAFmax, LAFmin   float64   // A-weighted Fast level, extremes over the interval
+	LAFmax, LAFmin   float64   // A-weighted Fast level, extremes over the interval (see Meter: settling)
 	LASmax, LASmin   float64   // A-weighted Slow level, extremes
 	LAImax           float64   // A-weighted Impulse level, maximum
 	LCpeak, LZpeak   float64   // C- and Z-weighted peak levels, between samples
 	LAE              float64   // sound exposure level, LAeq + 10 lg(T / 1 s)
-	Bands            []float64 // Z-weighted band levels LZeq, in the order of Meter.Bands
+	Bands            []float64 // Z-weighted band levels LZeq, in the order of Meter.Bands (NaN before settling)
+	BandSeconds      []float64 // seconds of settled band output behind each of Bands (Duration once settled)
 	Histogram        Histogram // A-weighted Fast level sampled every 10 ms
 	Silent           bool      // every sample exactly zero
 	Stuck            bool      // every sample the same value (a dead converter), zero included
@@ -90,6 +96,17 @@ type Result struct {
 // Feed samples with Process in blocks of any length; close an interval with Take. The results
 // depend only on the samples and on where Take is called, never on how blocks were cut. A Meter
 // is not safe for concurrent use.
+//
+// # Settling
+//
+// Every filter starts from rest (zero state) and is never primed with the signal, so an impulse
+// at the very start reads as it is. No level reports the filters' start-up, though: a minimum
+// (LAFmin, LASmin) takes only samples from SettleTimeConstants time constants after the first
+// sample on (0.625 s for Fast, 5 s for Slow), and is NaN for an interval that ends before that;
+// a band level counts only the samples after its band filter has settled (FilterBank.Settle: the
+// time by which the band's impulse response has delivered 99.9 % of its energy, so a steady
+// noise reads within 0.005 dB), and is NaN for an interval that ends before that. Energy
+// quantities (Leq, LAE) and maxima count from the first sample.
 type Meter struct {
 	fs     float64
 	offset float64 // LevelOffset of the sensitivity
@@ -104,6 +121,9 @@ type Meter struct {
 
 	step, tick int // percentile sampling period and countdown, in samples
 
+	age              int64 // samples processed since construction
+	settleF, settleS int64 // samples after which the Fast and Slow detectors have settled
+
 	peakC, peakZ peakDetector
 
 	// Interval accumulators.
@@ -116,6 +136,7 @@ type Meter struct {
 	clipped          int64
 	hist             Histogram
 	bandScratch      []float64
+	shareScratch     []float64
 }
 
 // NewMeter designs the filters for the configured sample rate and returns a meter at rest.
@@ -147,19 +168,21 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 		}
 	}
 	m := &Meter{
-		fs:     fs,
-		offset: LevelOffset(cfg.SensitivityDBFS),
-		dc:     NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
-		cw:     NewCascade(cs...),
-		aw:     NewCascade(as...),
-		kF:     -math.Expm1(-1 / (fs * TauFast)),
-		kS:     -math.Expm1(-1 / (fs * TauSlow)),
-		kI:     -math.Expm1(-1 / (fs * TauImpulseRise)),
-		decI:   math.Exp(-1 / (fs * TauImpulseDecay)),
-		step:   int(math.Round(fs * PercentileStep)),
-		tap:    cfg.Tap,
-		peakC:  newPeakDetector(),
-		peakZ:  newPeakDetector(),
+		fs:      fs,
+		offset:  LevelOffset(cfg.SensitivityDBFS),
+		dc:      NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
+		cw:      NewCascade(cs...),
+		aw:      NewCascade(as...),
+		kF:      -math.Expm1(-1 / (fs * TauFast)),
+		kS:      -math.Expm1(-1 / (fs * TauSlow)),
+		kI:      -math.Expm1(-1 / (fs * TauImpulseRise)),
+		decI:    math.Exp(-1 / (fs * TauImpulseDecay)),
+		step:    int(math.Round(fs * PercentileStep)),
+		settleF: int64(math.Ceil(SettleTimeConstants * TauFast * fs)),
+		settleS: int64(math.Ceil(SettleTimeConstants * TauSlow * fs)),
+		tap:     cfg.Tap,
+		peakC:   newPeakDetector(),
+		peakZ:   newPeakDetector(),
 	}
 	m.tick = m.step
 	if cfg.Bands != 0 {
@@ -243,6 +266,11 @@ func (m *Meter) processChunk(x []float32) {
 	f, s, r, d := m.f, m.s, m.r, m.d
 	kF, kS, kI, decI := m.kF, m.kS, m.kI, m.decI
 	maxF, minF, maxS, minS, maxI := m.maxF, m.minF, m.maxS, m.minS, m.maxI
+	// Minima count only from the sample at which their detector has settled: fromF and fromS
+	// are the first such indices in this chunk (n when none is).
+	fromF := int(min(max(m.settleF-m.age, 0), int64(n)))
+	fromS := int(min(max(m.settleS-m.age, 0), int64(n)))
+	m.age += int64(n)
 	var sumA, sumC, sumZ float64
 	for i := range n {
 		a2 := a[i] * a[i]
@@ -257,10 +285,14 @@ func (m *Meter) processChunk(x []float32) {
 			d = r
 		}
 		maxF = max(maxF, f)
-		minF = min(minF, f)
 		maxS = max(maxS, s)
-		minS = min(minS, s)
 		maxI = max(maxI, d)
+		if i >= fromF {
+			minF = min(minF, f)
+		}
+		if i >= fromS {
+			minS = min(minS, s)
+		}
 		m.tick--
 		if m.tick == 0 {
 			m.tick = m.step
@@ -293,11 +325,12 @@ func (m *Meter) Take(res *Result) {
 		res.DC = m.rawSum / float64(m.n)
 	}
 	res.Histogram = m.hist
-	res.Bands = res.Bands[:0]
+	res.Bands, res.BandSeconds = res.Bands[:0], res.BandSeconds[:0]
 	if m.bank != nil {
-		m.bandScratch = m.bank.MeanSquare(m.bandScratch)
-		for _, ms := range m.bandScratch {
+		m.bandScratch, m.shareScratch = m.bank.SettledMeanSquare(m.bandScratch, m.shareScratch)
+		for i, ms := range m.bandScratch {
 			res.Bands = append(res.Bands, PowerLevel(ms, m.offset))
+			res.BandSeconds = append(res.BandSeconds, m.shareScratch[i]*res.Duration)
 		}
 	}
 	if m.n == 0 || res.Silent {
@@ -318,15 +351,23 @@ func (m *Meter) Take(res *Result) {
 	res.LCeq = PowerLevel(m.sumC*inv, off)
 	res.LZeq = PowerLevel(m.sumZ*inv, off)
 	res.LAFmax = PowerLevel(m.maxF, off)
-	res.LAFmin = PowerLevel(m.minF, off)
+	res.LAFmin = settledMin(m.minF, off)
 	res.LASmax = PowerLevel(m.maxS, off)
-	res.LASmin = PowerLevel(m.minS, off)
+	res.LASmin = settledMin(m.minS, off)
 	res.LAImax = PowerLevel(m.maxI, off)
 	pc, pz := m.peakC.take(), m.peakZ.take()
 	res.LCpeak = PowerLevel(pc*pc, off)
 	res.LZpeak = PowerLevel(pz*pz, off)
 	res.LAE = ExposureLevel(res.LAeq, res.Duration)
 	m.startInterval()
+}
+
+// settledMin is the level of a minimum, NaN when no settled sample was seen (ms = +Inf).
+func settledMin(ms, offset float64) float64 {
+	if math.IsInf(ms, 1) {
+		return math.NaN()
+	}
+	return PowerLevel(ms, offset)
 }
 
 // Accumulator merges the results of consecutive intervals into the result of the whole span:
@@ -372,11 +413,15 @@ func (a *Accumulator) Add(r *Result) {
 		a.bandT = append(a.bandT, 0)
 	}
 	for i, l := range r.Bands {
+		t := r.Duration
+		if i < len(r.BandSeconds) {
+			t = r.BandSeconds[i] // the settled part of the interval
+		}
 		if r.Silent {
-			a.bandT[i] += r.Duration
+			a.bandT[i] += t
 		} else if l == l { // a band without output in this interval (NaN) adds no time
-			a.bandE[i] += energy(l) * r.Duration
-			a.bandT[i] += r.Duration
+			a.bandE[i] += energy(l) * t
+			a.bandT[i] += t
 		}
 	}
 	if r.Silent {

@@ -316,15 +316,16 @@ func TestEnergyMeanAndExposure(t *testing.T) {
 
 func TestHistogramPercentiles(t *testing.T) {
 	var h Histogram
-	// 30 samples at 70.0 dB, 70 at 50.0 dB: L10 = 70.05 (centre of bin [70.0, 70.1)),
-	// L50 = L90 = 50.05 (definition: level exceeded for N % of the samples, ISO 1996-1:2016).
+	// 30 samples at 70.0 dB, 70 at 50.0 dB: L10 = 70.0, L50 = L90 = 50.0 (definition: level
+	// exceeded for N % of the samples, ISO 1996-1:2016; bins 0.1 dB wide centred on the 0.1 dB
+	// grid, the reported value the bin's centre, so a steady level reads itself).
 	for range 30 {
 		h.Add(70.0)
 	}
 	for range 70 {
 		h.Add(50.0)
 	}
-	for _, c := range []struct{ n, want float64 }{{1, 70.05}, {10, 70.05}, {30, 70.05}, {31, 50.05}, {50, 50.05}, {99, 50.05}} {
+	for _, c := range []struct{ n, want float64 }{{1, 70}, {10, 70}, {30, 70}, {31, 50}, {50, 50}, {99, 50}} {
 		if got := h.Exceeded(c.n); math.Abs(got-c.want) > 1e-9 {
 			t.Errorf("L%g = %.3f, want %.2f", c.n, got, c.want)
 		}
@@ -522,6 +523,87 @@ func TestRawStatistics(t *testing.T) {
 		m.Take(&r)
 		if r.Stuck != tc.stuck || math.Abs(r.DC-tc.dc) > 1e-6 || r.Clipped != tc.clipped || r.Silent {
 			t.Errorf("%s: stuck %v dc %.6f clipped %d silent %v", tc.name, r.Stuck, r.DC, r.Clipped, r.Silent)
+		}
+	}
+}
+
+// TestHistogramBinsCentred: bin 45.0 holds 44.95 up to 45.05 and reads 45.0 (bins 0.1 dB wide
+// centred on the 0.1 dB grid; issue 13, finding 9: a steady 45.00 dB read LAF90 45.1, above its
+// own LAeq of 45.0).
+func TestHistogramBinsCentred(t *testing.T) {
+	for _, c := range []struct{ level, want float64 }{
+		{45.0, 45.0}, {44.951, 45.0}, {45.049, 45.0}, {45.051, 45.1}, {44.949, 44.9},
+		{-0.04, 0}, {-0.06, -0.1}, {0.04, 0},
+	} {
+		var h Histogram
+		h.Add(c.level)
+		if got := h.Exceeded(50); math.Abs(got-c.want) > 1e-9 {
+			t.Errorf("level %.3f reads %.3f, want %.1f", c.level, got, c.want)
+		}
+	}
+}
+
+// TestSteadyLevelReadsItself feeds a steady 1 kHz sine of exactly 45.00 dB (A weighting 0 dB at
+// 1 kHz, IEC 61672-1:2013 Table 3; amplitude from the sensitivity by AES17) and checks that every
+// percentile level reads 45.0 and equals LAeq rounded to 0.1 dB. The Fast level of a steady sine
+// ripples by ±0.003 dB (a first-order smoother of 125 ms at twice the sine's frequency), so it
+// straddles 45.00: with bins that start on the grid it read 44.95 or 45.05.
+func TestSteadyLevelReadsItself(t *testing.T) {
+	m := newTestMeter(t, 0)
+	var r Result
+	m.Process(sine(2*48000, 1000, ampFor(45, -26), testFS)) // past the Fast detector's start-up
+	m.Take(&r)
+	m.Process(sine(10*48000, 1000, ampFor(45, -26), testFS))
+	m.Take(&r)
+	if math.Abs(r.LAeq-45) > 0.01 {
+		t.Fatalf("LAeq = %.3f, want 45.00", r.LAeq)
+	}
+	for _, n := range []float64{1, 10, 50, 90, 99} {
+		if got := r.Histogram.Exceeded(n); math.Abs(got-45) > 1e-9 || math.Abs(got-math.Round(r.LAeq*10)/10) > 1e-9 {
+			t.Errorf("LAF%g = %.3f, want 45.0 (LAeq %.3f)", n, got, r.LAeq)
+		}
+	}
+}
+
+// TestMeterSettling: the filters start from rest, but no level reports their start-up. Minima
+// count from five time constants on (an exponential detector started from rest reads
+// 10 lg(1 - e^-5) = -0.03 dB below a steady level then: IEC 61672-1:2013 3.10), and are NaN in an
+// interval that ends before; band levels count only settled output. The signal is a steady
+// 1 kHz sine of 70 dB (A = 0 dB at 1 kHz, IEC 61672-1:2013 Table 3).
+func TestMeterSettling(t *testing.T) {
+	m := newTestMeter(t, Third)
+	x := sine(7*48000, 1000, ampFor(70, -26), testFS)
+	var r Result
+	m.Process(x[:24000]) // 0.5 s: before Fast has settled (0.625 s)
+	m.Take(&r)
+	if !math.IsNaN(r.LAFmin) || !math.IsNaN(r.LASmin) {
+		t.Errorf("first 0.5 s: LAFmin %v LASmin %v, want NaN", r.LAFmin, r.LASmin)
+	}
+	if r.LAFmax > 70.01 || math.Abs(r.LAeq-70) > 0.1 {
+		t.Errorf("first 0.5 s: LAFmax %.3f LAeq %.3f: maxima and energy count from the first sample", r.LAFmax, r.LAeq)
+	}
+	i12 := 0 // the 12.5 Hz band settles after about a second
+	if !math.IsNaN(r.Bands[i12]) || r.BandSeconds[i12] != 0 {
+		t.Errorf("12.5 Hz band in the first 0.5 s: %v over %v s, want NaN over 0 s", r.Bands[i12], r.BandSeconds[i12])
+	}
+	m.Process(x[24000 : 6*48000]) // to 6 s: Fast, Slow and every band have settled
+	m.Take(&r)
+	for _, c := range []struct {
+		name string
+		v    float64
+	}{{"LAFmin", r.LAFmin}, {"LASmin", r.LASmin}} {
+		if !(c.v >= 70-0.03-0.01 && c.v <= 70.01) {
+			t.Errorf("0.5 to 6 s: %s = %.3f, want 70 within -0.03 dB", c.name, c.v)
+		}
+	}
+	fb, _ := NewFilterBank(Third, testFS)
+	settle := fb.Settle(i12)
+	if want := (6 - settle) / 5.5 * r.Duration; math.Abs(r.BandSeconds[i12]-want) > 0.01 {
+		t.Errorf("12.5 Hz band covers %.3f s of the interval, want %.3f (settled after %.3f s)", r.BandSeconds[i12], want, settle)
+	}
+	for i, b := range fb.Bands() {
+		if b.Nominal == "1000" && math.Abs(r.Bands[i]-70) > 0.05 {
+			t.Errorf("1000 Hz band %.3f, want 70", r.Bands[i])
 		}
 	}
 }

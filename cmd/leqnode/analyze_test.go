@@ -5,6 +5,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"fmt"
 	"math"
 	"os"
 	"os/exec"
@@ -243,6 +244,198 @@ func TestAnalyzeBadInput(t *testing.T) {
 		}
 		if strings.Count(strings.TrimSpace(errs), "\n") != 0 || !strings.Contains(errs, tc.want) {
 			t.Errorf("%s: stderr %q, want one line naming %q", tc.name, errs, tc.want)
+		}
+	}
+}
+
+// TestAnalyzeStartUp: no level reports the filters' start-up from rest (issue 13, finding 6:
+// steady 85.7 dB read LAFmin 44.70 and LASmin 35.67 in the first interval, and a band -797.41
+// with --interval 10ms). The rule: a minimum counts only from five time constants after the first
+// sample, where an exponential detector started from rest reads within 10 lg(1 - e^-5) = -0.03 dB
+// of a steady level (IEC 61672-1:2013 3.10, the exponential time weighting), and is null for an
+// interval wholly before that; band levels count only after the band filter has settled. The
+// signal is a steady 1 kHz sine of 85.7 dB (AES17: peak 10^((85.7 - 94 - 26)/20) at -26 dBFS
+// for 94 dB; A = C = 0 dB at 1 kHz, IEC 61672-1:2013 Table 3), so every settled level is 85.7.
+func TestAnalyzeStartUp(t *testing.T) {
+	const fs, level = 16000, 85.7
+	x := sineSamples(7*fs, 1000, math.Pow(10, (level-94-26)/20), fs)
+	path := writeWAV(t, t.TempDir(), "steady.wav", wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.Float32}, x)
+	code, out, errs := runCmd(t, nil, "analyze", "--format", "jsonl", path)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines := jsonLines(t, out)
+	if len(lines) != 8 {
+		t.Fatalf("%d lines, want 7 intervals and a summary", len(lines))
+	}
+	for i, l := range lines {
+		what := fmt.Sprintf("interval %d", i)
+		if i == 7 {
+			what = "summary"
+		}
+		if v, ok := l["LAFmin"].(float64); !ok || v < level-0.03 {
+			t.Errorf("%s: LAFmin %v, want at least %.2f (Fast settles in 0.625 s)", what, l["LAFmin"], level-0.03)
+		}
+		// Slow settles after 5 s: null in the first five one-second intervals.
+		if v, ok := l["LASmin"].(float64); i < 5 && l["LASmin"] != nil || i >= 5 && (!ok || v < level-0.03) {
+			t.Errorf("%s: LASmin %v, want null before 5 s and at least %.2f after", what, l["LASmin"], level-0.03)
+		}
+		if v := l["LAeq"].(float64); math.Abs(v-level) > 0.02 {
+			t.Errorf("%s: LAeq %.3f, want %.1f", what, v, level)
+		}
+	}
+	// The summary carries the same level keys as the CSV summary.
+	for _, k := range []string{"LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LASmax", "LASmin", "LAImax", "LCpeak", "LZpeak", "LAE", "LAF1", "LAF5", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99"} {
+		if _, ok := lines[7][k]; !ok {
+			t.Errorf("jsonl summary lacks %q", k)
+		}
+	}
+
+	// 10 ms intervals: the 12.5 Hz band filter needs far longer than 10 ms to settle (its
+	// response time alone is 1/bandwidth = 1/2.9 Hz = 0.34 s, common practice), so its first
+	// interval is null; the 1 kHz band, once it reports, reads the tone; no band reads the
+	// start-up's near-zero output (the finding's -797.41 dB). Float samples carry rounding noise
+	// 24 bits below the tone, which the far bands read near -180 dB: above -250.
+	code, out, errs = runCmd(t, nil, "analyze", "--format", "jsonl", "--interval", "10ms", path)
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines = jsonLines(t, out)
+	first := lines[0]["third_octave_LZeq"].(map[string]any)
+	if first["12.5"] != nil {
+		t.Errorf("first 10 ms interval: 12.5 Hz band %v, want null", first["12.5"])
+	}
+	for i, l := range lines[:len(lines)-1] {
+		bands := l["third_octave_LZeq"].(map[string]any)
+		for name, v := range bands {
+			if f, ok := v.(float64); ok && f < -250 {
+				t.Errorf("interval %d: band %s reads %.2f dB", i, name, f)
+			}
+		}
+		if v, ok := bands["1000"].(float64); ok && math.Abs(v-level) > 0.2 {
+			t.Errorf("interval %d: 1000 Hz band %.2f, want %.1f", i, v, level)
+		}
+	}
+	// The CSV summary has the same columns as the jsonl summary's keys.
+	_, csvOut, _ := runCmd(t, nil, "analyze", "--format", "csv", "--bands", "none", path)
+	header := strings.Split(strings.SplitN(csvOut, "\n", 2)[0], ",")
+	for _, k := range header[3:] {
+		if _, ok := lines[len(lines)-1][k]; !ok {
+			t.Errorf("CSV column %q missing from the jsonl summary", k)
+		}
+	}
+}
+
+// TestAnalyzeBatch: several files and a directory at once, on two workers, give each recording
+// exactly the lines that analysing it alone gives (plus its path), in the order of the inputs;
+// a bad recording gets its one-line error and the others are still measured.
+func TestAnalyzeBatch(t *testing.T) {
+	dir := t.TempDir()
+	sub := filepath.Join(dir, "station")
+	if err := os.MkdirAll(sub, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	f48 := wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.PCM16}
+	f16 := wav.Format{SampleRate: 16000, Channels: 1, Encoding: wav.PCM16}
+	files := []string{
+		writeWAV(t, dir, "first.wav", f48, sineSamples(48000*3/2, 500, 0.05, 48000)),
+		writeWAV(t, sub, "b.wav", f16, sineSamples(16000*2, 2000, 0.2, 16000)),
+		writeWAV(t, sub, "a.wav", f48, sineSamples(48000, 100, 0.3, 48000)),
+		writeWAV(t, dir, "last.wav", f48, sineSamples(48000/2, 8000, 0.1, 48000)),
+	}
+	order := []string{files[0], files[2], files[1], files[3]} // the directory in lexical order
+	code, out, errs := runCmd(t, nil, "analyze", "-j", "2", "--format", "jsonl", files[0], sub, files[3])
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	lines := jsonLines(t, out)
+	k := 0
+	for _, f := range order {
+		_, alone, _ := runCmd(t, nil, "analyze", "-j", "1", "--format", "jsonl", f)
+		for _, want := range jsonLines(t, alone) {
+			if k >= len(lines) {
+				t.Fatalf("batch output ends early, at %s", f)
+			}
+			got := lines[k]
+			k++
+			if got["file"] != f {
+				t.Fatalf("line %d is of %v, want %s", k, got["file"], f)
+			}
+			delete(got, "file")
+			if g, w := fmt.Sprint(got), fmt.Sprint(want); g != w {
+				t.Errorf("%s: batch line\n%s\nwant (alone)\n%s", f, g, w)
+			}
+		}
+	}
+	if k != len(lines) {
+		t.Errorf("%d lines, want %d", len(lines), k)
+	}
+
+	// --summary: one line per recording; csv: a new header only where the columns change.
+	_, out, _ = runCmd(t, nil, "analyze", "--summary", "--format", "jsonl", dir)
+	if n := len(jsonLines(t, out)); n != 4 {
+		t.Errorf("--summary gave %d lines, want 4", n)
+	}
+	_, out, _ = runCmd(t, nil, "analyze", "--summary", "--format", "csv", files[0], files[2], files[1], files[3])
+	rows := strings.Split(strings.TrimSpace(out), "\n")
+	if len(rows) != 4+3 || !strings.HasPrefix(rows[0], "file,kind,") || !strings.HasPrefix(rows[3], "file,kind,") || !strings.HasPrefix(rows[5], "file,kind,") {
+		t.Errorf("csv summaries: want a header, two 48 kHz rows, a header, the 16 kHz row, a header, a 48 kHz row:\n%s", out)
+	}
+
+	// A bad recording in the middle: its error on one line, the others measured, exit 2.
+	bad := filepath.Join(dir, "broken.wav")
+	if err := os.WriteFile(bad, []byte("not a recording"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	code, out, errs = runCmd(t, nil, "analyze", "--summary", "-j", "2", "--format", "jsonl", files[0], bad, files[3])
+	if code != 2 || len(jsonLines(t, out)) != 2 || !strings.Contains(errs, "broken.wav") || !strings.Contains(errs, "1 of 3 recordings") {
+		t.Errorf("with a bad recording: exit %d, %d lines, stderr %q", code, len(jsonLines(t, out)), errs)
+	}
+	for _, tc := range []struct {
+		args []string
+		want string
+	}{
+		{[]string{"-", files[0]}, "standard input"},
+		{[]string{"--start", "2026-05-04T07:00:00Z", files[0], files[3]}, "--start"},
+		{[]string{"-j", "0", files[0]}, "-j 0"},
+		{[]string{filepath.Join(dir, "nope"), files[0]}, "nope: cannot open"},
+	} {
+		code, out, errs := runCmd(t, nil, append([]string{"analyze"}, tc.args...)...)
+		if code != 2 || out != "" || !strings.Contains(errs, tc.want) {
+			t.Errorf("%v: exit %d, stdout %q, stderr %q, want exit 2 naming %q", tc.args, code, out, errs, tc.want)
+		}
+	}
+}
+
+// TestTruncatedRecording: a WAV file whose data chunk ends before the size its header declares
+// (a copy cut short at a whole frame: a 10 s header with 5.67 s of data) is refused with exit 2
+// and one line naming the file and the fix, by analyze and by calibrate. The RIFF specification
+// (Multimedia Programming Interface and Data Specifications 1.0) makes the chunk size the size
+// of its data, so the rest of the recording is missing.
+func TestTruncatedRecording(t *testing.T) {
+	dir := t.TempDir()
+	const fs = 16000
+	full := writeWAV(t, dir, "full.wav", wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.PCM16}, sineSamples(10*fs, 1000, 0.1, fs))
+	data, err := os.ReadFile(full)
+	if err != nil {
+		t.Fatal(err)
+	}
+	start := bytes.Index(data, []byte("data")) + 8 // the first sample byte
+	cut := filepath.Join(dir, "cut.wav")
+	if err := os.WriteFile(cut, data[:start+2*int(5.67*fs)], 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, args := range [][]string{{"analyze", "--format", "jsonl", cut}, {"calibrate", "--format", "json", "--sensitivity", "-26", cut}} {
+		code, out, errs := runCmd(t, nil, args...)
+		if code != 2 {
+			t.Errorf("%s: exit %d, want 2 (stderr %q)", args[0], code, errs)
+		}
+		if args[0] == "analyze" && out != "" {
+			t.Errorf("%s: stdout not empty: %q", args[0], out)
+		}
+		if strings.Count(strings.TrimSpace(errs), "\n") != 0 || !strings.Contains(errs, "cut.wav") ||
+			!strings.Contains(errs, "5.67 s of 10.00 s") || !strings.Contains(errs, "sox --ignore-length") {
+			t.Errorf("%s: stderr %q, want one line naming cut.wav, 5.67 s of 10.00 s and the fix", args[0], errs)
 		}
 	}
 }

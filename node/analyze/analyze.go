@@ -5,6 +5,14 @@
 // round(k · D · fs) for an interval length D, so intervals that are not a whole number of
 // samples keep their exact average length, and each interval's Duration is its true sample count
 // divided by fs. A partial last interval is reported with its true duration.
+//
+// No level reports the filters' start-up from rest (the rule of dsp.Meter: minima and band levels
+// count only once their detector or filter has settled, and are null for an interval that ends
+// before that). Besides, an interval's band level is null when the interval is shorter than the
+// band's response time 1/B, B its bandwidth (0.34 s for the 12.5 Hz one-third octave, 2.3 ms for
+// 1 kHz): a band-pass filter cannot follow level changes faster than that (the time-bandwidth
+// product, common practice), so such a level is a snapshot of the band's waveform, not a level.
+// The band's energy still counts toward the summary, which covers the whole recording.
 package analyze
 
 import (
@@ -80,10 +88,16 @@ func Run(ctx context.Context, r *wav.Reader, opts Options, each func(Interval) e
 		next   = boundary(1, d, fs)
 		lastCb time.Time
 	)
+	bands := m.Bands()
 	emit := func() error {
 		m.Take(&res)
 		acc.Add(&res)
-		err := each(Interval{Bands: m.Bands(), Index: k, Offset: float64(boundary(k, d, fs)) / fs, Result: &res})
+		for i, b := range bands {
+			if res.Duration*(b.Upper-b.Lower) < 1 { // shorter than the band's response time
+				res.Bands[i] = math.NaN()
+			}
+		}
+		err := each(Interval{Bands: bands, Index: k, Offset: float64(boundary(k, d, fs)) / fs, Result: &res})
 		k++
 		next = boundary(k+1, d, fs)
 		return err

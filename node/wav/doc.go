@@ -17,11 +17,14 @@
 //
 // The reader is tolerant where the samples are still unambiguous: chunks it does not know
 // (LIST, fact, cue, JUNK, bext ...) are skipped, an odd-sized chunk's pad byte is honoured (and
-// a missing pad byte recognised), the RIFF size field is ignored, and a data chunk whose declared
-// size is larger than what follows is read to the end of the stream. A data size of 0 or
+// a missing pad byte recognised) and the RIFF size field is ignored. It is strict where samples
+// are missing: a data chunk that ends before the size its header declares (a copy or a recording
+// cut short) is read to its end and then reported as ErrTruncated, naming how much of the
+// declared length is there. A data size of 0 or
 // 0xFFFFFFFF, or the placeholder that sox writes when its output is a pipe (0x7FFFF000 rounded
 // down to a whole frame), marks a stream of unknown length, which is read until the end of
-// input; Frames then reports -1.
+// input; Frames then reports -1. So is a declared size within 64 KiB below 2 GiB, which
+// programs writing to a pipe use as a placeholder, except that Frames reports it.
 //
 // Every error wraps one of the sentinel errors ErrNotWAV, ErrTruncated, ErrUnsupported,
 // ErrBadFormat, ErrNoData or ErrBadSample, so callers can tell them apart with errors.Is, and

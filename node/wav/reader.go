@@ -22,6 +22,12 @@ var guidTail = [14]byte{0x00, 0x00, 0x00, 0x00, 0x10, 0x00, 0x80, 0x00, 0x00, 0x
 // (its output is a pipe): 0x7FFFF000 rounded down to a whole frame.
 const soxPipeSize = 0x7FFFF000
 
+// placeholderLow is the lowest declared data size that is taken for a writer's placeholder
+// rather than a promise: programs that write WAV headers to a pipe (and cannot seek back to fix
+// them) put a guess just below 2 GiB there, and sox's own placeholder is 0x7FFFF000. A data chunk
+// declared this large that ends early is read to its end without an error.
+const placeholderLow = 1<<31 - 1<<16
+
 // readChunkFrames is the number of frames decoded per refill of the internal byte buffer.
 const readChunkFrames = 4096
 
@@ -32,10 +38,13 @@ type Reader struct {
 	frameSize int
 	frames    int64 // declared frames, -1 when unknown
 	remaining int64 // bytes left in the data chunk, -1 when unknown
-	pos       int64 // frames delivered so far
-	buf       []byte
-	err       error // sticky error (io.EOF at the end)
-	raw       bool  // no RIFF container: no pad byte at the end
+	// placeholder: the declared size may be a writer's guess for a stream of unknown length
+	// (within 64 KiB below 2 GiB), so data ending before it is not reported as truncated.
+	placeholder bool
+	pos         int64 // frames delivered so far
+	buf         []byte
+	err         error // sticky error (io.EOF at the end)
+	raw         bool  // no RIFF container: no pad byte at the end
 }
 
 // NewReader parses the RIFF/WAVE header of r up to the start of the sample data and returns a
@@ -67,8 +76,9 @@ func NewRawReader(r io.Reader, f Format) (*Reader, error) {
 func (r *Reader) Format() Format { return r.format }
 
 // Frames returns the number of frames the header declares, or -1 when the length is unknown
-// (a streamed file). A header may declare more than the stream holds; reading stops at the end
-// of input whichever comes first.
+// (a streamed file). When the data ends before the declared frames, Read reports ErrTruncated
+// after delivering what there is (except for a size that looks like a streaming writer's
+// placeholder, within 64 KiB below 2 GiB, which is read to the end of input).
 func (r *Reader) Frames() int64 { return r.frames }
 
 // Position returns the number of frames delivered by Read so far.
@@ -128,10 +138,14 @@ func (r *Reader) Read(dst []float32) (int, error) {
 				// unknown length (RIFF pads every chunk to an even size).
 				part = 0
 			}
-			if part != 0 {
+			switch {
+			case part != 0:
 				r.err = fmt.Errorf("%w: data ends inside frame %d (%d of %d bytes); cut the file to whole frames or re-export it",
 					ErrTruncated, r.pos, part, fs)
-			} else {
+			case r.remaining > 0 && !r.placeholder:
+				// The stream ended before the size that the data chunk's header declares.
+				r.err = r.shortData()
+			default:
 				r.err = io.EOF
 			}
 		case err != nil:
@@ -523,6 +537,7 @@ func (r *Reader) startData(p *headerParser, size uint32) error {
 	if known {
 		r.remaining = int64(total)
 		r.frames = int64(total / fs)
+		r.placeholder = total >= placeholderLow && total <= 1<<31
 	} else {
 		r.remaining = -1
 		r.frames = -1
@@ -540,4 +555,13 @@ func (r *Reader) startData(p *headerParser, size uint32) error {
 		return fmt.Errorf("%w: data ends inside frame 0 (%d of %d bytes)", ErrTruncated, len(b), fs)
 	}
 	return nil
+}
+
+// shortData is the error for a data chunk that ends before its declared size: the file was cut
+// short (a copy or a recording that did not finish), so some of the recording is missing.
+func (r *Reader) shortData() error {
+	rate := float64(r.format.SampleRate)
+	return fmt.Errorf("%w: the data ends after %d of the %d frames the header declares (%.2f s of %.2f s); "+
+		"copy the whole file again, or if the rest is lost for good, rewrite the header with `sox --ignore-length IN.wav OUT.wav`",
+		ErrTruncated, r.pos, r.frames, float64(r.pos)/rate, float64(r.frames)/rate)
 }

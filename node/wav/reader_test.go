@@ -138,7 +138,9 @@ func TestTolerance(t *testing.T) {
 		{"RIFF size zero", riffFile("RIFF", 0, fmt16, ck("data", samples)), 5},
 		{"RIFF size too large", riffFile("RIFF", 0x7FFFFFFF, fmt16, ck("data", samples)), 5},
 		{"RIFF size too small", riffFile("RIFF", 12, fmt16, ck("data", samples)), 5},
-		{"data size larger than the file", riffFile("RIFF", -1, fmt16, chunk{id: "data", body: samples, size: 1000}), 500},
+		// A program that writes a WAV header to a pipe cannot seek back to fix the sizes and
+		// puts a placeholder just below 2 GiB there; its early end is the end of the stream.
+		{"data size a streaming placeholder", riffFile("RIFF", -1, fmt16, chunk{id: "data", body: samples, size: 0x7FFFFFF0}), 0x3FFFFFF8},
 		{"data size 0 (streamed)", riffFile("RIFF", -1, fmt16, chunk{id: "data", body: samples, size: 0}), -1},
 		{"data size 0xFFFFFFFF (streamed)", riffFile("RIFF", -1, fmt16, chunk{id: "data", body: samples, size: 0xFFFFFFFF}), -1},
 		// sox writes 0x7FFFF000 rounded down to a whole frame when it writes to a pipe
@@ -272,6 +274,14 @@ func TestReadErrors(t *testing.T) {
 		{"NaN in a later block", riffFile("RIFF", -1, fmtF2, ck("data", f32bits(one, one, one, one, nan, one))), 4, ErrBadSample, "frame 2", 2},
 		{"partial trailing frame", riffFile("RIFF", -1, ck("fmt ", fmtBody(1, 2, 48000, 4, 16)), ck("data", pcm16(1, 2, 3, 4, 5))), 4, ErrTruncated, "inside frame 2 (2 of 4 bytes)", 64},
 		{"partial trailing frame, streamed", riffFile("RIFF", -1, ck("fmt ", fmtBody(1, 1, 48000, 3, 24)), chunk{id: "data", body: pcm16(1, 2, 3, 4), size: 0}), 2, ErrTruncated, "inside frame 2 (2 of 3 bytes)", 1},
+		// The RIFF specification (Multimedia Programming Interface and Data Specifications 1.0,
+		// "RIFF chunks") makes ckSize the size of the chunk's data: a data chunk that ends before
+		// it has lost the rest of the recording (issue 13, finding 7: a 10 s header with 5.67 s
+		// of data was measured without a word).
+		{"data shorter than declared", riffFile("RIFF", -1, ck("fmt ", fmtBody(1, 1, 48000, 2, 16)), chunk{id: "data", body: pcm16(1, 2, 3, 4, 5), size: 1000}), 5, ErrTruncated,
+			"the data ends after 5 of the 500 frames the header declares", 3},
+		{"data shorter than declared, cut at a block boundary", riffFile("RIFF", -1, ck("fmt ", fmtBody(1, 1, 48000, 2, 16)), chunk{id: "data", body: pcm16(1, 2, 3, 4), size: 10}), 4, ErrTruncated,
+			"after 4 of the 5 frames", 2},
 		{"declared size ends inside a frame", riffFile("RIFF", -1, ck("fmt ", fmtBody(1, 1, 48000, 2, 16)), chunk{id: "data", body: pcm16(1, 2, 3), size: 5}), 2, ErrTruncated, "inside frame 2 (1 of 2 bytes)", 64},
 	}
 	for _, tc := range tests {
