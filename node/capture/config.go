@@ -182,9 +182,9 @@ func quote(v any) string {
 	return fmt.Sprint(v)
 }
 
-// withDefaults returns c with zero fields replaced by the defaults that do not depend on the
+// WithDefaults returns c with zero fields replaced by the defaults that do not depend on the
 // device or the stream.
-func (c Config) withDefaults() Config {
+func (c Config) WithDefaults() Config {
 	if c.Channel == 0 {
 		c.Channel = 1
 	}

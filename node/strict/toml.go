@@ -14,7 +14,9 @@ import (
 
 // TOML decodes a TOML document from data into v (a non-nil pointer) strictly, over whatever v
 // already holds (so that defaults set before the call stay where the document is silent).
-// Problems carry the line of their key where it can be found.
+// Problems carry the line of their key where it can be found. When the document has problems,
+// v still receives every key that has none, so that a caller can check the rest and report
+// everything at once.
 func TOML(data []byte, v any) error {
 	rv := reflect.ValueOf(v)
 	if rv.Kind() != reflect.Pointer || rv.IsNil() {
@@ -38,6 +40,10 @@ func TOML(data []byte, v any) error {
 		lines := keyLines(data)
 		for i := range probs {
 			probs[i].Line = lineOf(lines, probs[i].Key)
+			prune(tree, probs[i].Key)
+		}
+		if rest, err := toml.Marshal(tree); err == nil {
+			_ = toml.NewDecoder(bytes.NewReader(rest)).DisallowUnknownFields().Decode(v)
 		}
 		return &Error{probs}
 	}
@@ -50,6 +56,26 @@ func TOML(data []byte, v any) error {
 		return &Error{[]Problem{{Msg: err.Error()}}}
 	}
 	return nil
+}
+
+// prune deletes key from tree: the key itself where it names a table's entry, else (within a
+// list) the entry holding the list.
+func prune(tree map[string]any, key string) {
+	parts := strings.Split(key, ".")
+	m := tree
+	for i, part := range parts {
+		name, _, indexed := strings.Cut(part, "[")
+		if i == len(parts)-1 || indexed {
+			delete(m, name)
+			return
+		}
+		next, ok := m[name].(map[string]any)
+		if !ok {
+			delete(m, name)
+			return
+		}
+		m = next
+	}
 }
 
 var indexRe = regexp.MustCompile(`\[\d+\]`)
