@@ -9,6 +9,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
@@ -350,6 +351,12 @@ func TestState(t *testing.T) {
 	os.WriteFile(filepath.Join(dir, StateFile), []byte(`{"sensitivity_dBFS": 12, "nominal_dBFS": -26}`), 0o644)
 	if _, err := LoadState(dir); err == nil {
 		t.Error("positive sensitivity accepted")
+	}
+	// Keys in another case are not the state's keys (encoding/json matched them without
+	// regard to case, issue 20): the file is damaged, not a sensitivity of -20.
+	os.WriteFile(filepath.Join(dir, StateFile), []byte(`{"SENSITIVITY_DBFS": -20, "nominal_dBFS": -26, "at": "2031-05-01T00:00:00Z", "reference_dB": 94, "frequency_hz": 1000}`), 0o644)
+	if _, err := LoadState(dir); err == nil || !strings.Contains(err.Error(), "case-sensitive") {
+		t.Errorf("state with a key in another case: %v", err)
 	}
 	if err := SaveState(filepath.Join(dir, "missing"), want); err == nil {
 		t.Error("save into a missing directory gave no error")

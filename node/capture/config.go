@@ -5,9 +5,9 @@ import (
 	"math"
 	"strconv"
 	"strings"
-	"time"
 
 	"github.com/leqnode/leqnode/node/scene"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // Config selects and sets up a source; it is one section of the node's TOML config file
@@ -161,7 +161,7 @@ func (c Config) Validate() []error {
 		bad("duration_s", c.DurationSeconds, "out of range; use 0 (endless) or a positive number of seconds")
 	}
 	if c.Start != "" {
-		if _, err := time.Parse(time.RFC3339, c.Start); err != nil {
+		if _, err := strict.ParseTime(c.Start); err != nil {
 			bad("start", c.Start, "not an RFC 3339 time; write it like 2026-06-01T07:00:00+01:00")
 		}
 	}

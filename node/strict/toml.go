@@ -30,7 +30,7 @@ func TOML(data []byte, v any) error {
 		var de *toml.DecodeError
 		if errors.As(err, &de) {
 			row, _ := de.Position()
-			return &Error{[]Problem{{Key: strings.Join(de.Key(), "."), Line: row, Msg: de.Error()}}}
+			return &Error{[]Problem{{Key: strings.Join(de.Key(), "."), Line: row, Msg: strings.TrimPrefix(de.Error(), "toml: ")}}}
 		}
 		return &Error{[]Problem{{Msg: err.Error()}}}
 	}
@@ -51,7 +51,7 @@ func TOML(data []byte, v any) error {
 		var de *toml.DecodeError
 		if errors.As(err, &de) {
 			row, _ := de.Position()
-			return &Error{[]Problem{{Key: strings.Join(de.Key(), "."), Line: row, Msg: de.Error()}}}
+			return &Error{[]Problem{{Key: strings.Join(de.Key(), "."), Line: row, Msg: strings.TrimPrefix(de.Error(), "toml: ")}}}
 		}
 		return &Error{[]Problem{{Msg: err.Error()}}}
 	}
