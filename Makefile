@@ -21,7 +21,7 @@ all: build
 
 build:
 	@.ci/install-debs $(BUILD_DEBS)
-	$(GO) build -o $(BIN) ./cmd/leqnode
+	$(GO) build -ldflags "-X main.version=$$(.ci/package-version)" -o $(BIN) ./cmd/leqnode
 
 # The pure-Go binary, without PortAudio (the arecord source still works): for cross-compiling.
 build-purego:
