@@ -19,7 +19,7 @@ func runConfig(ctx context.Context, std stdio, args []string) error {
 	if len(args) > 0 {
 		switch args[0] {
 		case "-h", "-help", "--help", "help":
-			fmt.Fprintln(std.out, configUsage)
+			fmt.Fprintln(std.err, configUsage) // help goes where every command's -h goes
 			return errHelpShown
 		}
 	}

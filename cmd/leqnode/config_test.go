@@ -48,9 +48,9 @@ func TestConfigCheck(t *testing.T) {
 	}
 
 	for _, h := range []string{"--help", "-h", "help"} {
-		code, out, _ := runCmd(t, nil, "config", h)
-		if code != 0 || !strings.Contains(out, "config check FILE") {
-			t.Errorf("config %s: exit %d, output %q", h, code, out)
+		code, _, errOut := runCmd(t, nil, "config", h)
+		if code != 0 || !strings.Contains(errOut, "config check FILE") {
+			t.Errorf("config %s: exit %d, output %q", h, code, errOut)
 		}
 	}
 }
