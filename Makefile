@@ -15,13 +15,13 @@ TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-cl
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev
 
-.PHONY: all build build-purego demo test test-deps bench lint fmt clean
+.PHONY: all build build-purego demo test test-deps bench fuzz lint fmt clean
 
 all: build
 
 build:
 	@.ci/install-debs $(BUILD_DEBS)
-	$(GO) build -o $(BIN) ./cmd/leqnode
+	$(GO) build -ldflags "-X main.version=$$(.ci/package-version)" -o $(BIN) ./cmd/leqnode
 
 # The pure-Go binary, without PortAudio (the arecord source still works): for cross-compiling.
 build-purego:
@@ -46,6 +46,12 @@ test: test-deps
 bench: test-deps
 	LEQNODE_BENCH_HOURS=24 $(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
 	.ci/callgrind-meter | tee -a bench.txt
+
+# Every fuzz target searches for FUZZTIME each (default 60s; e.g. `make fuzz FUZZTIME=10s`).
+# Failing inputs land in the package's testdata/fuzz/ and `make test` replays them: commit them.
+FUZZTIME ?= 60s
+fuzz: test-deps
+	GO=$(GO) .ci/fuzz $(FUZZTIME)
 
 lint:
 	$(GO) vet ./...

@@ -67,7 +67,38 @@ type CalibratorConfig struct {
 	// and then starts a new one, so that a calibrator left on for minutes gives a result early.
 	// Zero reports a stretch only when it ends (or at Flush). It must not be below MinStable.
 	MaxStable float64
+
+	// Diagnose analyses the spectrum of every block, not only of those that may hold a 1 kHz
+	// tone, so that Candidate can say what was found when no calibrator was: a tone at another
+	// frequency, too little above the background, drifting or too short. Trade-off: an FFT per
+	// block, about six times the detector's cost in ordinary sound; meant for checking a
+	// recording, not for the running node.
+	Diagnose bool
 }
+
+// ToneCandidate describes the most persistent steady tone a CalibratorDetector saw (with
+// CalibratorConfig.Diagnose): the longest run of blocks whose strongest spectral line stayed
+// within 1.5 Hz and whose one-third-octave band stood at least CandidateDominance above every
+// other band.
+type ToneCandidate struct {
+	// FrequencyHz is the mean coarse frequency of the run's strongest line.
+	FrequencyHz float64
+	// LevelDBFS is the Leq of the run, dBFS.
+	LevelDBFS float64
+	// DominanceDB is the largest margin, over the run's blocks, of the tone's band above the
+	// strongest other band.
+	DominanceDB float64
+	// Seconds is the run's length.
+	Seconds float64
+	// SteadySeconds is the longest stretch of the run whose block levels stayed within the
+	// detector's StabilityDB, by the rule stable stretches follow: a calibrator needs
+	// MinStable seconds of it.
+	SteadySeconds float64
+}
+
+// CandidateDominance is the least margin, in dB, of a band above every other band for the
+// block to count toward a ToneCandidate: 3 dB, enough to tell a tone from broadband sound.
+const CandidateDominance = 3.0
 
 // Detection is one stable calibrator tone found by a CalibratorDetector. Sample indices count
 // the samples fed since the detector was built or reset, from 0.
@@ -176,6 +207,19 @@ type CalibratorDetector struct {
 	// The run of tonal blocks and the stable stretch inside it.
 	toneStart int64 // first sample of the tonal run, -1 when the last block was not tonal
 	run       stretch
+
+	// With Diagnose: the run of candidate blocks, the best run so far and the largest
+	// dominance seen.
+	cand, best candRun
+	maxDom     float64
+}
+
+// candRun accumulates a run of blocks holding one steady tone (any frequency).
+type candRun struct {
+	f0, fsum, sumSq, dmax float64
+	blocks                int
+	smin, smax            float64 // block levels of the steady stretch in progress
+	steady, bestSteady    int     // its blocks, and the most of any steady stretch
 }
 
 // stretch accumulates one stable stretch.
@@ -276,6 +320,60 @@ func (d *CalibratorDetector) Reset() {
 	d.pos = 0
 	d.toneStart = -1
 	d.run = stretch{}
+	d.cand, d.best, d.maxDom = candRun{}, candRun{}, math.Inf(-1)
+}
+
+// Candidate returns the most persistent steady tone seen since construction or Reset, and
+// false when no block held one; MaxDominanceDB is the largest margin of any band above every
+// other band seen in any block (-Inf when no block was analysed). Only with
+// CalibratorConfig.Diagnose.
+func (d *CalibratorDetector) Candidate() (c ToneCandidate, maxDominanceDB float64, ok bool) {
+	b := d.best
+	if d.cand.blocks > b.blocks {
+		b = d.cand
+	}
+	if b.blocks == 0 {
+		return ToneCandidate{}, d.maxDom, false
+	}
+	n := float64(b.blocks)
+	block := float64(d.blockLen) / d.fs
+	return ToneCandidate{
+		FrequencyHz: b.fsum / n, LevelDBFS: DBFS(b.sumSq / (n * float64(d.blockLen))),
+		DominanceDB: b.dmax, Seconds: n * block, SteadySeconds: float64(max(b.steady, b.bestSteady)) * block,
+	}, d.maxDom, true
+}
+
+// diagnose adds a block to the candidate runs: peak frequency fc, the dominance dom of its
+// band, the block's sum of squares.
+func (d *CalibratorDetector) diagnose(fc, dom, sumSq float64) {
+	d.maxDom = math.Max(d.maxDom, dom)
+	c := &d.cand
+	if dom < CandidateDominance || sumSq == 0 || (c.blocks > 0 && math.Abs(fc-c.f0) > 1.5) {
+		if c.blocks > d.best.blocks {
+			d.best = *c
+		}
+		*c = candRun{}
+		if dom < CandidateDominance || sumSq == 0 {
+			return
+		}
+	}
+	lvl := 10 * math.Log10(sumSq/float64(d.blockLen))
+	if c.blocks == 0 {
+		*c = candRun{f0: fc, dmax: dom}
+	}
+	if c.steady > 0 && math.Max(c.smax, lvl)-math.Min(c.smin, lvl) > d.cfg.StabilityDB {
+		c.bestSteady = max(c.bestSteady, c.steady)
+		c.steady = 0
+	}
+	if c.steady == 0 {
+		c.smin, c.smax = lvl, lvl
+	}
+	c.steady++
+	c.smin, c.smax = math.Min(c.smin, lvl), math.Max(c.smax, lvl)
+	c.blocks++
+	c.fsum += fc
+	c.sumSq += sumSq
+	c.dmax = math.Max(c.dmax, dom)
 }
 
 // Position returns the number of samples fed since construction or Reset.
@@ -336,8 +434,15 @@ func (d *CalibratorDetector) block(found func(Detection)) {
 	// A tone whose band is DominanceDB above each of the other bands carries most of the
 	// block's energy, so the 1 kHz band-pass (second order, wider than the band) passes at
 	// least half of it; blocks that fail this skip the spectrum.
-	if sumSq > 0 && d.gsum >= 0.5*sumSq {
-		fc, dom, tonal = d.spectrum()
+	if sumSq > 0 && (d.gsum >= 0.5*sumSq || d.cfg.Diagnose) {
+		var peakDom float64
+		fc, dom, peakDom, tonal = d.spectrum()
+		if !(d.gsum >= 0.5*sumSq) {
+			tonal = false
+		}
+		if d.cfg.Diagnose {
+			d.diagnose(fc, peakDom, sumSq)
+		}
 	}
 	if !tonal {
 		d.finish(found)
@@ -397,9 +502,10 @@ func (d *CalibratorDetector) block(found func(Detection)) {
 	}
 }
 
-// spectrum analyses the last nfft samples of the block: the coarse tone frequency, the
-// dominance of the 1 kHz band, and whether the block is tonal.
-func (d *CalibratorDetector) spectrum() (fc, dom float64, tonal bool) {
+// spectrum analyses the last nfft samples of the block: the coarse frequency of the strongest
+// line, the dominance of the 1 kHz band (0 unless the line lies in it and within the
+// frequency tolerance), the dominance of the line's own band, and whether the block is tonal.
+func (d *CalibratorDetector) spectrum() (fc, dom, peakDom float64, tonal bool) {
 	off := d.blockLen - d.nfft
 	for i, w := range d.window {
 		d.seq[i] = d.buf[off+i] * w
@@ -417,9 +523,10 @@ func (d *CalibratorDetector) spectrum() (fc, dom float64, tonal bool) {
 			peak, peakP = k, p
 		}
 	}
-	if peak == 0 || d.band[peak] != int16(d.toneSl) {
-		return 0, 0, false
+	if peak == 0 || d.band[peak] < 0 {
+		return 0, 0, 0, false
 	}
+	sl := int(d.band[peak])
 	// Parabola through the log magnitudes around the peak (Hann window).
 	lp := func(k int) float64 {
 		c := coef[k]
@@ -431,20 +538,20 @@ func (d *CalibratorDetector) spectrum() (fc, dom float64, tonal bool) {
 		delta = 0.5 * (a - c) / den
 	}
 	fc = (float64(peak) + delta) * d.fs / float64(d.nfft)
-	if math.Abs(fc-CalibratorFrequency) > d.cfg.FrequencyTolerance*CalibratorFrequency {
-		return fc, 0, false
-	}
 	other := 0.0
 	for i, p := range d.bandP {
-		if i != d.toneSl {
+		if i != sl {
 			other = math.Max(other, p)
 		}
 	}
-	dom = math.Inf(1)
+	peakDom = math.Inf(1)
 	if other > 0 {
-		dom = 10 * math.Log10(d.bandP[d.toneSl]/other)
+		peakDom = 10 * math.Log10(d.bandP[sl]/other)
 	}
-	return fc, dom, dom >= d.cfg.DominanceDB
+	if sl != d.toneSl || math.Abs(fc-CalibratorFrequency) > d.cfg.FrequencyTolerance*CalibratorFrequency {
+		return fc, 0, peakDom, false
+	}
+	return fc, peakDom, peakDom, peakDom >= d.cfg.DominanceDB
 }
 
 // finish closes the stable stretch and reports it when it is long enough.
@@ -527,9 +634,17 @@ type CalibratorTolerance struct {
 	Frequency float64
 	// LevelUncertainty and FrequencyUncertainty are the maximum-permitted expanded
 	// uncertainties of a test of the level (dB) and of the frequency (relative) (Tables A.1,
-	// A.2): 0.10/0.15/0.35 dB and 0.002.
+	// A.2): 0.10/0.15/0.35 dB and 0.002. They bound the uncertainty of the measuring chain
+	// that judges a calibrator; they do not widen the limits (see FrequencyPlausible).
 	LevelUncertainty, FrequencyUncertainty float64
 }
+
+// SampleClockTolerance is the relative frequency error assumed for a converter's sample
+// clock, ±100 ppm (common practice: audio converters run from crystal oscillators specified
+// within tens of ppm). A frequency measured from the sample count is uncertain by this much,
+// twenty times less than the 0.2 % maximum-permitted uncertainty of IEC 60942:2017 Table A.2,
+// so the node may judge a calibrator's frequency against the Table 4 limits.
+const SampleClockTolerance = 100e-6
 
 // CalibratorTolerances returns the IEC 60942:2017 acceptance limits of class c. It panics on
 // an unknown class.
@@ -546,12 +661,19 @@ func CalibratorTolerances(c CalibratorClass) CalibratorTolerance {
 }
 
 // FrequencyPlausible reports whether a measured calibrator frequency f (Hz) lies within the
-// class's frequency tolerance of the stated frequency (normally CalibratorFrequency), the
-// tolerance widened by the maximum-permitted uncertainty, as a check by an instrument of
-// unknown clock accuracy must allow. A tone outside it comes from a calibrator of a lower
-// class, a faulty one, or a converter whose sample clock is off by that much.
+// class's frequency limit of IEC 60942:2017 Table 4 (±0.7 % for classes LS and 1, ±1.7 % for
+// class 2) of the stated frequency (normally CalibratorFrequency).
+//
+// The model is the 2017 edition's: it states the limits and, apart from them, a maximum
+// permitted uncertainty of the measurement that judges them (0.2 %, Table A.2). A calibrator
+// conforms when the measured deviation does not exceed the limit and the measurement's
+// uncertainty does not exceed the maximum (conformance rule of IEC 60942:2017, clause from
+// memory); the uncertainty is not added to the limit, as the 2003 edition's tolerances
+// included it. The node's frequency uncertainty is its sample clock's, SampleClockTolerance
+// (0.01 %), well inside the maximum. A tone outside the limit comes from a calibrator of a
+// lower class, a faulty one, or a converter whose sample clock is off by that much.
 func (t CalibratorTolerance) FrequencyPlausible(f, stated float64) bool {
-	return math.Abs(f-stated) <= (t.Frequency+t.FrequencyUncertainty)*stated
+	return math.Abs(f-stated) <= t.Frequency*stated
 }
 
 // LevelConsistent reports whether a measured level deviation d (dB, measured minus stated)

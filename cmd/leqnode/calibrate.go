@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"math"
+	"os"
 	"strconv"
 	"text/tabwriter"
 	"time"
@@ -43,7 +44,7 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	fl := newFlags("calibrate", "[--reference DB] [--sensitivity DBFS | --config FILE] [--range DB] [--class LS|1|2] [--channel N] [--format table|json] [FILE]", std.err)
 	ref := fl.Float64("reference", calibrate.DefaultReference, "the calibrator's stated level, dB (usually 94 or 114)")
 	var nominal optFloat
-	fl.Var(&nominal, "sensitivity", "the microphone's nominal sensitivity, dBFS for 94 dB at 1 kHz; the result must lie within --range of it")
+	fl.Var(&nominal, "sensitivity", "the microphone's nominal (data-sheet) sensitivity, dBFS for 94 dB at 1 kHz; the result must lie within --range of it. Without it or --config: the installed node's configuration ($LEQNODE_CONFIG, else /etc/leqnode/leqnode.toml when it exists; LEQNODE_CONFIG=none for none), else only the range microphones have, -60 to -15 dBFS, is checked")
 	cfgPath := fl.String("config", "", "the node's configuration file: its microphone sensitivity is the nominal")
 	rng := fl.Float64("range", calibrate.DefaultAdjustRange, "allowed distance of the new sensitivity from the nominal, dB")
 	class := fl.String("class", "1", "the calibrator's class (IEC 60942): LS, 1 or 2; judges the tone's frequency")
@@ -94,6 +95,20 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	if len(pos) == 0 {
 		return calibrateDaemon(ctx, std, *cfgPath, calibrate.Request{Reference: *ref, Timeout: 2 * time.Minute, Apply: true}, *format)
 	}
+	// The nominal sensitivity: --sensitivity, --config, else the installed node's configuration.
+	var nom *calibrate.Nominal
+	switch {
+	case nominal.set && *cfgPath != "":
+		nom = &calibrate.Nominal{DBFS: nominal.v, Source: "microphone.sensitivity_dbfs of " + *cfgPath}
+	case nominal.set:
+		nom = &calibrate.Nominal{DBFS: nominal.v, Source: "--sensitivity"}
+	default:
+		if p := installedConfig(); p != "" {
+			if cfg, err := config.Load(p); err == nil {
+				nom = &calibrate.Nominal{DBFS: cfg.Microphone.SensitivityDBFS, Source: "microphone.sensitivity_dbfs of " + p}
+			}
+		}
+	}
 
 	in, name, done, err := openRecording(std, pos[0])
 	if err != nil {
@@ -103,7 +118,7 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	res, err := calibrate.FromReader(ctx, in, calibrate.Options{Reference: *ref, Class: cls, Channel: *channel})
 	if errors.Is(err, calibrate.ErrNoTone) {
 		if *format == "json" {
-			writeCalibrateJSON(std.out, calibrate.Summary{})
+			writeCalibrateJSON(std.out, calibrate.Summary{Reason: err.Error()})
 		}
 		return badInput("%s: %v", name, err)
 	}
@@ -114,31 +129,44 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 		return badInput("%s: %v", name, err)
 	}
 
-	// Judge the result: the frequency against the calibrator's class, the sensitivity against
-	// the allowed range around the nominal.
-	var problem error
-	tol := dsp.CalibratorTolerances(cls)
-	if n := res.Detection.Clipped; n > 0 {
-		problem = fmt.Errorf("%s: the tone clipped (%d samples at full scale), so its level is wrong: use the calibrator's 94 dB setting or lower the input gain", name, n)
-	} else if !res.FrequencyPlausible {
-		problem = fmt.Errorf("%s: the tone at %.2f Hz is more than %.1f %% from 1 kHz, outside the tolerance of a class %s calibrator (IEC 60942:2017 Table 4): check the calibrator, or the converter's sample rate",
-			name, res.Detection.FrequencyHz, 100*(tol.Frequency+tol.FrequencyUncertainty), cls)
+	// Judge the result: clipping, the frequency against the calibrator's class, the
+	// sensitivity against the nominal or, with none, against the plausible range.
+	j := calibrate.Judge(res, nom, *rng, cls)
+	sum := res.Summarize(j.OK)
+	sum.Reason = j.Reason
+	if nom != nil {
+		sum.NominalDBFS = &nom.DBFS
 	}
-	if nominal.set && problem == nil {
-		if _, err := calibrate.Adjust(nominal.v, res.SensitivityDBFS, *rng); err != nil {
-			problem = fmt.Errorf("%s: %w", name, err)
-		}
-	}
-	sum := res.Summarize(problem == nil)
 	switch *format {
 	case "json":
 		if err := writeCalibrateJSON(std.out, sum); err != nil {
 			return err
 		}
 	default:
-		writeCalibrateTable(std.out, res, nominal, *rng, tol, problem == nil)
+		writeCalibrateTable(std.out, res, dsp.CalibratorTolerances(cls), j)
 	}
-	return problem
+	if !j.OK {
+		return fmt.Errorf("%s: %s", name, j.Reason)
+	}
+	return nil
+}
+
+// installedConfig returns the configuration file of the node installed on this machine whose
+// microphone sensitivity `calibrate FILE` judges against when given neither --sensitivity nor
+// --config: $LEQNODE_CONFIG, else /etc/leqnode/leqnode.toml when it exists; "" for none
+// (LEQNODE_CONFIG=none turns it off).
+func installedConfig() string {
+	if p := os.Getenv("LEQNODE_CONFIG"); p != "" {
+		if p == "none" {
+			return ""
+		}
+		return p
+	}
+	const p = "/etc/leqnode/leqnode.toml"
+	if _, err := os.Stat(p); err == nil {
+		return p
+	}
+	return ""
 }
 
 func writeCalibrateJSON(w io.Writer, s calibrate.Summary) error {
@@ -150,30 +178,22 @@ func writeCalibrateJSON(w io.Writer, s calibrate.Summary) error {
 	return err
 }
 
-func writeCalibrateTable(w io.Writer, r *calibrate.Result, nominal optFloat, rng float64, tol dsp.CalibratorTolerance, ok bool) {
+func writeCalibrateTable(w io.Writer, r *calibrate.Result, tol dsp.CalibratorTolerance, j calibrate.Judgement) {
 	d := r.Detection
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
 	plaus := "within"
 	if !r.FrequencyPlausible {
 		plaus = "OUTSIDE"
 	}
-	fmt.Fprintf(tw, "tone\t%.2f Hz\t%s the ±%.1f %% of a class %s calibrator\n", d.FrequencyHz, plaus, 100*(tol.Frequency+tol.FrequencyUncertainty), tol.Class)
+	fmt.Fprintf(tw, "tone\t%.2f Hz\t%s the ±%.1f %% of a class %s calibrator (IEC 60942:2017 Table 4)\n", d.FrequencyHz, plaus, 100*tol.Frequency, tol.Class)
 	fmt.Fprintf(tw, "measured\t%.2f dBFS\tLeq over %.2f s, spread %.3f dB, band %.0f dB above the rest\n", d.LevelDBFS, d.Stable, d.StabilityDB, d.DominanceDB)
 	fmt.Fprintf(tw, "reference\t%.1f dB\tthe calibrator's stated level\n", r.Reference)
-	note := "no nominal given (--sensitivity or --config): range not checked"
-	if nominal.set {
-		in := "within"
-		if math.Abs(r.SensitivityDBFS-nominal.v) > rng {
-			in = "BEYOND"
-		}
-		note = fmt.Sprintf("%+.2f dB from the nominal %.2f dBFS, %s ±%g dB", r.SensitivityDBFS-nominal.v, nominal.v, in, rng)
-	}
-	fmt.Fprintf(tw, "sensitivity\t%.2f dBFS\t%s\n", r.SensitivityDBFS, note)
+	fmt.Fprintf(tw, "sensitivity\t%.2f dBFS\t\n", r.SensitivityDBFS)
 	okText := "yes"
-	if !ok {
+	if !j.OK {
 		okText = "no"
 	}
-	fmt.Fprintf(tw, "ok\t%s\t\n", okText)
+	fmt.Fprintf(tw, "ok\t%s\t%s\n", okText, j.Reason)
 	tw.Flush()
 }
 

@@ -38,10 +38,12 @@ func calibratorRecording(fs int, freq, toneDBFS, hold float64) []float32 {
 }
 
 // TestCalibrateJSONContract: the JSON form is a contract other tools rely on: exactly the keys
-// frequency_hz, measured_dBFS, sensitivity_dBFS, stable_s and ok. A 114 dB calibrator on a
+// frequency_hz, measured_dBFS, sensitivity_dBFS, stable_s, ok, reason (why ok is what it is)
+// and, when a nominal sensitivity is known, nominal_dBFS. A 114 dB calibrator on a
 // microphone of sensitivity -31 dBFS produces a tone of 114 - 94 - 31 = -11 dBFS (SPL = dBFS -
 // S + 94, the MEMS data-sheet definition, Analog Devices AN-1112).
 func TestCalibrateJSONContract(t *testing.T) {
+	t.Setenv("LEQNODE_CONFIG", "none")
 	dir := t.TempDir()
 	path := writeWAV(t, dir, "cal.wav", wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.PCM16}, calibratorRecording(48000, 1000, -11, 7))
 	code, out, errs := runCmd(t, nil, "calibrate", "--reference", "114", "--sensitivity", "-30", "--format", "json", path)
@@ -57,7 +59,7 @@ func TestCalibrateJSONContract(t *testing.T) {
 		keys = append(keys, k)
 	}
 	sort.Strings(keys)
-	want := []string{"frequency_hz", "measured_dBFS", "ok", "sensitivity_dBFS", "stable_s"}
+	want := []string{"frequency_hz", "measured_dBFS", "nominal_dBFS", "ok", "reason", "sensitivity_dBFS", "stable_s"}
 	if !reflect.DeepEqual(keys, want) {
 		t.Errorf("keys %v, want %v", keys, want)
 	}
@@ -77,6 +79,7 @@ func TestCalibrateJSONContract(t *testing.T) {
 }
 
 func TestCalibrateErrors(t *testing.T) {
+	t.Setenv("LEQNODE_CONFIG", "none")
 	dir := t.TempDir()
 	f := wav.Format{SampleRate: 16000, Channels: 1, Encoding: wav.PCM16}
 	tone250 := writeWAV(t, dir, "tone250.wav", f, calibratorRecording(16000, 250, -20, 7))
@@ -96,7 +99,7 @@ func TestCalibrateErrors(t *testing.T) {
 		stderr   string // substring of the one-line error
 		okInJSON any    // nil: no JSON expected
 	}{
-		{"no tone", []string{"--format", "json", tone250}, 2, "no calibrator tone found", false},
+		{"no tone", []string{"--format", "json", tone250}, 2, "no calibrator tone found in 11.0 s of audio: found a steady tone at 250.0 Hz", false},
 		{"microphone fault", []string{"--format", "json", "--sensitivity", "-26", cal}, 1, "microphone fault", false},
 		{"frequency off for class 1", []string{"--format", "json", offFreq}, 1, "class 1 calibrator", false},
 		{"frequency fine for class 2", []string{"--format", "json", "--class", "2", offFreq}, 0, "", true},
@@ -126,6 +129,89 @@ func TestCalibrateErrors(t *testing.T) {
 			if _, has := m["frequency_hz"]; !has {
 				t.Errorf("%s: JSON without frequency_hz: %q", tc.name, out)
 			}
+			if r, _ := m["reason"].(string); r == "" || (tc.stderr != "" && !strings.Contains(errs, r)) {
+				t.Errorf("%s: JSON reason %q, want the reason given on stderr %q", tc.name, m["reason"], errs)
+			}
+		}
+	}
+}
+
+// TestCalibrateLevelSwitch: the most common field mistake, a calibrator on its 114 dB setting
+// checked as 94 dB, is caught. A 114 dB tone on a microphone of -26 dBFS reads 114 - 94 - 26 =
+// -6 dBFS (SPL = dBFS - S + 94, "Understanding Microphone Sensitivity", Analog Dialogue), which
+// with --reference 94 implies -6 dBFS: outside the range microphones have without a nominal,
+// 20 dB from the nominal with one (given, configured, or the installed node's).
+func TestCalibrateLevelSwitch(t *testing.T) {
+	t.Setenv("LEQNODE_CONFIG", "none")
+	dir := t.TempDir()
+	f := wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.PCM16}
+	loud := writeWAV(t, dir, "loud.wav", f, calibratorRecording(48000, 1000, -6, 7))
+	cfg := filepath.Join(dir, "node.toml")
+	os.WriteFile(cfg, []byte("version = 1\n[microphone]\nsensitivity_dbfs = -26\n"), 0o644)
+	for _, tc := range []struct {
+		name    string
+		env     string
+		args    []string
+		reasons []string
+	}{
+		{"no nominal", "none", nil, []string{"outside the range microphones have (-60 to -15 dBFS", "fits a 114 dB calibrator", "--reference 114"}},
+		{"data sheet", "none", []string{"--sensitivity", "-26"}, []string{"+20.00 dB from the nominal -26.00 dBFS (--sensitivity)", "--reference 114"}},
+		{"configuration", "none", []string{"--config", cfg}, []string{"from the nominal -26.00 dBFS (microphone.sensitivity_dbfs of " + cfg, "--reference 114"}},
+		{"installed node", cfg, nil, []string{"from the nominal -26.00 dBFS (microphone.sensitivity_dbfs of " + cfg, "--reference 114"}},
+	} {
+		t.Setenv("LEQNODE_CONFIG", tc.env)
+		code, out, errs := runCmd(t, nil, append(append([]string{"calibrate", "--reference", "94", "--format", "json"}, tc.args...), loud)...)
+		var m map[string]any
+		if err := json.Unmarshal([]byte(out), &m); err != nil {
+			t.Fatalf("%s: output %q: %v", tc.name, out, err)
+		}
+		if code != 1 || m["ok"] != false {
+			t.Errorf("%s: exit %d, ok %v; want 1 and false (stderr %q)", tc.name, code, m["ok"], errs)
+		}
+		for _, r := range tc.reasons {
+			if s, _ := m["reason"].(string); !strings.Contains(s, r) {
+				t.Errorf("%s: reason %q lacks %q", tc.name, s, r)
+			}
+		}
+		// Given the right level, the same recording passes.
+		code, out, errs = runCmd(t, nil, append(append([]string{"calibrate", "--reference", "114", "--format", "json"}, tc.args...), loud)...)
+		if code != 0 || !strings.Contains(out, `"ok":true`) {
+			t.Errorf("%s with --reference 114: exit %d, %s %s", tc.name, code, out, errs)
+		}
+	}
+}
+
+// TestCalibrateSaysWhatItFound: a recording without a calibrator tone gets a reason that says
+// what it held instead, from the test signal's construction: a 1 kHz tone with white noise
+// 3 dB below it (its band well under 20 dB above the top band, which holds about a fifth of
+// the noise), a 1 kHz tone whose level swings by 2 dB, and a tone held for 2 s.
+func TestCalibrateSaysWhatItFound(t *testing.T) {
+	t.Setenv("LEQNODE_CONFIG", "none")
+	dir := t.TempDir()
+	f := wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.PCM16}
+	noisy := make([]float32, 10*48000)
+	drifting := make([]float32, 10*48000)
+	rng := rand.New(rand.NewPCG(7, 7))
+	amp := math.Pow(10, -12.0/20)
+	for i := range noisy {
+		ti := float64(i) / 48000
+		s := math.Sin(2 * math.Pi * 1000 * ti)
+		noisy[i] = float32(amp*s + amp/math.Sqrt2*math.Pow(10, -3.0/20)*rng.NormFloat64())
+		drifting[i] = float32(amp * math.Pow(10, (1*math.Sin(2*math.Pi*0.25*ti))/20) * s)
+	}
+	for _, tc := range []struct {
+		name string
+		x    []float32
+		want string
+	}{
+		{"noisy", noisy, "dB above the background in the other bands, where a calibrator needs 20 dB"},
+		{"drifting", drifting, "its level drifted"},
+		{"short", calibratorRecording(48000, 1000, -12, 2), "held for only"},
+	} {
+		path := writeWAV(t, dir, tc.name+".wav", f, tc.x)
+		code, out, errs := runCmd(t, nil, "calibrate", "--format", "json", path)
+		if code != 2 || !strings.Contains(errs, tc.want) || !strings.Contains(out, tc.want) {
+			t.Errorf("%s: exit %d, stderr %q, JSON %q; want exit 2 and %q", tc.name, code, errs, out, tc.want)
 		}
 	}
 }

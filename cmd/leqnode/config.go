@@ -7,7 +7,22 @@ import (
 	"github.com/leqnode/leqnode/node/config"
 )
 
+const configUsage = `usage: leqnode config check FILE
+
+Checks a configuration file: every problem is listed on standard error, one line each
+(file:line: key: what is wrong: what to do), and the exit status is 2. A valid file is
+printed in full with every default filled in, as the daemon runs it; advice about risky
+but allowed settings (a status page served to the network without a token) goes to
+standard error as "warning:" lines and does not change the exit status 0.`
+
 func runConfig(ctx context.Context, std stdio, args []string) error {
+	if len(args) > 0 {
+		switch args[0] {
+		case "-h", "-help", "--help", "help":
+			fmt.Fprintln(std.err, configUsage) // help goes where every command's -h goes
+			return errHelpShown
+		}
+	}
 	if len(args) == 0 || args[0] != "check" {
 		return badInput("usage: leqnode config check FILE")
 	}
@@ -24,6 +39,9 @@ func runConfig(ctx context.Context, std stdio, args []string) error {
 		// One line per problem, each naming the key; exit status 2.
 		fmt.Fprintln(std.err, err)
 		return usageError{fmt.Errorf("%s: the configuration has problems (listed above)", pos[0])}
+	}
+	for _, w := range cfg.Warnings() {
+		fmt.Fprintf(std.err, "warning: %s: %s\n", pos[0], w)
 	}
 	b, err := cfg.Encode()
 	if err != nil {

@@ -15,11 +15,12 @@ import (
 // runDB dispatches the store maintenance subcommands.
 func runDB(ctx context.Context, std stdio, args []string) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
-		fmt.Fprintln(std.err, "usage: leqnode db check (--db FILE | --config FILE) [--format table|json]")
 		if len(args) == 0 {
+			fmt.Fprintln(std.err, "usage: leqnode db check (--db FILE | --config FILE) [--format table|json]")
 			return badInput("give a db subcommand: check")
 		}
-		return errHelpShown
+		fmt.Fprintln(std.err, "leqnode db check: verify a store file (bbolt's page check, every record decodes, the time index and the counters agree) and summarise it in one line")
+		return runDBCheck(ctx, std, []string{"-h"}) // its usage line and flags
 	}
 	switch args[0] {
 	case "check":

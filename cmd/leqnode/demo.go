@@ -18,7 +18,7 @@ import (
 )
 
 func runDemo(ctx context.Context, std stdio, args []string) error {
-	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR]", std.err)
+	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR] [--no-broker]", std.err)
 	dur := fl.Duration("duration", 65*time.Second, "how long to run (0: until interrupted)")
 	fast := fl.Bool("fast", false, "run the synthetic scene as fast as the processor allows instead of in real time")
 	dir := fl.String("dir", "", "directory for the demo's store (default: a new temporary directory, kept)")

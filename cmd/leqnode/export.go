@@ -16,6 +16,7 @@ import (
 	"github.com/leqnode/leqnode/dsp/reference"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // storeFlags are the flags every reading command uses to find its store.
@@ -130,7 +131,7 @@ func (f storeFlags) socket() string {
 // parseWhen parses the value of a time flag: RFC 3339, or a date YYYY-MM-DD meaning its
 // midnight in loc.
 func parseWhen(flag, v string, loc *time.Location) (time.Time, error) {
-	if t, err := time.Parse(time.RFC3339Nano, v); err == nil {
+	if t, err := strict.ParseTime(v); err == nil {
 		return t, nil
 	}
 	if t, err := time.ParseInLocation(time.DateOnly, v, loc); err == nil {

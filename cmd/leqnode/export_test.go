@@ -134,6 +134,8 @@ func TestExportErrors(t *testing.T) {
 		{[]string{"export", "--kind", "second"}, 2, "--db FILE"},
 		{[]string{"export", "--db", path + ".missing", "--kind", "second"}, 2, "no store at"},
 		{[]string{"export", "--db", path, "--kind", "second", "--from", "yesterday"}, 2, "RFC 3339"},
+		// RFC 3339 section 5.6: two-digit hours (time.Parse takes one digit).
+		{[]string{"export", "--db", path, "--kind", "second", "--from", "2026-05-04T7:00:00Z"}, 2, "RFC 3339"},
 		{[]string{"export", "--db", path, "--kind", "second", "--from", "2026-05-05", "--to", "2026-05-04"}, 2, "half-open"},
 		{[]string{"export", "--db", path, "--kind", "second", "--format", "html"}, 2, "csv, jsonl"},
 	} {

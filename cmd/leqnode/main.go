@@ -60,6 +60,7 @@ func commands() map[string]command {
 		"demo":      {"run the node on the synthetic street scene, no microphone needed", runDemo},
 		"config":    {"check a configuration file: config check FILE", runConfig},
 		"devices":   {"list capture devices and the sample rates they take", runDevices},
+		"version":   {"print the release, commit, Go version and platform (also --version)", runVersion},
 	}
 }
 
@@ -93,6 +94,9 @@ func run(ctx context.Context, io stdio, args []string) int {
 			return 2
 		}
 		return 0
+	}
+	if args[0] == "--version" || args[0] == "-version" {
+		args = append([]string{"version"}, args[1:]...)
 	}
 	io.args = args
 	c, ok := cmds[args[0]]

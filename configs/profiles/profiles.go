@@ -24,7 +24,6 @@
 package profiles
 
 import (
-	"bytes"
 	"embed"
 	"errors"
 	"fmt"
@@ -35,7 +34,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/pelletier/go-toml/v2"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 //go:embed *.toml
@@ -241,24 +240,24 @@ type fileZone struct {
 // Parse decodes a profile strictly. name becomes Profile.Name; where names the file in errors.
 func Parse(data []byte, name, where string) (*Profile, error) {
 	var f file
-	dec := toml.NewDecoder(bytes.NewReader(data)).DisallowUnknownFields()
-	if err := dec.Decode(&f); err != nil {
-		var strict *toml.StrictMissingError
-		if errors.As(err, &strict) && len(strict.Errors) > 0 {
-			e := strict.Errors[0]
-			row, _ := e.Position()
-			return nil, fmt.Errorf("%s:%d: unknown key %q: use title, source, composite, [[period]] (name, start, penalty) and [[zone]] (name, title, limits)", where, row, strings.Join(e.Key(), "."))
-		}
-		var de *toml.DecodeError
-		if errors.As(err, &de) {
-			row, _ := de.Position()
-			msg := strings.TrimPrefix(de.Error(), "toml: ")
-			if k := de.Key(); len(k) > 0 {
-				msg = fmt.Sprintf("key %q: %s", strings.Join(k, "."), msg)
+	if err := strict.TOML(data, &f); err != nil {
+		// Every problem, on one line: exact key names (keys in another case are unknown), no
+		// unknown keys, values of the right type.
+		var parts []string
+		for _, p := range strict.Problems(err) {
+			at := where
+			if p.Line > 0 {
+				at = fmt.Sprintf("%s:%d", where, p.Line)
 			}
-			return nil, fmt.Errorf("%s:%d: %s", where, row, msg)
+			msg := p.Msg
+			if rest, unknown := strings.CutPrefix(p.Msg, "unknown key"); unknown {
+				msg = fmt.Sprintf("unknown key %q%s: use title, source, composite, [[period]] (name, start, penalty) and [[zone]] (name, title, limits)", p.Key, rest)
+			} else if p.Key != "" {
+				msg = fmt.Sprintf("key %q: %s", p.Key, p.Msg)
+			}
+			parts = append(parts, at+": "+msg)
 		}
-		return nil, fmt.Errorf("%s: %w", where, err)
+		return nil, errors.New(strings.Join(parts, "; "))
 	}
 	line := func(header string, i int) int { return headerLine(data, header, i) }
 	p := &Profile{Name: name, Title: f.Title, Source: f.Source, Composite: f.Composite}

@@ -124,7 +124,11 @@ func TestParseErrors(t *testing.T) {
 	tests := []struct {
 		name, text, want string
 	}{
-		{"unknown key", "title = \"x\"\n[[period]]\nname = \"day\"\nstrat = \"07:00\"\n", "p.toml:4: unknown key \"period.strat\""},
+		{"unknown key", "title = \"x\"\n[[period]]\nname = \"day\"\nstrat = \"07:00\"\n", "p.toml:4: unknown key \"period[0].strat\""},
+		// Keys differ in case: go-toml matched them without regard to case (issue 20).
+		{"key in another case", "TITLE = \"x\"\n[[period]]\nname = \"day\"\nstart = \"07:00\"\n", "p.toml:1: unknown key \"TITLE\" (keys are case-sensitive: write \"title\")"},
+		{"table in another case", "[[Period]]\nname = \"day\"\nstart = \"07:00\"\n", "p.toml:1: unknown key \"Period\""},
+		{"limit of the wrong type", "[[period]]\nname = \"day\"\nstart = \"07:00\"\n[[zone]]\nname = \"z\"\nlimits = { day = \"55\" }\n", "key \"zone[0].limits.day\": want a number, got the string \"55\""},
 		{"bad clock", "[[period]]\nname = \"day\"\nstart = \"7am\"\n", "p.toml:3:"},
 		{"hour 24", "[[period]]\nname = \"day\"\nstart = \"24:00\"\n", "HH:MM from 00:00"},
 		{"no periods", "title = \"x\"\n", "no periods"},

@@ -116,7 +116,7 @@ type Result struct {
 	// SensitivityDBFS is the sensitivity the tone implies: LevelDBFS + 94 - Reference.
 	SensitivityDBFS float64
 	// FrequencyPlausible reports whether the tone's frequency lies within the calibrator
-	// class's tolerance of 1 kHz (IEC 60942:2017 Table 4, widened by its uncertainty).
+	// class's limit around 1 kHz (IEC 60942:2017 Table 4).
 	FrequencyPlausible bool
 }
 
@@ -151,6 +151,7 @@ func FromReader(ctx context.Context, r io.Reader, opts Options) (*Result, error)
 	}
 	cfg := o.Detector
 	cfg.SampleRate = float64(f.SampleRate)
+	cfg.Diagnose = true // to say what was found when no calibrator is
 	det, err := dsp.NewCalibratorDetector(cfg)
 	if err != nil {
 		return nil, err
@@ -184,11 +185,43 @@ func FromReader(ctx context.Context, r io.Reader, opts Options) (*Result, error)
 	det.Flush(found)
 	if res.Detections == 0 {
 		secs := float64(det.Position()) / cfg.SampleRate
-		return nil, fmt.Errorf("%w in %.1f s of audio: hold a 1 kHz calibrator on the microphone for at least %g s", ErrNoTone, secs, minStable(cfg))
+		c, maxDom, ok := det.Candidate()
+		return nil, fmt.Errorf("%w in %.1f s of audio: %s", ErrNoTone, secs, describeCandidate(c, maxDom, ok, cfg))
 	}
 	res.SensitivityDBFS = Sensitivity(res.Detection.LevelDBFS, o.Reference)
 	res.FrequencyPlausible = dsp.CalibratorTolerances(o.Class).FrequencyPlausible(res.Detection.FrequencyHz, dsp.CalibratorFrequency)
 	return res, nil
+}
+
+// describeCandidate says what a recording without a calibrator tone held instead, and what to
+// do about it, judged by the detector's rules (cfg's values, defaults where zero).
+func describeCandidate(c dsp.ToneCandidate, maxDom float64, ok bool, cfg dsp.CalibratorConfig) string {
+	or := func(v, d float64) float64 {
+		if v == 0 {
+			return d
+		}
+		return v
+	}
+	tol := or(cfg.FrequencyTolerance, dsp.DefaultCalibratorFrequencyTolerance)
+	need := or(cfg.DominanceDB, dsp.DefaultCalibratorDominance)
+	stab := or(cfg.StabilityDB, dsp.DefaultCalibratorStability)
+	minS := minStable(cfg)
+	hold := fmt.Sprintf("hold a 1 kHz calibrator on the microphone for at least %g s", minS)
+	switch {
+	case !ok && math.IsInf(maxDom, -1):
+		return "the recording is digital silence: check the input and its gain, then " + hold
+	case !ok:
+		return fmt.Sprintf("no steady tone, only sound spread over many bands (no one-third-octave band stood more than %.1f dB above the others): %s", math.Max(maxDom, 0), hold)
+	case math.Abs(c.FrequencyHz-dsp.CalibratorFrequency) > tol*dsp.CalibratorFrequency:
+		return fmt.Sprintf("found a steady tone at %.1f Hz (%.1f dBFS, %.1f s), not at 1 kHz: set the calibrator to 1 kHz (some offer 250 Hz), or this is another sound; %s", c.FrequencyHz, c.LevelDBFS, c.Seconds, hold)
+	case c.DominanceDB < need:
+		return fmt.Sprintf("found a 1 kHz tone (%.1f dBFS, %.1f s) standing only %.1f dB above the background in the other bands, where a calibrator needs %g dB: seat the calibrator fully on the microphone, or check in a quieter place", c.LevelDBFS, c.Seconds, c.DominanceDB, need)
+	case c.Seconds < minS:
+		return fmt.Sprintf("found a 1 kHz tone (%.1f dBFS) held for only %.1f s: %s", c.LevelDBFS, c.Seconds, hold)
+	case c.SteadySeconds < minS:
+		return fmt.Sprintf("found a 1 kHz tone (%.1f dBFS) for %.1f s, but its level drifted: it stayed within %g dB for at most %.1f s, where a calibrator holds it for %g s; hold the calibrator still, let it settle, and check its battery", c.LevelDBFS, c.Seconds, stab, c.SteadySeconds, minS)
+	}
+	return fmt.Sprintf("found a 1 kHz tone (%.1f dBFS, %.1f s) that did not stay steady enough: %s", c.LevelDBFS, c.Seconds, hold)
 }
 
 func minStable(c dsp.CalibratorConfig) float64 {

@@ -15,6 +15,11 @@ type Summary struct {
 	SensitivityDBFS *float64 `json:"sensitivity_dBFS"`
 	StableS         *float64 `json:"stable_s"`
 	OK              bool     `json:"ok"`
+	// NominalDBFS is the sensitivity the result was judged against, when one was known.
+	NominalDBFS *float64 `json:"nominal_dBFS,omitempty"`
+	// Reason says why OK is what it is, in one sentence (Judgement.Reason, or what a
+	// recording without a calibrator tone held).
+	Reason string `json:"reason,omitempty"`
 }
 
 // Summarize returns the summary of a result, values rounded to 0.001; ok says whether the result may be applied

@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // StateFile is the name of the sensitivity state file in the node's state directory.
@@ -56,7 +57,7 @@ func LoadState(dir string) (*State, error) {
 		return nil, err
 	}
 	var s State
-	if err := json.Unmarshal(b, &s); err != nil {
+	if err := strict.JSON(b, &s); err != nil {
 		return nil, fmt.Errorf("sensitivity state %s is damaged (%v): remove it and calibrate again", path, err)
 	}
 	if err := s.validate(); err != nil {

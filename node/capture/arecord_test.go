@@ -247,7 +247,7 @@ func TestArecordNotInstalled(t *testing.T) {
 }
 
 func TestArecordArgs(t *testing.T) {
-	c := Config{Kind: KindArecord, Device: "hw:CARD=Mic,DEV=0", Sample: Int24in32, Channels: 2, Channel: 2}.withDefaults()
+	c := Config{Kind: KindArecord, Device: "hw:CARD=Mic,DEV=0", Sample: Int24in32, Channels: 2, Channel: 2}.WithDefaults()
 	got := strings.Join(newArecord(c, nil).args(), " ")
 	want := "-D hw:CARD=Mic,DEV=0 -f S32_LE -r 48000 -c 2 -t raw --disable-resample"
 	if got != want {

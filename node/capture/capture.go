@@ -129,7 +129,7 @@ func newSource(c Config, r io.Reader, logger *slog.Logger) (Source, error) {
 	if logger == nil {
 		logger = slog.New(slog.DiscardHandler)
 	}
-	c = c.withDefaults()
+	c = c.WithDefaults()
 	logger = logger.With("source", c.Kind)
 	switch c.Kind {
 	case KindPortAudio:

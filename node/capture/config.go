@@ -5,9 +5,9 @@ import (
 	"math"
 	"strconv"
 	"strings"
-	"time"
 
 	"github.com/leqnode/leqnode/node/scene"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // Config selects and sets up a source; it is one section of the node's TOML config file
@@ -161,7 +161,7 @@ func (c Config) Validate() []error {
 		bad("duration_s", c.DurationSeconds, "out of range; use 0 (endless) or a positive number of seconds")
 	}
 	if c.Start != "" {
-		if _, err := time.Parse(time.RFC3339, c.Start); err != nil {
+		if _, err := strict.ParseTime(c.Start); err != nil {
 			bad("start", c.Start, "not an RFC 3339 time; write it like 2026-06-01T07:00:00+01:00")
 		}
 	}
@@ -182,9 +182,9 @@ func quote(v any) string {
 	return fmt.Sprint(v)
 }
 
-// withDefaults returns c with zero fields replaced by the defaults that do not depend on the
+// WithDefaults returns c with zero fields replaced by the defaults that do not depend on the
 // device or the stream.
-func (c Config) withDefaults() Config {
+func (c Config) WithDefaults() Config {
 	if c.Channel == 0 {
 		c.Channel = 1
 	}

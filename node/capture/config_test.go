@@ -29,6 +29,8 @@ func TestValidate(t *testing.T) {
 		{"stdin format", Config{Kind: KindStdin, StdinFormat: "flac"}, []string{`stdin_format = "flac"`}},
 		{"calibrator", Config{Kind: KindSynthetic, CalibratorSeconds: -1}, []string{"calibrator_s = -1"}},
 		{"start", Config{Kind: KindSynthetic, Start: "tomorrow"}, []string{`start = "tomorrow": not an RFC 3339 time`}},
+		// RFC 3339 section 5.6: time-hour is 2DIGIT (time.Parse takes one digit).
+		{"start one-digit hour", Config{Kind: KindSynthetic, Start: "2026-06-01T7:00:00Z"}, []string{`start = "2026-06-01T7:00:00Z": not an RFC 3339 time`}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

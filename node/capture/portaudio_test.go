@@ -207,7 +207,7 @@ func TestPortAudioChild(t *testing.T) {
 			src.Close()
 		}
 		// More channels than the device has (a config that passed Validate's 1 to 64).
-		src, _ := newPortAudio(Config{Kind: KindPortAudio, Device: "testsig32", Channels: 1000, Channel: 1}.withDefaults(), slog.New(slog.DiscardHandler))
+		src, _ := newPortAudio(Config{Kind: KindPortAudio, Device: "testsig32", Channels: 1000, Channel: 1}.WithDefaults(), slog.New(slog.DiscardHandler))
 		if _, err := src.Open(context.Background()); err == nil || !strings.Contains(err.Error(), "captures at most 128") {
 			t.Errorf("1000 channels: %v", err)
 		}

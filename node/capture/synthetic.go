@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/node/scene"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // synthetic delivers the invented street scene of package scene.
@@ -46,7 +47,7 @@ func (s *synthetic) sceneConfig(now time.Time) scene.Config {
 	sc := scene.Config{SampleRate: s.cfg.SampleRate, Seed: s.cfg.Seed, CalibratorSeconds: s.cfg.CalibratorSeconds}
 	switch {
 	case s.cfg.Start != "":
-		sc.Start, _ = time.Parse(time.RFC3339, s.cfg.Start) // checked by Validate
+		sc.Start, _ = strict.ParseTime(s.cfg.Start) // checked by Validate
 	case s.cfg.Realtime:
 		sc.Start = now
 	}

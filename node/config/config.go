@@ -9,7 +9,6 @@
 package config
 
 import (
-	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
 	"errors"
@@ -26,6 +25,7 @@ import (
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // Version is the configuration format this release reads and writes.
@@ -192,9 +192,9 @@ type Store struct {
 }
 
 // Default returns the embedded defaults: the synthetic scene, one-third-octave bands, a store
-// in the working directory.
+// in the working directory, and every section's defaults filled in (see WithDefaults).
 func Default() *Config {
-	return &Config{
+	c := &Config{
 		Version: Version,
 		Node:    Node{ID: "wendle-cross-01", Site: "Harrowby Lane, Wendle Cross (invented)", LocationDecimals: 2, TimeZone: "UTC"},
 		Microphone: Microphone{
@@ -208,41 +208,81 @@ func Default() *Config {
 		Events: Events{Enabled: true, ThresholdDB: 70, HysteresisDB: 3, HoldS: 1, MinDurationS: 1,
 			MaxDurationS: 300, Spectrum: true},
 	}
+	c.WithDefaults()
+	return c
 }
 
-// Parse decodes a configuration file strictly over the defaults. name is used in errors.
+// WithDefaults fills the defaults that depend on other keys or belong to another package's
+// section: the audio source's (capture.Config.WithDefaults, by kind) and MQTT publishing's
+// (publish.Config.WithDefaults; the client id follows node.id). Parse calls it after
+// decoding, so `config check` prints the values the daemon runs with.
+func (c *Config) WithDefaults() {
+	c.Capture = c.Capture.WithDefaults()
+	c.Publish = c.Publish.WithDefaults(c.Node.ID)
+}
+
+// Parse decodes a configuration file strictly over the defaults (package strict: exact key
+// names, no unknown keys, plain-word type errors) and validates it. name is used in errors.
+// The error lists every problem, one line each: those of the file's form first, then those
+// of its values.
 func Parse(data []byte, name string) (*Config, error) {
 	c := Default()
 	c.Version = 0
-	dec := toml.NewDecoder(bytes.NewReader(data)).DisallowUnknownFields()
-	if err := dec.Decode(c); err != nil {
-		var strict *toml.StrictMissingError
-		if errors.As(err, &strict) && len(strict.Errors) > 0 {
-			var lines []string
-			for _, e := range strict.Errors {
-				row, _ := e.Position()
-				lines = append(lines, fmt.Sprintf("%s:%d: unknown key %q: check its spelling against configs/leqnode.toml", name, row, strings.Join(e.Key(), ".")))
+	c.Publish = publish.Config{}
+	var lines []string
+	reported := map[string]bool{}
+	if err := strict.TOML(data, c); err != nil {
+		for _, p := range strict.Problems(err) {
+			at := name
+			if p.Line > 0 {
+				at = fmt.Sprintf("%s:%d", name, p.Line)
 			}
-			return nil, errors.New(strings.Join(lines, "\n"))
-		}
-		var de *toml.DecodeError
-		if errors.As(err, &de) {
-			row, _ := de.Position()
-			if k := de.Key(); len(k) > 0 {
-				return nil, fmt.Errorf("%s:%d: %s: %s: give a value of the type configs/leqnode.toml shows", name, row, strings.Join(k, "."), de.Error())
+			switch rest, unknown := strings.CutPrefix(p.Msg, "unknown key"); {
+			case p.Key == "":
+				lines = append(lines, fmt.Sprintf("%s: %s", at, p.Msg))
+			case unknown:
+				lines = append(lines, fmt.Sprintf("%s: unknown key %q%s: check its spelling against configs/leqnode.toml", at, p.Key, rest))
+			default:
+				lines = append(lines, fmt.Sprintf("%s: %s: %s: give a value of the type configs/leqnode.toml shows", at, p.Key, p.Msg))
 			}
-			return nil, fmt.Errorf("%s:%d: %s", name, row, de.Error())
+			reported[p.Key] = true
 		}
-		return nil, fmt.Errorf("%s: %w", name, err)
 	}
-	if errs := c.Validate(); len(errs) > 0 {
-		lines := make([]string, len(errs))
-		for i, e := range errs {
-			lines[i] = name + ": " + e.Error()
+	c.WithDefaults()
+	for _, e := range c.Validate() {
+		key, _, _ := strings.Cut(e.Error(), " = ")
+		if !reported[key] {
+			lines = append(lines, name+": "+e.Error())
 		}
+	}
+	if len(lines) > 0 {
 		return nil, errors.New(strings.Join(lines, "\n"))
 	}
 	return c, nil
+}
+
+// Warnings returns advice about a valid configuration that is allowed but risky, one line
+// each: the status page served beyond this machine without an access token.
+func (c *Config) Warnings() []string {
+	var w []string
+	if c.Web.Enabled && c.Web.TokenFile == "" && !loopback(c.Web.Addr) {
+		w = append(w, fmt.Sprintf("web.addr = %q serves the status page and metrics to the network without a token: set web.token_file, or listen on 127.0.0.1 and reach it through an SSH tunnel", c.Web.Addr))
+	}
+	return w
+}
+
+// loopback reports whether the host of addr (host:port) is a loopback name or address; an
+// empty host means every interface.
+func loopback(addr string) bool {
+	host, _, err := net.SplitHostPort(addr)
+	if err != nil || host == "" {
+		return false
+	}
+	if host == "localhost" {
+		return true
+	}
+	ip := net.ParseIP(host)
+	return ip != nil && ip.IsLoopback()
 }
 
 // Load reads and parses a configuration file.

@@ -98,3 +98,87 @@ func TestSectionsKeepDefaults(t *testing.T) {
 		t.Errorf("defaults lost: %+v %+v %+v", c.Microphone, c.Calibration, c.Events)
 	}
 }
+
+// TestEveryProblemAtOnce: keys in another case are unknown (go-toml matched them without
+// regard to case), and one unknown key does not hide the other problems: the form's and the
+// values' problems come together, type errors in plain words without Go type names.
+func TestEveryProblemAtOnce(t *testing.T) {
+	text := "version = 1\n[Node]\nid = \"x\"\n[capture]\nsample_rate = \"fast\"\nSAMPLE_RATE = 5\n[microphone]\nsensitivity_dbfs = 12\noverload_db = 3\n[events]\nthreshold_db = \"loud\"\n"
+	_, err := Parse([]byte(text), "test.toml")
+	if err == nil {
+		t.Fatal("accepted")
+	}
+	want := []string{
+		`test.toml:2: unknown key "Node" (keys are case-sensitive: write "node")`,
+		`test.toml:6: unknown key "capture.SAMPLE_RATE" (keys are case-sensitive: write "sample_rate")`,
+		`test.toml:5: capture.sample_rate: want a whole number, got the string "fast"`,
+		`test.toml:11: events.threshold_db: want a number, got the string "loud"`,
+		`microphone.sensitivity_dbfs = 12`,
+		`microphone.overload_db = 3`,
+	}
+	msg := err.Error()
+	for _, w := range want {
+		if !strings.Contains(msg, w) {
+			t.Errorf("error lacks %q:\n%s", w, msg)
+		}
+	}
+	if n := strings.Count(msg, "\n") + 1; n != len(want) {
+		t.Errorf("%d lines, want %d:\n%s", n, len(want), msg)
+	}
+	for _, goName := range []string{"struct field", "of type", "capture.Config", "float64", "int64"} {
+		if strings.Contains(msg, goName) {
+			t.Errorf("error names Go types (%q):\n%s", goName, msg)
+		}
+	}
+}
+
+// TestResolvedDefaults: the parsed configuration carries the defaults the daemon runs with,
+// including those of the publish and capture sections (the values of node/publish and
+// node/capture, not zero values).
+func TestResolvedDefaults(t *testing.T) {
+	c, err := Parse([]byte("version = 1\n[node]\nid = \"wendle-cross-07\"\n[capture]\nkind = \"arecord\"\n"), "test.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := c.Publish
+	if p.TopicPrefix != "leqnode" || p.KeepAlive.String() != "30s" || p.ClientID != "leqnode-wendle-cross-07" || p.MaxInFlight != 32 || p.Commands.MaxPayloadBytes != 1024 {
+		t.Errorf("publish defaults not filled: %+v", p)
+	}
+	if c.Capture.Device != "default" || c.Capture.ArecordPath != "arecord" || c.Capture.StdinFormat == "" {
+		t.Errorf("capture defaults not filled: %+v", c.Capture)
+	}
+	b, err := c.Encode()
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, zero := range []string{"topic_prefix = ''", "keep_alive = '0s'"} {
+		if strings.Contains(string(b), zero) {
+			t.Errorf("resolved configuration shows the zero value %s", zero)
+		}
+	}
+}
+
+func TestWarnings(t *testing.T) {
+	tests := []struct {
+		web  string
+		warn bool
+	}{
+		{"enabled = true\naddr = \"0.0.0.0:8080\"\n", true},
+		{"enabled = true\naddr = \":8080\"\n", true},
+		{"enabled = true\naddr = \"192.0.2.7:8080\"\n", true},
+		{"enabled = true\naddr = \"0.0.0.0:8080\"\ntoken_file = \"/etc/leqnode/token\"\n", false},
+		{"enabled = true\naddr = \"127.0.0.1:8080\"\n", false},
+		{"enabled = true\naddr = \"[::1]:8080\"\n", false},
+		{"enabled = true\naddr = \"localhost:8080\"\n", false},
+		{"enabled = false\naddr = \"0.0.0.0:8080\"\n", false},
+	}
+	for _, tt := range tests {
+		c, err := Parse([]byte("version = 1\n[web]\n"+tt.web), "test.toml")
+		if err != nil {
+			t.Fatal(err)
+		}
+		if w := c.Warnings(); (len(w) > 0) != tt.warn {
+			t.Errorf("%q: warnings %q, want any: %v", tt.web, w, tt.warn)
+		}
+	}
+}

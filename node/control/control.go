@@ -30,6 +30,8 @@ import (
 	"time"
 
 	"golang.org/x/sys/unix"
+
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // Handlers answer the requests. Nil handlers answer 404.
@@ -133,7 +135,14 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			return
 		}
 		var args []string
-		if err := json.NewDecoder(io.LimitReader(r.Body, 64<<10)).Decode(&args); err != nil || len(args) == 0 {
+		body, err := io.ReadAll(io.LimitReader(r.Body, 64<<10+1))
+		if err == nil && len(body) > 64<<10 {
+			err = errors.New("longer than 64 KiB")
+		}
+		if err == nil {
+			err = strict.JSON(body, &args)
+		}
+		if err != nil || len(args) == 0 {
 			http.Error(w, "the body must be a JSON array of command arguments", http.StatusBadRequest)
 			return
 		}

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"net/http"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -94,6 +95,18 @@ func TestStatusAndExec(t *testing.T) {
 	}
 	if err := c.Exec(context.Background(), []string{"run"}, io.Discard); err == nil || !strings.Contains(err.Error(), "cannot run through") {
 		t.Errorf("run through the socket: %v", err)
+	}
+	// The body is exactly one JSON array of strings (issue 20): the old decoder read the
+	// first of two values and took null for "".
+	for _, body := range []string{`["export","--kind","second"] ["db"]`, `["export",null]`, `{"0":"export"}`, `["export",1]`, "[\"export\",\"\xff\"]"} {
+		resp, err := c.hc.Post("http://leqnode/exec", "application/json", strings.NewReader(body))
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		if resp.StatusCode != http.StatusBadRequest {
+			t.Errorf("exec body %q: status %d, want 400", body, resp.StatusCode)
+		}
 	}
 	if err := c.Get(context.Background(), "health", &st); err == nil {
 		t.Error("a missing handler should answer an error")

@@ -1,16 +1,17 @@
 package publish
 
 import (
-	"bytes"
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"regexp"
 	"slices"
+	"strconv"
+	"strings"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // command is a remote command as it arrives on PREFIX/NODE/command:
@@ -18,72 +19,133 @@ import (
 //	{"schema_version": 1, "id": "req-42", "action": "resend",
 //	 "from": "2031-05-04T10:00:00Z", "to": "2031-05-04T11:00:00Z", "kinds": ["second", "minute"]}
 //
-// from, to and kinds belong to resend only (kinds defaults to every data kind).
+// from, to and kinds belong to resend only (kinds defaults to every data kind). The shape is
+// configs/schema/command.schema.json's, key for key: decodeCommand accepts exactly what the
+// schema accepts.
 type command struct {
-	SchemaVersion int      `json:"schema_version"`
-	ID            string   `json:"id"`
-	Action        string   `json:"action"`
-	From          string   `json:"from,omitempty"`
-	To            string   `json:"to,omitempty"`
-	Kinds         []string `json:"kinds,omitempty"`
+	SchemaVersion json.Number `json:"schema_version"`
+	ID            string      `json:"id"`
+	Action        string      `json:"action"`
+	From          *string     `json:"from,omitempty"`
+	To            *string     `json:"to,omitempty"`
+	Kinds         []string    `json:"kinds,omitempty"`
 }
 
 var commandIDRe = regexp.MustCompile(`^[A-Za-z0-9._:-]{1,64}$`)
+
+// commandActions are the actions the schema knows (Config.Commands.Allow picks among them).
+var commandActions = []string{ActionCalibrationCheck, ActionPublishStatus, ActionResend}
 
 // resendKinds are the kinds a resend covers by default: all of them but health.
 var resendKinds = []buffer.Kind{buffer.KindSecond, buffer.KindMinute, buffer.KindEvent, buffer.KindCalibration,
 	buffer.KindGap, buffer.KindAnnotation, buffer.KindSession}
 
-// parseCommand validates a command payload strictly: size cap, one JSON object with only the
-// known fields, the schema version, an id, an allowed action and, for resend, a valid range of at
-// most maxRange. It returns the command and, for resend, the range and kinds.
+// decodeCommand decodes a payload and checks it against the command schema
+// (configs/schema/command.schema.json): exact key names, no other keys, schema_version equal
+// to SchemaVersion as a number (1 and 1.0 alike, as JSON Schema's const compares), an id, a
+// known action, from and to as RFC 3339 date-times for resend only, and 1 to 8 known kinds.
+// It returns the resend range parsed; it judges nothing the schema cannot say (see
+// parseCommand).
+func decodeCommand(b []byte) (c command, from, to time.Time, err error) {
+	if err := strict.JSON(b, &c); err != nil {
+		return c, from, to, fmt.Errorf("not a command object: %w", err)
+	}
+	if c.SchemaVersion == "" {
+		return c, from, to, errors.New("schema_version missing")
+	}
+	if !numberIs(string(c.SchemaVersion), SchemaVersion) {
+		return c, from, to, fmt.Errorf("schema_version %.20s: want %d", c.SchemaVersion, SchemaVersion)
+	}
+	if !commandIDRe.MatchString(c.ID) {
+		return c, from, to, errors.New("id missing or not 1 to 64 letters, digits, '.', '_', ':' or '-'")
+	}
+	if !slices.Contains(commandActions, c.Action) {
+		return c, from, to, fmt.Errorf("action %.40q unknown: want one of %s", c.Action, strings.Join(commandActions, ", "))
+	}
+	if c.Action != ActionResend {
+		if c.From != nil || c.To != nil || c.Kinds != nil {
+			return c, from, to, fmt.Errorf("action %s takes no from, to or kinds", c.Action)
+		}
+		return c, from, to, nil
+	}
+	if c.From == nil || c.To == nil {
+		return c, from, to, errors.New("resend needs from and to")
+	}
+	if from, err = strict.ParseTime(*c.From); err != nil {
+		return c, from, to, fmt.Errorf("from: %w", err)
+	}
+	if to, err = strict.ParseTime(*c.To); err != nil {
+		return c, from, to, fmt.Errorf("to: %w", err)
+	}
+	if c.Kinds != nil {
+		if len(c.Kinds) == 0 || len(c.Kinds) > len(buffer.Kinds()) {
+			return c, from, to, fmt.Errorf("kinds must list 1 to %d record kinds", len(buffer.Kinds()))
+		}
+		for _, s := range c.Kinds {
+			if _, err := buffer.ParseKind(s); err != nil {
+				return c, from, to, fmt.Errorf("kinds: unknown kind %.20q", s)
+			}
+		}
+	}
+	return c, from, to, nil
+}
+
+// numberIs reports whether the JSON number num equals want exactly, as JSON Schema compares
+// numbers (1, 1.0, 10e-1 and 0.1e1 are all 1), without turning a large exponent into a large
+// computation.
+func numberIs(num string, want int64) bool {
+	neg := strings.HasPrefix(num, "-")
+	num = strings.TrimPrefix(num, "-")
+	mant, exps, _ := strings.Cut(strings.ToLower(num), "e")
+	ip, fp, _ := strings.Cut(mant, ".")
+	digits := strings.TrimLeft(ip+fp, "0")
+	if digits == "" {
+		return want == 0
+	}
+	exp := 0
+	if exps != "" {
+		e, err := strconv.Atoi(exps)
+		if err != nil {
+			return false // an exponent beyond int: far from any small integer
+		}
+		exp = e
+	}
+	trimmed := strings.TrimRight(digits, "0")
+	scale := exp - len(fp) + len(digits) - len(trimmed)
+	w := strconv.FormatInt(want, 10)
+	if (want < 0) != neg {
+		return false
+	}
+	w = strings.TrimPrefix(w, "-")
+	wd := strings.TrimRight(w, "0")
+	return trimmed == wd && scale == len(w)-len(wd)
+}
+
+// parseCommand validates a command payload: size cap, the schema (decodeCommand), then what
+// the schema cannot say: an action this node allows and, for resend, a range with to after
+// from and at most maxRange long. It returns the command and, for resend, the range and kinds
+// (duplicates dropped).
 func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration) (c command, from, to time.Time, kinds []buffer.Kind, err error) {
 	if len(b) > maxBytes {
 		return c, from, to, nil, fmt.Errorf("payload of %d bytes exceeds the cap of %d", len(b), maxBytes)
 	}
-	dec := json.NewDecoder(bytes.NewReader(b))
-	dec.DisallowUnknownFields()
-	if err := dec.Decode(&c); err != nil {
-		return c, from, to, nil, fmt.Errorf("not a command object: %w", err)
-	}
-	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
-		return c, from, to, nil, errors.New("data after the command object")
-	}
-	if c.SchemaVersion != SchemaVersion {
-		return c, from, to, nil, fmt.Errorf("schema_version %d: want %d", c.SchemaVersion, SchemaVersion)
-	}
-	if !commandIDRe.MatchString(c.ID) {
-		return c, from, to, nil, errors.New("id missing or not 1 to 64 letters, digits, '.', '_', ':' or '-'")
+	if c, from, to, err = decodeCommand(b); err != nil {
+		return c, from, to, nil, err
 	}
 	if !slices.Contains(allow, c.Action) {
-		return c, from, to, nil, fmt.Errorf("action %.40q not allowed", c.Action)
+		return c, from, to, nil, fmt.Errorf("action %.40q not allowed on this node (publish.commands.allow)", c.Action)
 	}
 	if c.Action != ActionResend {
-		if c.From != "" || c.To != "" || c.Kinds != nil {
-			return c, from, to, nil, fmt.Errorf("action %s takes no from, to or kinds", c.Action)
-		}
 		return c, from, to, nil, nil
 	}
-	if from, err = time.Parse(time.RFC3339, c.From); err != nil {
-		return c, from, to, nil, errors.New("from is not an RFC 3339 time")
-	}
-	if to, err = time.Parse(time.RFC3339, c.To); err != nil {
-		return c, from, to, nil, errors.New("to is not an RFC 3339 time")
-	}
 	if !to.After(from) || to.Sub(from) > maxRange {
-		return c, from, to, nil, fmt.Errorf("range from %s to %s: want to after from and at most %s", c.From, c.To, maxRange)
+		return c, from, to, nil, fmt.Errorf("range from %s to %s: want to after from and at most %s", *c.From, *c.To, maxRange)
 	}
 	if c.Kinds == nil {
 		return c, from, to, resendKinds, nil
 	}
-	if len(c.Kinds) == 0 || len(c.Kinds) > len(buffer.Kinds()) {
-		return c, from, to, nil, errors.New("kinds must list 1 to 8 record kinds")
-	}
 	for _, s := range c.Kinds {
-		k, err := buffer.ParseKind(s)
-		if err != nil {
-			return c, from, to, nil, fmt.Errorf("kinds: unknown kind %.20q", s)
-		}
+		k, _ := buffer.ParseKind(s) // checked by decodeCommand
 		if !slices.Contains(kinds, k) {
 			kinds = append(kinds, k)
 		}

@@ -1,13 +1,21 @@
 package publish
 
 import (
+	"bytes"
 	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
 	"path/filepath"
+	"regexp"
+	"strconv"
 	"strings"
 	"testing"
 	"time"
+	"unicode/utf8"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
+	"github.com/santhosh-tekuri/jsonschema/v6"
 
 	"github.com/leqnode/leqnode/buffer"
 )
@@ -29,8 +37,24 @@ func TestParseCommand(t *testing.T) {
 		{"malformed", `{"schema_version":1,"id":`, allActions, "not a command object"},
 		{"not an object", `[1,2]`, allActions, "not a command object"},
 		{"two objects", `{"schema_version":1,"id":"a","action":"publish_status"}{}`, allActions, "data after"},
-		{"unknown field", `{"schema_version":1,"id":"a","action":"publish_status","x":1}`, allActions, "unknown field"},
-		{"unknown action", `{"schema_version":1,"id":"a","action":"format_disk"}`, allActions, "not allowed"},
+		{"unknown field", `{"schema_version":1,"id":"a","action":"publish_status","x":1}`, allActions, "unknown key"},
+		{"unknown action", `{"schema_version":1,"id":"a","action":"format_disk"}`, allActions, "unknown: want one of"},
+		// The payload of issue 20 and its relatives: keys differing in case, one-digit hours.
+		{"keys in another case", `{"sChemA_version":1,"id":"00","ACtion":"resend","from":"2031-05-01T0:00:00Z","to":"2031-05-01T1:00:00Z"}`, allActions, `sChemA_version: unknown key (keys are case-sensitive: write "schema_version")`},
+		{"one key in another case", `{"schema_version":1,"ID":"a","id":"a","action":"publish_status"}`, allActions, `ID: unknown key`},
+		{"one-digit hour", `{"schema_version":1,"id":"00","action":"resend","from":"2031-05-01T0:00:00Z","to":"2031-05-01T01:00:00Z"}`, allActions, "from: \"2031-05-01T0:00:00Z\" is not an RFC 3339 time"},
+		{"one-digit minute", `{"schema_version":1,"id":"00","action":"resend","from":"2031-05-01T00:00:00Z","to":"2031-05-01T01:0:00Z"}`, allActions, "to: "},
+		{"space for T", `{"schema_version":1,"id":"00","action":"resend","from":"2031-05-01 00:00:00Z","to":"2031-05-01T01:00:00Z"}`, allActions, "not an RFC 3339 time"},
+		{"no offset", `{"schema_version":1,"id":"00","action":"resend","from":"2031-05-01T00:00:00","to":"2031-05-01T01:00:00Z"}`, allActions, "not an RFC 3339 time"},
+		{"hour 24", `{"schema_version":1,"id":"00","action":"resend","from":"2031-05-01T24:00:00Z","to":"2031-05-02T01:00:00Z"}`, allActions, "out of range"},
+		{"duplicate key", `{"schema_version":1,"id":"a","id":"b","action":"publish_status"}`, allActions, "id: the key appears more than once"},
+		{"null from", `{"schema_version":1,"id":"a","action":"publish_status","from":null}`, allActions, "from: null is not allowed"},
+		{"version as a string", `{"schema_version":"1","id":"a","action":"publish_status"}`, allActions, `schema_version: want a number, got the string "1"`},
+		{"version 1.0", `{"schema_version":1.0,"id":"a","action":"publish_status"}`, allActions, ""},
+		{"version 10e-1", `{"schema_version":10e-1,"id":"a","action":"publish_status"}`, allActions, ""},
+		{"version 1.5", `{"schema_version":1.5,"id":"a","action":"publish_status"}`, allActions, "schema_version 1.5: want 1"},
+		{"lower-case t and z", `{"schema_version":1,"id":"a","action":"resend","from":"2031-05-04t08:00:00z","to":"2031-05-04t09:00:00.5z"}`, allActions, ""},
+		{"invalid UTF-8", "{\"schema_version\":1,\"id\":\"a\",\"action\":\"publish_status\",\"\xff\":1}", allActions, "not valid UTF-8"},
 		{"not on the allow-list", `{"schema_version":1,"id":"a","action":"resend","from":"2031-05-04T08:00:00Z","to":"2031-05-04T09:00:00Z"}`, []string{ActionPublishStatus}, "not allowed"},
 		{"newer schema", `{"schema_version":2,"id":"a","action":"publish_status"}`, allActions, "schema_version"},
 		{"no id", `{"schema_version":1,"action":"publish_status"}`, allActions, "id missing"},
@@ -44,6 +68,9 @@ func TestParseCommand(t *testing.T) {
 	}
 	sch := schemas(t)["command"]
 	for _, tt := range tests {
+		if tt.wantErr != "" && strings.Contains(tt.wantErr, "\n") {
+			t.Fatalf("%s: errors are one line", tt.name)
+		}
 		t.Run(tt.name, func(t *testing.T) {
 			_, _, _, _, err := parseCommand([]byte(tt.in), DefaultMaxCommandBytes, tt.allow, DefaultMaxResendRange)
 			if tt.wantErr == "" {
@@ -58,6 +85,9 @@ func TestParseCommand(t *testing.T) {
 			if err == nil || !strings.Contains(err.Error(), tt.wantErr) {
 				t.Fatalf("error %v, want one containing %q", err, tt.wantErr)
 			}
+			if strings.Contains(err.Error(), "\n") {
+				t.Fatalf("error %q is not one line", err)
+			}
 		})
 	}
 }
@@ -71,35 +101,165 @@ func mustJSON(t testing.TB, s string) any {
 	return v
 }
 
-// FuzzParseCommand: no payload panics the parser, and whatever it accepts matches the
-// documented command schema.
+// FuzzParseCommand: no payload panics the parser; the parser and the published schema
+// (configs/schema/command.schema.json) agree in both directions: decodeCommand accepts a
+// payload exactly when it is I-JSON (RFC 7493: UTF-8, no repeated keys) that the schema
+// accepts, and whatever parseCommand accepts on top (allow-list, range order and length)
+// stays valid.
 func FuzzParseCommand(f *testing.F) {
 	for _, s := range []string{
 		`{"schema_version":1,"id":"req-1","action":"publish_status"}`,
 		`{"schema_version":1,"id":"r1","action":"resend","from":"2031-05-04T08:00:00Z","to":"2031-05-04T09:00:00Z","kinds":["second","minute"]}`,
 		`{"schema_version":1,"id":"cal","action":"calibration_check"}`,
 		`{"schema_version":1,"id":"a","action":"resend","from":"2031-05-04T08:00:00Z","to":"2031-05-04T08:00:00Z"}`,
+		`{"sChemA_version":1,"id":"00","ACtion":"resend","from":"2031-05-01T0:00:00Z","to":"2031-05-01T1:00:00Z"}`,
+		`{"schema_version":1.0,"id":"a","action":"resend","from":"1990-12-31T15:59:60-08:00","to":"1990-12-31t23:59:60.5z"}`,
+		`{"schema_version":1,"id":"a","action":"resend","from":"2031-05-04T08:00:00+24:00","to":"2031-05-04T09:00:00+01:60"}`,
 		`{"id":"\u0000","action":null}`, `null`, `{}`, `"x"`, ``,
 	} {
 		f.Add([]byte(s))
 	}
-	sch := schemas(f)["command"]
+	sch := commandSchema(f)
 	f.Fuzz(func(t *testing.T, b []byte) {
 		c, from, to, kinds, err := parseCommand(b, DefaultMaxCommandBytes, allActions, DefaultMaxResendRange)
-		if err != nil {
-			return
-		}
-		if c.Action == ActionResend && (!to.After(from) || len(kinds) == 0) {
+		if err == nil && c.Action == ActionResend && (!to.After(from) || len(kinds) == 0) {
 			t.Fatalf("accepted resend with range %v..%v kinds %v", from, to, kinds)
 		}
-		var v any
-		if json.Unmarshal(b, &v) != nil {
-			t.Fatalf("accepted a payload encoding/json rejects: %q", b)
+		if err != nil && strings.Contains(err.Error(), "\n") {
+			t.Fatalf("error of more than one line: %q", err)
 		}
-		if err := sch.Validate(v); err != nil {
-			t.Fatalf("accepted %q, which fails command.schema.json: %v", b, err)
+		_, _, _, decErr := decodeCommand(b)
+		if err == nil && decErr != nil {
+			t.Fatalf("parseCommand accepted what decodeCommand refuses: %q", b)
+		}
+		schemaErr := validIJSON(b)
+		var v any
+		if schemaErr == nil {
+			v, schemaErr = jsonschema.UnmarshalJSON(bytes.NewReader(b))
+		}
+		if schemaErr == nil {
+			schemaErr = sch.Validate(v)
+		}
+		switch {
+		case decErr == nil && schemaErr != nil:
+			t.Fatalf("the parser accepts %q, which the schema refuses: %v", b, schemaErr)
+		case decErr != nil && schemaErr == nil:
+			t.Fatalf("the schema accepts %q, which the parser refuses: %v", b, decErr)
 		}
 	})
+}
+
+// validIJSON reports whether b is one I-JSON value (RFC 7493 section 2: UTF-8, section 2.3:
+// no object with a repeated member name), written here apart from package strict.
+func validIJSON(b []byte) error {
+	if !utf8.Valid(b) {
+		return errors.New("not UTF-8")
+	}
+	dec := json.NewDecoder(bytes.NewReader(b))
+	type frame struct {
+		obj  bool
+		keys map[string]bool
+		key  bool // the next token of an object is a key
+	}
+	var stack []*frame
+	for {
+		tok, err := dec.Token()
+		if errors.Is(err, io.EOF) {
+			if len(stack) > 0 {
+				return errors.New("ends early")
+			}
+			return nil
+		}
+		if err != nil {
+			return err
+		}
+		if n := len(stack); n > 0 && stack[n-1].obj && stack[n-1].key {
+			if d, ok := tok.(json.Delim); !ok || d != '}' {
+				k := tok.(string)
+				if stack[n-1].keys[k] {
+					return fmt.Errorf("repeated key %q", k)
+				}
+				stack[n-1].keys[k] = true
+				stack[n-1].key = false
+				continue
+			}
+		}
+		if d, ok := tok.(json.Delim); ok {
+			switch d {
+			case '{':
+				stack = append(stack, &frame{obj: true, keys: map[string]bool{}, key: true})
+				continue
+			case '[':
+				stack = append(stack, &frame{})
+				continue
+			default:
+				stack = stack[:len(stack)-1]
+			}
+		}
+		if n := len(stack); n > 0 && stack[n-1].obj {
+			stack[n-1].key = true
+		}
+		if len(stack) == 0 {
+			if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+				return errors.New("data after the value")
+			}
+			return nil
+		}
+	}
+}
+
+// rfc3339DateTime is the date-time format of JSON Schema 2020-12 (section 7.3.1 of its
+// validation vocabulary: RFC 3339 date-time), written out from RFC 3339 sections 5.6 and 5.7
+// for the agreement test: the validator's own check reads hours and offsets with strconv.Atoi
+// and so takes "+1" for an hour.
+func rfc3339DateTime(v any) error {
+	s, ok := v.(string)
+	if !ok {
+		return nil
+	}
+	re := regexp.MustCompile(`^(\d{4})-(\d{2})-(\d{2})[Tt](\d{2}):(\d{2}):(\d{2})(\.\d+)?([Zz]|[+-](\d{2}):(\d{2}))$`)
+	m := re.FindStringSubmatch(s)
+	if m == nil {
+		return errors.New("not RFC 3339 date-time syntax")
+	}
+	num := func(i int) int { n, _ := strconv.Atoi(m[i]); return n }
+	y, mo, d, h, mi, sec := num(1), num(2), num(3), num(4), num(5), num(6)
+	// RFC 3339 section 5.7: day limits per month, February 29 in leap years (Appendix C).
+	mdays := []int{31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31}
+	if mo >= 1 && mo <= 12 && mo == 2 && (y%4 == 0 && (y%100 != 0 || y%400 == 0)) {
+		mdays[1] = 29
+	}
+	if mo < 1 || mo > 12 || d < 1 || d > mdays[mo-1] || h > 23 || mi > 59 || sec > 60 {
+		return errors.New("out of range")
+	}
+	off := 0
+	if m[9] != "" {
+		if num(9) > 23 || num(10) > 59 {
+			return errors.New("offset out of range")
+		}
+		off = num(9)*60 + num(10)
+		if m[8][0] == '-' {
+			off = -off
+		}
+	}
+	// Section 5.7: second 60 only for a leap second, which falls at 23:59 UTC.
+	if u := ((h*60+mi-off)%1440 + 1440) % 1440; sec == 60 && u != 23*60+59 {
+		return errors.New("leap second not at 23:59 UTC")
+	}
+	return nil
+}
+
+// commandSchema compiles command.schema.json with date-time checked by rfc3339DateTime.
+func commandSchema(t testing.TB) *jsonschema.Schema {
+	t.Helper()
+	c := jsonschema.NewCompiler()
+	c.AssertFormat()
+	c.RegisterFormat(&jsonschema.Format{Name: "date-time", Validate: rfc3339DateTime})
+	s, err := c.Compile(filepath.Join("..", "..", "configs", "schema", "command.schema.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return s
 }
 
 // TestRemoteCommands: with commands enabled, valid commands get replies on the reply topic;

@@ -187,8 +187,8 @@ func (d Duration) MarshalText() ([]byte, error) { return []byte(time.Duration(d)
 // String returns the duration as time.Duration.String does.
 func (d Duration) String() string { return time.Duration(d).String() }
 
-// withDefaults returns c with every zero field replaced by its default. nodeID feeds the client id.
-func (c Config) withDefaults(nodeID string) Config {
+// WithDefaults returns c with every zero field replaced by its default. nodeID feeds the client id.
+func (c Config) WithDefaults(nodeID string) Config {
 	if c.ClientID == "" && nodeID != "" {
 		c.ClientID = "leqnode-" + nodeID
 	}
@@ -249,7 +249,7 @@ var (
 func (c Config) Validate() []error {
 	var errs []error
 	bad := func(format string, a ...any) { errs = append(errs, fmt.Errorf("publish."+format, a...)) }
-	d := c.withDefaults("node")
+	d := c.WithDefaults("node")
 	if len(d.Brokers) == 0 {
 		bad("brokers is empty: give at least one broker URL such as \"tcp://broker.example:1883\"")
 	}

@@ -111,7 +111,7 @@ func New(cfg Config, store *buffer.Store, ident Identity, logger *slog.Logger) (
 	if logger == nil {
 		logger = slog.Default()
 	}
-	cfg = cfg.withDefaults(ident.NodeID)
+	cfg = cfg.WithDefaults(ident.NodeID)
 	pw, err := cfg.password()
 	if err != nil {
 		return nil, err

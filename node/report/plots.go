@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/palette/moreland"
 	"gonum.org/v1/plot/plotter"
 	"gonum.org/v1/plot/vg"
@@ -30,6 +31,18 @@ func periodColor(i int) color.Color {
 
 const limitRed = 200
 
+// newPlot returns an empty plot whose text (title, axis labels, tick labels, legend) is set
+// in Liberation Sans, a sans-serif like the report page's, instead of gonum/plot's serif
+// default; the font is set on the plot, not through gonum/plot's package-level default.
+func newPlot() *plot.Plot {
+	p := plot.New()
+	for _, f := range []*font.Font{&p.Title.TextStyle.Font, &p.X.Label.TextStyle.Font, &p.Y.Label.TextStyle.Font,
+		&p.X.Tick.Label.Font, &p.Y.Tick.Label.Font, &p.Legend.TextStyle.Font} {
+		f.Typeface, f.Variant = "Liberation", "Sans"
+	}
+	return p
+}
+
 // renderPNG renders p as a PNG image at 144 dots per inch, sharp on high-density screens.
 func renderPNG(p *plot.Plot, w, h vg.Length) ([]byte, error) {
 	c := vgimg.NewWith(vgimg.UseWH(w, h), vgimg.UseDPI(144))
@@ -51,7 +64,7 @@ func timeAxis(p *plot.Plot, loc *time.Location, span time.Duration) {
 
 // historyPlot draws the LAeq of every minute, with the zone's limits as steps per period.
 func historyPlot(r *indicator.Result) ([]byte, error) {
-	p := plot.New()
+	p := newPlot()
 	p.Title.Text = "LAeq,1min"
 	p.Y.Label.Text = "dB(A)"
 	timeAxis(p, r.Location, r.To.Sub(r.From))
@@ -119,7 +132,17 @@ func historyPlot(r *indicator.Result) ([]byte, error) {
 
 // dailyPlot draws each day's period levels as grouped bars, with the limits as dashed lines.
 func dailyPlot(r *indicator.Result) ([]byte, error) {
-	p := plot.New()
+	p, err := dailyChart(r)
+	if err != nil {
+		return nil, err
+	}
+	return renderPNG(p, plotW, plotH)
+}
+
+// dailyChart builds dailyPlot's chart. The bars stand on a base 10 dB below the lowest level
+// or limit, rounded down to 10 dB, so that every limit line lies inside the axis.
+func dailyChart(r *indicator.Result) (*plot.Plot, error) {
+	p := newPlot()
 	p.Title.Text = "Period levels per day"
 	p.Y.Label.Text = "LAeq, dB(A)"
 	nper := len(r.Profile.Periods)
@@ -131,6 +154,13 @@ func dailyPlot(r *indicator.Result) ([]byte, error) {
 		for _, k := range d.Periods {
 			if v := r.Periods[k].LAeq; !math.IsNaN(v) {
 				ymin = min(ymin, v)
+			}
+		}
+	}
+	if r.Zone != nil {
+		for _, per := range r.Profile.Periods {
+			if lim, ok := r.Zone.Limits[per.Name]; ok {
+				ymin = min(ymin, lim)
 			}
 		}
 	}
@@ -180,7 +210,7 @@ func dailyPlot(r *indicator.Result) ([]byte, error) {
 	}
 	p.Legend.Top = true
 	p.Add(plotter.NewGrid())
-	return renderPNG(p, plotW, plotH)
+	return p, nil
 }
 
 // thinLabels blanks all but every k-th label so that at most n show.
@@ -279,7 +309,7 @@ func hourMapPlot(r *indicator.Result) ([]byte, error) {
 	hm := plotter.NewHeatMap(g, cm.Palette(64))
 	hm.Min, hm.Max = lo, hi
 	hm.NaN = color.RGBA{235, 235, 235, 255}
-	p := plot.New()
+	p := newPlot()
 	p.Title.Text = fmt.Sprintf("Hourly LAeq by day (%.0f to %.0f dB(A), blue to red; grey: no data)", lo, hi)
 	p.Y.Label.Text = "local hour"
 	p.Add(hm)
@@ -318,7 +348,7 @@ func spectrumPlot(r *indicator.Result) ([]byte, error) {
 		}
 		names = append(names, name)
 	}
-	p := plot.New()
+	p := newPlot()
 	p.Title.Text = "Average one-third-octave spectrum, LZeq"
 	p.Y.Label.Text = "dB"
 	p.X.Label.Text = "Hz"
@@ -345,7 +375,7 @@ func coveragePlot(r *indicator.Result) ([]byte, error) {
 		vals[i] = 100 * d.Coverage.Share
 		names = append(names, d.Day.Format("01-02"))
 	}
-	p := plot.New()
+	p := newPlot()
 	p.Title.Text = "Valid data per day"
 	p.Y.Label.Text = "%"
 	bc, err := plotter.NewBarChart(vals, vg.Points(min(30, 400/float64(len(r.Days)))))
@@ -370,7 +400,7 @@ func coveragePlot(r *indicator.Result) ([]byte, error) {
 }
 
 func emptyPlot(title string) ([]byte, error) {
-	p := plot.New()
+	p := newPlot()
 	p.Title.Text = title
 	p.HideAxes()
 	p.Title.TextStyle.Color = color.Gray{Y: 90}

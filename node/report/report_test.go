@@ -15,6 +15,8 @@ import (
 	"testing"
 	"time"
 
+	"gonum.org/v1/plot/font"
+
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
@@ -459,4 +461,60 @@ func TestReportEmptyRange(t *testing.T) {
 	if err := Write(filepath.Join(dir, "out"), r, Meta{Node: "empty"}); err != nil {
 		t.Fatal(err)
 	}
+}
+
+// TestPlotsShowLimitsAndSansSerif: the per-day bar chart's axis reaches down to every limit,
+// so a low night limit is drawn, not only named in the legend (issue 19 item 7: the axis
+// started at 50 dB with a 40 dB limit); and the plots' text is sans-serif like the page.
+func TestPlotsShowLimitsAndSansSerif(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "s.db")
+	start := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
+	testStore(t, path, start, 1)
+	st, err := buffer.OpenReadOnly(path, time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	// An invented zone of Wendle Cross with limits far below the stored levels (48 to 62 dB).
+	prof, err := profiles.Parse([]byte("[[period]]\nname = \"day\"\nstart = \"06:00\"\n[[period]]\nname = \"night\"\nstart = \"22:00\"\n"+
+		"[[zone]]\nname = \"quiet\"\nlimits = { day = 35, night = 25 }\n"), "quiet-test", "quiet.toml")
+	if err != nil {
+		t.Fatal(err)
+	}
+	zone, _ := prof.Zone("quiet")
+	r, err := Compute(context.Background(), st, Config{Profile: prof, Zone: zone, Location: time.UTC, From: start, To: start.Add(24 * time.Hour)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	p, err := dailyChart(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The axis's lowest labelled value lies at or below the lowest limit.
+	lowest := math.Inf(1)
+	for _, tk := range p.Y.Tick.Marker.Ticks(p.Y.Min, p.Y.Max) {
+		if tk.Label == "" {
+			continue
+		}
+		v, err := strconv.ParseFloat(tk.Label, 64)
+		if err != nil {
+			t.Fatalf("tick label %q", tk.Label)
+		}
+		lowest = min(lowest, v)
+	}
+	if lowest > 25 {
+		t.Errorf("the bar chart's axis starts at %g dB: the 25 dB night limit is not drawn", lowest)
+	}
+	for name, f := range map[string]font.Font{"title": p.Title.TextStyle.Font, "y label": p.Y.Label.TextStyle.Font,
+		"x ticks": p.X.Tick.Label.Font, "y ticks": p.Y.Tick.Label.Font, "legend": p.Legend.TextStyle.Font} {
+		if f.Variant != "Sans" {
+			t.Errorf("%s: font %s %s, want a sans-serif", name, f.Typeface, f.Variant)
+		}
+	}
+	data, err := dailyPlot(r)
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkPNG(t, "daily", data)
 }

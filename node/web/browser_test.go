@@ -308,9 +308,21 @@ func TestBrowser(t *testing.T) {
 	for _, vp := range []struct {
 		name          string
 		width, height int64
-	}{{"phone-390", 390, 844}, {"desktop-1280", 1280, 900}} {
+	}{{"phone-390", 390, 844}, {"phone-412", 412, 915}, {"desktop-1280", 1280, 900}} {
 		if err := chromedp.Do(bctx, chromedp.EmulateViewport(vp.width, vp.height), chromedp.Sleep(600*time.Millisecond)); err != nil {
 			t.Fatal(err)
+		}
+		// Every table is shown whole: no column cut off behind a scroll edge (the
+		// calibration table read "Deviatio..." at 412 and 1280 px, issue 19 item 7).
+		cut, err := chromedp.Run(bctx, chromedp.Evaluate[[]string](`[...document.querySelectorAll('table')].filter(t => {
+			const box = t.parentElement.getBoundingClientRect();
+			return [...t.querySelectorAll('th, td')].some(c => c.getBoundingClientRect().right > box.right + 0.5 || c.scrollWidth > c.clientWidth + 0.5);
+		}).map(t => t.id)`))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(cut) > 0 {
+			t.Errorf("%s: tables cut off: %v", vp.name, cut)
 		}
 		overflow, err := chromedp.Run(bctx, chromedp.Evaluate[bool](`document.documentElement.scrollWidth > window.innerWidth`))
 		if err != nil {
