@@ -141,6 +141,7 @@ var minuteFields = func() []Field {
 		lvl("LCpeak", "C-weighted peak level of the valid seconds", func(r Record) float64 { return mnt(r).LCpeak }),
 		lvl("LAImax", "largest A-weighted Impulse level of the valid seconds", func(r Record) float64 { return mnt(r).LAImax }),
 		count("valid_seconds", "s", "seconds whose levels are in the minute (the validity rule)", func(r Record) uint64 { return uint64(mnt(r).ValidSeconds) }),
+		num("valid_duration_s", "s", 3, "their length: the minute's energy is 10^(LAeq/10) times this", func(r Record) float64 { return mnt(r).ValidDuration.Seconds() }),
 		count("overload_seconds", "s", "valid seconds flagged overload: the levels are lower bounds", func(r Record) uint64 { return uint64(mnt(r).OverloadSeconds) }),
 		count("under_range_seconds", "s", "valid seconds under the measuring range: the levels are upper bounds", func(r Record) uint64 { return uint64(mnt(r).UnderRangeSeconds) }),
 	}

@@ -28,8 +28,8 @@ func TestMinuteV1HistogramConverted(t *testing.T) {
 		t.Errorf("version 2 round trip: %+v", now.Histogram)
 	}
 	// The same bytes as version 1 wrote them: the bins' meaning differs, and version 1 ends
-	// before the left-out and bound counts (1+6+2 one-byte uvarints here).
-	b = append([]byte{1}, b[1:len(b)-(1+int(record.NumReasons)-1+2)]...)
+	// before the left-out and bound counts and the valid duration (1+6+2+1 one-byte uvarints here).
+	b = append([]byte{1}, b[1:len(b)-(1+int(record.NumReasons)-1+2+1)]...)
 	var old Minute
 	if err := old.UnmarshalBinary(b); err != nil {
 		t.Fatal(err)

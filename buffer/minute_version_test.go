@@ -35,8 +35,8 @@ func TestMinuteVersion1StillReads(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	// The counts are the last 1+6+2 one-byte uvarints (all small).
-	v1 := append([]byte{1}, b[1:len(b)-(1+int(record.NumReasons)-1+2)]...)
+	// The counts and the valid duration are the last 1+6+2+1 one-byte uvarints (all small).
+	v1 := append([]byte{1}, b[1:len(b)-(1+int(record.NumReasons)-1+2+1)]...)
 	back := new(Minute)
 	if err := back.UnmarshalBinary(v1); err != nil {
 		t.Fatalf("version 1 record: %v", err)

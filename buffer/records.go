@@ -86,6 +86,10 @@ type Minute struct {
 	// validity rule (package record) counts. Every level, the histogram and the spectrum come
 	// from these seconds alone.
 	ValidSeconds int
+	// ValidDuration is the length of those seconds: ValidSeconds whole seconds, less what the
+	// first and last second of a run lack (a run starts and ends between two UTC seconds). The
+	// minute's energy is 10^(LAeq/10) · ValidDuration. Zero in records of format version 1.
+	ValidDuration time.Duration
 	// LeftOut counts the second records the rule left out, by reason (LeftOut[record.Counted]
 	// is unused). All zero in records of format version 1, which did not keep them.
 	LeftOut [record.NumReasons]int
@@ -102,6 +106,9 @@ type Minute struct {
 // Tally returns the minute's seconds by what the validity rule made of them.
 func (r *Minute) Tally() record.Tally {
 	t := record.Tally{Counted: float64(r.ValidSeconds), Overload: float64(r.OverloadSeconds), UnderRange: float64(r.UnderRangeSeconds)}
+	if r.ValidDuration > 0 {
+		t.Counted = r.ValidDuration.Seconds()
+	}
 	for i, n := range r.LeftOut {
 		t.LeftOut[i] = float64(n)
 	}
@@ -418,6 +425,7 @@ func (r *Minute) AppendBinary(b []byte) ([]byte, error) {
 	}
 	e.uvarint(uint64(r.OverloadSeconds))
 	e.uvarint(uint64(r.UnderRangeSeconds))
+	e.uvarint(uint64(max(r.ValidDuration, 0) / time.Microsecond))
 	return e.b, nil
 }
 
@@ -484,6 +492,11 @@ func (r *Minute) UnmarshalBinary(data []byte) error {
 			}
 			*p = int(c)
 		}
+		us := d.uvarint()
+		if us > uint64(1<<20)*1e6 {
+			d.fail("valid duration out of range")
+		}
+		r.ValidDuration = time.Duration(us) * time.Microsecond
 	}
 	return d.end()
 }

@@ -97,6 +97,7 @@ func (m *minuteBuilder) release(emit func(*buffer.Minute) error) error {
 	case record.Counted:
 		m.acc.Add(&q.res)
 		m.rec.ValidSeconds++
+		m.rec.ValidDuration += q.dur
 		if q.flags&buffer.Overload != 0 {
 			m.rec.OverloadSeconds++
 		}

@@ -99,7 +99,7 @@ socket = %q
 
 func TestDaemonCalibrate(t *testing.T) {
 	// `leqnode calibrate --config FILE` without a recording asks the running node to take the
-	// next stable calibrator tone: the synthetic scene starts with 8 s of a 94 dB tone at the
+	// next stable calibrator tone: the synthetic scene starts with 20 s of a 94 dB tone at the
 	// configured sensitivity (-26 dBFS), so the node finds -26 dBFS, applies it, keeps it in the
 	// state directory, and answers with the contract's JSON keys.
 	dir := t.TempDir()
@@ -111,7 +111,7 @@ id = "wendle-cross-08"
 [capture]
 kind = "synthetic"
 realtime = true
-calibrator_s = 8
+calibrator_s = 20
 [store]
 path = %q
 [control]

@@ -236,7 +236,7 @@ func (b *Builder) AddMinute(r *buffer.Minute) {
 		return
 	}
 	m.mT = r.Tally()
-	valid := float64(r.ValidSeconds)
+	valid := m.mT.Counted // the valid seconds' length: the minute's energy is 10^(LAeq/10) times it
 	if !math.IsNaN(r.LAeq) {
 		m.mA = b.energy(r.LAeq) * valid
 	}
