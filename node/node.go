@@ -53,6 +53,11 @@ type Options struct {
 	// open, instead of from the system clock: for sources replayed faster than real time,
 	// whose arrival times mean nothing. Clock steps and the watchdog then play no part.
 	SampleTimed bool
+	// SampleOrigin, with SampleTimed, is the time of the first sample. Zero means now, or the
+	// end of the store's last second record when that is later, so that an accelerated run
+	// continues after the records of an earlier one and never stamps two records for one
+	// second. Danger: a time before the store's last record makes the runs overlap.
+	SampleOrigin time.Time
 	// BlockDuration is the length of each audio block read from the source. Default 100 ms.
 	BlockDuration time.Duration
 	// QueueBlocks is the number of blocks the queue between capture and processing holds.
@@ -280,6 +285,9 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 	// stamp returns the arrival time of what was just read: the system clock, or with
 	// SampleTimed the start time plus the samples delivered so far.
 	start := o.Now()
+	if o.SampleTimed {
+		start = n.sampleOrigin()
+	}
 	var delivered int64
 	var fs float64
 	stamp := func() time.Time {
@@ -386,6 +394,22 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 			}
 		}
 	}
+}
+
+// sampleOrigin returns the time of the first sample of a sample-timed run (Options.SampleOrigin).
+func (n *Node) sampleOrigin() time.Time {
+	o := &n.o
+	if !o.SampleOrigin.IsZero() {
+		return o.SampleOrigin
+	}
+	now := o.Now()
+	if last, err := o.Store.Last(buffer.KindSecond); err == nil && last != nil {
+		if end := last.(*buffer.Second).Start.Add(last.(*buffer.Second).Duration); end.After(now) {
+			n.log.Info("accelerated run: its records continue after the store's last second, which lies ahead of the clock", "from", end.UTC())
+			return end
+		}
+	}
+	return now
 }
 
 func sleepCtx(ctx context.Context, d time.Duration) bool {

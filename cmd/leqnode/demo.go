@@ -19,8 +19,8 @@ import (
 
 func runDemo(ctx context.Context, std stdio, args []string) error {
 	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR] [--no-broker]", std.err)
-	dur := fl.Duration("duration", 65*time.Second, "how long to run (0: until interrupted)")
-	fast := fl.Bool("fast", false, "run the synthetic scene as fast as the processor allows instead of in real time")
+	dur := fl.Duration("duration", 65*time.Second, "how long a scene to play (0: until interrupted); in real time, or with --fast that much audio as fast as the processor allows")
+	fast := fl.Bool("fast", false, "play --duration of the scene as fast as the processor allows (not in real time), its records dated to end now")
 	dir := fl.String("dir", "", "directory for the demo's store (default: a new temporary directory, kept)")
 	noBroker := fl.Bool("no-broker", false, "do not start the in-process MQTT broker (publish nothing)")
 	pos, err := parseFlags(fl, args)
@@ -30,12 +30,23 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	if len(pos) != 0 || *dur < 0 {
 		return badInput("demo takes no arguments; --duration must be 0 or more")
 	}
+	if *fast && *dur == 0 {
+		return badInput("--fast needs a --duration: the length of audio to play (e.g. --duration 24h)")
+	}
 	cfg := config.Default()
 	cfg.Capture.Realtime = !*fast
 	cfg.Capture.CalibratorSeconds = 8
 	// The scene follows the hour of its start time (quiet nights, rush hours): let it begin on
 	// a weekday morning whatever the time of the demo, so there is traffic to hear.
 	cfg.Capture.Start = time.Now().UTC().Format("2006-01-02") + "T08:00:00Z"
+	var origin time.Time
+	if *fast {
+		// --duration of audio, stamped from the sample count so that it ends now: never dated
+		// ahead of the clock. The scene follows its own clock from that start.
+		origin = time.Now().UTC().Add(-*dur).Truncate(time.Second)
+		cfg.Capture.Start = origin.Format(time.RFC3339)
+		cfg.Capture.DurationSeconds = dur.Seconds()
+	}
 	if *dir == "" {
 		if *dir, err = os.MkdirTemp("", "leqnode-demo-"); err != nil {
 			return err
@@ -45,7 +56,16 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	}
 	cfg.Store.Path = filepath.Join(*dir, "leqnode.db")
 	cfg.Store.CommitInterval = "5s" // the demo's store is not on a flash card: show records soon
-	if *dur > 0 {
+	// A control socket, and the configuration written beside the store, so that the reading
+	// commands it suggests work while the demo runs (they go through the socket) and after.
+	cfg.Control.Socket = filepath.Join(*dir, "control.sock")
+	cfgPath := filepath.Join(*dir, "leqnode.toml")
+	if b, err := cfg.Encode(); err != nil {
+		return err
+	} else if err := os.WriteFile(cfgPath, b, 0o644); err != nil {
+		return err
+	}
+	if *dur > 0 && !*fast {
 		var cancel context.CancelFunc
 		ctx, cancel = context.WithTimeout(ctx, *dur)
 		defer cancel()
@@ -63,13 +83,15 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	if ln, err := net.Listen("tcp", "127.0.0.1:0"); err == nil {
 		cfg.Web.Enabled, cfg.Web.Addr = true, ln.Addr().String()
 		ln.Close()
-		fmt.Fprintf(std.out, "status page: http://%s/ (this computer only)\n", cfg.Web.Addr)
+		fmt.Fprintf(std.out, "status page: http://%s/ (this computer only, while the demo runs)\n", cfg.Web.Addr)
 	}
 	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
 	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
+	fmt.Fprintf(std.out, "while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
 	fmt.Fprintf(std.out, "levels are indicative: see the README's cautions\n\n")
 	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
 	err = runNode(ctx, cfg, nil, log, func(o *node.Options) {
+		o.SampleOrigin = origin
 		o.OnSecond = func(s *buffer.Second) { fmt.Fprintln(std.out, liveLine(s)) }
 		o.OnMinute = func(m *buffer.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
 	}, nil)
@@ -91,8 +113,19 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 			fmt.Fprintf(std.out, " %d %s", ks.Count, k)
 		}
 	}
-	fmt.Fprintf(std.out, "\nexport them with: leqnode export --db %s --kind second --format csv\n", cfg.Store.Path)
+	fmt.Fprintf(std.out, "\nexport them with: %s export --config %s --kind second --format csv\n", prog(), cfgPath)
+	if cfg.Web.Enabled {
+		fmt.Fprintf(std.out, "the status page stopped with the demo; `%s demo --duration 0` keeps it until you press Ctrl-C\n", prog())
+	}
 	return nil
+}
+
+// prog is the command as the user typed it (bin/leqnode from make demo), or "leqnode".
+func prog() string {
+	if p := os.Args[0]; strings.ContainsRune(p, '/') && !strings.HasSuffix(p, ".test") {
+		return p
+	}
+	return "leqnode"
 }
 
 // liveLine is one second of the demo's live display: time, LAeq, LAFmax and a level bar

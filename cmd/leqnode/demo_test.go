@@ -1,6 +1,7 @@
 package main
 
 import (
+	"os"
 	"path/filepath"
 	"regexp"
 	"strings"
@@ -31,5 +32,59 @@ func TestDemo(t *testing.T) {
 	}
 	if !strings.Contains(out, "stored in "+filepath.Join(dir, "leqnode.db")) || !regexp.MustCompile(`\d+ second`).MatchString(out) {
 		t.Errorf("no summary of the stored records:\n%s", out)
+	}
+}
+
+// TestDemoFast: --fast plays --duration of audio as fast as it can, stamped so that it ends
+// now: ten minutes of scene make 600 second records, none dated ahead of the clock.
+func TestDemoFast(t *testing.T) {
+	dir := t.TempDir()
+	code, out, errs := runCmd(t, nil, "demo", "--fast", "--duration", "10m", "--dir", dir, "--no-broker")
+	if code != 0 {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	now := time.Now()
+	secs := storedSeconds(t, filepath.Join(dir, "leqnode.db"))
+	if len(secs) < 599 || len(secs) > 601 {
+		t.Errorf("%d second records for 10 minutes of audio", len(secs))
+	}
+	if last := secs[len(secs)-1]; last.Start.After(now) {
+		t.Errorf("the last second starts at %v, after now (%v)", last.Start, now)
+	}
+	if !strings.Contains(out, "export --config "+filepath.Join(dir, "leqnode.toml")) {
+		t.Errorf("the suggested export does not name the demo's configuration:\n%s", out)
+	}
+	if code, _, errs := runCmd(t, nil, "demo", "--fast", "--duration", "0"); code != 2 || !strings.Contains(errs, "--duration") {
+		t.Errorf("--fast without a duration: exit %d, %q", code, errs)
+	}
+}
+
+// TestDemoExportWhileRunning: the export the demo suggests works while the demo runs (through
+// the demo's control socket).
+func TestDemoExportWhileRunning(t *testing.T) {
+	dir := t.TempDir()
+	done := make(chan int, 1)
+	go func() {
+		code, _, _ := runCmd(t, nil, "demo", "--duration", "8s", "--dir", dir, "--no-broker")
+		done <- code
+	}()
+	sock := filepath.Join(dir, "control.sock")
+	deadline := time.Now().Add(6 * time.Second)
+	for {
+		if _, err := os.Stat(sock); err == nil {
+			break
+		}
+		if time.Now().After(deadline) {
+			t.Fatal("the demo opened no control socket")
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+	time.Sleep(2 * time.Second) // a few seconds committed (the demo commits every 5 s; reads see held ones through the socket)
+	code, out, errs := runCmd(t, nil, "export", "--config", filepath.Join(dir, "leqnode.toml"), "--kind", "second")
+	if code != 0 || !strings.Contains(out, `"LAeq"`) {
+		t.Errorf("export while the demo runs: exit %d, %q, %s", code, errs, out)
+	}
+	if c := <-done; c != 0 {
+		t.Errorf("demo exit %d", c)
 	}
 }

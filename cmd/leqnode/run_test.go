@@ -322,3 +322,28 @@ frames_per_buffer = 960`, `timestamps = "samples"`)
 	}
 	compareWithChain(t, x, 0, secs)
 }
+
+// TestAcceleratedRunsDoNotOverlap: a recording replayed faster than real time is stamped from
+// the sample count, ahead of the clock; a second run on the same store continues after the
+// first run's last second instead of stamping a second record for the same seconds.
+func TestAcceleratedRunsDoNotOverlap(t *testing.T) {
+	x := e2eSignal()
+	dir := t.TempDir()
+	wavPath := writeWAV(t, dir, "sig.wav", wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.Float32}, x)
+	cfg := writeConfig(t, dir, fmt.Sprintf("kind = \"file\"\nfile = %q\nrealtime = false", wavPath), "")
+	for range 2 {
+		var out, errb strings.Builder
+		if code := run(context.Background(), stdio{in: strings.NewReader(""), out: &out, err: &errb}, []string{"run", "--config", cfg}); code != 0 {
+			t.Fatalf("exit %d: %s", code, errb.String())
+		}
+	}
+	secs := storedSeconds(t, filepath.Join(dir, "node.db"))
+	if len(secs) < 16 {
+		t.Fatalf("%d seconds after two runs of 8 s", len(secs))
+	}
+	for i := 1; i < len(secs); i++ {
+		if prevEnd := secs[i-1].Start.Add(secs[i-1].Duration); secs[i].Start.Before(prevEnd.Add(-time.Millisecond)) {
+			t.Fatalf("second %d starts at %v, before the previous one ends at %v: the runs overlap", i, secs[i].Start, prevEnd)
+		}
+	}
+}
