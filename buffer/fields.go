@@ -208,14 +208,23 @@ var annotationFields = []Field{
 	text("reason", "why the range is annotated", func(r Record) string { return annotation(r).Reason }),
 }
 
-var sessionFields = []Field{
-	text("software_version", "leqnode's version", func(r Record) string { return session(r).SoftwareVersion }),
-	text("config_hash", "hash of the settings that affect the numbers", func(r Record) string { return session(r).ConfigHash }),
-	num("sensitivity_dBFS", "dBFS", 3, "microphone sensitivity in use: dBFS for 94 dB at 1 kHz", func(r Record) float64 { return session(r).SensitivityDBFS }),
-	count("sample_rate_hz", "Hz", "sample rate", func(r Record) uint64 { return uint64(session(r).SampleRate) }),
-	text("device", "the capture source", func(r Record) string { return session(r).Device }),
-	text("time_zone", "IANA name of the node's configured time zone", func(r Record) string { return session(r).TimeZone }),
-}
+var sessionFields = func() []Field {
+	f := []Field{
+		text("software_version", "leqnode's version", func(r Record) string { return session(r).SoftwareVersion }),
+		text("config_hash", "hash of the settings that affect the numbers", func(r Record) string { return session(r).ConfigHash }),
+		num("sensitivity_dBFS", "dBFS", 3, "microphone sensitivity in use: dBFS for 94 dB at 1 kHz", func(r Record) float64 { return session(r).SensitivityDBFS }),
+		count("sample_rate_hz", "Hz", "sample rate", func(r Record) uint64 { return uint64(session(r).SampleRate) }),
+		text("device", "the capture source", func(r Record) string { return session(r).Device }),
+		text("time_zone", "IANA name of the node's configured time zone", func(r Record) string { return session(r).TimeZone }),
+	}
+	// first_seq_<kind>: the first sequence number of each kind in this run of the node.
+	for _, k := range Kinds() {
+		f = append(f, count("first_seq_"+k.String(), "",
+			"the first "+k.String()+" sequence number of this run: numbers skipped just before it were never committed (a restart), not lost",
+			func(r Record) uint64 { return session(r).FirstSeq[k] }))
+	}
+	return f
+}()
 
 // FieldMap returns r's fields (Fields) as a map ready for encoding/json: NaN numbers as nil,
 // flags as their names.

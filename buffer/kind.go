@@ -73,6 +73,9 @@ const (
 	DCOffset       = record.DCOffset
 	MicFault       = record.MicFault
 	ChainFault     = record.ChainFault
+	StoreFault     = record.StoreFault
+	DeviceFault    = record.DeviceFault
+	Synthetic      = record.Synthetic
 )
 
 // ParseFlags parses names separated by "|" or "," as printed by Flags.String.

@@ -193,6 +193,31 @@ func (s *Store) LastSeq(k Kind) uint64 {
 	return s.nextSeq[k] - 1
 }
 
+// LastCommitted returns the last committed sequence number of kind k, 0 if none: what a
+// consumer of the outbox can have received.
+func (s *Store) LastCommitted(k Kind) uint64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if !k.Valid() {
+		return 0
+	}
+	return s.committed[k]
+}
+
+// FirstSeq returns the first sequence number this opening of the store assigns to kind k.
+// After a clean close it follows the last committed number; after a crash it may lie up to
+// Options.MaxHeld above it, since numbers handed out before the crash are never used again. A
+// consumer that sees the numbers of a kind jump to FirstSeq (the node states it in its session
+// records) knows the skipped numbers were never committed: a restart, not a loss.
+func (s *Store) FirstSeq(k Kind) uint64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if !k.Valid() {
+		return 0
+	}
+	return s.firstSeq[k]
+}
+
 // Last returns the record of kind k with the highest sequence number (held or committed), or nil
 // when the kind holds none.
 func (s *Store) Last(k Kind) (Record, error) {

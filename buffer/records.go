@@ -242,6 +242,10 @@ type Session struct {
 	SampleRate      int     // Hz
 	Device          string
 	TimeZone        string // IANA name of the node's configured zone, e.g. "Europe/Paris"
+	// FirstSeq holds, per kind, the first sequence number the node's store assigns in this run
+	// of the node (Store.FirstSeq): numbers skipped just before it were never committed (a
+	// crash), not lost. Zero in records of format version 1.
+	FirstSeq [KindSession + 1]uint64
 }
 
 func (*Second) Kind() Kind      { return KindSecond }
@@ -318,7 +322,7 @@ const (
 	healthVersion      = 1
 	gapVersion         = 1
 	annotationVersion  = 1
-	sessionVersion     = 1
+	sessionVersion     = 2 // 2 adds the run's first sequence numbers
 )
 
 // AppendBinary encodes r: version, flags, start, duration, the eleven levels (int16 centi-dB),
@@ -807,13 +811,17 @@ func (r *Session) AppendBinary(b []byte) ([]byte, error) {
 	e.uvarint(uint64(r.SampleRate))
 	e.str(r.Device)
 	e.str(r.TimeZone)
+	e.uvarint(uint64(len(r.FirstSeq) - 1))
+	for _, v := range r.FirstSeq[1:] {
+		e.uvarint(v)
+	}
 	return e.b, nil
 }
 
 // UnmarshalBinary decodes what AppendBinary wrote, of this or an older version.
 func (r *Session) UnmarshalBinary(data []byte) error {
 	d := dec{b: data, what: "session"}
-	d.version(sessionVersion)
+	v := d.version(sessionVersion)
 	*r = Session{header: r.header}
 	r.At = d.time()
 	r.SoftwareVersion = d.str()
@@ -826,5 +834,17 @@ func (r *Session) UnmarshalBinary(data []byte) error {
 	r.SampleRate = int(rate)
 	r.Device = d.str()
 	r.TimeZone = d.str()
+	if v >= 2 {
+		n := d.uvarint()
+		if n > 255 {
+			d.fail("too many first sequence numbers")
+		}
+		for i := uint64(0); i < n && d.err == nil; i++ {
+			seq := d.uvarint()
+			if int(i)+1 < len(r.FirstSeq) {
+				r.FirstSeq[i+1] = seq // kinds a newer build adds are skipped
+			}
+		}
+	}
 	return d.end()
 }

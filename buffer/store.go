@@ -13,6 +13,7 @@ import (
 	"runtime/debug"
 	"slices"
 	"sync"
+	"syscall"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -31,6 +32,14 @@ var (
 	ErrNotStore = errors.New("not a leqnode store")
 	// ErrDamaged: the file cannot be read as a store.
 	ErrDamaged = errors.New("store file is damaged")
+	// ErrNotCommitted: Append kept the record in memory, but the commit it was due for failed
+	// (a full disk, an I/O error). The record is written with the next commit that succeeds;
+	// commits are retried with back-off. Nothing is lost unless the process ends first.
+	ErrNotCommitted = errors.New("record held in memory: the store could not commit")
+	// ErrRefused: Append did not take the record: Options.MaxHeld records are already held
+	// while commits fail. The caller should account for what it could not keep (the node
+	// writes a gap record once the store accepts records again).
+	ErrRefused = errors.New("record refused: the store holds as many records as it may while commits fail")
 )
 
 // formatVersion is the version of the bucket layout.
@@ -105,6 +114,7 @@ type Store struct {
 	held        []held
 	nextSeq     [KindSession + 1]uint64 // next sequence number to assign
 	committed   [KindSession + 1]uint64 // last committed sequence number
+	firstSeq    [KindSession + 1]uint64 // the first number this opening assigns
 	kstat       [KindSession + 1]kindStat
 	lastTkey    [KindSession + 1]uint64 // time key of the last record appended
 	runsEmpty   [KindSession + 1]bool   // the kind has no run: the next record starts one
@@ -113,6 +123,9 @@ type Store struct {
 	lastRetain  time.Time
 	commits     uint64
 	commitErr   error
+	retryAt     time.Time     // after a failed commit, the next attempt is not before this
+	backoff     time.Duration // the wait after the last failed commit
+	spaceCap    int64         // a cap lower than MaxBytes, set when the file system was full
 	recovered   string
 	firstCommit bool
 }
@@ -322,6 +335,7 @@ func (s *Store) load(tx *bolt.Tx) error {
 			return nil
 		})
 	}
+	s.firstSeq = s.nextSeq
 	if b := tx.Bucket(bucketOutbox); b != nil {
 		_ = b.ForEach(func(k, v []byte) error {
 			i := bytes.IndexByte(k, 0)
@@ -405,8 +419,12 @@ func (s *Store) Append(rec Record) (seq uint64, err error) {
 		return 0, err
 	}
 	if len(s.held) >= s.opts.MaxHeld && s.commitErr != nil {
-		if err := s.commit(false); err != nil {
-			return 0, fmt.Errorf("store %s: %d records held and commits failing, record refused: %w", s.path, len(s.held), err)
+		err := s.commitErr
+		if !s.opts.Now().Before(s.retryAt) {
+			err = s.commit(false)
+		}
+		if err != nil {
+			return 0, fmt.Errorf("store %s: %d records held: %w (%w)", s.path, len(s.held), ErrRefused, err)
 		}
 	}
 	seq = s.nextSeq[k]
@@ -416,7 +434,10 @@ func (s *Store) Append(rec Record) (seq uint64, err error) {
 	newRun := s.runsEmpty[k] || tk < s.lastTkey[k]
 	s.runsEmpty[k], s.lastTkey[k] = false, tk
 	s.held = append(s.held, held{kind: k, seq: seq, tkey: tk, newRun: newRun, value: value})
-	return seq, s.maybeCommit()
+	if err := s.maybeCommit(); err != nil {
+		return seq, fmt.Errorf("%w: %w", ErrNotCommitted, err)
+	}
+	return seq, nil
 }
 
 func (s *Store) writable() error {
@@ -429,10 +450,15 @@ func (s *Store) writable() error {
 	return nil
 }
 
-// maybeCommit commits when a commit is due. The caller holds s.mu.
+// maybeCommit commits when a commit is due; after a failed commit, not before its back-off has
+// passed. The caller holds s.mu.
 func (s *Store) maybeCommit() error {
+	now := s.opts.Now()
+	if s.commitErr != nil && now.Before(s.retryAt) {
+		return s.commitErr
+	}
 	if s.firstCommit && len(s.held) > 0 || len(s.held) >= s.opts.MaxHeld ||
-		s.opts.Now().Sub(s.lastCommit) >= s.opts.CommitInterval {
+		now.Sub(s.lastCommit) >= s.opts.CommitInterval || s.commitErr != nil {
 		return s.commit(false)
 	}
 	return nil
@@ -544,20 +570,8 @@ func (s *Store) commit(final bool) error {
 			key, _ := tx.Bucket(runsBucket(k)).Cursor().First()
 			runsEmpty[k] = key == nil
 		}
-		kb := tx.Bucket(bucketKinds)
-		for _, k := range Kinds() {
-			if kstat[k] == s.kstat[k] {
-				continue
-			}
-			v := make([]byte, 40)
-			binary.BigEndian.PutUint64(v[32:], kstat[k].reserved)
-			binary.BigEndian.PutUint64(v, kstat[k].count)
-			binary.BigEndian.PutUint64(v[8:], kstat[k].bytes)
-			binary.BigEndian.PutUint64(v[16:], kstat[k].removedAge)
-			binary.BigEndian.PutUint64(v[24:], kstat[k].removedSize)
-			if err := kb.Put([]byte{byte(k)}, v); err != nil {
-				return err
-			}
+		if err := s.putKindStats(tx, &kstat); err != nil {
+			return err
 		}
 		ob := tx.Bucket(bucketOutbox)
 		for sk, c := range cursors {
@@ -573,14 +587,22 @@ func (s *Store) commit(final bool) error {
 		}
 		return nil
 	})
+	if err != nil && errors.Is(err, syscall.ENOSPC) && s.makeRoom() {
+		return s.commit(final) // room was made inside the file: try once more at once
+	}
 	if err != nil {
 		if s.commitErr == nil {
 			s.opts.Logger.Error("store commit failed; records held for the next attempt", "path", s.path, "held", len(s.held), "err", err)
 		}
-		s.commitErr = err
-		return fmt.Errorf("store %s: commit: %w", s.path, err)
+		s.commitErr = fmt.Errorf("store %s: commit: %w", s.path, err)
+		s.backoff = min(max(2*s.backoff, time.Second), time.Minute)
+		s.retryAt = now.Add(s.backoff)
+		return s.commitErr
 	}
-	s.commitErr = nil
+	if s.commitErr != nil {
+		s.opts.Logger.Info("store commits again", "path", s.path, "held", len(s.held))
+	}
+	s.commitErr, s.backoff = nil, 0
 	s.kstat = kstat
 	for sk, c := range cursors {
 		c.dirty = false
@@ -601,6 +623,105 @@ func (s *Store) commit(final bool) error {
 	s.firstCommit = false
 	s.commits++
 	return nil
+}
+
+// putKindStats writes the per-kind counters that differ from the committed ones.
+func (s *Store) putKindStats(tx *bolt.Tx, kstat *[KindSession + 1]kindStat) error {
+	kb := tx.Bucket(bucketKinds)
+	for _, k := range Kinds() {
+		if kstat[k] == s.kstat[k] {
+			continue
+		}
+		v := make([]byte, 40)
+		binary.BigEndian.PutUint64(v[32:], kstat[k].reserved)
+		binary.BigEndian.PutUint64(v, kstat[k].count)
+		binary.BigEndian.PutUint64(v[8:], kstat[k].bytes)
+		binary.BigEndian.PutUint64(v[16:], kstat[k].removedAge)
+		binary.BigEndian.PutUint64(v[24:], kstat[k].removedSize)
+		if err := kb.Put([]byte{byte(k)}, v); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// makeRoom answers the first full file system of this opening: the store gives up a tenth of
+// its records, oldest first and shortest-lived kinds first, and from then on (until it is opened
+// again) keeps its records within 90 % of what they were (spaceCap), so that it lives within
+// the pages its file already has. A transaction that only deletes frees those pages for the
+// next commit to reuse. It reports whether that transaction committed. It acts once per
+// opening: when the space stays taken by something else, the records are held in memory and
+// commits retried with back-off (the caller accounts for what the store then refuses). The
+// caller holds s.mu.
+func (s *Store) makeRoom() bool {
+	data := dataBytes(&s.kstat)
+	if s.spaceCap > 0 || data < minSpaceCap {
+		return false // trimmed once already, or too little to give up: hold and retry
+	}
+	s.spaceCap = int64(0.9 * float64(data))
+	s.opts.Logger.Warn("file system full: the store gives up its oldest tenth and keeps within its file until it is opened again",
+		"path", s.path, "records_mb", float64(s.spaceCap)/1e6)
+	kstat := s.kstat
+	cursors := make(map[streamKind]cursor, len(s.cursors))
+	for sk, c := range s.cursors {
+		cursors[sk] = *c
+	}
+	err := s.update(func(tx *bolt.Tx) error {
+		if err := s.retainBySize(tx, &kstat, cursors); err != nil {
+			return err
+		}
+		return s.putKindStats(tx, &kstat)
+	})
+	if err != nil {
+		return false
+	}
+	s.kstat = kstat
+	for sk, c := range cursors {
+		s.cursors[sk] = &c
+	}
+	// The held records were indexed against runs that the deletions may have removed: the first
+	// held record of each kind starts a run of its own (an extra run entry costs nothing).
+	var started [KindSession + 1]bool
+	for i := range s.held {
+		if k := s.held[i].kind; !started[k] {
+			s.held[i].newRun, started[k] = true, true
+		}
+	}
+	return true
+}
+
+// minSpaceCap is the least data makeRoom trims: a store with less gives up nothing (its
+// records would all go), it holds and retries.
+const minSpaceCap = 1 << 20
+
+// SpaceCapped reports the cap, in bytes of records, that a full file system set on the store
+// (0: none): the store gives up its oldest records to stay within its file. ResetSpaceCap
+// lifts it.
+func (s *Store) SpaceCapped() int64 {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	return s.spaceCap
+}
+
+// ResetSpaceCap lifts the cap a full file system set, once there is room again: the store
+// grows its file again as it needs.
+func (s *Store) ResetSpaceCap() {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if s.spaceCap > 0 {
+		s.opts.Logger.Info("file system has room again: the store grows its file as it needs", "path", s.path)
+	}
+	s.spaceCap = 0
+}
+
+// dataBytes estimates the bytes the records take, with the allowance for page packing that
+// retainBySize counts when it deletes.
+func dataBytes(kstat *[KindSession + 1]kindStat) int64 {
+	var b int64
+	for _, k := range Kinds() {
+		b += int64(float64(kstat[k].bytes+kstat[k].count*recordOverhead) * 1.1)
+	}
+	return b
 }
 
 // update runs fn in a write transaction; a panic or memory fault on a damaged page rolls the
@@ -661,11 +782,16 @@ func (s *Store) usedBytes(tx *bolt.Tx) int64 {
 // retainBySize deletes the oldest records, kinds with the shortest retention first, when the used
 // space passes capHigh of MaxBytes, until the estimate of freed space brings it to capLow.
 func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
-	used := s.usedBytes(tx)
-	if float64(used) <= capHigh*float64(s.opts.MaxBytes) {
+	used, limit := s.usedBytes(tx), s.opts.MaxBytes
+	if s.spaceCap > 0 {
+		// After a full file system the records' own bytes are held to spaceCap (the file's
+		// fixed cost is not the records' to give up).
+		used, limit = dataBytes(kstat), s.spaceCap
+	}
+	if float64(used) <= capHigh*float64(limit) {
 		return nil
 	}
-	need := used - int64(capLow*float64(s.opts.MaxBytes))
+	need := used - int64(capLow*float64(limit))
 	order := Kinds()
 	slices.SortStableFunc(order, func(a, b Kind) int {
 		ra, rb := s.opts.Retention[a], s.opts.Retention[b]

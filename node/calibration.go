@@ -88,7 +88,7 @@ func (p *processor) onTone(d dsp.Detection) {
 		p.n.log.Warn("a steady 1 kHz tone was heard, but its level matches no configured calibrator", "level_dbfs", d.LevelDBFS, "references", refs)
 		return
 	}
-	if _, err := p.o.Store.Append(calibrate.CalibratingAnnotation(at(d.ToneStart).Add(-calMargin), at(d.End).Add(calMargin), ref)); err != nil {
+	if err := p.append(calibrate.CalibratingAnnotation(at(d.ToneStart).Add(-calMargin), at(d.End).Add(calMargin), ref)); err != nil {
 		p.calErr = err
 		return
 	}
@@ -112,7 +112,10 @@ func (p *processor) onTone(d dsp.Detection) {
 		}
 	}
 	dr, err := calibrate.RecordCheck(p.o.Store, rec)
-	if err != nil {
+	switch {
+	case errors.Is(err, buffer.ErrNotCommitted) || errors.Is(err, buffer.ErrRefused):
+		p.storeFailing(err) // held, or refused and counted; the node measures on
+	case err != nil:
 		p.calErr = err
 	}
 	if applied {
@@ -165,7 +168,7 @@ func (p *processor) calibratorOn() (bool, error) {
 	p.minutes.mark(p.calFrom, p.calUntil, buffer.Calibrating)
 	if p.secStart.After(p.calFrom) {
 		// Seconds already stored: marked when read, as a calibration check's are.
-		if _, err := p.o.Store.Append(calibrate.CalibratingAnnotation(p.calFrom, p.secStart, ref)); err != nil {
+		if err := p.append(calibrate.CalibratingAnnotation(p.calFrom, p.secStart, ref)); err != nil {
 			return false, fmt.Errorf("node: marking calibrating seconds: %w", err)
 		}
 	}

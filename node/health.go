@@ -172,6 +172,7 @@ func (p *processor) healthAfter(f buffer.Flags, now time.Time) error {
 		return nil
 	}
 	rec := p.healthSnapshot(now)
+	p.checkSpaceCap(rec)
 	p.n.lastHealth.Store(rec)
 	return p.append(rec)
 }

@@ -52,6 +52,8 @@ type processor struct {
 	event   dsp.Event
 	evSkew  int64 // samples skipped since the detector started: its positions lag pos by this
 
+	store storeState // what the node knows of a store that cannot write
+
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
 	lostWhy  string
@@ -89,8 +91,24 @@ func (p *processor) gap(from, to time.Time, why string) error {
 	return p.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
 }
 
+// append stores r. A store that cannot write (a full disk, an I/O error) never stops the
+// node: records it holds in memory are written when it can again (buffer.ErrNotCommitted);
+// what it refuses is covered by a gap record once it accepts records again
+// (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
 func (p *processor) append(r buffer.Record) error {
-	if _, err := p.o.Store.Append(r); err != nil {
+	_, err := p.o.Store.Append(r)
+	switch {
+	case err == nil:
+		if p.store.failing {
+			return p.storeRecovered()
+		}
+	case errors.Is(err, buffer.ErrNotCommitted):
+		p.storeFailing(err)
+	case errors.Is(err, buffer.ErrRefused):
+		p.storeFailing(err)
+		p.store.lose(r)
+		return nil
+	default:
 		return fmt.Errorf("node: storing a %T: %w", r, err)
 	}
 	if p.o.Notify != nil {
@@ -251,6 +269,9 @@ func (p *processor) opened(ev event) error {
 	p.device = o.Source.Describe()
 	sess := o.Session
 	sess.At = now.UTC()
+	for _, k := range buffer.Kinds() {
+		sess.FirstSeq[k] = o.Store.FirstSeq(k)
+	}
 	sess.SensitivityDBFS = o.SensitivityDBFS
 	sess.SampleRate = ev.format.SampleRate
 	sess.Device = p.device
@@ -539,5 +560,13 @@ func (p *processor) finish() {
 		p.flushMinutes()
 		p.flushEvents()
 		p.anchored = false
+	}
+	if p.store.failing {
+		// A last try, so that what the store refused is explained before the node stops.
+		if err := p.o.Store.Flush(); err == nil {
+			p.storeRecovered()
+		} else {
+			p.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", p.store.lost)
+		}
 	}
 }

@@ -27,6 +27,9 @@ const (
 	DCOffset       // the input carried a DC offset above the health limit
 	MicFault       // the microphone failed a check (e.g. a calibration beyond the allowed adjustment)
 	ChainFault     // the self-verification of the digital measurement chain failed
+	StoreFault     // the store could not write (a full disk, an I/O error): records held in memory
+	DeviceFault    // the capture device misbehaves (delivers audio faster or slower than its rate)
+	Synthetic      // made from the synthetic scene, not from a microphone
 )
 
 // flagInfo names and explains every flag, in bit order: the one table that the README, the
@@ -46,6 +49,9 @@ var flagInfo = [...]struct{ name, meaning string }{
 	{"dc-offset", "the input carried a DC offset above the health limit"},
 	{"mic-fault", "the microphone failed a check"},
 	{"chain-fault", "the self-verification of the digital measurement chain failed"},
+	{"store-fault", "the store could not write (full disk, I/O error); records held in memory until it can"},
+	{"device-fault", "the capture device delivers audio faster or slower than its stated rate"},
+	{"synthetic", "made from the synthetic demo scene, not from a microphone: not a measurement"},
 }
 
 // FlagNames returns the name of every flag this build knows, in bit order.
