@@ -53,6 +53,9 @@ type Options struct {
 	// open, instead of from the system clock: for sources replayed faster than real time,
 	// whose arrival times mean nothing. Clock steps and the watchdog then play no part.
 	SampleTimed bool
+	// Synthetic says the source is the synthetic scene: every record carries the synthetic
+	// flag, so that none is taken for a measurement.
+	Synthetic bool
 	// SampleOrigin, with SampleTimed, is the time of the first sample. Zero means now, or the
 	// end of the store's last second record when that is later, so that an accelerated run
 	// continues after the records of an earlier one and never stamps two records for one

@@ -96,6 +96,9 @@ func (p *processor) gap(from, to time.Time, why string) error {
 // what it refuses is covered by a gap record once it accepts records again
 // (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
 func (p *processor) append(r buffer.Record) error {
+	if p.o.Synthetic {
+		markSynthetic(r)
+	}
 	_, err := p.o.Store.Append(r)
 	switch {
 	case err == nil:
@@ -568,5 +571,22 @@ func (p *processor) finish() {
 		} else {
 			p.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", p.store.lost)
 		}
+	}
+}
+
+// markSynthetic flags a record made from the synthetic scene, so that no reader takes it for a
+// measurement.
+func markSynthetic(r buffer.Record) {
+	switch v := r.(type) {
+	case *buffer.Second:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Minute:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Event:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Calibration:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Health:
+		v.Flags |= buffer.Synthetic
 	}
 }

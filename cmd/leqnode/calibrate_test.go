@@ -147,7 +147,7 @@ func TestCalibrateLevelSwitch(t *testing.T) {
 	f := wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.PCM16}
 	loud := writeWAV(t, dir, "loud.wav", f, calibratorRecording(48000, 1000, -6, 7))
 	cfg := filepath.Join(dir, "node.toml")
-	os.WriteFile(cfg, []byte("version = 1\n[microphone]\nsensitivity_dbfs = -26\n"), 0o644)
+	os.WriteFile(cfg, []byte("version = 1\n[node]\nid = \"quay-7\"\n[capture]\nkind = \"synthetic\"\n[microphone]\nsensitivity_dbfs = -26\n"), 0o644)
 	for _, tc := range []struct {
 		name    string
 		env     string

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"github.com/leqnode/leqnode/buffer"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -47,6 +48,11 @@ func TestDemoFast(t *testing.T) {
 	secs := storedSeconds(t, filepath.Join(dir, "leqnode.db"))
 	if len(secs) < 599 || len(secs) > 601 {
 		t.Errorf("%d second records for 10 minutes of audio", len(secs))
+	}
+	for _, s := range secs {
+		if !s.Flags.Has(buffer.Synthetic) {
+			t.Fatalf("a second of the synthetic scene without the synthetic flag: %v", s.Flags)
+		}
 	}
 	if last := secs[len(secs)-1]; last.Start.After(now) {
 		t.Errorf("the last second starts at %v, after now (%v)", last.Start, now)

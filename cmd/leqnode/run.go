@@ -67,6 +67,7 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 		OverloadLevel:   cfg.Microphone.OverloadDB,
 		Lossless:        cfg.Capture.Kind == capture.KindStdin || cfg.SampleTimed(),
 		SampleTimed:     cfg.SampleTimed(),
+		Synthetic:       cfg.Capture.Kind == capture.KindSynthetic,
 		Session: buffer.Session{
 			SoftwareVersion: softwareVersion(),
 			ConfigHash:      cfg.Hash(),

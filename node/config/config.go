@@ -249,6 +249,7 @@ func Parse(data []byte, name string) (*Config, error) {
 		}
 	}
 	c.WithDefaults()
+	lines = append(lines, required(data, name)...)
 	for _, e := range c.Validate() {
 		key, _, _ := strings.Cut(e.Error(), " = ")
 		if !reported[key] {
@@ -259,6 +260,32 @@ func Parse(data []byte, name string) (*Config, error) {
 		return nil, errors.New(strings.Join(lines, "\n"))
 	}
 	return c, nil
+}
+
+// required reports the keys a node's configuration must give itself: its id and its audio
+// source. Without them a configuration would measure the invented demo scene under the demo's
+// id, storing and publishing plausible levels; leqnode demo uses its embedded defaults instead.
+func required(data []byte, name string) []string {
+	var tree map[string]any
+	if toml.Unmarshal(data, &tree) != nil {
+		return nil // the syntax error is reported already
+	}
+	given := func(table, key string) bool {
+		t, ok := tree[table].(map[string]any)
+		if !ok {
+			return false
+		}
+		_, ok = t[key]
+		return ok
+	}
+	var lines []string
+	if !given("node", "id") {
+		lines = append(lines, name+`: node.id is not set: give this node an id of its own, e.g. id = "harrowby-lane-2" under [node] (the demo's invented id belongs to leqnode demo)`)
+	}
+	if !given("capture", "kind") {
+		lines = append(lines, name+`: capture.kind is not set: name the audio source under [capture]: "portaudio", "arecord", "stdin", "file", or "synthetic" for the invented demo scene (its records are flagged synthetic)`)
+	}
+	return lines
 }
 
 // Warnings returns advice about a valid configuration that is allowed but risky, one line

@@ -61,7 +61,7 @@ func TestConfigErrors(t *testing.T) {
 }
 
 func TestDefaultsAndHash(t *testing.T) {
-	c, err := Parse([]byte("version = 1\n"), "min.toml")
+	c, err := Parse([]byte("version = 1\n[node]\nid = \"quay-7\"\n[capture]\nkind = \"synthetic\"\n"), "min.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -90,7 +90,7 @@ func TestDefaultsAndHash(t *testing.T) {
 
 func TestSectionsKeepDefaults(t *testing.T) {
 	// A section that sets one key keeps the defaults of the others.
-	c, err := Parse([]byte("version = 1\n[microphone]\nsensitivity_dbfs = -30\n[calibration]\nstate_dir = \"/x\"\n[events]\nthreshold_db = 65\n"), "t.toml")
+	c, err := Parse([]byte("version = 1\n[node]\nid = \"quay-7\"\n[capture]\nkind = \"synthetic\"\n[microphone]\nsensitivity_dbfs = -30\n[calibration]\nstate_dir = \"/x\"\n[events]\nthreshold_db = 65\n"), "t.toml")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -115,6 +115,8 @@ func TestEveryProblemAtOnce(t *testing.T) {
 		`test.toml:11: events.threshold_db: want a number, got the string "loud"`,
 		`microphone.sensitivity_dbfs = 12`,
 		`microphone.overload_db = 3`,
+		`node.id is not set`,      // [Node] is not [node]
+		`capture.kind is not set`, // the file names no audio source
 	}
 	msg := err.Error()
 	for _, w := range want {
@@ -173,12 +175,26 @@ func TestWarnings(t *testing.T) {
 		{"enabled = false\naddr = \"0.0.0.0:8080\"\n", false},
 	}
 	for _, tt := range tests {
-		c, err := Parse([]byte("version = 1\n[web]\n"+tt.web), "test.toml")
+		c, err := Parse([]byte("version = 1\n[node]\nid = \"x\"\n[capture]\nkind = \"synthetic\"\n[web]\n"+tt.web), "test.toml")
 		if err != nil {
 			t.Fatal(err)
 		}
 		if w := c.Warnings(); (len(w) > 0) != tt.warn {
 			t.Errorf("%q: warnings %q, want any: %v", tt.web, w, tt.warn)
 		}
+	}
+}
+
+// TestNodeIDAndSourceRequired: a configuration that names neither the node nor its audio source
+// is refused, so that a node never measures the invented demo scene under the demo's id by
+// mistake; the demo itself uses the embedded defaults, and an explicit synthetic source is
+// accepted.
+func TestNodeIDAndSourceRequired(t *testing.T) {
+	_, err := Parse([]byte("version = 1\n"), "node.toml")
+	if err == nil || !strings.Contains(err.Error(), "node.id is not set") || !strings.Contains(err.Error(), "capture.kind is not set") {
+		t.Errorf("version = 1 alone: %v", err)
+	}
+	if _, err := Parse([]byte("version = 1\n[node]\nid = \"quay-7\"\n[capture]\nkind = \"synthetic\"\n"), "node.toml"); err != nil {
+		t.Errorf("explicit id and synthetic source refused: %v", err)
 	}
 }
