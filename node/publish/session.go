@@ -487,7 +487,7 @@ func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
 	if state == "online" {
 		st = p.Status()
 		for _, k := range buffer.Kinds() {
-			lastSeq[k.String()] = p.store.LastSeq(k)
+			lastSeq[k.String()] = p.store.LastCommitted(k) // what the broker can have: pending counts committed records too
 		}
 	}
 	return p.appendStatusFields(b, state, stamped, st, p.store.ID(), lastSeq)
