@@ -51,7 +51,13 @@ func TestCrashChild(t *testing.T) {
 		fmt.Fprintln(os.Stderr, err)
 		os.Exit(3)
 	}
-	fmt.Fprintf(report, "start %d\n", s.LastSeq(KindSecond)+1)
+	// FirstSeq is the restart marker the node puts in its session records: where this opening's
+	// numbers start, above every number an earlier process may have handed out.
+	if s.FirstSeq(KindSecond) != s.LastSeq(KindSecond)+1 {
+		fmt.Fprintln(os.Stderr, "FirstSeq", s.FirstSeq(KindSecond), "is not the next number", s.LastSeq(KindSecond)+1)
+		os.Exit(7)
+	}
+	fmt.Fprintf(report, "start %d\n", s.FirstSeq(KindSecond))
 	for n := 0; ; n++ {
 		seq := s.LastSeq(KindSecond) + 1
 		r := crashSecond(seq)
