@@ -233,6 +233,7 @@ const (
 	evOpened           // the source was (re)opened
 	evLost             // the source failed; it has been closed
 	evEOF              // a finite source ended
+	evOpenFailed       // an attempt to open the source failed (err); capture retries with back-off
 )
 
 // Run captures and measures until ctx ends or a finite source ends, then flushes the store.
@@ -301,14 +302,15 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 	}
 	var discard []float32
 	opened := false
+	var say rateLimited // one warning a minute about a failing source; the rest at debug level
 	for ctx.Err() == nil {
 		if opened {
 			n.Counters.Reopens.Add(1)
 		}
 		f, err := o.Source.Open(ctx)
 		if err != nil {
-			n.log.Warn("cannot open the audio source; retrying", "source", o.Source.Describe(), "err", err, "retry_in", backoff)
-			if !sleepCtx(ctx, backoff) {
+			say.log(n.log, "cannot open the audio source; retrying", "source", o.Source.Describe(), "err", err, "retry_in", backoff)
+			if !send(event{kind: evOpenFailed, err: err, arrival: stamp()}) || !sleepCtx(ctx, backoff) {
 				return
 			}
 			backoff = min(2*backoff, o.RetryMax)
@@ -316,8 +318,8 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		}
 		opened = true
 		n.openGen.Add(1)
-		backoff = min(time.Second, o.RetryMax)
 		fs = float64(f.SampleRate)
+		openedAt := delivered // the back-off restarts only once this stream has run a second
 		if !send(event{kind: evOpened, format: f, arrival: stamp()}) {
 			o.Source.Close()
 			return
@@ -387,7 +389,10 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 				if ctx.Err() != nil {
 					return
 				}
-				n.log.Warn("audio source failed; will re-open", "source", o.Source.Describe(), "err", rerr, "retry_in", backoff)
+				if delivered-openedAt >= int64(fs) {
+					backoff = min(time.Second, o.RetryMax) // it ran: a new outage starts the back-off afresh
+				}
+				say.log(n.log, "audio source failed; will re-open", "source", o.Source.Describe(), "err", rerr, "retry_in", backoff)
 				n.Counters.DroppedSamples.Add(skipped)
 				if !send(event{kind: evLost, err: rerr, skipped: skipped}) || !sleepCtx(ctx, backoff) {
 					return
@@ -413,6 +418,18 @@ func (n *Node) sampleOrigin() time.Time {
 		}
 	}
 	return now
+}
+
+// rateLimited logs a warning at most once a minute; the others go to the debug level.
+type rateLimited struct{ last time.Time }
+
+func (r *rateLimited) log(l *slog.Logger, msg string, args ...any) {
+	if now := time.Now(); now.Sub(r.last) >= time.Minute {
+		r.last = now
+		l.Warn(msg, args...)
+		return
+	}
+	l.Debug(msg, args...)
 }
 
 func sleepCtx(ctx context.Context, d time.Duration) bool {

@@ -51,6 +51,10 @@ type fakeSource struct {
 	// stepAt shifts the simulated clock by step once at that sample.
 	stepAt int64
 	step   time.Duration
+	// openFails makes the first openFails calls of Open fail (a missing device).
+	openFails int
+	// flaps makes Read fail at once, before any sample, this many times after failAt.
+	flaps int
 
 	mu      sync.Mutex
 	pos     int64
@@ -63,6 +67,13 @@ type fakeSource struct {
 func (s *fakeSource) Open(ctx context.Context) (capture.Format, error) {
 	s.mu.Lock()
 	defer s.mu.Unlock()
+	if s.openFails > 0 {
+		// The device is missing: each attempt takes a second of simulated time.
+		s.openFails--
+		s.offset += time.Second
+		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		return capture.Format{}, fmt.Errorf("fake: no such device")
+	}
 	s.closed = make(chan struct{})
 	s.opens++
 	return capture.Format{SampleRate: s.fs, Channels: 1, Channel: 1, Sample: "float32"}, nil
@@ -74,6 +85,13 @@ func (s *fakeSource) Read(dst []float32) (int, error) {
 	if s.pos >= s.total {
 		s.mu.Unlock()
 		return 0, io.EOF
+	}
+	if s.failAt == 0 && s.flaps > 0 && s.pos > 0 {
+		s.flaps--
+		s.offset += 100 * time.Millisecond
+		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		s.mu.Unlock()
+		return 0, fmt.Errorf("fake flap: %w", capture.ErrDeviceLost)
 	}
 	if s.failAt > 0 && s.pos >= s.failAt {
 		s.failAt = 0

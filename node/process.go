@@ -60,24 +60,39 @@ type processor struct {
 	lastSess *buffer.Session
 }
 
-// startupGap records the time the node was not running, from the end of the last stored
-// second to now.
+// startupGap starts the outage that explains the time the node was not running: from the end
+// of the last stored second to the first sample of this run (see opened and data). On an empty
+// store the outage starts now, so that a source missing at start leaves no hole either.
 func (p *processor) startupGap() error {
+	p.lostAt, p.lostWhy = p.o.Now(), ""
 	last, err := p.o.Store.Last(buffer.KindSecond)
 	if err != nil || last == nil {
-		return nil // an empty store has nothing to bridge
-	}
-	s, ok := last.(*buffer.Second)
-	if !ok {
 		return nil
 	}
-	end := s.Start.Add(s.Duration)
-	now := p.o.Now()
-	if now.Sub(end) > 2*time.Second {
-		return p.gap(end, now, "node was not running (stopped, crashed or powered off)")
+	if s, ok := last.(*buffer.Second); ok {
+		p.lostAt = s.Start.Add(s.Duration)
+		p.lostWhy = "node was not running (stopped, restarting, crashed or powered off)"
 	}
 	return nil
 }
+
+// endOutage records the outage in progress as a gap ending at the first sample measured after
+// it, so that the gap and the next record meet exactly. A gap shorter than minGap is left out:
+// a fresh start's first sample comes a few milliseconds after the node starts.
+func (p *processor) endOutage(firstSample time.Time) error {
+	from, why := p.lostAt, p.lostWhy
+	p.lostAt, p.lostWhy = time.Time{}, ""
+	if from.IsZero() || firstSample.Sub(from) < minGap {
+		return nil
+	}
+	if why == "" {
+		why = "no audio yet"
+	}
+	return p.gap(from, firstSample, why)
+}
+
+// minGap is the shortest stretch without records that is recorded as a gap.
+const minGap = 50 * time.Millisecond
 
 func (p *processor) gap(from, to time.Time, why string) error {
 	if to.Before(from) {
@@ -142,6 +157,10 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 			open = false
 			p.skipLost(ev.skipped)
 			return p.lost(ev.err.Error())
+		case evOpenFailed:
+			if p.lostWhy == "" {
+				p.lostWhy = "audio source not available: " + ev.err.Error()
+			}
 		case evEOF:
 			open = false
 			p.skipLost(ev.skipped)
@@ -217,12 +236,8 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 func (p *processor) opened(ev event) error {
 	o := p.o
 	now := ev.arrival
-	if !p.lostAt.IsZero() {
-		if err := p.gap(p.lostAt, now, "capture device lost: "+p.lostWhy); err != nil {
-			return err
-		}
-		p.lostAt, p.lostWhy = time.Time{}, ""
-	}
+	// An outage in progress ends with the first sample measured (data), not here: a device that
+	// opens and fails again before any audio continues the same outage.
 	fs := float64(ev.format.SampleRate)
 	p.n.sampleRate.Store(int64(ev.format.SampleRate))
 	if len(o.Correction) > 0 && (p.correction == nil || fs != p.fs) {
@@ -339,14 +354,15 @@ func (p *processor) lost(why string) error {
 		p.closeSecond()
 		p.flushEvents()
 	}
-	p.lostAt = p.lastEnd
-	if p.lostAt.IsZero() {
-		p.lostAt = p.o.Now()
-	}
-	if p.lostWhy == "" {
-		p.lostWhy = why
-	} else {
-		p.lostWhy += ": " + why
+	if p.lostAt.IsZero() { // a new outage; one that goes on keeps its start and first reason
+		p.lostAt = p.lastEnd
+		if p.lostAt.IsZero() {
+			p.lostAt = p.o.Now()
+		}
+		if p.lostWhy != "" { // the watchdog said why first
+			why = p.lostWhy + ": " + why
+		}
+		p.lostWhy = "capture device lost: " + why
 	}
 	return nil
 }
@@ -362,6 +378,9 @@ func (p *processor) data(ev event) error {
 		p.secStart = p.clock.Time(0)
 		p.nextSecond = p.secStart.Truncate(time.Second).Add(time.Second)
 		p.secFlags, p.secDropped = 0, 0
+		if err := p.endOutage(p.secStart); err != nil {
+			return err
+		}
 	} else {
 		if ev.skipped > 0 {
 			p.skip(ev.skipped)
