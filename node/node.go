@@ -229,11 +229,11 @@ type event struct {
 type eventKind int
 
 const (
-	evData   eventKind = iota
-	evOpened           // the source was (re)opened
-	evLost             // the source failed; it has been closed
-	evEOF              // a finite source ended
-	evOpenFailed       // an attempt to open the source failed (err); capture retries with back-off
+	evData       eventKind = iota
+	evOpened               // the source was (re)opened
+	evLost                 // the source failed; it has been closed
+	evEOF                  // a finite source ended
+	evOpenFailed           // an attempt to open the source failed (err); capture retries with back-off
 )
 
 // Run captures and measures until ctx ends or a finite source ends, then flushes the store.
