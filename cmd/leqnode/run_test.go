@@ -347,3 +347,36 @@ func TestAcceleratedRunsDoNotOverlap(t *testing.T) {
 		}
 	}
 }
+
+// TestRunArecordMissingDevice: Debian's arecord started on an ALSA PCM that does not exist
+// fails at once, every time. The node retries with back-off, stores no gap record per retry
+// (the outage has one, written when audio comes back or the node stops) and warns at most
+// once a minute.
+func TestRunArecordMissingDevice(t *testing.T) {
+	if _, err := exec.LookPath("arecord"); err != nil {
+		if os.Getenv("CI") == "true" {
+			t.Fatal("arecord is not installed: `make test` installs alsa-utils")
+		}
+		t.Skip("arecord is not installed: run `make test`, which installs alsa-utils")
+	}
+	dir := t.TempDir()
+	asound := filepath.Join(dir, "asound.conf")
+	os.WriteFile(asound, []byte("pcm.testsig {\n  type file\n  slave.pcm { type null }\n  file \"/dev/null\"\n  infile \"/dev/null\"\n  format \"raw\"\n}\npcm.!default \"testsig\"\n"), 0o644)
+	t.Setenv("ALSA_CONFIG_PATH", asound)
+	cfg := writeConfig(t, dir, "kind = \"arecord\"\ndevice = \"no_such_pcm\"", "")
+	ctx, cancel := context.WithTimeout(context.Background(), 8*time.Second)
+	defer cancel()
+	var out, errb strings.Builder
+	run(ctx, stdio{in: strings.NewReader(""), out: &out, err: &errb}, []string{"run", "--config", cfg})
+	st, err := buffer.OpenReadOnly(filepath.Join(dir, "node.db"), time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	var gaps int
+	st.Range(buffer.KindGap, time.Unix(0, 0), time.Now().Add(time.Hour), func(buffer.Record) error { gaps++; return nil })
+	warnings := strings.Count(errb.String(), "audio source")
+	if gaps > 1 || warnings > 2 {
+		t.Errorf("8 s without a device: %d gap records (want at most 1), %d warnings about the source (want at most 2):\n%s", gaps, warnings, errb.String())
+	}
+}
