@@ -840,7 +840,7 @@ func (b *FilterBank) Reset() {
 // index into Bands) counts as settled: its band-pass filter's impulse response has delivered
 // 99.9 % of its energy (a steady noise then reads within 0.005 dB), plus the filling of the
 // decimators above its stage. SettledMeanSquare leaves out the outputs before it. At 48 kHz it is
-// about 1.1 s for the 12.5 Hz one-third octave, 0.11 s for 125 Hz and 10 ms for 1250 Hz; it scales
+// about 2.2 s for the 12.5 Hz one-third octave, 0.25 s for 125 Hz and 20 ms for 1250 Hz; it scales
 // with the inverse of the bandwidth.
 func (b *FilterBank) Settle(i int) float64 {
 	w := b.where[i]
