@@ -181,10 +181,12 @@ const (
 // decimator and bands only up to 0.2 of each stage's rate, needed 35); the octave bank (stage
 // 0 with 2 bands, 9 sections; 4 sections in each lower stage) about 13.
 // The fourth order that the -3.1 dB crossing needs (the earlier bank used third-order bands
-// and crossed at -3.4 to -3.7 dB) takes back what the fewer sections save: measured with
-// callgrind on amd64 (Go 1.26, GOAMD64=v1), the meter with one-third-octave bands costs about
-// 440 instructions per input sample more than without them, as before. The sections run two at
-// a time over each block (see run), which holds the state in registers.
+// and crossed at -3.4 to -3.7 dB) takes back most of what the fewer sections save: measured
+// with callgrind on amd64 (Go 1.26, GOAMD64=v1), the meter with one-third-octave bands costs
+// 416 instructions per input sample more than without them (434 for the earlier bank), and
+// about as much time. Running the sections two at a time over each block with all state in
+// registers took more time (40 against 27 ns per sample): the sections of one band in one loop
+// overlap their recursions.
 //
 // # Block size
 //
@@ -201,7 +203,6 @@ type FilterBank struct {
 	bands  []Band
 	stages []bankStage
 	where  []bankWhere // per band: its stage and filter index
-	tmp    []float64   // scratch of the band filters, bankChunk long
 }
 
 type bankWhere struct{ stage, filter int }
@@ -221,8 +222,7 @@ type bankFilter struct {
 	band   int
 	sec    []Section
 	gain   float64
-	coef   [][2]float64 // -a1, -a2 per section
-	state  [][2]float64 // s1, s2 per section (transposed direct form II)
+	state  [][2]float64 // w[n-1], w[n-2] per section
 	sum    float64      // sum of squared (unscaled) outputs since the last MeanSquare
 	early  float64      // the part of sum from before the filter had settled
 	nEarly int          // outputs in early
@@ -271,7 +271,6 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		bands:  bands,
 		stages: make([]bankStage, nstage),
 		where:  make([]bankWhere, len(bands)),
-		tmp:    make([]float64, bankChunk),
 	}
 	half := bankHalfBand(bankHalfCoefs, bankHalfPass)
 	decSettle := bankDecimatorSettle(half)
@@ -306,7 +305,6 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 			band:   i,
 			sec:    sec,
 			gain:   gain,
-			coef:   bankCoef(sec),
 			state:  make([][2]float64, len(sec)),
 			settle: settle,
 			skip:   settle,
@@ -353,16 +351,6 @@ func bankBandPass(n int, f1, f2, fm, fs float64) ([]Section, float64) {
 	}
 	gain := 1 / cmplx.Abs(CascadeResponse(sec, fm, fs))
 	return sec, gain
-}
-
-// bankCoef returns the negated denominator coefficients (-a1, -a2) of each section, as the
-// kernels use them.
-func bankCoef(sec []Section) [][2]float64 {
-	c := make([][2]float64, len(sec))
-	for i, x := range sec {
-		c[i] = [2]float64{-x.A1, -x.A2}
-	}
-	return c
 }
 
 // bankSettledShare is the share of a band filter's impulse-response energy delivered by the time
@@ -631,7 +619,7 @@ func (b *FilterBank) chunk(x []float64) {
 	for k := range b.stages {
 		st := &b.stages[k]
 		for i := range st.filters {
-			st.filters[i].run(x, b.tmp[:len(x)])
+			st.filters[i].run(x)
 		}
 		st.count += len(x)
 		if st.dec == nil {
@@ -645,111 +633,124 @@ func (b *FilterBank) chunk(x []float64) {
 	}
 }
 
-// run filters x through f's sections and adds the squared output to f.sum; tmp (at least
-// len(x) long) is scratch. Each section runs in transposed direct form II with the numerator
-// 1 - z⁻²,
+// run filters x through f's sections in direct form II,
 //
-//	y[n] = x[n] + s1,  s1 ← s2 - a1·y[n],  s2 ← -x[n] - a2·y[n],
+//	w[n] = x[n] - a2·w[n-2] - a1·w[n-1],  y[n] = w[n] - w[n-2],
 //
-// and the sections run two at a time over the whole block (the last pair, or the last single
-// section, adding y² to the sum): with four values of state and four coefficients a pair keeps
-// everything in registers, which a loop over four or five sections per sample cannot.
-func (f *bankFilter) run(x, tmp []float64) {
+// section after section for each sample, and adds y² to f.sum. The sections of one band run
+// in the same loop so that the processor can overlap them across samples (their recursions are
+// independent chains), and the a1 term comes last so that the recursion through w[n-1] costs
+// one multiplication and one subtraction of latency per sample.
+func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
 		k := min(f.skip, len(x))
 		sum := f.sum
-		f.runSections(x[:k], tmp)
+		f.runSections(x[:k])
 		f.early += f.sum - sum
 		f.nEarly += k
 		f.skip -= k
 		x = x[k:]
 	}
-	f.runSections(x, tmp)
+	f.runSections(x)
 }
 
-func (f *bankFilter) runSections(x, tmp []float64) {
-	if len(x) == 0 {
+func (f *bankFilter) runSections(x []float64) {
+	switch len(f.sec) {
+	case 4:
+		f.run4(x)
+		return
+	case 5:
+		f.run5(x)
 		return
 	}
-	c, s := f.coef, f.state
-	in := x
-	i := 0
-	for ; len(c)-i > 2; i += 2 {
-		out := tmp[:len(x)]
-		bankPair(&c[i], &c[i+1], &s[i], &s[i+1], in, out)
-		in = out
-	}
-	if len(c)-i == 2 {
-		f.sum = bankPairSum(&c[i], &c[i+1], &s[i], &s[i+1], in, f.sum)
-	} else {
-		f.sum = bankOneSum(&c[i], &s[i], in, f.sum)
-	}
+	f.runAny(x)
 }
 
-// bankPair runs x through two sections (coefficients -a1, -a2 in c, states s1, s2 in s) into y,
-// which may be x.
-func bankPair(c1, c2, s1, s2 *[2]float64, x, y []float64) {
-	n1, m1, n2, m2 := c1[0], c1[1], c2[0], c2[1]
-	a1, b1, a2, b2 := s1[0], s1[1], s2[0], s2[1]
-	y = y[:len(x)]
-	for i, v := range x {
-		t := v + a1
-		a1 = b1 + n1*t
-		b1 = m1*t - v
-		u := t + a2
-		a2 = b2 + n2*u
-		b2 = m2*u - t
-		y[i] = u
-	}
-	*s1, *s2 = [2]float64{a1, b1}, [2]float64{a2, b2}
-}
-
-// bankPairSum runs x through two sections and returns sum plus the squares of their output.
-func bankPairSum(c1, c2, s1, s2 *[2]float64, x []float64, sum float64) float64 {
-	n1, m1, n2, m2 := c1[0], c1[1], c2[0], c2[1]
-	a1, b1, a2, b2 := s1[0], s1[1], s2[0], s2[1]
-	for _, v := range x {
-		t := v + a1
-		a1 = b1 + n1*t
-		b1 = m1*t - v
-		u := t + a2
-		a2 = b2 + n2*u
-		b2 = m2*u - t
-		sum += u * u
-	}
-	*s1, *s2 = [2]float64{a1, b1}, [2]float64{a2, b2}
-	return sum
-}
-
-// bankOneSum runs x through one section and returns sum plus the squares of its output.
-func bankOneSum(c1, s1 *[2]float64, x []float64, sum float64) float64 {
-	n1, m1 := c1[0], c1[1]
-	a1, b1 := s1[0], s1[1]
-	for _, v := range x {
-		t := v + a1
-		a1 = b1 + n1*t
-		b1 = m1*t - v
-		sum += t * t
-	}
-	*s1 = [2]float64{a1, b1}
-	return sum
-}
-
-// runAny is run without the pairing, section after section for each sample: the reference
-// that the tests compare the paired kernels with, bit for bit.
+// runAny is run for any number of sections.
 func (f *bankFilter) runAny(x []float64) {
 	sum := f.sum
 	for _, v := range x {
-		for i := range f.coef {
-			c, st := &f.coef[i], &f.state[i]
-			t := v + st[0]
-			st[0] = st[1] + c[0]*t
-			st[1] = c[1]*t - v
-			v = t
+		for i := range f.sec {
+			s := &f.sec[i]
+			st := &f.state[i]
+			w := v - s.A2*st[1] - s.A1*st[0]
+			v = w - st[1]
+			st[1] = st[0]
+			st[0] = w
 		}
 		sum += v * v
 	}
+	f.sum = sum
+}
+
+func (f *bankFilter) run4(x []float64) {
+	a11, a12 := f.sec[0].A1, f.sec[0].A2
+	a21, a22 := f.sec[1].A1, f.sec[1].A2
+	a31, a32 := f.sec[2].A1, f.sec[2].A2
+	a41, a42 := f.sec[3].A1, f.sec[3].A2
+	p1, q1 := f.state[0][0], f.state[0][1]
+	p2, q2 := f.state[1][0], f.state[1][1]
+	p3, q3 := f.state[2][0], f.state[2][1]
+	p4, q4 := f.state[3][0], f.state[3][1]
+	sum := f.sum
+	for _, v := range x {
+		w := v - a12*q1 - a11*p1
+		v = w - q1
+		q1, p1 = p1, w
+		w = v - a22*q2 - a21*p2
+		v = w - q2
+		q2, p2 = p2, w
+		w = v - a32*q3 - a31*p3
+		v = w - q3
+		q3, p3 = p3, w
+		w = v - a42*q4 - a41*p4
+		v = w - q4
+		q4, p4 = p4, w
+		sum += v * v
+	}
+	f.state[0] = [2]float64{p1, q1}
+	f.state[1] = [2]float64{p2, q2}
+	f.state[2] = [2]float64{p3, q3}
+	f.state[3] = [2]float64{p4, q4}
+	f.sum = sum
+}
+
+func (f *bankFilter) run5(x []float64) {
+	a11, a12 := f.sec[0].A1, f.sec[0].A2
+	a21, a22 := f.sec[1].A1, f.sec[1].A2
+	a31, a32 := f.sec[2].A1, f.sec[2].A2
+	a41, a42 := f.sec[3].A1, f.sec[3].A2
+	a51, a52 := f.sec[4].A1, f.sec[4].A2
+	p1, q1 := f.state[0][0], f.state[0][1]
+	p2, q2 := f.state[1][0], f.state[1][1]
+	p3, q3 := f.state[2][0], f.state[2][1]
+	p4, q4 := f.state[3][0], f.state[3][1]
+	p5, q5 := f.state[4][0], f.state[4][1]
+	sum := f.sum
+	for _, v := range x {
+		w := v - a12*q1 - a11*p1
+		v = w - q1
+		q1, p1 = p1, w
+		w = v - a22*q2 - a21*p2
+		v = w - q2
+		q2, p2 = p2, w
+		w = v - a32*q3 - a31*p3
+		v = w - q3
+		q3, p3 = p3, w
+		w = v - a42*q4 - a41*p4
+		v = w - q4
+		q4, p4 = p4, w
+		w = v - a52*q5 - a51*p5
+		v = w - q5
+		q5, p5 = p5, w
+		sum += v * v
+	}
+	f.state[0] = [2]float64{p1, q1}
+	f.state[1] = [2]float64{p2, q2}
+	f.state[2] = [2]float64{p3, q3}
+	f.state[3] = [2]float64{p4, q4}
+	f.state[4] = [2]float64{p5, q5}
 	f.sum = sum
 }
 
@@ -838,7 +839,7 @@ func (b *FilterBank) Reset() {
 
 // Settle returns the time in seconds from rest (construction or Reset) after which band i (an
 // index into Bands) counts as settled: its band-pass filter's impulse response has delivered
-// 99.9 % of its energy (a steady noise then reads within 0.005 dB), plus the filling of the
+// 99.9 % of its energy (a steady noise then reads within 0.005 dB), plus the ringing of the
 // decimators above its stage. SettledMeanSquare leaves out the outputs before it. At 48 kHz it is
 // about 2.2 s for the 12.5 Hz one-third octave, 0.25 s for 125 Hz and 20 ms for 1250 Hz; it scales
 // with the inverse of the bandwidth.

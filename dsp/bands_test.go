@@ -660,20 +660,19 @@ func TestBandNoAllocation(t *testing.T) {
 	}
 }
 
-// TestBandKernels checks that the paired kernels compute the same bits as the section-by-section
-// loop, for two to five sections.
+// TestBandKernels checks that the unrolled kernels for four and five sections compute the same
+// bits as the general loop.
 func TestBandKernels(t *testing.T) {
 	x := bankTestSignal(3000, 48000)
-	for _, n := range []int{1, 2, 3, 4, 5} {
+	for _, n := range []int{4, 5} {
 		sec, _ := bankBandPass(n, 8913, 11220, 10000, 48000)
-		f := bankFilter{sec: sec, coef: bankCoef(sec), state: make([][2]float64, n)}
-		g := bankFilter{sec: sec, coef: bankCoef(sec), state: make([][2]float64, n)}
-		tmp := make([]float64, len(x))
-		f.run(x[:1000], tmp)
-		f.run(x[1000:], tmp)
+		f := bankFilter{sec: sec, state: make([][2]float64, n)}
+		g := bankFilter{sec: sec, state: make([][2]float64, n)}
+		f.run(x[:1000])
+		f.run(x[1000:])
 		g.runAny(x)
 		if f.sum != g.sum || f.state[n-1] != g.state[n-1] {
-			t.Errorf("%d sections: paired sum %g state %v, general %g %v", n, f.sum, f.state[n-1], g.sum, g.state[n-1])
+			t.Errorf("%d sections: unrolled sum %g state %v, general %g %v", n, f.sum, f.state[n-1], g.sum, g.state[n-1])
 		}
 	}
 }
