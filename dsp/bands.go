@@ -531,57 +531,24 @@ func (d *bankDecimator) decimate5(x, out []float64) int {
 	t := (*[3]float64)(d.s1)
 	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
 	t0, t1, t2 := t[0], t[1], t[2]
-	odd := d.odd
+	odd, phase := d.odd, d.phase
 	k := 0
-	if d.phase == 1 && len(x) > 0 {
-		v := x[0]
-		y := e0*(v-t1) + t0
-		t0 = v
-		v = y
-		y = e1*(v-t2) + t1
-		t1 = v
-		t2 = y
-		odd = y
-		x = x[1:]
-	}
-	n := len(x) &^ 1
-	for i := 0; i < n; i += 2 {
-		// The kept sample through A0.
-		v := x[i]
+	for _, v := range x {
+		if phase == 1 { // a skipped sample, through A1
+			y := e0*(v-t1) + t0
+			t0 = v
+			t1, t2 = y, e1*(y-t2)+t1
+			odd, phase = t2, 0
+			continue
+		}
+		// A kept sample, through A0.
 		y := c0*(v-s1) + s0
 		s0 = v
-		v = y
-		y = c1*(v-s2) + s1
-		s1 = v
-		v = y
-		y = c2*(v-s3) + s2
-		s2 = v
-		s3 = y
-		out[k] = 0.5 * (y + odd)
-		k++
-		// The skipped sample through A1.
-		v = x[i+1]
-		y = e0*(v-t1) + t0
-		t0 = v
-		v = y
-		y = e1*(v-t2) + t1
-		t1 = v
-		t2 = y
-		odd = y
-	}
-	phase := 0
-	if n < len(x) {
-		v := x[n]
-		y := c0*(v-s1) + s0
-		s0 = v
-		v = y
-		y = c1*(v-s2) + s1
-		s1 = v
-		v = y
-		y = c2*(v-s3) + s2
-		s2 = v
-		s3 = y
-		out[k] = 0.5 * (y + odd)
+		u := c1*(y-s2) + s1
+		s1 = y
+		s3 = c2*(u-s3) + s2
+		s2 = u
+		out[k] = 0.5 * (s3 + odd)
 		k++
 		phase = 1
 	}

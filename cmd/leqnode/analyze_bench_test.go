@@ -48,38 +48,14 @@ func benchRecording(b *testing.B, dir, name string, secs int, seed uint64) strin
 		swing := math.Pow(10, (10*math.Sin(2*math.Pi*float64(i)/(20*fs))-5)/20)
 		x[i] = float32(0.01 * swing * (p1 + 0.3*p2))
 	}
-	path := filepath.Join(dir, name)
-	f, err := os.Create(path)
-	if err != nil {
-		b.Fatal(err)
-	}
-	w, err := wav.NewWriter(f, wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.PCM16})
-	if err != nil {
-		b.Fatal(err)
-	}
-	if err := w.Write(x); err != nil {
-		b.Fatal(err)
-	}
-	if err := w.Close(); err != nil {
-		b.Fatal(err)
-	}
-	if err := f.Close(); err != nil {
-		b.Fatal(err)
-	}
-	return path
+	return writeWAV(b, dir, name, wav.Format{SampleRate: fs, Channels: 1, Encoding: wav.PCM16}, x)
 }
 
 // leqnodeProcess runs this test binary as the leqnode command (see TestMain) and returns its
 // standard output and the CPU time (user and system) it used.
 func leqnodeProcess(b *testing.B, args ...string) ([]byte, time.Duration) {
 	b.Helper()
-	exe, err := os.Executable()
-	if err != nil {
-		b.Fatal(err)
-	}
-	cmd := exec.Command(exe)
-	cmd.Env = append(os.Environ(), "LEQNODE_TEST_ARGS="+strings.Join(args, "\x1f"))
-	return runMeasured(b, cmd)
+	return runMeasured(b, childCmd(b, args...))
 }
 
 func runMeasured(b *testing.B, cmd *exec.Cmd) ([]byte, time.Duration) {
