@@ -523,25 +523,25 @@ func (d *bankDecimator) decimateAny(x, out []float64) int {
 }
 
 // decimate5 is decimate for five coefficients (three in A0, two in A1), with the states in
-// registers; it computes the same bits as decimateAny.
+// registers and a kept and a skipped sample per turn; an odd sample at either end goes through
+// decimateAny. It computes the same bits as decimateAny.
 func (d *bankDecimator) decimate5(x, out []float64) int {
+	k := 0
+	if d.phase == 1 && len(x) > 0 {
+		d.decimateAny(x[:1], out) // a skipped sample: nothing kept
+		x = x[1:]
+	}
 	c0, c1, c2 := d.a0[0], d.a0[1], d.a0[2]
 	e0, e1 := d.a1[0], d.a1[1]
 	s := (*[4]float64)(d.s0)
 	t := (*[3]float64)(d.s1)
 	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
 	t0, t1, t2 := t[0], t[1], t[2]
-	odd, phase := d.odd, d.phase
-	k := 0
-	for _, v := range x {
-		if phase == 1 { // a skipped sample, through A1
-			y := e0*(v-t1) + t0
-			t0 = v
-			t1, t2 = y, e1*(y-t2)+t1
-			odd, phase = t2, 0
-			continue
-		}
-		// A kept sample, through A0.
+	odd := d.odd
+	n := len(x) &^ 1
+	for i := 0; i < n; i += 2 {
+		// The kept sample through A0.
+		v := x[i]
 		y := c0*(v-s1) + s0
 		s0 = v
 		u := c1*(y-s2) + s1
@@ -550,12 +550,17 @@ func (d *bankDecimator) decimate5(x, out []float64) int {
 		s2 = u
 		out[k] = 0.5 * (s3 + odd)
 		k++
-		phase = 1
+		// The skipped sample through A1.
+		v = x[i+1]
+		y = e0*(v-t1) + t0
+		t0 = v
+		t1, t2 = y, e1*(y-t2)+t1
+		odd = t2
 	}
 	*s = [4]float64{s0, s1, s2, s3}
 	*t = [3]float64{t0, t1, t2}
-	d.odd, d.phase = odd, phase
-	return k
+	d.odd = odd
+	return k + d.decimateAny(x[n:], out[k:])
 }
 
 // Bands returns the bands of the bank, lowest first, as a fresh slice.
