@@ -9,8 +9,9 @@ BIN := bin/leqnode
 # Debian packages the tests use: sox (reference measurements of real recordings), alsa-utils
 # (arecord, and recordings under /usr/share/sounds/alsa), portaudio19-dev (the PortAudio capture
 # source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA), systemd
-# (systemd-analyze for the unit) and chromium (the status page and report in a real browser).
-TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium
+# (systemd-analyze for the unit), chromium (the status page and report in a real browser) and
+# python3-scipy (the scipy chain that `leqnode analyze` is benchmarked against).
+TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium python3-scipy
 # What building the daemon with PortAudio needs.
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev
@@ -44,7 +45,7 @@ test: test-deps
 
 # The figures recorded in the README: benchmarks at full size, five runs each (quote medians).
 bench: test-deps
-	LEQNODE_BENCH_HOURS=24 $(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
+	LEQNODE_BENCH_HOURS=24 LEQNODE_BENCH_SECONDS=300 $(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
 	.ci/callgrind-meter | tee -a bench.txt
 
 # Every fuzz target searches for FUZZTIME each (default 60s; e.g. `make fuzz FUZZTIME=10s`).

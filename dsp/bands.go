@@ -95,27 +95,33 @@ const (
 	bankChunk = 1024
 
 	// bankStageTop is the highest upper band edge, as a fraction of its stage's rate, that a
-	// band in a decimated stage may have. It is also about the highest fraction at which the
-	// third-order band-pass meets the class 1 mask with a margin after the bilinear transform
-	// (above it the frequency warping makes the lower skirt too shallow), and it sets the pass
-	// band of the half-band decimators (0.1 of their input rate).
-	bankStageTop = 0.2
+	// band in a decimated stage may have: each decimated stage holds the bands whose upper
+	// edges lie in (bankStageTop/2, bankStageTop] of its rate, one octave. It is twice the pass
+	// band edge of the half-band decimators (bankHalfPass of their input rate).
+	bankStageTop = 0.4
 
-	// bankOrder, bankOrderHigh and bankOrderTop are the Butterworth orders of the band-pass
-	// prototypes: bankOrderTop for the bands of the full-rate stage whose upper edge lies
-	// above bankTopEdge·fs, bankOrderHigh for the others above bankStageTop·fs, where
-	// warping needs the steeper skirt, and bankOrder for all other bands.
-	bankOrder     = 3
-	bankOrderHigh = 4
-	bankOrderTop  = 5
-	bankTopEdge   = 0.45
+	// bankOrder and bankOrderTop are the Butterworth orders of the band-pass prototypes:
+	// bankOrderTop for the bands of the full-rate stage whose upper edge lies above
+	// bankTopEdge·fs, where the warping of the bilinear transform needs the steeper skirt, and
+	// bankOrder for all others.
+	bankOrder    = 4
+	bankOrderTop = 5
+	bankTopEdge  = 0.45
 
-	// bankHalfTaps is the length of the half-band decimation filter (4m+3 taps, of which
-	// the centre tap and (L+1)/2 odd taps are non-zero) and bankKaiserBeta its Kaiser window
-	// parameter, chosen for a stop band at least 88 dB down from 0.38 to 0.5 of the input rate
-	// and a pass band flat within 0.0003 dB up to 0.12 of the input rate.
-	bankHalfTaps   = 23
-	bankKaiserBeta = 8.96
+	// bankEdgeDB is the attenuation of every band at its exact band edges, in dB: adjacent bands
+	// cross there, so a sine on the edge reads bankEdgeDB down in each, and their energies sum
+	// to 10 lg(2·10^(-bankEdgeDB/10)) = -0.09 dB of the sine's. 3.01 dB would make that sum
+	// exact, but then the effective bandwidth of a fourth-order Butterworth band is 0.11 dB wide
+	// of the nominal (the bands of a broadband signal would add up to 0.11 dB too much); 3.1 dB
+	// splits the two errors.
+	bankEdgeDB = 3.1
+
+	// bankHalfPass is the pass band edge of the half-band decimators, as a fraction of their
+	// input rate (the stop band starts at 0.5 - bankHalfPass), and bankHalfCoefs the number of
+	// their all-pass coefficients: 5 give a pass band flat within 1e-8 dB and a stop band at
+	// least 86 dB down.
+	bankHalfPass  = 0.2
+	bankHalfCoefs = 5
 )
 
 // FilterBank is a bank of octave or one-third-octave band-pass filters per IEC 61260-1:2014,
@@ -130,49 +136,57 @@ const (
 // analogue low-pass prototype of order N is transformed to a band-pass of order 2N and mapped
 // to the digital domain by the bilinear transform with the exact band edges of Eq. 4 and 5
 // pre-warped, giving N second-order sections with zeros at DC and at the Nyquist frequency.
-// The bandwidth of the transform is the pre-warped edge distance narrowed by the factor
-// sin(π/2N)/(π/2N), the ratio of a Butterworth filter's -3 dB bandwidth to its noise
-// bandwidth, so that the effective bandwidth equals the nominal one (ΔB within 0.07 dB
-// instead of +0.2 dB) and the bands of a broadband signal add up to its level. The response
-// at the band edges is then 3.4 to 3.7 dB below the midband, inside the +1.2 … +5.3 dB that
-// Table 1 allows there. The gain is set so that the response at the exact midband frequency
-// is 0 dB.
+// The bandwidth of the transform is set so that the response at both exact band edges is
+// 3.1 dB below the midband: adjacent bands cross there, so a sine on an edge reads 3.1 dB down
+// in each of its two bands and the two hold 98 % of its energy (-0.09 dB). A Butterworth
+// response that crossed at 3.01 dB would have an effective bandwidth 0.11 dB wider than the
+// nominal one for N = 4, so the bands of a broadband signal would add up to 0.11 dB too much;
+// at 3.1 dB it is 0.09 dB. Table 1 allows 1.2 to 5.3 dB at the edges. The gain is set so that
+// the response at the exact midband frequency is 0 dB. A Butterworth bank is not power
+// complementary: a sine a little inside a band still reads 7 to 9 dB down in its neighbour,
+// so the bands of a sine add up to between -0.6 and +0.7 dB of it (IEC 61260-1 allows
+// -1.8/+0.8 dB for two adjacent bands).
 //
-// N is 3, except in the full-rate stage: bands whose upper edge lies above 0.2 fs have N = 4,
-// and the band whose upper edge lies above 0.45 fs (the 20 kHz one-third octave at 48 kHz, the
-// 16 kHz octave) has N = 5. Close to the Nyquist frequency the warping of the bilinear
-// transform flattens the lower skirt (a third-order filter misses the mask by 10 dB for the
-// 20 kHz band at 48 kHz) and tilts the lower pass band; the higher orders restore the margins.
+// N is 4, and 5 for the band whose upper edge lies above 0.45 fs (the 20 kHz one-third octave
+// at 48 kHz, the 16 kHz octave): close to the Nyquist frequency the warping of the bilinear
+// transform flattens the lower skirt and tilts the lower pass band, and the higher order
+// restores the margins.
 //
 // The bank is multirate. Stage 0 runs at the input rate fs; stage k runs at fs/2^k and is fed
-// from stage k-1 through a half-band FIR low-pass that keeps every second sample (23 taps,
-// Kaiser window, computed only at the kept samples, pass band flat within 0.0003 dB to 0.12
-// and stop band at least 88 dB down from 0.38 of its input rate). A band is computed in the
-// lowest-rate stage k in which its upper edge is at most 0.2 fs/2^k, so every decimated stage
-// holds one octave of bands with upper edges between 0.1 and 0.2 of its rate, and stage 0
-// holds the rest (upper edges from 0.1 fs to 0.47 fs). What the decimators fold back lands
-// either 88 dB down or above the band edges of the stages below, where the band filters
-// attenuate it; Response includes that folding, so the tests check it against the mask.
+// from stage k-1 through a half-band decimator: an elliptic IIR low-pass of order 11 in
+// polyphase form (two branches of first-order all-pass sections, five coefficients, run at the
+// output rate), flat within 10⁻⁸ dB up to 0.2 of its input rate and at least 86 dB down from
+// 0.3 of it. A band is computed in the lowest-rate stage k in which its upper edge is at most
+// 0.4 fs/2^k, so every decimated stage holds one octave of bands with upper edges between 0.2
+// and 0.4 of its rate, and stage 0 holds the rest (upper edges from 0.2 fs to 0.47 fs: the top
+// four one-third octaves). What a decimator folds back lands either 86 dB down or above 0.4 of
+// the lower stage's rate, where the band filters attenuate it; Response includes that
+// folding, so the tests check it against the mask.
 //
 // # Delay and settling
 //
-// Each half-band filter delays by 11 samples at its input rate, so a band of stage k lags the
-// input by 11·(2^k - 1)/fs seconds plus its own group delay at the midband, about
-// 0.67/(Upper-Lower) seconds for N = 3: at 48 kHz the 1 kHz one-third-octave band lags 4.5 ms
-// in all, the 100 Hz band 43 ms and the 12.5 Hz band 0.35 s. Energy that arrives at the end of one MeanSquare
-// span is counted partly in the next. The filters start from rest; the low bands need a few
-// seconds to settle.
+// A band of stage k lags the input by the group delays of the decimators above it (a few
+// samples at each one's input rate) plus its own at the midband, about 0.9/(Upper-Lower)
+// seconds for N = 4. Energy that arrives at the end of one MeanSquare span is counted partly in
+// the next. The filters start from rest; Settle gives the time each band needs to settle (a
+// second or two for the lowest bands), and SettledMeanSquare leaves out what comes before it.
 //
 // # Cost
 //
 // A section costs 2 multiplications and 3 additions per sample at its stage's rate, the mean
-// square 2 more operations per band, and a half-band decimator 7 multiplications and 12
-// additions per kept sample. For one-third octaves at 48 kHz stage 0 holds 7 bands (26
-// sections) and each lower stage 3 bands (9 sections) at half the rate of the one above, so
-// the bank costs about 35 section updates, or 215 floating-point operations, per input
-// sample; the octave bank (stage 0 with 3 bands, 12 sections) about 15 section updates.
-// Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1): 434 instructions per input sample
-// for one-third octaves, 218 for octaves.
+// square 2 more operations per band, and a half-band decimator 5 multiplications and 11
+// additions per kept sample. For one-third octaves at 48 kHz stage 0 holds 4 bands (17
+// sections) and each lower stage 3 bands (12 sections) at half the rate of the one above, so
+// the bank costs about 29 section updates per input sample (the earlier design, with a FIR
+// decimator and bands only up to 0.2 of each stage's rate, needed 35); the octave bank (stage
+// 0 with 2 bands, 9 sections; 4 sections in each lower stage) about 13.
+// The fourth order that the -3.1 dB crossing needs (the earlier bank used third-order bands
+// and crossed at -3.4 to -3.7 dB) takes back most of what the fewer sections save: measured
+// with callgrind on amd64 (Go 1.26, GOAMD64=v1), the meter with one-third-octave bands costs
+// 419 instructions per input sample more than without them (434 for the earlier bank), and
+// about as much time. Running the sections two at a time over each block with all state in
+// registers took more time (40 against 27 ns per sample): the sections of one band in one loop
+// overlap their recursions.
 //
 // # Block size
 //
@@ -216,11 +230,14 @@ type bankFilter struct {
 	skip   int          // outputs still to come before the filter has settled
 }
 
-// bankDecimator is a half-band FIR low-pass that keeps every second sample.
+// bankDecimator is a half-band IIR low-pass that keeps every second sample, in polyphase form:
+// H(z) = ½·[A0(z²) + z⁻¹·A1(z²)], where A0 and A1 are chains of first-order all-pass sections
+// (a + z⁻¹)/(1 + a·z⁻¹) run at the output rate; A0 takes the kept samples, A1 the skipped ones.
 type bankDecimator struct {
-	odd   []float64 // taps h[1], h[3], ..., h[M] (M = (L-1)/2); h[0] = 1/2, other even taps 0
-	buf   []float64 // the last L-1 inputs, then the current chunk
-	phase int       // 0: the next input sample is kept; 1: it is skipped
+	a0, a1 []float64 // coefficients of the two branches
+	s0, s1 []float64 // branch states: the last input, then the last output of each section
+	odd    float64   // A1's output for the last skipped sample
+	phase  int       // 0: the next input sample is kept; 1: it is skipped
 }
 
 // NewFilterBank returns a filter bank for the band set at sample rate fs (8 kHz to 192 kHz),
@@ -237,7 +254,7 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		return nil, errors.New("dsp: filter bank: no band fits the sample rate")
 	}
 	// The stage of each band: the lowest rate at which its upper edge is at most
-	// bankStageTop of the rate.
+	// bankStageTop of the rate (the full rate for the bands above bankStageTop·fs/2).
 	stageOf := make([]int, len(bands))
 	nstage := 1
 	for i, bd := range bands {
@@ -255,7 +272,8 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		stages: make([]bankStage, nstage),
 		where:  make([]bankWhere, len(bands)),
 	}
-	odd := bankHalfBand(bankHalfTaps, bankKaiserBeta)
+	half := bankHalfBand(bankHalfCoefs, bankHalfPass)
+	decSettle := bankDecimatorSettle(half)
 	n := bankChunk
 	for k := range fb.stages {
 		st := &fb.stages[k]
@@ -265,28 +283,22 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 			st.in = make([]float64, n)
 		}
 		if k+1 < nstage {
-			st.dec = &bankDecimator{
-				odd: odd,
-				buf: make([]float64, bankHalfTaps-1+n),
-			}
+			st.dec = newBankDecimator(half)
 		}
 	}
 	for i, bd := range bands {
 		k := stageOf[i]
 		st := &fb.stages[k]
 		order := bankOrder
-		switch {
-		case k == 0 && bd.Upper > bankTopEdge*fs:
+		if k == 0 && bd.Upper > bankTopEdge*fs {
 			order = bankOrderTop
-		case k == 0 && bd.Upper > bankStageTop*fs:
-			order = bankOrderHigh
 		}
 		sec, gain := bankBandPass(order, bd.Lower, bd.Upper, bd.Mid, st.rate)
 		settle := bankSettle(sec, st.rate/(bd.Upper-bd.Lower))
 		if k > 0 {
-			// The decimators above start from rest too: their 23-tap windows fill within
-			// 22·(2^k - 1) input samples, fewer than 22 at this stage's rate.
-			settle += bankHalfTaps - 1
+			// The decimators above start from rest too: each rings down within decSettle of
+			// its output samples, all of them within 2·decSettle at this stage's rate.
+			settle += 2 * decSettle
 		}
 		fb.where[i] = bankWhere{stage: k, filter: len(st.filters)}
 		st.filters = append(st.filters, bankFilter{
@@ -312,8 +324,8 @@ func bankBandPass(n int, f1, f2, fm, fs float64) ([]Section, float64) {
 	w1 := k * math.Tan(math.Pi*f1/fs)
 	w2 := k * math.Tan(math.Pi*f2/fs)
 	w0sq := w1 * w2
-	half := math.Pi / float64(2*n)
-	bw := (w2 - w1) * math.Sin(half) / half
+	// The prototype's response at the band edges, 1/(1 + (B/bw)^(2n)), is bankEdgeDB down.
+	bw := (w2 - w1) * math.Pow(math.Pow(10, bankEdgeDB/10)-1, -1/float64(2*n))
 	var upper, reals []complex128
 	for i := 0; i < n; i++ {
 		p := cmplx.Exp(complex(0, math.Pi*float64(2*i+n+1)/float64(2*n)))
@@ -375,56 +387,180 @@ func bankSettle(sec []Section, cycles float64) int {
 	return n
 }
 
-// bankHalfBand returns the odd taps h[1], h[3], ..., h[M] of a Kaiser-windowed half-band
-// low-pass of length l = 4m+3 (M = (l-1)/2): h[j] = sin(πj/2)/(πj)·w(j), with h[0] = 1/2 and
-// the other even taps zero, scaled so that the gain is exactly 1 at DC and 0 at the Nyquist
-// frequency.
-func bankHalfBand(l int, beta float64) []float64 {
-	m := (l - 1) / 2
-	odd := make([]float64, 0, (m+1)/2)
+// bankHalfBand returns the all-pass coefficients of an elliptic half-band low-pass with n
+// coefficients (order 2n+1) and pass band edge fp (a fraction of the sample rate; the stop band
+// starts at 0.5 - fp), in the polyphase form of bankDecimator: coefficients 0, 2, 4 ... belong to
+// branch A0, 1, 3 ... to A1. It is the classical design of such filters from the Jacobi elliptic
+// functions (R. A. Valenzuela and A. G. Constantinides, "Digital signal processing schemes for
+// efficient interpolation and decimation", IEE Proceedings G, 1983): with the selectivity
+// k = tan²(π(1 - 2t)/4) for the transition width t = 0.5 - 2fp and the nome q of the modulus
+// (series in e = ½(1 - k'^½)/(1 + k'^½), k' = √(1 - k²)), the coefficient i (c = i + 1) is
+// (1 - x)/(1 + x) with x = √((1 - w²k)(1 - w²/k))/(1 + w²) and
+// w = q^¼·Σ (-1)^m q^(m(m+1)) sin((2m+1)cπ/(2n+1)) / (½ + Σ_{m≥1} (-1)^m q^(m²) cos(2mcπ/(2n+1))).
+// The tests check the resulting response, not these formulas.
+func bankHalfBand(n int, fp float64) []float64 {
+	t := 0.5 - 2*fp
+	k := math.Pow(math.Tan((1-2*t)*math.Pi/4), 2)
+	kk := math.Pow(1-k*k, 0.25)
+	e := 0.5 * (1 - kk) / (1 + kk)
+	e4 := e * e * e * e
+	q := e * (1 + e4*(2+e4*(15+150*e4)))
+	order := float64(2*n + 1)
+	coef := make([]float64, n)
+	for i := range coef {
+		c := float64(i + 1)
+		num, sign := 0.0, 1.0
+		for m := 0; ; m++ {
+			term := math.Pow(q, float64(m*(m+1))) * math.Sin(float64(2*m+1)*c*math.Pi/order) * sign
+			num += term
+			sign = -sign
+			if math.Abs(term) < 1e-100 {
+				break
+			}
+		}
+		den, sign := 0.5, -1.0
+		for m := 1; ; m++ {
+			term := math.Pow(q, float64(m*m)) * math.Cos(2*float64(m)*c*math.Pi/order) * sign
+			den += term
+			sign = -sign
+			if math.Abs(term) < 1e-100 {
+				break
+			}
+		}
+		w := num * math.Pow(q, 0.25) / den
+		w2 := w * w
+		x := math.Sqrt((1-w2*k)*(1-w2/k)) / (1 + w2)
+		coef[i] = (1 - x) / (1 + x)
+	}
+	return coef
+}
+
+func newBankDecimator(coef []float64) *bankDecimator {
+	d := &bankDecimator{}
+	for i, a := range coef {
+		if i%2 == 0 {
+			d.a0 = append(d.a0, a)
+		} else {
+			d.a1 = append(d.a1, a)
+		}
+	}
+	d.s0 = make([]float64, len(d.a0)+1)
+	d.s1 = make([]float64, len(d.a1)+1)
+	return d
+}
+
+// bankDecimatorSettle returns the number of output samples after which the decimator's impulse
+// response has delivered bankSettledShare of its energy.
+func bankDecimatorSettle(coef []float64) int {
+	d := newBankDecimator(coef)
+	x := make([]float64, 2048)
+	x[0] = 1
+	y := make([]float64, len(x)/2)
+	d.decimate(x, y)
+	total := 0.0
+	for _, v := range y {
+		total += v * v
+	}
 	sum := 0.0
-	for j := 1; j <= m; j += 2 {
-		r := float64(j) / float64(m)
-		w := besselI0(beta*math.Sqrt(1-r*r)) / besselI0(beta)
-		h := math.Sin(math.Pi*float64(j)/2) / (math.Pi * float64(j)) * w
-		odd = append(odd, h)
-		sum += h
+	for i, v := range y {
+		sum += v * v
+		if sum >= bankSettledShare*total {
+			return i + 1
+		}
 	}
-	for i := range odd {
-		odd[i] *= 0.25 / sum
+	return len(y)
+}
+
+// allpassChain runs x through first-order all-pass sections (a + z⁻¹)/(1 + a·z⁻¹) in turn,
+// y = a·(x - y[n-1]) + x[n-1]; s holds each section's last input, then the last section's
+// output, so that a section's last input is the previous section's last output.
+func allpassChain(a, s []float64, x float64) float64 {
+	for i, c := range a {
+		y := c*(x-s[i+1]) + s[i]
+		s[i] = x
+		x = y
 	}
-	return odd
+	s[len(a)] = x
+	return x
 }
 
 // response returns the frequency response of the decimator's filter at f for input rate fs.
 func (d *bankDecimator) response(f, fs float64) complex128 {
-	w := 2 * math.Pi * f / fs
-	m := 2*len(d.odd) - 1
-	a := 0.5
-	for i, h := range d.odd {
-		a += 2 * h * math.Cos(w*float64(2*i+1))
+	z1 := cmplx.Exp(complex(0, -2*math.Pi*f/fs)) // z⁻¹
+	z2 := z1 * z1
+	chain := func(a []float64) complex128 {
+		h := complex(1, 0)
+		for _, c := range a {
+			h *= (complex(c, 0) + z2) / (1 + complex(c, 0)*z2)
+		}
+		return h
 	}
-	return complex(a, 0) * cmplx.Exp(complex(0, -w*float64(m)))
+	return 0.5 * (chain(d.a0) + z1*chain(d.a1))
 }
 
 // decimate filters x and writes the kept samples to out, returning their number.
 func (d *bankDecimator) decimate(x, out []float64) int {
-	const h = bankHalfTaps - 1
-	n := len(x)
-	copy(d.buf[h:], x)
-	buf := d.buf[:h+n]
-	t := (*[(bankHalfTaps + 1) / 4]float64)(d.odd)
-	k := 0
-	for i := h + d.phase; i < h+n; i += 2 {
-		// The window of the 23 taps ending at sample i, centre at 11.
-		w := (*[bankHalfTaps]float64)(buf[i-h : i+1])
-		out[k] = 0.5*w[11] + t[0]*(w[10]+w[12]) + t[1]*(w[8]+w[14]) + t[2]*(w[6]+w[16]) +
-			t[3]*(w[4]+w[18]) + t[4]*(w[2]+w[20]) + t[5]*(w[0]+w[22])
-		k++
+	if len(d.a0) == 3 && len(d.a1) == 2 {
+		return d.decimate5(x, out)
 	}
-	d.phase = (d.phase + n) & 1
-	copy(d.buf[:h], buf[n:n+h])
+	return d.decimateAny(x, out)
+}
+
+// decimateAny is decimate for any number of coefficients.
+func (d *bankDecimator) decimateAny(x, out []float64) int {
+	k := 0
+	for _, v := range x {
+		if d.phase == 1 {
+			d.odd = allpassChain(d.a1, d.s1, v)
+			d.phase = 0
+			continue
+		}
+		out[k] = 0.5 * (allpassChain(d.a0, d.s0, v) + d.odd)
+		k++
+		d.phase = 1
+	}
 	return k
+}
+
+// decimate5 is decimate for five coefficients (three in A0, two in A1), with the states in
+// registers and a kept and a skipped sample per turn; an odd sample at either end goes through
+// decimateAny. It computes the same bits as decimateAny.
+func (d *bankDecimator) decimate5(x, out []float64) int {
+	k := 0
+	if d.phase == 1 && len(x) > 0 {
+		d.decimateAny(x[:1], out) // a skipped sample: nothing kept
+		x = x[1:]
+	}
+	c0, c1, c2 := d.a0[0], d.a0[1], d.a0[2]
+	e0, e1 := d.a1[0], d.a1[1]
+	s := (*[4]float64)(d.s0)
+	t := (*[3]float64)(d.s1)
+	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
+	t0, t1, t2 := t[0], t[1], t[2]
+	odd := d.odd
+	n := len(x) &^ 1
+	for i := 0; i < n; i += 2 {
+		// The kept sample through A0.
+		v := x[i]
+		y := c0*(v-s1) + s0
+		s0 = v
+		u := c1*(y-s2) + s1
+		s1 = y
+		s3 = c2*(u-s3) + s2
+		s2 = u
+		out[k] = 0.5 * (s3 + odd)
+		k++
+		// The skipped sample through A1.
+		v = x[i+1]
+		y = e0*(v-t1) + t0
+		t0 = v
+		t1, t2 = y, e1*(y-t2)+t1
+		odd = t2
+	}
+	*s = [4]float64{s0, s1, s2, s3}
+	*t = [3]float64{t0, t1, t2}
+	d.odd = odd
+	return k + d.decimateAny(x[n:], out[k:])
 }
 
 // Bands returns the bands of the bank, lowest first, as a fresh slice.
@@ -474,9 +610,9 @@ func (b *FilterBank) chunk(x []float64) {
 //	w[n] = x[n] - a2·w[n-2] - a1·w[n-1],  y[n] = w[n] - w[n-2],
 //
 // section after section for each sample, and adds y² to f.sum. The sections of one band run
-// in the same loop so that the processor can overlap them across samples, and the a1 term
-// comes last so that the recursion through w[n-1] costs one multiplication and one
-// subtraction of latency per sample.
+// in the same loop so that the processor can overlap them across samples (their recursions are
+// independent chains), and the a1 term comes last so that the recursion through w[n-1] costs
+// one multiplication and one subtraction of latency per sample.
 func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
@@ -493,9 +629,6 @@ func (f *bankFilter) run(x []float64) {
 
 func (f *bankFilter) runSections(x []float64) {
 	switch len(f.sec) {
-	case 3:
-		f.run3(x)
-		return
 	case 4:
 		f.run4(x)
 		return
@@ -520,32 +653,6 @@ func (f *bankFilter) runAny(x []float64) {
 		}
 		sum += v * v
 	}
-	f.sum = sum
-}
-
-func (f *bankFilter) run3(x []float64) {
-	a11, a12 := f.sec[0].A1, f.sec[0].A2
-	a21, a22 := f.sec[1].A1, f.sec[1].A2
-	a31, a32 := f.sec[2].A1, f.sec[2].A2
-	p1, q1 := f.state[0][0], f.state[0][1]
-	p2, q2 := f.state[1][0], f.state[1][1]
-	p3, q3 := f.state[2][0], f.state[2][1]
-	sum := f.sum
-	for _, v := range x {
-		w := v - a12*q1 - a11*p1
-		v = w - q1
-		q1, p1 = p1, w
-		w = v - a22*q2 - a21*p2
-		v = w - q2
-		q2, p2 = p2, w
-		w = v - a32*q3 - a31*p3
-		v = w - q3
-		q3, p3 = p3, w
-		sum += v * v
-	}
-	f.state[0] = [2]float64{p1, q1}
-	f.state[1] = [2]float64{p2, q2}
-	f.state[2] = [2]float64{p3, q3}
 	f.sum = sum
 }
 
@@ -695,17 +802,18 @@ func (b *FilterBank) Reset() {
 		}
 		st.count = 0
 		if st.dec != nil {
-			clear(st.dec.buf)
-			st.dec.phase = 0
+			clear(st.dec.s0)
+			clear(st.dec.s1)
+			st.dec.odd, st.dec.phase = 0, 0
 		}
 	}
 }
 
 // Settle returns the time in seconds from rest (construction or Reset) after which band i (an
 // index into Bands) counts as settled: its band-pass filter's impulse response has delivered
-// 99.9 % of its energy (a steady noise then reads within 0.005 dB), plus the filling of the
+// 99.9 % of its energy (a steady noise then reads within 0.005 dB), plus the ringing of the
 // decimators above its stage. SettledMeanSquare leaves out the outputs before it. At 48 kHz it is
-// about 1.1 s for the 12.5 Hz one-third octave, 0.11 s for 125 Hz and 10 ms for 1250 Hz; it scales
+// about 2.2 s for the 12.5 Hz one-third octave, 0.25 s for 125 Hz and 20 ms for 1250 Hz; it scales
 // with the inverse of the bandwidth.
 func (b *FilterBank) Settle(i int) float64 {
 	w := b.where[i]

@@ -467,13 +467,13 @@ func TestBandAdjacentSum(t *testing.T) {
 		fs     float64
 		lo, hi string
 	}{
-		{Third, 48000, "4000", "5000"},  // stages 1 and 0
-		{Third, 48000, "2000", "2500"},  // stages 2 and 1
-		{Third, 48000, "125", "160"},    // stages 6 and 5
-		{Third, 44100, "3150", "4000"},  // stages 1 and 0
-		{Octave, 48000, "1000", "2000"}, // stages 2 and 1
-		{Octave, 48000, "2000", "4000"}, // stages 1 and 0
-		{Octave, 8000, "500", "1000"},   // stages 1 and 0
+		{Third, 48000, "4000", "5000"},  // stages 2 and 1
+		{Third, 48000, "2000", "2500"},  // stages 3 and 2
+		{Third, 48000, "125", "160"},    // stages 7 and 6
+		{Third, 44100, "3150", "4000"},  // stages 2 and 1
+		{Octave, 48000, "1000", "2000"}, // stages 3 and 2
+		{Octave, 48000, "2000", "4000"}, // stages 2 and 1
+		{Octave, 8000, "500", "1000"},   // stages 2 and 1
 	} {
 		fb, err := NewFilterBank(c.set, c.fs)
 		if err != nil {
@@ -660,26 +660,16 @@ func TestBandNoAllocation(t *testing.T) {
 	}
 }
 
-// TestBandKernels checks that the unrolled kernels for three, four and five sections compute
-// the same bits as the general loop.
+// TestBandKernels checks that the unrolled kernels for four and five sections compute the same
+// bits as the general loop.
 func TestBandKernels(t *testing.T) {
-	fb, err := NewFilterBank(Third, 48000)
-	if err != nil {
-		t.Fatal(err)
-	}
 	x := bankTestSignal(3000, 48000)
-	for _, n := range []int{3, 4, 5} {
-		var f *bankFilter
-		for i := range fb.stages[0].filters {
-			if len(fb.stages[0].filters[i].sec) == n {
-				f = &fb.stages[0].filters[i]
-			}
-		}
-		if f == nil {
-			t.Fatalf("no band with %d sections in stage 0", n)
-		}
-		g := bankFilter{sec: f.sec, state: make([][2]float64, n)}
-		f.run(x)
+	for _, n := range []int{4, 5} {
+		sec, _ := bankBandPass(n, 8913, 11220, 10000, 48000)
+		f := bankFilter{sec: sec, state: make([][2]float64, n)}
+		g := bankFilter{sec: sec, state: make([][2]float64, n)}
+		f.run(x[:1000])
+		f.run(x[1000:])
 		g.runAny(x)
 		if f.sum != g.sum || f.state[n-1] != g.state[n-1] {
 			t.Errorf("%d sections: unrolled sum %g state %v, general %g %v", n, f.sum, f.state[n-1], g.sum, g.state[n-1])
@@ -790,9 +780,9 @@ func ExampleFilterBank() {
 		}
 	}
 	// Output:
-	//  800 Hz:  99.81 dB
+	//  800 Hz:  90.23 dB
 	// 1000 Hz: 120.00 dB
-	// 1250 Hz: 100.78 dB
+	// 1250 Hz:  97.00 dB
 }
 
 // BenchmarkFilterBank measures Process on one second of noise at 48 kHz (one block of 48000
@@ -814,5 +804,134 @@ func BenchmarkFilterBank(b *testing.B) {
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N)/fs, "ns/sample")
 		})
+	}
+}
+
+// TestBandEdgeCrossing: adjacent bands cross at -3.0 dB (within 0.25 dB; the design goal of
+// issue 18, so that a sine on the edge reads half its energy in each band) at the exact band
+// edge fm·G^(1/(2b)) = f(m+1)·G^(-1/(2b)) with fm = 1000·G^(x/b), G = 10^(3/10) (IEC
+// 61260-1:2014 Eq. 1, 2, 4, 5), written out here, for every pair at rates from 8 to 192 kHz. The
+// IEC 61260-1:2014 Table 1 class 1 limits at the edge are 1.2 to 5.3 dB (via phonometry
+// filters.py). Before, a sine on the 1000/1250 Hz edge read 3.64 dB down in each band.
+func TestBandEdgeCrossing(t *testing.T) {
+	for _, set := range []BandSet{Third, Octave} {
+		b := float64(set)
+		for _, fs := range []float64{8000, 11025, 44100, 48000, 96000, 192000} {
+			fb, err := NewFilterBank(set, fs)
+			if err != nil {
+				t.Fatal(err)
+			}
+			worst := 0.0
+			bands := fb.Bands()
+			for i := 0; i+1 < len(bands); i++ {
+				edge := 1000 * math.Pow(bankG, float64(bands[i].X)/b) * math.Pow(bankG, 1/(2*b))
+				if next := 1000 * math.Pow(bankG, float64(bands[i+1].X)/b) * math.Pow(bankG, -1/(2*b)); math.Abs(next/edge-1) > 1e-12 {
+					t.Fatalf("edges %g and %g differ", edge, next)
+				}
+				for _, j := range []int{i, i + 1} {
+					h := cmplx.Abs(fb.Response(j, edge)) / cmplx.Abs(fb.Response(j, 1000*math.Pow(bankG, float64(bands[j].X)/b)))
+					d := 20 * math.Log10(h)
+					if math.Abs(d+3) > 0.25 {
+						t.Errorf("%v at %g Hz: band %s at the edge %.1f Hz reads %.3f dB, want -3.0 ± 0.25", set, fs, bands[j].Nominal, edge, d)
+					}
+					worst = max(worst, math.Abs(d+3))
+				}
+			}
+			t.Logf("%v at %g Hz: crossing within %.3f dB of -3.0", set, fs, worst)
+		}
+	}
+	// Through Process: a sine of amplitude 1 on the 1000/1250 Hz edge (1122.02 Hz) reads
+	// -3.0 ± 0.25 dB in both bands, and the two together hold its mean square, 1/2, within the
+	// same 0.25 dB.
+	fb, _ := NewFilterBank(Third, 48000)
+	i, j := bankIndex(t, fb, "1000"), bankIndex(t, fb, "1250")
+	edge := 1000 * math.Pow(bankG, 1.0/6)
+	ms := bankMeasureSine(fb, edge, math.Max(bankSettleTime(fb, i), bankSettleTime(fb, j)))
+	for _, k := range []int{i, j} {
+		if d := 10 * math.Log10(ms[k]/0.5); math.Abs(d+3) > 0.25 {
+			t.Errorf("sine on the 1000/1250 Hz edge: band %s reads %.3f dB", fb.bands[k].Nominal, d)
+		}
+	}
+	if d := 10 * math.Log10((ms[i]+ms[j])/0.5); math.Abs(d) > 0.25 {
+		t.Errorf("sine on the 1000/1250 Hz edge: the two bands sum to %.3f dB of the sine", d)
+	}
+}
+
+// TestBandSineEnergySum: for sines across every band, the energies of all bands sum to the
+// sine's within -0.9/+0.75 dB, inside the class 1 limits of IEC 61260-1:2014 5.16 for the sum of
+// adjacent bands, +0.8/-1.8 dB (via phonometry filters.py). The bound is this design's: bands of
+// Butterworth band-pass filters are not power complementary, so a sine a little inside a band
+// still reads 7 to 9 dB down in its neighbour (fourth order, analog: up to +0.2 dB), and the
+// warping of the bilinear transform near each stage's Nyquist frequency adds to it (the earlier
+// third-order bank: -0.88/+0.54 dB for one-third octaves; the octave bank at 8 kHz reaches
+// -0.84 dB, where each stage holds one octave band whose edges lie at 0.18 and 0.36 of its
+// rate). The sum uses the analytic responses at 16 frequencies per
+// band from its lower to its upper edge, at rates from 8 to 192 kHz, and Process for a sine at
+// each of 5 frequencies across the 1 kHz band at 48 kHz.
+func TestBandSineEnergySum(t *testing.T) {
+	for _, set := range []BandSet{Third, Octave} {
+		for _, fs := range []float64{8000, 44100, 48000, 192000} {
+			fb, err := NewFilterBank(set, fs)
+			if err != nil {
+				t.Fatal(err)
+			}
+			bands := fb.Bands()
+			lo, hi := 0.0, 0.0
+			for i, bd := range bands {
+				for s := 0; s <= 16; s++ {
+					f := bd.Lower * math.Pow(bd.Upper/bd.Lower, float64(s)/16)
+					if i == 0 && s < 8 || i == len(bands)-1 && s > 8 {
+						continue // outside the bank's range, there is no neighbour to share with
+					}
+					sum := 0.0
+					for j := range bands {
+						h := cmplx.Abs(fb.Response(j, f))
+						sum += h * h
+					}
+					d := 10 * math.Log10(sum)
+					lo, hi = min(lo, d), max(hi, d)
+					if d < -0.9 || d > 0.75 {
+						t.Errorf("%v at %g Hz: a sine at %.1f Hz (band %s) sums to %.3f dB over all bands", set, fs, f, bd.Nominal, d)
+					}
+				}
+			}
+			t.Logf("%v at %g Hz: sums of all bands for sines across the bands: %.3f to %+.3f dB", set, fs, lo, hi)
+		}
+	}
+	fb, _ := NewFilterBank(Third, 48000)
+	i := bankIndex(t, fb, "1000")
+	bd := fb.bands[i]
+	for s := 0; s <= 4; s++ {
+		f := bd.Lower * math.Pow(bd.Upper/bd.Lower, float64(s)/4)
+		ms := bankMeasureSine(fb, f, bankSettleTime(fb, 0))
+		sum := 0.0
+		for _, v := range ms {
+			sum += v
+		}
+		if d := 10 * math.Log10(sum/0.5); d < -0.9 || d > 0.75 {
+			t.Errorf("sine of amplitude 1 at %.1f Hz through Process: the bands sum to %.3f dB of its mean square", f, d)
+		}
+	}
+}
+
+// TestBandDecimatorKernel checks that the unrolled five-coefficient decimator computes the same
+// bits as the general loop, whatever the phase and the block cut.
+func TestBandDecimatorKernel(t *testing.T) {
+	coef := bankHalfBand(5, bankHalfPass)
+	x := bankTestSignal(1001, 48000)
+	a, b := newBankDecimator(coef), newBankDecimator(coef)
+	ya, yb := make([]float64, len(x)), make([]float64, len(x))
+	na, nb := 0, 0
+	for _, cut := range [][2]int{{0, 1}, {1, 4}, {4, 7}, {7, 500}, {500, 1001}} {
+		na += a.decimate5(x[cut[0]:cut[1]], ya[na:])
+		nb += b.decimateAny(x[cut[0]:cut[1]], yb[nb:])
+	}
+	if na != nb || na != 501 {
+		t.Fatalf("kept %d and %d samples, want 501", na, nb)
+	}
+	for i := range na {
+		if ya[i] != yb[i] {
+			t.Fatalf("sample %d: unrolled %g, general %g", i, ya[i], yb[i])
+		}
 	}
 }

@@ -15,8 +15,10 @@
 // 1 kHz sine of 94 dB SPL produces at the converter, as MEMS microphone data sheets state it.
 //
 // The package is pure computation: it does no I/O, starts no goroutines and allocates nothing
-// per audio block once a Meter is built. Filters start from rest (zero state), so the first
-// fraction of a second after construction reads low; callers flag it as settling.
+// per audio block once a Meter is built. Filters start from rest (zero state) and are never
+// primed with the signal, but no level reports their start-up: minima and band levels count only
+// once their detector or filter has settled (see Meter); callers still flag the first seconds of
+// a run as settling.
 //
 // The published check values used by the tests and by the self-verification command live in
 // the sub-package reference, with their sources.

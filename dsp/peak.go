@@ -31,6 +31,7 @@ type peakDetector struct {
 	coef [peakPhases - 1][peakTaps]float64 // phases 1/4, 2/4, 3/4
 	win  [peakTaps - 1 + chunk]float64     // history, then the current chunk
 	max  float64                           // largest magnitude found in the current interval
+	cand [chunk + 1]int32                  // scratch: positions in win that may start a peak
 }
 
 // newPeakDetector designs the interpolator: a Kaiser-windowed sinc (β = 8), each phase
@@ -72,31 +73,55 @@ func (d *peakDetector) process(x []float64) {
 	// The pair starting at w[j] uses w[j-(peakTaps-1-peakHalfLen) : j+peakHalfLen+1];
 	// with h samples of history, j runs from lo to lo+n-1.
 	const lo = peakTaps - 1 - peakHalfLen
+	// One pass finds the running peak of the samples and, as candidates, the samples that reach
+	// 1/√2 of the running peak so far: a superset of those that reach 1/√2 of the chunk's final
+	// peak, which are the only ones near which the waveform can rise above it. w[lo] ends the
+	// previous chunk and is already in d.max.
 	m := d.max
-	for _, v := range w[lo+1 : lo+n+1] { // the second sample of every pair
-		m = max(m, math.Abs(v))
+	g := m * math.Sqrt2 / 2
+	nc := 0
+	if math.Abs(w[lo]) >= g {
+		d.cand[0] = lo
+		nc = 1
+	}
+	for i := lo + 1; i <= lo+n; i++ {
+		a := math.Abs(w[i])
+		if a >= g {
+			d.cand[nc] = int32(i)
+			nc++
+			if a > m {
+				m = a
+				g = m * math.Sqrt2 / 2
+			}
+		}
 	}
 	// The waveform's peak lies next to a sample whose magnitude is a local maximum: examine
-	// the pairs on either side of such samples, when they reach 1/√2 of the running peak.
+	// the pairs on either side of such samples, when they reach 1/√2 of the peak. The pair
+	// (j, j+1) is examined once, in order of j, exactly when one of its samples reaches that.
 	gate := m * math.Sqrt2 / 2
-	for j := lo; j < lo+n; j++ {
-		a0, a1 := math.Abs(w[j]), math.Abs(w[j+1])
-		if max(a0, a1) < gate {
+	last := lo - 1 // the last pair examined
+	for _, c := range d.cand[:nc] {
+		i := int(c)
+		if math.Abs(w[i]) < gate {
 			continue
 		}
-		peak0 := a0 >= math.Abs(w[j-1]) && a0 >= a1
-		peak1 := a1 >= a0 && a1 >= math.Abs(w[j+2])
-		if !peak0 && !peak1 {
-			continue
-		}
-		seg := w[j-lo : j-lo+peakTaps]
-		for p := range d.coef {
-			c := &d.coef[p]
-			var y float64
-			for k, v := range seg {
-				y += c[k] * v
+		for j := max(i-1, last+1, lo); j <= i && j < lo+n; j++ {
+			last = j
+			a0, a1 := math.Abs(w[j]), math.Abs(w[j+1])
+			peak0 := a0 >= math.Abs(w[j-1]) && a0 >= a1
+			peak1 := a1 >= a0 && a1 >= math.Abs(w[j+2])
+			if !peak0 && !peak1 {
+				continue
 			}
-			m = max(m, math.Abs(y))
+			seg := w[j-lo : j-lo+peakTaps]
+			for p := range d.coef {
+				c := &d.coef[p]
+				var y float64
+				for k, v := range seg {
+					y += c[k] * v
+				}
+				m = max(m, math.Abs(y))
+			}
 		}
 	}
 	d.max = m

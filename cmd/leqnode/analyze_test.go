@@ -27,7 +27,7 @@ func runCmd(t *testing.T, stdin []byte, args ...string) (int, string, string) {
 }
 
 // writeWAV writes samples (interleaved) to a WAV file in dir and returns its path.
-func writeWAV(t *testing.T, dir, name string, f wav.Format, samples []float32) string {
+func writeWAV(t testing.TB, dir, name string, f wav.Format, samples []float32) string {
 	t.Helper()
 	path := filepath.Join(dir, name)
 	fh, err := os.Create(path)

@@ -51,7 +51,7 @@ func stopChild(t *testing.T, cmd *exec.Cmd, stderr *strings.Builder) {
 }
 
 // childCmd returns a command that runs leqnode with args in a child process.
-func childCmd(t *testing.T, args ...string) *exec.Cmd {
+func childCmd(t testing.TB, args ...string) *exec.Cmd {
 	t.Helper()
 	exe, err := os.Executable()
 	if err != nil {

@@ -8,8 +8,9 @@
 //
 // No level reports the filters' start-up from rest (the rule of dsp.Meter: minima and band levels
 // count only once their detector or filter has settled, and are null for an interval that ends
-// before that). Besides, an interval's band level is null when the interval is shorter than the
-// band's response time 1/B, B its bandwidth (0.34 s for the 12.5 Hz one-third octave, 2.3 ms for
+// before that). Besides, an interval's band level is null when the span it covers (the interval,
+// or its part after the band filter has settled) is shorter than the band's response time 1/B,
+// B its bandwidth (0.34 s for the 12.5 Hz one-third octave, 2.3 ms for
 // 1 kHz): a band-pass filter cannot follow level changes faster than that (the time-bandwidth
 // product, common practice), so such a level is a snapshot of the band's waveform, not a level.
 // The band's energy still counts toward the summary, which covers the whole recording.
@@ -93,7 +94,11 @@ func Run(ctx context.Context, r *wav.Reader, opts Options, each func(Interval) e
 		m.Take(&res)
 		acc.Add(&res)
 		for i, b := range bands {
-			if res.Duration*(b.Upper-b.Lower) < 1 { // shorter than the band's response time
+			span := res.Duration
+			if i < len(res.BandSeconds) {
+				span = res.BandSeconds[i] // the settled part of the interval
+			}
+			if span*(b.Upper-b.Lower) < 1 { // shorter than the band's response time
 				res.Bands[i] = math.NaN()
 			}
 		}

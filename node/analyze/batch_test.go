@@ -2,6 +2,7 @@ package analyze
 
 import (
 	"context"
+	"fmt"
 	"os"
 	"path/filepath"
 	"slices"
@@ -84,4 +85,21 @@ func TestOrderedCancel(t *testing.T) {
 			t.Fatalf("emitted %v: not the first %d items", got, len(got))
 		}
 	}
+}
+
+// ExampleOrdered measures recordings (here: squares) on two workers and prints the results in
+// input order, whichever finishes first.
+func ExampleOrdered() {
+	inputs := []float64{3, 1, 4, 1, 5}
+	Ordered(context.Background(), len(inputs), 2, func(_ context.Context, i int) float64 {
+		return inputs[i] * inputs[i]
+	}, func(i int, r float64) {
+		fmt.Printf("%d: %g\n", i, r)
+	})
+	// Output:
+	// 0: 9
+	// 1: 1
+	// 2: 16
+	// 3: 1
+	// 4: 25
 }
