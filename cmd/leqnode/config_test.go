@@ -19,7 +19,7 @@ func TestConfigCheck(t *testing.T) {
 		}
 		return p
 	}
-	good := write("good.toml", "version = 1\n[web]\nenabled = true\naddr = \"0.0.0.0:8080\"\n")
+	good := write("good.toml", "version = 1\n[node]\nid = \"wendle-cross-07\"\n[capture]\nkind = \"arecord\"\n[web]\nenabled = true\naddr = \"0.0.0.0:8080\"\n")
 	code, out, errOut := runCmd(t, nil, "config", "check", good)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
@@ -33,7 +33,7 @@ func TestConfigCheck(t *testing.T) {
 		t.Errorf("no warning for web.addr 0.0.0.0 without a token: %q", errOut)
 	}
 
-	bad := write("bad.toml", "version = 1\n[Web]\nenabled = true\n[capture]\nsample_rate = \"fast\"\n[microphone]\nsensitivity_dbfs = 12\n")
+	bad := write("bad.toml", "version = 1\n[node]\nid = \"wendle-cross-07\"\n[Web]\nenabled = true\n[capture]\nkind = \"arecord\"\nsample_rate = \"fast\"\n[microphone]\nsensitivity_dbfs = 12\n")
 	code, _, errOut = runCmd(t, nil, "config", "check", bad)
 	if code != 2 {
 		t.Fatalf("exit %d, want 2", code)

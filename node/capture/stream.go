@@ -21,6 +21,7 @@ type stream struct {
 	logger *slog.Logger
 
 	ctx    context.Context
+	pump   *pump // reads s.in so that Close can end a Read waiting for input
 	format Format
 	dec    decoder
 	closed atomic.Bool
@@ -32,7 +33,7 @@ type decoder interface {
 }
 
 func newStream(c Config, r io.Reader, name string, logger *slog.Logger) *stream {
-	return &stream{cfg: c, in: r, name: name, logger: logger}
+	return &stream{cfg: c, in: r, name: name, logger: logger, pump: newPump(r)}
 }
 
 // wavMagic reports whether b starts like a RIFF/WAVE, RF64 or BW64 file.
@@ -48,12 +49,14 @@ func (s *stream) Open(ctx context.Context) (Format, error) {
 			return s.format, fmt.Errorf("%s: already open", s.name)
 		}
 		s.ctx = ctx
+		s.pump.arm(ctx)
 		s.closed.Store(false)
 		return s.format, nil
 	}
 	s.closed.Store(false)
 	s.ctx = ctx
-	br := bufio.NewReaderSize(s.in, 64<<10)
+	s.pump.arm(ctx)
+	br := bufio.NewReaderSize(s.pump, 64<<10)
 	isWAV := s.cfg.StdinFormat == StdinWAV
 	if s.cfg.StdinFormat == StdinAuto {
 		head, err := br.Peek(4)
@@ -125,10 +128,11 @@ func (s *stream) Read(dst []float32) (int, error) {
 
 func (s *stream) Dropped() int64 { return 0 }
 
-// Close marks the source closed until the next Open. It does not close the underlying reader,
-// which belongs to the caller (os.Stdin, say), so it cannot end a Read that waits for input.
+// Close marks the source closed until the next Open and ends a Read that waits for input (see
+// pump). It does not close the underlying reader, which belongs to the caller (os.Stdin, say).
 func (s *stream) Close() error {
 	s.closed.Store(true)
+	s.pump.interrupt()
 	return nil
 }
 

@@ -22,6 +22,7 @@ import (
 
 	"github.com/pelletier/go-toml/v2"
 
+	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/publish"
@@ -182,10 +183,10 @@ type Web struct {
 type Store struct {
 	// Path of the store file. Default: the systemd state directory's leqnode.db.
 	Path string `toml:"path"`
-	// CommitInterval is the group-commit period (Go duration, default "60s"). Trade-off:
-	// longer writes less to flash (measured: 3.7 MB per hour at 60 s, 12.3 MB at 10 s, see
-	// package buffer); a power cut loses up to one interval, and MQTT consumers see live records
-	// only once they are committed.
+	// CommitInterval is the group-commit period (Go duration; default
+	// buffer.DefaultCommitInterval, the one place the default is stated). Trade-off: longer
+	// writes less to flash (measured in package buffer); a power cut loses up to one interval,
+	// and MQTT consumers see live records only once they are committed.
 	CommitInterval string `toml:"commit_interval"`
 	// MaxMB caps the store's size in megabytes (0: the store's default cap).
 	MaxMB int64 `toml:"max_mb"`
@@ -202,7 +203,7 @@ func Default() *Config {
 		},
 		Capture:     capture.Config{Kind: "synthetic", SampleRate: 48000, Channels: 1, Channel: 1, Realtime: true, Seed: 1},
 		Measure:     Measure{Bands: "third", SettlingSeconds: 5},
-		Store:       Store{Path: "leqnode.db", CommitInterval: "10s"},
+		Store:       Store{Path: "leqnode.db", CommitInterval: fmt.Sprintf("%gs", buffer.DefaultCommitInterval.Seconds())},
 		Web:         Web{Addr: "127.0.0.1:8080"},
 		Calibration: Calibration{Detect: true, References: []float64{94, 114}, Class: "1", AdjustRangeDB: 3},
 		Events: Events{Enabled: true, ThresholdDB: 70, HysteresisDB: 3, HoldS: 1, MinDurationS: 1,

@@ -114,8 +114,13 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			return
 		}
 		ref := 94.0
-		if v := r.URL.Query().Get("reference"); v != "" {
-			f, err := strconv.ParseFloat(v, 64)
+		v, ok, err := strict.Param(r.URL.Query(), "reference")
+		if err != nil {
+			http.Error(w, err.Error(), http.StatusBadRequest)
+			return
+		}
+		if ok {
+			f, err := strict.Decimal(v)
 			if err != nil || f < 70 || f > 140 {
 				http.Error(w, "reference must be a level in dB between 70 and 140", http.StatusBadRequest)
 				return

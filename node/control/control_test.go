@@ -177,3 +177,33 @@ func TestOtherUsersRefused(t *testing.T) {
 		t.Errorf("group member: exit %d, %q", code, out)
 	}
 }
+
+// TestCalibrateReference: the reference level is one decimal number from 70 to 140; NaN,
+// hexadecimal floats and a repeated parameter are refused (strconv.ParseFloat took "NaN" and
+// "0x1p7", and Get took the first of two values; issue 20).
+func TestCalibrateReference(t *testing.T) {
+	h := handlers()
+	h.Calibrate = func(ctx context.Context, reference float64) (any, error) {
+		return map[string]float64{"reference": reference}, nil
+	}
+	s := startServer(t, t.TempDir(), -1, h)
+	c := NewClient(s.Path())
+	for _, tc := range []struct {
+		query string
+		code  int
+	}{
+		{"", http.StatusOK}, {"?reference=114", http.StatusOK}, {"?reference=93.9", http.StatusOK},
+		{"?reference=NaN", http.StatusBadRequest}, {"?reference=0x1p7", http.StatusBadRequest},
+		{"?reference=+94", http.StatusBadRequest}, {"?reference=94&reference=114", http.StatusBadRequest},
+		{"?reference=", http.StatusBadRequest}, {"?reference=150", http.StatusBadRequest},
+	} {
+		resp, err := c.hc.Post("http://leqnode/calibrate"+tc.query, "", nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		resp.Body.Close()
+		if resp.StatusCode != tc.code {
+			t.Errorf("calibrate%s: status %d, want %d", tc.query, resp.StatusCode, tc.code)
+		}
+	}
+}

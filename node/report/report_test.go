@@ -241,17 +241,24 @@ func readCSV(t *testing.T, path string) [][]string {
 	return rows
 }
 
-// TestPlotsNonEmpty: every plot is a PNG image with pixels of more than one colour.
-func TestPlotsNonEmpty(t *testing.T) {
-	dir := t.TempDir()
-	path := filepath.Join(dir, "s.db")
+// oneDayStore returns a read-only store of one day of testStore's data from 2026-06-01 and
+// that day's start; it is closed when the test ends.
+func oneDayStore(t *testing.T) (*buffer.Store, time.Time) {
+	t.Helper()
+	path := filepath.Join(t.TempDir(), "s.db")
 	start := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
 	testStore(t, path, start, 1)
 	st, err := buffer.OpenReadOnly(path, time.Second)
 	if err != nil {
 		t.Fatal(err)
 	}
-	defer st.Close()
+	t.Cleanup(func() { st.Close() })
+	return st, start
+}
+
+// TestPlotsNonEmpty: every plot is a PNG image with pixels of more than one colour.
+func TestPlotsNonEmpty(t *testing.T) {
+	st, start := oneDayStore(t)
 	prof := loadProfile(t, "india-2000")
 	zone, _ := prof.Zone("commercial")
 	r, err := Compute(context.Background(), st, Config{Profile: prof, Zone: zone, Location: time.UTC, From: start, To: start.Add(24 * time.Hour)})
@@ -467,15 +474,7 @@ func TestReportEmptyRange(t *testing.T) {
 // so a low night limit is drawn, not only named in the legend (issue 19 item 7: the axis
 // started at 50 dB with a 40 dB limit); and the plots' text is sans-serif like the page.
 func TestPlotsShowLimitsAndSansSerif(t *testing.T) {
-	dir := t.TempDir()
-	path := filepath.Join(dir, "s.db")
-	start := time.Date(2026, 6, 1, 0, 0, 0, 0, time.UTC)
-	testStore(t, path, start, 1)
-	st, err := buffer.OpenReadOnly(path, time.Second)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer st.Close()
+	st, start := oneDayStore(t)
 	// An invented zone of Wendle Cross with limits far below the stored levels (48 to 62 dB).
 	prof, err := profiles.Parse([]byte("[[period]]\nname = \"day\"\nstart = \"06:00\"\n[[period]]\nname = \"night\"\nstart = \"22:00\"\n"+
 		"[[zone]]\nname = \"quiet\"\nlimits = { day = 35, night = 25 }\n"), "quiet-test", "quiet.toml")

@@ -1,6 +1,7 @@
 package strict_test
 
 import (
+	"net/url"
 	"strings"
 	"testing"
 	"time"
@@ -155,6 +156,29 @@ func TestTOML(t *testing.T) {
 	for i, p := range probs {
 		if p.String() != want[i] {
 			t.Errorf("problem %d = %q, want %q", i, p, want[i])
+		}
+	}
+}
+
+func TestQuery(t *testing.T) {
+	q := url.Values{"a": {"1"}, "b": {"1", "2"}}
+	if v, ok, err := strict.Param(q, "a"); v != "1" || !ok || err != nil {
+		t.Errorf("Param a: %q %v %v", v, ok, err)
+	}
+	if _, ok, err := strict.Param(q, "b"); !ok || err == nil {
+		t.Errorf("Param b given twice: %v %v", ok, err)
+	}
+	if _, ok, err := strict.Param(q, "c"); ok || err != nil {
+		t.Errorf("Param c absent: %v %v", ok, err)
+	}
+	for s, ok := range map[string]bool{"0": true, "180": true, "+5": false, "-1": false, " 5": false, "1e3": false, "0x10": false, "": false, "1_000": false} {
+		if _, err := strict.Whole(s); (err == nil) != ok {
+			t.Errorf("Whole(%q): %v", s, err)
+		}
+	}
+	for s, ok := range map[string]bool{"94": true, "93.9": true, "114.0": true, "NaN": false, "Inf": false, "0x1p7": false, "+94": false, "9.": false, ".5": false, "1e2": false} {
+		if _, err := strict.Decimal(s); (err == nil) != ok {
+			t.Errorf("Decimal(%q): %v", s, err)
 		}
 	}
 }

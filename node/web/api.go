@@ -15,6 +15,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp/reference"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // maxMinutes bounds /api/seconds: three hours of seconds is about 1 MB of JSON.
@@ -150,20 +151,24 @@ func secondOf(r *buffer.Second) secondJSON {
 		LAFmin: level(r.LAFmin), LCpeak: level(r.LCpeak), Flags: r.Flags.Names()}
 }
 
-// queryInt reads an integer query parameter in [lo, hi], def when absent.
+// queryInt reads an integer query parameter in [lo, hi], def when absent: given once, in
+// decimal digits only (package strict).
 func queryInt(r *http.Request, name string, def, lo, hi int) (int, error) {
-	v := r.URL.Query().Get(name)
-	if v == "" {
+	v, ok, err := strict.Param(r.URL.Query(), name)
+	if err != nil {
+		return 0, err
+	}
+	if !ok {
 		return def, nil
 	}
-	n, err := strconv.Atoi(v)
-	if err != nil || n < lo || n > hi {
+	n, err := strict.Whole(v)
+	if err != nil || n < int64(lo) || n > int64(hi) {
 		if len(v) > 20 {
 			v = v[:20] + "..."
 		}
 		return 0, fmt.Errorf("%s=%q: give a whole number from %d to %d", name, v, lo, hi)
 	}
-	return n, nil
+	return int(n), nil
 }
 
 func (s *Server) apiSeconds(w http.ResponseWriter, r *http.Request) {

@@ -274,7 +274,8 @@ func TestSeconds(t *testing.T) {
 			t.Errorf("%s: seconds out of time order", tc.query)
 		}
 	}
-	for _, bad := range []string{"0", "181", "-3", "ten", "1e3", strings.Repeat("9", 40)} {
+	// "+5" and " 5" passed strconv.Atoi; only decimal digits are a number here (issue 20).
+	for _, bad := range []string{"0", "181", "-3", "ten", "1e3", strings.Repeat("9", 40), "+5", "%205", "05%00", ""} {
 		res, body := get(t, s.Handler(), http.MethodGet, "/api/seconds?minutes="+bad)
 		var e struct{ Error string }
 		decode(t, body, &e)
@@ -282,8 +283,15 @@ func TestSeconds(t *testing.T) {
 			t.Errorf("minutes=%s: %d %q", bad, res.StatusCode, e.Error)
 		}
 	}
+	// A parameter given twice is refused: net/url's Get took the first.
+	res, body := get(t, s.Handler(), http.MethodGet, "/api/seconds?minutes=1&minutes=999")
+	var e struct{ Error string }
+	decode(t, body, &e)
+	if res.StatusCode != http.StatusBadRequest || !strings.Contains(e.Error, "minutes is given 2 times") {
+		t.Errorf("minutes given twice: %d %q", res.StatusCode, e.Error)
+	}
 	// Large answers are compressed for clients that accept it.
-	res, _ := get(t, s.Handler(), http.MethodGet, "/api/seconds", "Accept-Encoding", "gzip")
+	res, _ = get(t, s.Handler(), http.MethodGet, "/api/seconds", "Accept-Encoding", "gzip")
 	if res.Header.Get("Content-Encoding") != "gzip" {
 		t.Errorf("Content-Encoding %q, want gzip", res.Header.Get("Content-Encoding"))
 	}
