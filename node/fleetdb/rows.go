@@ -13,7 +13,9 @@ type Row struct {
 	Node  string    // the node id
 	Seq   int64     // sequence number within (Store, Kind); 0 for periods
 	Time  time.Time // the record's own time (its start): decides its partition
-	vals  []any     // every column, in the table's order
+	// Delivery is how the record came: live, backlog or resend ("" for periods).
+	Delivery string
+	vals     []any // every column, in the table's order
 }
 
 // Decoder turns validated payloads into rows. Its zero value is not usable: use NewDecoder.
@@ -54,6 +56,9 @@ func (d *Decoder) Rows(doc map[string]any, now time.Time) ([]Row, error) {
 	}
 	if err != nil {
 		return nil, err
+	}
+	for i := range rows {
+		rows[i].Delivery = delivery
 	}
 	for _, r := range rows {
 		if r.Time.Before(d.Earliest) || r.Time.After(now.Add(d.Ahead)) {
@@ -224,4 +229,3 @@ func spectrumRow(bands []int, v any) (any, any, error) {
 	}
 	return int16(bands[0]), out, nil
 }
-
