@@ -28,6 +28,7 @@ import (
 	"log/slog"
 	"net"
 	"net/http"
+	"sync/atomic"
 	"time"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
@@ -47,18 +48,20 @@ type Options struct {
 
 // Collector is the central collector. Create it with New and run it with Run.
 type Collector struct {
-	cfg      Config
-	opts     Options
-	log      *slog.Logger
-	in       *intake
-	m        *metrics
-	db       *fleetdb.DB
-	client   mqtt.Client
-	msgs     chan entry
-	stopped  chan struct{} // closed when Run returns: receive stops waiting
-	dbPass   string
-	mqttPass string
-	tls      bool
+	cfg     Config
+	opts    Options
+	log     *slog.Logger
+	in      *intake
+	m       *metrics
+	db      *fleetdb.DB
+	client  mqtt.Client
+	msgs    chan entry
+	stopped chan struct{} // closed when Run returns: receive stops waiting
+	// subscribed is set once the broker has confirmed the subscriptions.
+	subscribed atomic.Bool
+	dbPass     string
+	mqttPass   string
+	tls        bool
 }
 
 // entry is a received message with its classification.
@@ -89,6 +92,10 @@ func New(cfg *Config, opts Options) (*Collector, error) {
 	}
 	return c, nil
 }
+
+// Subscribed reports whether the broker has confirmed the collector's subscriptions (once
+// confirmed, the persistent session keeps them across reconnects).
+func (c *Collector) Subscribed() bool { return c.subscribed.Load() }
 
 // Counts returns the collector's counters (see the /status endpoint).
 func (c *Collector) Counts() map[string]float64 { return c.m.Counts() }
@@ -246,8 +253,13 @@ func (c *Collector) mqttOptions() (*mqtt.ClientOptions, error) {
 		// covers a broker that lost its sessions.
 		tok := cl.SubscribeMultiple(map[string]byte{data: 1, status: 1, reply: 1}, c.receive)
 		go func() {
-			if tok.WaitTimeout(30*time.Second) && tok.Error() != nil {
+			switch {
+			case !tok.WaitTimeout(30 * time.Second):
+				c.log.Error("the broker did not confirm the subscriptions within 30 s")
+			case tok.Error() != nil:
 				c.log.Error("subscribing failed", "err", tok.Error())
+			default:
+				c.subscribed.Store(true)
 			}
 		}()
 	})

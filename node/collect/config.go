@@ -219,7 +219,7 @@ func (c *Config) Validate() []error {
 		{"broker.keep_alive", c.Broker.KeepAlive, time.Second, time.Hour},
 		{"batch.max_wait", c.Batch.MaxWait, time.Millisecond, 10 * time.Second},
 		{"database.partitions_ahead", c.Database.PartitionsAhead, 24 * time.Hour, 366 * 24 * time.Hour},
-		{"resend.interval", c.Resend.Interval, time.Second, 24 * time.Hour},
+		{"resend.interval", c.Resend.Interval, 100 * time.Millisecond, 24 * time.Hour},
 		{"resend.grace", c.Resend.Grace, 0, 7 * 24 * time.Hour},
 		{"resend.max_age", c.Resend.MaxAge, time.Hour, 5 * 366 * 24 * time.Hour},
 		{"resend.max_range", c.Resend.MaxRange, time.Minute, 400 * 24 * time.Hour},

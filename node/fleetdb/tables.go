@@ -65,7 +65,7 @@ var tables = []table{
 	{"minute", "minutes", "month", cols(
 		levels("LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LAF1", "LAF5", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99", "LAE", "LCpeak", "LAImax"),
 		[]column{{"valid_seconds", "valid_seconds", cInt}, {"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
-	{"event", "events", "month", cols([]column{{"end_time", "end", cTime}, {"duration_s", "duration_s", cReal}},
+	{"event", "events", "month", cols([]column{{"end_time", "end_ms", cTime}, {"duration_s", "duration_s", cReal}},
 		levels("LAFmax", "LAeq", "LAE", "LCpeak"),
 		[]column{{"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
 	{"health", "health", "month", []column{{"flags", "flags", cFlags},
@@ -80,8 +80,8 @@ var tables = []table{
 		{"deviation_dB", "deviation_dB", cReal}, {"frequency_hz", "frequency_hz", cReal}, {"stability_dB", "stability_dB", cReal},
 		{"sensitivity_before_dBFS", "sensitivity_before_dBFS", cReal}, {"sensitivity_after_dBFS", "sensitivity_after_dBFS", cReal},
 		{"applied", "applied", cBool}, {"passed", "passed", cBool}, {"flags", "flags", cFlags}}},
-	{"gap", "gaps", "", []column{{"end_time", "end", cTime}, {"reason", "reason", cText}}},
-	{"annotation", "annotations", "", []column{{"end_time", "end", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
+	{"gap", "gaps", "", []column{{"end_time", "end_ms", cTime}, {"reason", "reason", cText}}},
+	{"annotation", "annotations", "", []column{{"end_time", "end_ms", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
 	{"session", "sessions", "", []column{{"software_version", "software_version", cText}, {"config_hash", "config_hash", cText},
 		{"sensitivity_dBFS", "sensitivity_dBFS", cReal}, {"sample_rate_hz", "sample_rate_hz", cInt},
 		{"device", "device", cText}, {"time_zone", "time_zone", cText}}},
@@ -89,7 +89,7 @@ var tables = []table{
 
 // periodTable is the table of period indicators (no sequence number; see migrations).
 var periodTable = table{"period", "periods", "", []column{{"profile", "profile", cText}, {"period", "period", cText},
-	{"day", "day", cDate}, {"zone", "zone", cText}, {"end_time", "end", cTime}, {"hours", "hours", cReal},
+	{"day", "day", cDate}, {"zone", "zone", cText}, {"end_time", "end_ms", cTime}, {"hours", "hours", cReal},
 	{"penalty_dB", "penalty_dB", cReal}, {"LAeq", "LAeq", cReal}, {"LCeq", "LCeq", cReal}, {"LAF10", "LAF10", cReal},
 	{"LAF90", "LAF90", cReal}, {"LAFmax", "LAFmax", cReal}, {"events", "events", cInt}, {"limit_dB", "limit_dB", cReal},
 	{"exceeds", "exceeds", cBool}, {"coverage", "coverage", cReal}, {"coverage_low", "coverage_low", cBool}}}
