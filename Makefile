@@ -9,8 +9,9 @@ BIN := bin/leqnode
 # Debian packages the tests use: sox (reference measurements of real recordings), alsa-utils
 # (arecord, and recordings under /usr/share/sounds/alsa), portaudio19-dev (the PortAudio capture
 # source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA), systemd
-# (systemd-analyze for the unit) and chromium (the status page and report in a real browser).
-TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium
+# (systemd-analyze for the unit), chromium (the status page and report in a real browser) and
+# postgresql (the central collector's database, started by its tests as user postgres).
+TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium postgresql
 # What building the daemon with PortAudio needs.
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev

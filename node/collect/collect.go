@@ -105,6 +105,16 @@ func openDB(ctx context.Context, cfg *Config, password string, log *slog.Logger)
 	return fleetdb.Open(ctx, fleetdb.Options{URL: cfg.Database.URL, Password: password, MaxConns: int32(cfg.Database.MaxConns), Logger: log})
 }
 
+// OpenDB opens the database of cfg (reading its password file), for queries such as
+// fleetdb.DB.Fleet.
+func OpenDB(ctx context.Context, cfg *Config) (*fleetdb.DB, error) {
+	pass, err := readSecret("database.password_file", cfg.Database.PasswordFile)
+	if err != nil {
+		return nil, err
+	}
+	return openDB(ctx, cfg, pass, nil)
+}
+
 // Migrate applies the database migrations of cfg's database and returns their names.
 func Migrate(ctx context.Context, cfg *Config, log *slog.Logger) ([]string, error) {
 	pass, err := readSecret("database.password_file", cfg.Database.PasswordFile)
