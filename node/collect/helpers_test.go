@@ -18,7 +18,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/fleetdb"
-	"github.com/leqnode/leqnode/node/internal/testrig"
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/publish"
 )
 

@@ -3,11 +3,12 @@ package fleetdb
 import (
 	"context"
 	"fmt"
+	"sync"
 	"testing"
 	"time"
 
 	"github.com/leqnode/leqnode/configs/schema"
-	"github.com/leqnode/leqnode/node/internal/testrig"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // openTestDB starts a PostgreSQL server, creates a database and migrates it.
@@ -66,10 +67,13 @@ func spectra(n int) string {
 	return s
 }
 
+// compiled compiles the schemas once for all tests.
+var compiled = sync.OnceValues(schema.Compile)
+
 // decode validates and converts a payload as the collector does.
 func decode(t testing.TB, payload []byte) []Row {
 	t.Helper()
-	set, err := schema.Compile()
+	set, err := compiled()
 	if err != nil {
 		t.Fatal(err)
 	}

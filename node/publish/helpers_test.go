@@ -20,7 +20,7 @@ import (
 	mqtt "github.com/eclipse/paho.mqtt.golang"
 
 	"github.com/leqnode/leqnode/buffer"
-	"github.com/leqnode/leqnode/node/internal/testrig"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // The tests run a real mosquitto (Debian package mosquitto) on 127.0.0.1, real bbolt stores

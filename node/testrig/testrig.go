@@ -50,5 +50,5 @@ func need(t testing.TB, pkg string, bins ...string) {
 // RepoRoot returns the top directory of the source tree (where go.mod is).
 func RepoRoot() string {
 	_, file, _, _ := runtime.Caller(0)
-	return filepath.Join(filepath.Dir(file), "..", "..", "..")
+	return filepath.Join(filepath.Dir(file), "..", "..")
 }
