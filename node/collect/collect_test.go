@@ -3,9 +3,12 @@ package collect
 import (
 	"context"
 	"fmt"
+	"math"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer"
 )
 
 // TestExactlyOnce: three nodes publish records of every kind to two collectors that share
@@ -39,6 +42,36 @@ func TestExactlyOnce(t *testing.T) {
 		}
 		if q := c.Counts()["messages_total/quarantined"]; q != 0 {
 			t.Errorf("collector %d quarantined %v messages", i+1, q)
+		}
+	}
+	// The database holds the store's values: LAeq of every second record, by sequence number
+	// (payloads carry levels to 0.01 dB; the table keeps them as real).
+	for _, n := range nodes {
+		rows, err := r.db.Pool().Query(context.Background(), "SELECT seq, LAeq::double precision, start_time FROM leqnode.seconds WHERE store_id = $1", n.store.ID())
+		if err != nil {
+			t.Fatal(err)
+		}
+		inDB := map[uint64][2]float64{}
+		for rows.Next() {
+			var seq int64
+			var laeq float64
+			var at time.Time
+			if err := rows.Scan(&seq, &laeq, &at); err != nil {
+				t.Fatal(err)
+			}
+			inDB[uint64(seq)] = [2]float64{laeq, float64(at.UnixMilli())}
+		}
+		rows.Close()
+		err = n.store.Range(buffer.KindSecond, time.Time{}, t0.Add(1000*time.Hour), func(rec buffer.Record) error {
+			s := rec.(*buffer.Second)
+			got, ok := inDB[s.Seq()]
+			if !ok || math.Abs(got[0]-s.LAeq) > 0.005 || got[1] != float64(s.Start.UnixMilli()) {
+				t.Errorf("%s second %d: database %v, store LAeq %.2f at %s", n.id, s.Seq(), got, s.LAeq, s.Start)
+			}
+			return nil
+		})
+		if err != nil {
+			t.Fatal(err)
 		}
 	}
 	var missing, nodesOnline int

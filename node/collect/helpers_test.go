@@ -18,8 +18,8 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/fleetdb"
-	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // The tests run a real PostgreSQL and a real mosquitto (package testrig), real bbolt stores
