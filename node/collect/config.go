@@ -83,10 +83,12 @@ type DatabaseConfig struct {
 }
 
 // BatchConfig sets how messages are grouped into transactions. Larger batches write more
-// records per second; a longer wait adds to every record's delay into the database.
+// records per second; a longer wait adds to every record's delay into the database. A batch
+// also closes when no message has come for 10 ms: messages stay unacknowledged until their
+// commit, and a broker sends only its in-flight window (mosquitto's max_inflight_messages)
+// before it waits for acknowledgements.
 type BatchConfig struct {
-	// MaxMessages per transaction (default 1000). The broker's max_inflight_messages must be at
-	// least this for batches to fill: messages stay unacknowledged until their commit.
+	// MaxMessages per transaction (default 1000).
 	MaxMessages int `toml:"max_messages"`
 	// MaxRecords per transaction (default 20000).
 	MaxRecords int `toml:"max_records"`

@@ -7,6 +7,9 @@ import (
 	"github.com/leqnode/leqnode/node/fleetdb"
 )
 
+// idleGap closes a batch when no message has come for this long.
+const idleGap = 10 * time.Millisecond
+
 // writer gathers messages into batches and writes them until ctx ends.
 func (c *Collector) writer(ctx context.Context) {
 	var batch []entry
@@ -19,20 +22,28 @@ func (c *Collector) writer(ctx context.Context) {
 			batch = append(batch[:0], e)
 		}
 		records := len(batch[0].item.rows)
-		timer := time.NewTimer(maxWait)
+		// A batch closes when full, at max_wait, or when no message came for idleGap: a broker
+		// sends only its in-flight window (mosquitto: max_inflight_messages) before it waits
+		// for acknowledgements, which come only after the commit.
+		deadline := time.NewTimer(maxWait)
+		idle := time.NewTimer(idleGap)
 	fill:
 		for len(batch) < c.cfg.Batch.MaxMessages && records < c.cfg.Batch.MaxRecords {
 			select {
 			case e := <-c.msgs:
 				batch = append(batch, e)
 				records += len(e.item.rows)
-			case <-timer.C:
+				idle.Reset(idleGap)
+			case <-idle.C:
+				break fill
+			case <-deadline.C:
 				break fill
 			case <-ctx.Done():
 				break fill
 			}
 		}
-		timer.Stop()
+		deadline.Stop()
+		idle.Stop()
 		if !c.process(ctx, batch) {
 			return
 		}
