@@ -1,6 +1,7 @@
 package fleetdb
 
 import (
+	"encoding/json"
 	"errors"
 	"fmt"
 	"time"
@@ -86,6 +87,14 @@ func (d *Decoder) one(t *table, doc map[string]any, store, node, delivery string
 		r.vals = []any{store, r.Seq, node, r.Time}
 	}
 	for _, c := range t.cols {
+		if c.typ == cFirstSeq {
+			v, err := firstSeqs(doc, c.key)
+			if err != nil {
+				return r, err
+			}
+			r.vals = append(r.vals, v)
+			continue
+		}
 		if c.typ == cSpectrum {
 			first, lv, err := d.spectrumObject(doc[c.key])
 			if err != nil {
@@ -228,4 +237,24 @@ func spectrumRow(bands []int, v any) (any, any, error) {
 		}
 	}
 	return int16(bands[0]), out, nil
+}
+
+// firstSeqs gathers a session's first sequence numbers per kind (keys prefix+kind, 0 meaning
+// "not stated") into a JSON object, or nil when the node states none.
+func firstSeqs(doc map[string]any, prefix string) (any, error) {
+	m := map[string]int64{}
+	for _, t := range tables {
+		v, err := value(cInt, doc[prefix+t.kind])
+		if err != nil {
+			return nil, fmt.Errorf("%s%s: %w", prefix, t.kind, err)
+		}
+		if v != nil && v.(int64) > 0 {
+			m[t.kind] = v.(int64)
+		}
+	}
+	if len(m) == 0 {
+		return nil, nil
+	}
+	b, err := json.Marshal(m)
+	return string(b), err
 }

@@ -24,6 +24,7 @@ const (
 	cFlags                   // array of flag names (text[])
 	cSpectrum                // one-third-octave spectrum: third_octave_first and third_octave_LZeq
 	cDate                    // "YYYY-MM-DD"
+	cFirstSeq                // the keys KEY<kind> gathered into one JSON object {"second": 4097, ...}
 )
 
 type column struct {
@@ -84,7 +85,7 @@ var tables = []table{
 	{"annotation", "annotations", "", []column{{"end_time", "end_ms", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
 	{"session", "sessions", "", []column{{"software_version", "software_version", cText}, {"config_hash", "config_hash", cText},
 		{"sensitivity_dBFS", "sensitivity_dBFS", cReal}, {"sample_rate_hz", "sample_rate_hz", cInt},
-		{"device", "device", cText}, {"time_zone", "time_zone", cText}}},
+		{"device", "device", cText}, {"time_zone", "time_zone", cText}, {"first_seq", "first_seq_", cFirstSeq}}},
 }
 
 // periodTable is the table of period indicators (no sequence number; see migrations).

@@ -2,7 +2,9 @@ package fleetdb
 
 import (
 	"context"
+	"fmt"
 	"testing"
+	"time"
 )
 
 // TestWriteIdempotent: a batch written twice and an overlapping batch store each record once;
@@ -61,5 +63,34 @@ func TestWriteIdempotent(t *testing.T) {
 	// 1000 Hz is band 0 of the base-ten series (IEC 61260-1:2014, 5.2 and Annex E).
 	if laeq != 57 || band != 0 || len(spec) != 2 || spec[0] == nil || *spec[0] != 41.5 || spec[1] != nil {
 		t.Errorf("second 7: LAeq %v band %d spectrum %v", laeq, band, spec)
+	}
+}
+
+// TestRestartIsNotALoss: after a restart the node's numbers jump to the first_seq_second its
+// session record states (buffer.Store.FirstSeq); that hole is a restart, not missing data,
+// while a hole anywhere else stays missing.
+func TestRestartIsNotALoss(t *testing.T) {
+	db, _ := openTestDB(t)
+	ctx := context.Background()
+	at := t0.Add(time.Minute)
+	session := fmt.Appendf(nil, `{"schema_version":1,"kind":"session","node":"wendle-cross-03","store":%q,"delivery":"live","seq":2,"start":%q,"start_ms":%d,"software_version":"0.1.0","config_hash":"c0ffee","sensitivity_dBFS":-26,"sample_rate_hz":48000,"device":"synthetic","time_zone":"UTC","first_seq_second":4097,"first_seq_session":2}`,
+		storeA, at.Format("2006-01-02T15:04:05.000Z"), at.UnixMilli())
+	var rows []Row
+	for _, p := range [][]byte{secondPayload("wendle-cross-03", storeA, 1, 60), session,
+		secondPayload("wendle-cross-03", storeA, 4097, 60), secondPayload("wendle-cross-03", storeA, 4200, 10)} {
+		rows = append(rows, decode(t, p)...)
+	}
+	if _, err := db.Write(ctx, Batch{Rows: rows}); err != nil {
+		t.Fatal(err)
+	}
+	var first, last, n int64
+	if err := db.pool.QueryRow(ctx, "SELECT first_seq, last_seq, (SELECT count(*) FROM leqnode.missing_records WHERE kind = 'second') FROM leqnode.missing_records WHERE kind = 'second'").Scan(&first, &last, &n); err != nil {
+		t.Fatal(err)
+	}
+	if n != 1 || first != 4157 || last != 4199 {
+		t.Errorf("missing: %d holes, %d..%d; want one, 4157..4199", n, first, last)
+	}
+	if err := db.pool.QueryRow(ctx, "SELECT first_seq, last_seq FROM leqnode.restart_skips WHERE kind = 'second'").Scan(&first, &last); err != nil || first != 61 || last != 4096 {
+		t.Errorf("restart skip %d..%d (%v), want 61..4096", first, last, err)
 	}
 }
