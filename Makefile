@@ -9,9 +9,10 @@ BIN := bin/leqnode
 # Debian packages the tests use: sox (reference measurements of real recordings), alsa-utils
 # (arecord, and recordings under /usr/share/sounds/alsa), portaudio19-dev (the PortAudio capture
 # source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA), systemd
-# (systemd-analyze for the unit), chromium (the status page and report in a real browser) and
-# python3-scipy (the scipy chain that `leqnode analyze` is benchmarked against).
-TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium python3-scipy
+# (systemd-analyze for the unit), chromium (the status page and report in a real browser),
+# python3-scipy (the scipy chain that `leqnode analyze` is benchmarked against) and postgresql
+# (the central collector's database, started by its tests as user postgres).
+TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium python3-scipy postgresql
 # What building the daemon with PortAudio needs.
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev

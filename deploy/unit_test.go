@@ -84,3 +84,44 @@ func TestUnitKeepsTheFeatures(t *testing.T) {
 		}
 	}
 }
+
+// TestCollectorUnit checks the collector's unit statically: systemd-analyze verify and an
+// exposure of at most 3.0 (the node unit's goal), with the network it needs.
+func TestCollectorUnit(t *testing.T) {
+	needAnalyze(t)
+	b, err := os.ReadFile("leqnode-collect.service")
+	if err != nil {
+		t.Fatal(err)
+	}
+	unit := string(b)
+	if !strings.Contains(unit, "ExecStart=/usr/bin/leqnode collect --config /etc/leqnode/collector.toml\n") {
+		t.Error("unit does not run leqnode collect with /etc/leqnode/collector.toml")
+	}
+	if strings.Contains(unit, "\nPrivateNetwork=yes") || !strings.Contains(unit, "RestrictAddressFamilies=AF_UNIX AF_INET AF_INET6\n") {
+		t.Error("unit cuts the collector off from its broker or database")
+	}
+	exe, err := os.Executable()
+	if err != nil {
+		t.Fatal(err)
+	}
+	p := filepath.Join(t.TempDir(), "leqnode-collect.service")
+	if err := os.WriteFile(p, []byte(strings.ReplaceAll(unit, "/usr/bin/leqnode", exe)), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if out, err := exec.Command("systemd-analyze", "verify", p).CombinedOutput(); err != nil || len(strings.TrimSpace(string(out))) > 0 {
+		t.Errorf("systemd-analyze verify: %v\n%s", err, out)
+	}
+	out, err := exec.Command("systemd-analyze", "security", "--offline=true", "--no-pager", p).CombinedOutput()
+	if err != nil {
+		t.Fatalf("systemd-analyze security: %v\n%s", err, out)
+	}
+	m := regexp.MustCompile(`Overall exposure level for leqnode-collect.service: ([0-9.]+)`).FindSubmatch(out)
+	if m == nil {
+		t.Fatalf("no exposure figure in:\n%s", out)
+	}
+	v, _ := strconv.ParseFloat(string(m[1]), 64)
+	t.Logf("exposure %.1f", v)
+	if v > 3.0 {
+		t.Errorf("exposure %.1f, want at most 3.0", v)
+	}
+}

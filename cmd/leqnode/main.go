@@ -61,6 +61,8 @@ func commands() map[string]command {
 		"config":    {"check a configuration file: config check FILE", runConfig},
 		"devices":   {"list capture devices and the sample rates they take", runDevices},
 		"version":   {"print the release, commit, Go version and platform (also --version)", runVersion},
+		"collect":   {"run the central collector: MQTT from the fleet into PostgreSQL", runCollect},
+		"fleet":     {"fleet status: one line per node from the central database", runFleet},
 	}
 }
 

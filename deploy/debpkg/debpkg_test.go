@@ -304,17 +304,19 @@ func TestPackageContents(t *testing.T) {
 				got[strings.TrimSuffix(strings.TrimPrefix(fs[5], "."), "/")] = entry{fs[0], fs[1]}
 			}
 			want := map[string]string{
-				"/usr/bin/leqnode":                       "-rwxr-xr-x",
-				"/lib/systemd/system/leqnode.service":    "-rw-r--r--",
-				"/etc/leqnode":                           "drwxr-x---",
-				"/etc/leqnode/leqnode.toml":              "-rw-r-----",
-				"/var/lib/leqnode":                       "drwxr-x---",
-				"/usr/share/doc/leqnode/README.md":       "-rw-r--r--",
-				"/usr/share/doc/leqnode/copyright":       "-rw-r--r--",
-				"/usr/share/doc/leqnode/changelog.gz":    "-rw-r--r--",
-				"/usr/share/lintian/overrides/leqnode":   "-rw-r--r--",
-				"/usr/share/doc/leqnode/leqnode.toml":    "-rw-r--r--",
-				"/usr/share/doc/leqnode/fleet/README.md": "-rw-r--r--",
+				"/usr/bin/leqnode":                            "-rwxr-xr-x",
+				"/lib/systemd/system/leqnode.service":         "-rw-r--r--",
+				"/etc/leqnode":                                "drwxr-x---",
+				"/etc/leqnode/leqnode.toml":                   "-rw-r-----",
+				"/var/lib/leqnode":                            "drwxr-x---",
+				"/usr/share/doc/leqnode/README.md":            "-rw-r--r--",
+				"/usr/share/doc/leqnode/copyright":            "-rw-r--r--",
+				"/usr/share/doc/leqnode/changelog.gz":         "-rw-r--r--",
+				"/usr/share/lintian/overrides/leqnode":        "-rw-r--r--",
+				"/usr/share/doc/leqnode/leqnode.toml":         "-rw-r--r--",
+				"/usr/share/doc/leqnode/fleet/README.md":      "-rw-r--r--",
+				"/lib/systemd/system/leqnode-collect.service": "-rw-r--r--",
+				"/usr/share/doc/leqnode/collector.toml":       "-rw-r--r--",
 			}
 			for p, mode := range want {
 				e, ok := got[p]

@@ -215,7 +215,7 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	}
 	// Every file comes from a snapshot in tmp: nfpm takes a file's size and its bytes at
 	// different moments, and a file being edited between the two breaks the archive.
-	sources := []string{"deploy/leqnode.service", "deploy/leqnode.toml", "README.md",
+	sources := []string{"deploy/leqnode.service", "deploy/leqnode.toml", "README.md", "deploy/leqnode-collect.service", "configs/collector.toml",
 		"deploy/debpkg/scripts/preinst", "deploy/debpkg/scripts/postinst", "deploy/debpkg/scripts/prerm", "deploy/debpkg/scripts/postrm"}
 	fleet, err := filepath.Glob(filepath.Join(s.Root, "deploy", "fleet", "*"))
 	if err != nil {
@@ -274,6 +274,10 @@ func Build(ctx context.Context, s Spec) (string, error) {
 		{Destination: "/var/lib/leqnode", Type: files.TypeDir, FileInfo: fi(0o750)},
 		{Source: src("README.md"), Destination: doc + "README.md", FileInfo: fi(0o644)},
 		{Source: src("deploy/leqnode.toml"), Destination: doc + "leqnode.toml", FileInfo: fi(0o644)},
+		// The central collector: its unit (never enabled by the package) and an example
+		// configuration to copy to /etc/leqnode/collector.toml.
+		{Source: src("deploy/leqnode-collect.service"), Destination: "/lib/systemd/system/leqnode-collect.service", FileInfo: fi(0o644)},
+		{Source: src("configs/collector.toml"), Destination: doc + "collector.toml", FileInfo: fi(0o644)},
 		{Source: copyrightPath, Destination: doc + "copyright", FileInfo: fi(0o644)},
 		{Source: changelogPath, Destination: doc + "changelog.gz", FileInfo: fi(0o644)},
 		{Source: overridesPath, Destination: "/usr/share/lintian/overrides/leqnode", FileInfo: fi(0o644)},

@@ -1,10 +1,8 @@
 package publish
 
 import (
-	"bytes"
 	"encoding/json"
 	"fmt"
-	"os"
 	"path/filepath"
 	"slices"
 	"strings"
@@ -14,44 +12,20 @@ import (
 	"github.com/santhosh-tekuri/jsonschema/v6"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/configs/schema"
 )
 
-// schemas compiles the JSON Schema files of configs/schema (the documented payload formats).
+// schemas compiles the JSON Schema files of configs/schema (the documented payload formats),
+// one per message kind.
 func schemas(t testing.TB) map[string]*jsonschema.Schema {
 	t.Helper()
-	dir := filepath.Join("..", "..", "configs", "schema")
-	files, err := filepath.Glob(filepath.Join(dir, "*.schema.json"))
-	if err != nil || len(files) == 0 {
-		t.Fatalf("no schema files in %s: %v", dir, err)
-	}
-	c := jsonschema.NewCompiler()
-	c.AssertFormat()
-	ids := map[string]string{}
-	for _, f := range files {
-		b, err := os.ReadFile(f)
-		if err != nil {
-			t.Fatal(err)
-		}
-		doc, err := jsonschema.UnmarshalJSON(bytes.NewReader(b))
-		if err != nil {
-			t.Fatalf("%s: %v", f, err)
-		}
-		id := doc.(map[string]any)["$id"].(string)
-		if err := c.AddResource(id, doc); err != nil {
-			t.Fatalf("%s: %v", f, err)
-		}
-		ids[strings.TrimSuffix(filepath.Base(f), ".schema.json")] = id
+	set, err := schema.Compile()
+	if err != nil {
+		t.Fatal(err)
 	}
 	out := map[string]*jsonschema.Schema{}
-	for name, id := range ids {
-		if name == "common" {
-			continue
-		}
-		s, err := c.Compile(id)
-		if err != nil {
-			t.Fatalf("schema %s: %v", name, err)
-		}
-		out[name] = s
+	for _, k := range set.Kinds() {
+		out[k] = set.Schema(k)
 	}
 	return out
 }
@@ -59,7 +33,7 @@ func schemas(t testing.TB) map[string]*jsonschema.Schema {
 // validate checks one payload against the schema named by its "kind".
 func validate(t testing.TB, sch map[string]*jsonschema.Schema, topic string, payload []byte) string {
 	t.Helper()
-	inst, err := jsonschema.UnmarshalJSON(bytes.NewReader(payload))
+	inst, err := schema.Decode(payload)
 	if err != nil {
 		t.Fatalf("%s: payload is not JSON: %v\n%s", topic, err, payload)
 	}

@@ -9,11 +9,8 @@ import (
 	"log/slog"
 	"math"
 	"math/rand/v2"
-	"net"
 	"os"
-	"os/exec"
 	"os/signal"
-	"path/filepath"
 	"strings"
 	"sync"
 	"syscall"
@@ -23,144 +20,30 @@ import (
 	mqtt "github.com/eclipse/paho.mqtt.golang"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // The tests run a real mosquitto (Debian package mosquitto) on 127.0.0.1, real bbolt stores
 // from package buffer and a real paho client as the consumer.
 
-var installOnce sync.Once
+// mosquitto is a broker process on 127.0.0.1 that a test starts, stops and restarts (package
+// testrig, shared with the collector's tests).
+type mosquitto struct{ *testrig.Mosquitto }
 
-// needTools makes sure mosquitto, mosquitto_passwd and openssl exist, installing the Debian
-// packages through the project's helper when they are missing (make test runs as root).
-func needTools(t testing.TB) {
-	t.Helper()
-	installOnce.Do(func() {
-		for _, bin := range []string{"mosquitto", "mosquitto_passwd", "openssl"} {
-			if _, err := exec.LookPath(bin); err != nil {
-				out, err := exec.Command("../../.ci/install-debs", "mosquitto", "mosquitto-clients", "openssl").CombinedOutput()
-				if err != nil {
-					t.Logf("installing mosquitto: %v\n%s", err, out)
-				}
-				return
-			}
-		}
-	})
-	for _, bin := range []string{"mosquitto", "mosquitto_passwd", "openssl"} {
-		if _, err := exec.LookPath(bin); err != nil {
-			t.Fatalf("%s not found: install the Debian packages mosquitto, mosquitto-clients and openssl (make test-deps)", bin)
-		}
-	}
-}
+type brokerOpts = testrig.BrokerOptions
 
-// mosquitto is a broker process on 127.0.0.1 that a test starts, stops and restarts.
-type mosquitto struct {
-	t    testing.TB
-	dir  string
-	port int
-	conf string
-	cmd  *exec.Cmd
-	log  *bytes.Buffer
-}
+func freePort(t testing.TB) int { return testrig.FreePort(t) }
 
-type brokerOpts struct {
-	user, pass       string // password file when user != ""
-	ca, cert, key    string // TLS listener when cert != ""
-	persistent       bool   // keep sessions and queued messages across restarts
-	extraConfigLines []string
-}
-
-func freePort(t testing.TB) int {
-	t.Helper()
-	l, err := net.Listen("tcp", "127.0.0.1:0")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer l.Close()
-	return l.Addr().(*net.TCPAddr).Port
-}
+func needTools(t testing.TB) { testrig.NeedMosquitto(t) }
 
 func startMosquitto(t testing.TB, o brokerOpts) *mosquitto {
 	t.Helper()
-	needTools(t)
-	m := &mosquitto{t: t, dir: t.TempDir(), port: freePort(t)}
-	var c strings.Builder
-	// `user root`: mosquitto started as root drops to user mosquitto before reading the password
-	// and key files, which it then cannot read in a 0700 test directory.
-	fmt.Fprintf(&c, "per_listener_settings false\nuser root\nlog_dest stderr\nlog_type error\nlog_type warning\nlog_type notice\n")
-	if o.persistent {
-		fmt.Fprintf(&c, "persistence true\npersistence_location %s/\nautosave_interval 1\nmax_queued_messages 0\n", m.dir)
-	} else {
-		fmt.Fprintf(&c, "persistence false\n")
-	}
-	fmt.Fprintf(&c, "listener %d 127.0.0.1\n", m.port)
-	if o.user != "" {
-		pw := filepath.Join(m.dir, "passwd")
-		if out, err := exec.Command("mosquitto_passwd", "-c", "-b", pw, o.user, o.pass).CombinedOutput(); err != nil {
-			t.Fatalf("mosquitto_passwd: %v\n%s", err, out)
-		}
-		fmt.Fprintf(&c, "allow_anonymous false\npassword_file %s\n", pw)
-	} else {
-		fmt.Fprintf(&c, "allow_anonymous true\n")
-	}
-	if o.cert != "" {
-		fmt.Fprintf(&c, "cafile %s\ncertfile %s\nkeyfile %s\n", o.ca, o.cert, o.key)
-	}
-	for _, l := range o.extraConfigLines {
-		fmt.Fprintln(&c, l)
-	}
-	m.conf = filepath.Join(m.dir, "mosquitto.conf")
-	if err := os.WriteFile(m.conf, []byte(c.String()), 0o600); err != nil {
-		t.Fatal(err)
-	}
-	m.start()
-	t.Cleanup(m.stop)
-	return m
+	return &mosquitto{testrig.StartMosquitto(t, o)}
 }
 
-func (m *mosquitto) url(scheme string) string {
-	return fmt.Sprintf("%s://127.0.0.1:%d", scheme, m.port)
-}
-
-// start runs mosquitto in the foreground and waits until it accepts connections.
-func (m *mosquitto) start() {
-	m.t.Helper()
-	m.log = new(bytes.Buffer)
-	m.cmd = exec.Command("mosquitto", "-c", m.conf)
-	m.cmd.Stderr = m.log
-	m.cmd.Stdout = m.log
-	if err := m.cmd.Start(); err != nil {
-		m.t.Fatalf("starting mosquitto: %v", err)
-	}
-	deadline := time.Now().Add(10 * time.Second)
-	for {
-		c, err := net.DialTimeout("tcp", fmt.Sprintf("127.0.0.1:%d", m.port), 200*time.Millisecond)
-		if err == nil {
-			c.Close()
-			return
-		}
-		if time.Now().After(deadline) {
-			m.t.Fatalf("mosquitto did not start: %v\n%s", err, m.log)
-		}
-		time.Sleep(20 * time.Millisecond)
-	}
-}
-
-// stop ends mosquitto with SIGTERM (it saves its persistence file) and waits for it.
-func (m *mosquitto) stop() {
-	if m.cmd == nil || m.cmd.Process == nil {
-		return
-	}
-	_ = m.cmd.Process.Signal(os.Interrupt)
-	done := make(chan struct{})
-	go func() { _ = m.cmd.Wait(); close(done) }()
-	select {
-	case <-done:
-	case <-time.After(5 * time.Second):
-		_ = m.cmd.Process.Kill()
-		<-done
-	}
-	m.cmd = nil
-}
+func (m *mosquitto) url(scheme string) string { return m.URL(scheme) }
+func (m *mosquitto) start()                   { m.Start() }
+func (m *mosquitto) stop()                    { m.Stop() }
 
 // received is one message seen by the collector.
 type received struct {

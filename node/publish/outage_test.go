@@ -21,7 +21,7 @@ import (
 // marked as backlog; duplicates are only the at-least-once kind (messages in flight when the
 // connection died), bounded by the in-flight window.
 func TestOutage(t *testing.T) {
-	m := startMosquitto(t, brokerOpts{persistent: true})
+	m := startMosquitto(t, brokerOpts{Persistent: true})
 	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
@@ -104,7 +104,7 @@ func TestOutage(t *testing.T) {
 // TestCrashDuringBackfill: a publisher process (this test binary re-executed) is killed with
 // SIGKILL while it sends a backlog; a new process on the same store file sends what is missing.
 func TestCrashDuringBackfill(t *testing.T) {
-	m := startMosquitto(t, brokerOpts{persistent: true})
+	m := startMosquitto(t, brokerOpts{Persistent: true})
 	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	path := filepath.Join(t.TempDir(), "node.db")
 	store := openStore(t, path)

@@ -62,8 +62,8 @@ func TestTLSWithPassword(t *testing.T) {
 	k := makePKI(t)
 	const user, secret = "wendle-cross-03", "kestrel-bridge-4471"
 	const wrong = "wrong-horse-9923"
-	m := startMosquitto(t, brokerOpts{user: user, pass: secret, ca: k.ca, cert: k.serverCert, key: k.serverKey,
-		extraConfigLines: []string{"require_certificate true"}})
+	m := startMosquitto(t, brokerOpts{User: user, Pass: secret, CA: k.ca, Cert: k.serverCert, Key: k.serverKey,
+		ExtraConfigLines: []string{"require_certificate true"}})
 	if err := os.WriteFile(k.pass, []byte(secret+"\n"), 0o600); err != nil {
 		t.Fatal(err)
 	}
