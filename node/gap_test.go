@@ -82,3 +82,49 @@ func TestFlappingDeviceOneGap(t *testing.T) {
 	}
 	t.Errorf("the gap ends at %v, where no second starts", gaps[0].To)
 }
+
+// TestDeviceTooFast: a device that delivers 20 s of audio per second of wall time for its
+// first 600 s of audio (an ALSA file PCM over a regular file), then at its rate. The node
+// reports a device fault, not a stream of clock steps: at most one clock-step gap and one gap
+// for the fault, a bounded number of records, the device-fault flag raised and cleared, and
+// measurement resumes once the rate is right.
+func TestDeviceTooFast(t *testing.T) {
+	const fs = 48000
+	src := &fakeSource{fs: fs, signal: sine60, total: 660 * fs, t0: t0, fastUntil: 600 * fs, speed: 20}
+	r := newRig(t, src, func(o *Options) { o.Lossless = true })
+	r.run(t)
+	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
+	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	health := records[*buffer.Health](t, r.store, buffer.KindHealth)
+	var steps, faults int
+	for _, g := range gaps {
+		switch {
+		case strings.Contains(g.Reason, "clock stepped"):
+			steps++
+		case strings.Contains(g.Reason, "wrong rate"):
+			faults++
+		}
+	}
+	if steps > 1 || faults != 1 || len(gaps) > 2 {
+		t.Errorf("%d gaps (%d clock steps, %d device faults): %+v", len(gaps), steps, faults, gaps)
+	}
+	// 600 s of audio in 30 s of wall time, then 60 s at the right rate: at most the seconds
+	// before the fault and the minute after it, never the 600 s delivered too fast.
+	if len(secs) > 80 {
+		t.Errorf("%d second records: the store grows with what a faulty device delivers", len(secs))
+	}
+	var raised, cleared bool
+	for _, h := range health {
+		if h.Flags.Has(buffer.DeviceFault) {
+			raised = true
+		} else if raised {
+			cleared = true
+		}
+	}
+	if !raised || !cleared {
+		t.Errorf("device-fault raised %v, cleared %v", raised, cleared)
+	}
+	if last := secs[len(secs)-1]; last.Start.Sub(t0) < 80*time.Second {
+		t.Errorf("measurement did not resume: the last second starts %v after the start", last.Start.Sub(t0))
+	}
+}

@@ -55,6 +55,10 @@ type fakeSource struct {
 	openFails int
 	// flaps makes Read fail at once, before any sample, this many times after failAt.
 	flaps int
+	// fastUntil makes the device deliver its first fastUntil samples speed times faster than
+	// real time (an ALSA file PCM over a regular file).
+	fastUntil int64
+	speed     float64
 
 	mu      sync.Mutex
 	pos     int64
@@ -71,7 +75,7 @@ func (s *fakeSource) Open(ctx context.Context) (capture.Format, error) {
 		// The device is missing: each attempt takes a second of simulated time.
 		s.openFails--
 		s.offset += time.Second
-		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		s.clock.set(s.wall())
 		return capture.Format{}, fmt.Errorf("fake: no such device")
 	}
 	s.closed = make(chan struct{})
@@ -89,21 +93,21 @@ func (s *fakeSource) Read(dst []float32) (int, error) {
 	if s.failAt == 0 && s.flaps > 0 && s.pos > 0 {
 		s.flaps--
 		s.offset += 100 * time.Millisecond
-		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		s.clock.set(s.wall())
 		s.mu.Unlock()
 		return 0, fmt.Errorf("fake flap: %w", capture.ErrDeviceLost)
 	}
 	if s.failAt > 0 && s.pos >= s.failAt {
 		s.failAt = 0
 		s.offset += s.failFor
-		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		s.clock.set(s.wall())
 		s.mu.Unlock()
 		return 0, fmt.Errorf("fake: %w", capture.ErrDeviceLost)
 	}
 	if s.stallAt > 0 && s.pos >= s.stallAt {
 		s.stallAt = 0
 		s.offset += 3 * time.Second
-		s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+		s.clock.set(s.wall())
 		s.mu.Unlock()
 		<-closed
 		return 0, capture.ErrClosed
@@ -117,9 +121,19 @@ func (s *fakeSource) Read(dst []float32) (int, error) {
 		dst[i] = s.signal(s.pos + i)
 	}
 	s.pos += n
-	s.clock.set(s.t0.Add(time.Duration(float64(s.pos)/float64(s.fs)*1e9) + s.offset))
+	s.clock.set(s.wall())
 	s.mu.Unlock()
 	return int(n), nil
+}
+
+// wall returns the simulated wall time at the stream's position.
+func (s *fakeSource) wall() time.Time {
+	audio := float64(s.pos) / float64(s.fs)
+	if s.fastUntil > 0 {
+		fast := float64(min(s.pos, s.fastUntil)) / float64(s.fs)
+		audio = fast/s.speed + (audio - fast)
+	}
+	return s.t0.Add(time.Duration(audio*1e9) + s.offset)
 }
 
 func (s *fakeSource) Dropped() int64 { return s.dropped.Load() }

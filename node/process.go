@@ -52,7 +52,8 @@ type processor struct {
 	event   dsp.Event
 	evSkew  int64 // samples skipped since the detector started: its positions lag pos by this
 
-	store storeState // what the node knows of a store that cannot write
+	store storeState  // what the node knows of a store that cannot write
+	rate  deviceState // what the node knows of a device at the wrong rate
 
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
@@ -239,6 +240,7 @@ func (p *processor) opened(ev event) error {
 	// An outage in progress ends with the first sample measured (data), not here: a device that
 	// opens and fails again before any audio continues the same outage.
 	fs := float64(ev.format.SampleRate)
+	p.rate.format = ev.format
 	p.n.sampleRate.Store(int64(ev.format.SampleRate))
 	if len(o.Correction) > 0 && (p.correction == nil || fs != p.fs) {
 		// Fitted once per rate; the fit takes about a second.
@@ -372,6 +374,9 @@ func (p *processor) data(ev event) error {
 	o := p.o
 	x := ev.samples
 	n := int64(len(x))
+	if p.rate.faulty {
+		return p.faultyBlock(ev)
+	}
 	if !p.anchored {
 		p.clock.Observe(n, ev.arrival)
 		p.anchored = true
@@ -387,6 +392,9 @@ func (p *processor) data(ev event) error {
 		}
 		before := p.clock.Time(p.pos)
 		if step := p.clock.Observe(p.pos+n, ev.arrival); step != 0 {
+			if p.clockStepped(ev.arrival) {
+				return nil // a device fault: this block is not measured
+			}
 			p.closeSecond()
 			after := p.clock.Time(p.pos)
 			if err := p.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {

@@ -76,11 +76,13 @@ func (p *processor) storeRecovered() error {
 	return nil
 }
 
-// healthNow stores a health snapshot at once, with the store-fault flag as it now stands, so
-// that the page and the control socket show the fault without waiting for the next second.
+// healthNow stores a health snapshot at once, with the store-fault and device-fault flags as
+// they now stand, so that the page and the control socket show a fault without waiting for the
+// next second.
 func (p *processor) healthNow(now time.Time) {
 	h := &p.health
-	h.flags = h.flags&^buffer.StoreFault | h.sticky&buffer.StoreFault
+	const faults = buffer.StoreFault | buffer.DeviceFault
+	h.flags = h.flags&^faults | h.sticky&faults
 	rec := p.healthSnapshot(now)
 	p.n.lastHealth.Store(rec)
 	if err := p.append(rec); err != nil {

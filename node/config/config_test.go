@@ -11,8 +11,9 @@ import (
 )
 
 func TestExampleConfigs(t *testing.T) {
-	// Every example file in configs/ and deploy/ passes the check.
-	files, _ := filepath.Glob("../../configs/*.toml")
+	// Every example node configuration in configs/ and deploy/ passes the check (the
+	// collector's, configs/collector.toml, is checked by node/collect).
+	files := []string{"../../configs/leqnode.toml"}
 	more, _ := filepath.Glob("../../deploy/*.toml")
 	files = append(files, more...)
 	if len(files) == 0 {
