@@ -376,6 +376,7 @@ func TestRunArecordMissingDevice(t *testing.T) {
 	var gaps int
 	st.Range(buffer.KindGap, time.Unix(0, 0), time.Now().Add(time.Hour), func(buffer.Record) error { gaps++; return nil })
 	warnings := strings.Count(errb.String(), "audio source")
+	t.Logf("8 s without a device: %d gap records, %d warnings about the source, %d log lines", gaps, warnings, strings.Count(errb.String(), "\n"))
 	if gaps > 1 || warnings > 2 {
 		t.Errorf("8 s without a device: %d gap records (want at most 1), %d warnings about the source (want at most 2):\n%s", gaps, warnings, errb.String())
 	}
