@@ -22,6 +22,7 @@ const (
 	DefaultConnectTimeout    = 10 * time.Second
 	DefaultReconnectMaxDelay = 2 * time.Minute
 	DefaultSecondsPerMessage = 10
+	DefaultLiveWait          = 1500 * time.Millisecond
 	DefaultMaxInFlight       = 32
 	DefaultBacklogRate       = 250 // messages per second: a 24-hour backlog in about 40 s
 	DefaultStatusInterval    = time.Minute
@@ -98,9 +99,19 @@ type Config struct {
 	// README); per-minute spectra about 50 MB.
 	Spectra string `toml:"spectra"`
 
-	// SecondsPerMessage is how many second records one message carries (default 10, 1 to 60).
-	// Live seconds wait until this many are ready or the oldest has waited this many seconds.
+	// SecondsPerMessage is how many second records one message carries (default 10, 1 to 60):
+	// backlog messages always, live ones when that many are ready within LiveWait.
 	SecondsPerMessage int `toml:"seconds_per_message"`
+
+	// LiveWait is the longest a live second waits for the others of its message (default
+	// 1.5 s, 0.1 to 60 s). Live records leave as soon as they are measured, before the store
+	// commits them, so a dashboard sees a second at most about LiveWait after it ends.
+	// Trade-off: the default sends live seconds two to a message, about twice the traffic of
+	// full messages of 10 (see the README); a wait of SecondsPerMessage seconds sends full
+	// messages, and delays the newest second by as much. Danger: a
+	// live record that a crash keeps out of the store has left the node all the same (its
+	// number is never used again; see the README's collector rules).
+	LiveWait Duration `toml:"live_wait"`
 
 	// SecondQuantities lists the quantities second messages carry (default all of LAeq, LCeq,
 	// LZeq, LAFmax, LAFmin, LASmax, LASmin, LAImax, LCpeak, LZpeak, LAE). Trade-off: second
@@ -201,6 +212,7 @@ func (c Config) WithDefaults(nodeID string) Config {
 	def(&c.ConnectTimeout, DefaultConnectTimeout)
 	def(&c.ReconnectMaxDelay, DefaultReconnectMaxDelay)
 	def(&c.StatusInterval, DefaultStatusInterval)
+	def(&c.LiveWait, DefaultLiveWait)
 	def(&c.Commands.MaxResendRange, DefaultMaxResendRange)
 	if c.TopicPrefix == "" {
 		c.TopicPrefix = DefaultTopicPrefix
@@ -278,6 +290,7 @@ func (c Config) Validate() []error {
 	durIn("connect_timeout", d.ConnectTimeout, time.Second, 5*time.Minute)
 	durIn("reconnect_max_delay", d.ReconnectMaxDelay, time.Second, time.Hour)
 	durIn("status_interval", d.StatusInterval, 5*time.Second, time.Hour)
+	durIn("live_wait", d.LiveWait, 100*time.Millisecond, time.Minute)
 	if d.TLS.CertFile != "" && d.TLS.KeyFile == "" || d.TLS.CertFile == "" && d.TLS.KeyFile != "" {
 		bad("tls.cert_file and tls.key_file: give both or neither")
 	}

@@ -270,12 +270,13 @@ func (p *Publisher) storeError(err error) {
 	p.setStatus(func(st *Status) { st.LastError, st.LastErrorAt = "store: "+err.Error(), time.Now() })
 }
 
-// fillLive reads live records of l into its buffer when it holds less than a message.
+// fillLive reads live records of l into its buffer when it holds less than a message: held
+// records too, so that they leave without waiting for the store's commit (Store.Recent).
 func (p *Publisher) fillLive(l *lane) {
 	if len(l.lbuf) >= p.batch(l.kind) || p.store.LastSeq(l.kind) <= l.lpos {
 		return
 	}
-	recs, err := p.store.After(l.kind, l.lpos, fetchChunk)
+	recs, err := p.store.Recent(l.kind, l.lpos, fetchChunk)
 	if err != nil {
 		p.storeError(err)
 		return
@@ -364,11 +365,11 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 			n := p.batch(l.kind)
 			recs, rest, complete := takeBatch(l.lbuf, n)
 			if !complete {
-				// Hold a partial batch of live seconds until it fills or has waited n seconds.
+				// Hold a partial batch of live seconds until it fills or has waited LiveWait.
 				if l.lwait.IsZero() {
 					l.lwait = now
 				}
-				if hold := time.Duration(n)*time.Second - now.Sub(l.lwait); hold > 0 {
+				if hold := time.Duration(p.cfg.LiveWait) - now.Sub(l.lwait); hold > 0 {
 					later(hold)
 					break
 				}
