@@ -103,6 +103,7 @@ type Result struct {
 // at the very start reads as it is. No level reports the filters' start-up, though: a minimum
 // (LAFmin, LASmin) takes only samples from SettleTimeConstants time constants after the first
 // sample on (0.625 s for Fast, 5 s for Slow), and is NaN for an interval that ends before that;
+// so does the histogram of the Fast level behind the percentile levels (empty before that);
 // a band level counts only the samples after its band filter has settled (FilterBank.Settle: the
 // time by which the band's impulse response has delivered 99.9 % of its energy, so a steady
 // noise reads within 0.005 dB), and is NaN for an interval that ends before that. Energy
@@ -296,7 +297,9 @@ func (m *Meter) processChunk(x []float32) {
 		m.tick--
 		if m.tick == 0 {
 			m.tick = m.step
-			m.hist.Add(PowerLevel(f, m.offset))
+			if i >= fromF { // percentiles, like minima, only from the settled Fast level
+				m.hist.Add(PowerLevel(f, m.offset))
+			}
 		}
 	}
 	m.peakC.process(c)

@@ -529,5 +529,8 @@ func (w *analyzeWriter) summary(r *dsp.Result) {
 				fmt.Fprintf(w.buf, "  %7s Hz %8s\n", b.Nominal, cell(r.Bands[i]))
 			}
 		}
+		if w.file != "" {
+			w.buf.WriteByte('\n') // a blank line before the next recording's heading
+		}
 	}
 }
