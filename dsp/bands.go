@@ -183,7 +183,7 @@ const (
 // The fourth order that the -3.1 dB crossing needs (the earlier bank used third-order bands
 // and crossed at -3.4 to -3.7 dB) takes back most of what the fewer sections save: measured
 // with callgrind on amd64 (Go 1.26, GOAMD64=v1), the meter with one-third-octave bands costs
-// 419 instructions per input sample more than without them (434 for the earlier bank), and
+// 417 instructions per input sample more than without them (434 for the earlier bank), and
 // about as much time. Running the sections two at a time over each block with all state in
 // registers took more time (40 against 27 ns per sample): the sections of one band in one loop
 // overlap their recursions.
