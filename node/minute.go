@@ -25,8 +25,9 @@ type pendingSecond struct {
 	start time.Time
 	dur   time.Duration
 	flags buffer.Flags
-	res   dsp.Result
-	bands []float64 // storage for res.Bands
+	res         dsp.Result
+	bands       []float64 // storage for res.Bands
+	bandSeconds []float64 // storage for res.BandSeconds
 }
 
 // minuteBuilder builds minute records from the seconds that the validity rule counts, so that
@@ -58,9 +59,12 @@ func (m *minuteBuilder) push(start time.Time, dur time.Duration, f buffer.Flags,
 	}
 	q := &m.queue[(m.head+m.n)%len(m.queue)]
 	m.n++
+	// The meter reuses its result's slices: keep copies in the slot's own storage.
 	bands := append(q.bands[:0], r.Bands...)
+	secs := append(q.bandSeconds[:0], r.BandSeconds...)
 	q.start, q.dur, q.flags, q.res = start, dur, f, *r
 	q.res.Bands, q.bands = bands, bands
+	q.res.BandSeconds, q.bandSeconds = secs, secs
 	for m.n > 0 && start.Sub(m.queue[m.head].start) >= minuteLag {
 		if err := m.release(emit); err != nil {
 			return err
