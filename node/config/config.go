@@ -240,21 +240,7 @@ func Parse(data []byte, name string) (*Config, error) {
 	var lines []string
 	reported := map[string]bool{}
 	if err := strict.TOML(data, c); err != nil {
-		for _, p := range strict.Problems(err) {
-			at := name
-			if p.Line > 0 {
-				at = fmt.Sprintf("%s:%d", name, p.Line)
-			}
-			switch rest, unknown := strings.CutPrefix(p.Msg, "unknown key"); {
-			case p.Key == "":
-				lines = append(lines, fmt.Sprintf("%s: %s", at, p.Msg))
-			case unknown:
-				lines = append(lines, fmt.Sprintf("%s: unknown key %q%s: check its spelling against configs/leqnode.toml", at, p.Key, rest))
-			default:
-				lines = append(lines, fmt.Sprintf("%s: %s: %s: give a value of the type configs/leqnode.toml shows", at, p.Key, p.Msg))
-			}
-			reported[p.Key] = true
-		}
+		lines, reported = strict.FileLines(err, name, "configs/leqnode.toml")
 	}
 	c.WithDefaults()
 	if c.Measure.Timestamps == "" {
