@@ -22,9 +22,9 @@ const calMargin = 2 * time.Second
 
 // pendingSecond is a closed second waiting to enter its minute.
 type pendingSecond struct {
-	start time.Time
-	dur   time.Duration
-	flags buffer.Flags
+	start       time.Time
+	dur         time.Duration
+	flags       buffer.Flags
 	res         dsp.Result
 	bands       []float64 // storage for res.Bands
 	bandSeconds []float64 // storage for res.BandSeconds
