@@ -14,6 +14,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/daemon"
 	"github.com/leqnode/leqnode/node/publish"
 )
 
@@ -90,11 +91,11 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	fmt.Fprintf(std.out, "while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
 	fmt.Fprintf(std.out, "levels are indicative: see the README's cautions\n\n")
 	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
-	err = runNode(ctx, cfg, nil, log, func(o *node.Options) {
+	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Hooks: func(o *node.Options) {
 		o.SampleOrigin = origin
 		o.OnSecond = func(s *buffer.Second) { fmt.Fprintln(std.out, liveLine(s)) }
 		o.OnMinute = func(m *buffer.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
-	}, nil)
+	}})
 	if err != nil {
 		return err
 	}

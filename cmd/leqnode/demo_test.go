@@ -1,13 +1,14 @@
 package main
 
 import (
-	"github.com/leqnode/leqnode/buffer"
 	"os"
 	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer"
 )
 
 func TestDemo(t *testing.T) {

@@ -1,14 +1,12 @@
-package main
+package daemon
 
 import (
 	"context"
-	"log/slog"
 	"math"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/configs/profiles"
-	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/report"
 	"github.com/leqnode/leqnode/node/report/indicator"
@@ -16,7 +14,8 @@ import (
 
 // publishPeriods computes the indicators of each period of the configured profile once it has
 // closed, and its records have been committed, and hands them to the publisher.
-func publishPeriods(ctx context.Context, cfg *config.Config, st *buffer.Store, pub *publish.Publisher, log *slog.Logger) {
+func (d *daemon) publishPeriods(ctx context.Context, st *buffer.Store, pub *publish.Publisher) {
+	cfg, log := d.o.Config, d.o.Logger
 	prof, err := profiles.Load(cfg.Indicators.Profile)
 	if err != nil {
 		log.Error("indicators.profile: cannot load; no period indicators are published", "err", err)
