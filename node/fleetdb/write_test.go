@@ -3,6 +3,7 @@ package fleetdb
 import (
 	"context"
 	"fmt"
+	"strings"
 	"testing"
 	"time"
 )
@@ -92,5 +93,64 @@ func TestRestartIsNotALoss(t *testing.T) {
 	}
 	if err := db.pool.QueryRow(ctx, "SELECT first_seq, last_seq FROM leqnode.restart_skips WHERE kind = 'second'").Scan(&first, &last); err != nil || first != 61 || last != 4096 {
 		t.Errorf("restart skip %d..%d (%v), want 61..4096", first, last, err)
+	}
+}
+
+// TestFleet: the fleet summary of one node from its status, records, health and calibration.
+func TestFleet(t *testing.T) {
+	db, _ := openTestDB(t)
+	ctx := context.Background()
+	now := time.Now().UTC().Truncate(time.Second)
+	if err := db.NoteStatus(ctx, map[string]any{"node": "wendle-cross-03", "store": storeA, "state": "online",
+		"site": "Harrowby Lane, Wendle Cross", "commands": true, "backlog": false}); err != nil {
+		t.Fatal(err)
+	}
+	at := func(d time.Duration) (string, int64) {
+		x := now.Add(d)
+		return x.Format("2006-01-02T15:04:05.000Z"), x.UnixMilli()
+	}
+	calStart, calMs := at(-36 * time.Hour)
+	hStart, hMs := at(-time.Minute)
+	payloads := [][]byte{
+		fmt.Appendf(nil, `{"schema_version":1,"kind":"calibration","node":"wendle-cross-03","store":%q,"delivery":"live","seq":1,"start":%q,"start_ms":%d,"reference_dB":94,"measured_dB":94.1,"deviation_dB":0.1,"frequency_hz":1000,"stability_dB":0.02,"sensitivity_before_dBFS":-26,"sensitivity_after_dBFS":-26,"applied":true,"passed":true,"flags":[]}`, storeA, calStart, calMs),
+		fmt.Appendf(nil, `{"schema_version":1,"kind":"health","node":"wendle-cross-03","store":%q,"delivery":"live","seq":1,"start":%q,"start_ms":%d,"flags":["dc-offset"],"clipped_samples":0,"under_range_seconds":0,"dropped_samples":0,"queue_overflows":0,"store_bytes":1,"self_test_checks":1,"self_test_failed":0,"silent":false,"stuck":false,"clock_synced":false,"dc_offset":0.01,"cpu_percent":5,"memory_mb":20,"disk_free_mb":900,"clock_error_ms":null,"temperature_c":40}`, storeA, hStart, hMs),
+	}
+	var rows []Row
+	for _, p := range payloads {
+		doc := decodeAt(t, p, now)
+		rows = append(rows, doc...)
+	}
+	// 30 second records in the last hour; the last has LAeq 50 + 30 % 10 = 50.
+	for _, r := range decodeAt(t, secondPayload("wendle-cross-03", storeA, 1, 30), now.Add(24*365*10*time.Hour)) {
+		r.Time = now.Add(-time.Hour).Add(time.Duration(r.Seq) * time.Second)
+		r.vals[3] = r.Time
+		rows = append(rows, r)
+	}
+	if _, err := db.Write(ctx, Batch{Rows: rows}); err != nil {
+		t.Fatal(err)
+	}
+	got, err := db.Fleet(ctx, now.Add(-time.Hour), now)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(got) != 1 {
+		t.Fatalf("%d nodes, want 1", len(got))
+	}
+	n := got[0]
+	if n.Node != "wendle-cross-03" || !n.Online || n.Site != "Harrowby Lane, Wendle Cross" {
+		t.Errorf("node %+v", n)
+	}
+	if strings.Join(n.Health, ",") != "dc-offset,clock-unsynced" {
+		t.Errorf("health flags %v, want dc-offset and clock-unsynced", n.Health)
+	}
+	if n.DaysSinceCalibration == nil || *n.DaysSinceCalibration < 1.49 || *n.DaysSinceCalibration > 1.51 {
+		t.Errorf("days since calibration %v, want 1.5", n.DaysSinceCalibration)
+	}
+	// 30 one-second records in a one-hour range: 30/3600 (arithmetic).
+	if n.Coverage < 30.0/3600-1e-9 || n.Coverage > 30.0/3600+1e-9 || n.Missing != 0 {
+		t.Errorf("coverage %v missing %d, want %v and 0", n.Coverage, n.Missing, 30.0/3600)
+	}
+	if n.LAeq == nil || *n.LAeq != 50 {
+		t.Errorf("last LAeq %v, want 50", n.LAeq)
 	}
 }
