@@ -34,6 +34,9 @@ var quarantineCases = []struct {
 	{"time far ahead", "wendlecross/wendle-cross-04/live/gap", good(60*24*400, "wendle-cross-04"), ReasonContent},
 	{"seconds count mismatch", "wendlecross/wendle-cross-04/live/second", `{"schema_version":1,"kind":"second","node":"wendle-cross-04","store":"0a0b0c0d0e0f1011","delivery":"live","seq":1,"start":"2031-05-04T08:00:00.000Z","start_ms":1967702400000,"last_seq":2,"count":2,"columns":{"seq":[1],"start_ms":[1967702400000],"duration_s":[1],"flags":[[]],"dropped_samples":[0]}}`, ReasonContent},
 	{"level beyond real", "wendlecross/wendle-cross-04/live/minute", `{"schema_version":1,"kind":"minute","node":"wendle-cross-04","store":"0a0b0c0d0e0f1011","delivery":"live","seq":1,"start":"2031-05-04T08:00:00.000Z","start_ms":` + fmt.Sprint(t0.UnixMilli()) + `,"LAeq":1e300,"LCeq":null,"LZeq":null,"LAFmax":null,"LAFmin":null,"LAF1":null,"LAF5":null,"LAF10":null,"LAF50":null,"LAF90":null,"LAF95":null,"LAF99":null,"LAE":null,"LCpeak":null,"LAImax":null,"valid_seconds":60,"flags":[]}`, ReasonContent},
+	// PostgreSQL text cannot hold the character U+0000 (SQLSTATE 22P05): the database refuses
+	// the record, not the schema.
+	{"refused by the database", "wendlecross/wendle-cross-04/live/gap", strings.Replace(good(11, "wendle-cross-04"), `"device lost"`, `"device\u0000lost"`, 1), ReasonDatabase},
 	{"unknown delivery", "wendlecross/wendle-cross-04/odd/gap", good(9, "wendle-cross-04"), ReasonTopic},
 }
 

@@ -150,8 +150,12 @@ func (c *Collector) oneByOne(ctx context.Context, batch []entry) bool {
 		w, err := c.write(ctx, b)
 		if err != nil && ctx.Err() == nil {
 			m := batch[i].msg
+			node := ""
+			if len(it.rows) > 0 {
+				node = it.rows[0].Node
+			}
 			it.class, it.rows = classBad, nil
-			it.bad = &fleetdb.Quarantined{Topic: m.Topic(), Reason: ReasonDatabase + ": " + oneLine(err.Error()), Payload: m.Payload()}
+			it.bad = &fleetdb.Quarantined{Topic: m.Topic(), TopicNode: node, Reason: ReasonDatabase + ": " + oneLine(err.Error()), Payload: m.Payload()}
 			b = fleetdb.Batch{Quarantine: []fleetdb.Quarantined{*it.bad}}
 			w, err = c.write(ctx, b)
 			c.m.quarantined.WithLabelValues(ReasonDatabase).Inc()
