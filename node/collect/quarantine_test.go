@@ -2,12 +2,17 @@ package collect
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
+	"io"
+	"net/http"
 	"strings"
 	"testing"
 	"time"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // good returns a valid gap payload of node wendle-cross-04 (configs/schema/gap.schema.json).
@@ -44,7 +49,8 @@ var quarantineCases = []struct {
 // is counted, and does not hold up the good payload behind it.
 func TestQuarantine(t *testing.T) {
 	r := newRig(t)
-	col, _ := runCollector(t, r.config(func(c *Config) { c.Broker.MaxPayloadBytes = 4096 }), Options{})
+	listen := fmt.Sprintf("127.0.0.1:%d", testrig.FreePort(t))
+	col, _ := runCollector(t, r.config(func(c *Config) { c.Broker.MaxPayloadBytes = 4096; c.Listen = listen }), Options{})
 	cases := append(quarantineCases, struct{ name, topic, payload, reason string }{
 		"too large", "wendlecross/wendle-cross-04/live/gap", strings.Repeat(" ", 5000) + good(10, "wendle-cross-04"), ReasonTooLarge})
 	opts := mqtt.NewClientOptions().AddBroker(r.broker.URL("tcp")).SetClientID("wendle-test-sender")
@@ -108,6 +114,27 @@ func TestQuarantine(t *testing.T) {
 		if counts[k] != v {
 			t.Errorf("%s = %v, want %v", k, counts[k], v)
 		}
+	}
+	// The same counts on the collector's endpoint, in the Prometheus text format and as JSON.
+	resp, err := http.Get("http://" + listen + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	line := fmt.Sprintf("leqnode_collect_quarantined_total{reason=%q} %v\n", ReasonSchema, want["quarantined_total/"+ReasonSchema])
+	if !strings.Contains(string(body), line) {
+		t.Errorf("/metrics lacks %q:\n%s", line, body)
+	}
+	resp, err = http.Get("http://" + listen + "/status")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var status map[string]float64
+	err = json.NewDecoder(resp.Body).Decode(&status)
+	resp.Body.Close()
+	if err != nil || status["quarantined_total/"+ReasonTopic] != want["quarantined_total/"+ReasonTopic] {
+		t.Errorf("/status: %v %v", status, err)
 	}
 }
 
