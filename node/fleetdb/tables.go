@@ -58,6 +58,13 @@ func cols(groups ...[]column) []column {
 	return out
 }
 
+// countedSeconds are the columns of minutes and periods that say which seconds count (see
+// the README's "which seconds count").
+var countedSeconds = []column{{"bound", "bound", cText}, {"overload_seconds", "overload_seconds", cInt},
+	{"calibrating_seconds", "calibrating_seconds", cInt}, {"settling_seconds", "settling_seconds", cInt},
+	{"excluded_seconds", "excluded_seconds", cInt}, {"suspect_seconds", "suspect_seconds", cInt},
+	{"no_data_seconds", "no_data_seconds", cInt}, {"digital_silence_seconds", "digital_silence_seconds", cInt}}
+
 // tables lists the record kinds in the order they are written.
 var tables = []table{
 	{"second", "seconds", "day", cols([]column{{"duration_s", "duration_s", cReal}},
@@ -65,7 +72,8 @@ var tables = []table{
 		[]column{{"flags", "flags", cFlags}, {"dropped_samples", "dropped_samples", cInt}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
 	{"minute", "minutes", "month", cols(
 		levels("LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LAF1", "LAF5", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99", "LAE", "LCpeak", "LAImax"),
-		[]column{{"valid_seconds", "valid_seconds", cInt}, {"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
+		[]column{{"valid_seconds", "valid_seconds", cInt}, {"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum},
+			{"valid_duration_s", "valid_duration_s", cReal}}, countedSeconds)},
 	{"event", "events", "month", cols([]column{{"end_time", "end_ms", cTime}, {"duration_s", "duration_s", cReal}},
 		levels("LAFmax", "LAeq", "LAE", "LCpeak"),
 		[]column{{"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
@@ -89,11 +97,12 @@ var tables = []table{
 }
 
 // periodTable is the table of period indicators (no sequence number; see migrations).
-var periodTable = table{"period", "periods", "", []column{{"profile", "profile", cText}, {"period", "period", cText},
+var periodTable = table{"period", "periods", "", cols([]column{{"profile", "profile", cText}, {"period", "period", cText},
 	{"day", "day", cDate}, {"zone", "zone", cText}, {"end_time", "end_ms", cTime}, {"hours", "hours", cReal},
 	{"penalty_dB", "penalty_dB", cReal}, {"LAeq", "LAeq", cReal}, {"LCeq", "LCeq", cReal}, {"LAF10", "LAF10", cReal},
 	{"LAF90", "LAF90", cReal}, {"LAFmax", "LAFmax", cReal}, {"events", "events", cInt}, {"limit_dB", "limit_dB", cReal},
-	{"exceeds", "exceeds", cBool}, {"coverage", "coverage", cReal}, {"coverage_low", "coverage_low", cBool}}}
+	{"exceeds", "exceeds", cBool}, {"coverage", "coverage", cReal}, {"coverage_low", "coverage_low", cBool},
+	{"valid_seconds", "valid_seconds", cInt}}, countedSeconds)}
 
 func tableOf(kind string) *table {
 	if kind == periodTable.kind {

@@ -154,3 +154,29 @@ func TestFleet(t *testing.T) {
 		t.Errorf("last LAeq %v, want 50", n.LAeq)
 	}
 }
+
+// TestPeriods: a node's period message lands in period_indicators; sent again with new values
+// (the node recomputed it), it replaces the first.
+func TestPeriods(t *testing.T) {
+	db, _ := openTestDB(t)
+	ctx := context.Background()
+	period := func(laeq float64) []byte {
+		return fmt.Appendf(nil, `{"schema_version":1,"kind":"period","node":"wendle-cross-03","store":%q,"profile":"eu-lden","period":"night","day":"2031-05-03","start":"2031-05-03T21:00:00.000Z","start_ms":%d,"end":"2031-05-04T05:00:00.000Z","end_ms":%d,"hours":8,"penalty_dB":10,"LAeq":%g,"LCeq":55.2,"LAF10":48.1,"LAF90":38.2,"LAFmax":71.3,"events":4,"limit_dB":45,"exceeds":false,"coverage":0.98,"coverage_low":false,"bound":"lower","valid_seconds":28224,"overload_seconds":3}`,
+			storeA, time.Date(2031, 5, 3, 21, 0, 0, 0, time.UTC).UnixMilli(), time.Date(2031, 5, 4, 5, 0, 0, 0, time.UTC).UnixMilli(), laeq)
+	}
+	for _, l := range []float64{43.2, 44.9} {
+		if _, err := db.Write(ctx, Batch{Rows: decode(t, period(l))}); err != nil {
+			t.Fatal(err)
+		}
+	}
+	var n, overload int
+	var laeq float32
+	var end time.Time
+	var bound string
+	if err := db.pool.QueryRow(ctx, "SELECT count(*) OVER (), LAeq, end_time, bound, overload_seconds FROM leqnode.period_indicators").Scan(&n, &laeq, &end, &bound, &overload); err != nil {
+		t.Fatal(err)
+	}
+	if n != 1 || laeq != 44.9 || !end.Equal(time.Date(2031, 5, 4, 5, 0, 0, 0, time.UTC)) || bound != "lower" || overload != 3 {
+		t.Errorf("%d periods, LAeq %v, end %s, bound %s, %d overloaded; want one, 44.9, 05:00, lower, 3", n, laeq, end, bound, overload)
+	}
+}
