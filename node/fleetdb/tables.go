@@ -63,7 +63,8 @@ func cols(groups ...[]column) []column {
 var countedSeconds = []column{{"bound", "bound", cText}, {"overload_seconds", "overload_seconds", cInt},
 	{"calibrating_seconds", "calibrating_seconds", cInt}, {"settling_seconds", "settling_seconds", cInt},
 	{"excluded_seconds", "excluded_seconds", cInt}, {"suspect_seconds", "suspect_seconds", cInt},
-	{"no_data_seconds", "no_data_seconds", cInt}, {"digital_silence_seconds", "digital_silence_seconds", cInt}}
+	{"no_data_seconds", "no_data_seconds", cInt}, {"digital_silence_seconds", "digital_silence_seconds", cInt},
+	{"under_range_seconds", "under_range_seconds", cInt}}
 
 // tables lists the record kinds in the order they are written.
 var tables = []table{
@@ -89,7 +90,7 @@ var tables = []table{
 		{"deviation_dB", "deviation_dB", cReal}, {"frequency_hz", "frequency_hz", cReal}, {"stability_dB", "stability_dB", cReal},
 		{"sensitivity_before_dBFS", "sensitivity_before_dBFS", cReal}, {"sensitivity_after_dBFS", "sensitivity_after_dBFS", cReal},
 		{"applied", "applied", cBool}, {"passed", "passed", cBool}, {"flags", "flags", cFlags}}},
-	{"gap", "gaps", "", []column{{"end_time", "end_ms", cTime}, {"reason", "reason", cText}}},
+	{"gap", "gaps", "", []column{{"end_time", "end_ms", cTime}, {"reason", "reason", cText}, {"duration_s", "duration_s", cReal}}},
 	{"annotation", "annotations", "", []column{{"end_time", "end_ms", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
 	{"session", "sessions", "", []column{{"software_version", "software_version", cText}, {"config_hash", "config_hash", cText},
 		{"sensitivity_dBFS", "sensitivity_dBFS", cReal}, {"sample_rate_hz", "sample_rate_hz", cInt},

@@ -5,12 +5,13 @@ ALTER TABLE leqnode.minutes ADD COLUMN bound text, ADD COLUMN valid_duration_s r
     ADD COLUMN overload_seconds integer, ADD COLUMN calibrating_seconds integer,
     ADD COLUMN settling_seconds integer, ADD COLUMN excluded_seconds integer,
     ADD COLUMN suspect_seconds integer, ADD COLUMN no_data_seconds integer,
-    ADD COLUMN digital_silence_seconds integer;
+    ADD COLUMN digital_silence_seconds integer, ADD COLUMN under_range_seconds integer;
 ALTER TABLE leqnode.periods ADD COLUMN bound text, ADD COLUMN valid_seconds integer,
     ADD COLUMN overload_seconds integer, ADD COLUMN calibrating_seconds integer,
     ADD COLUMN settling_seconds integer, ADD COLUMN excluded_seconds integer,
     ADD COLUMN suspect_seconds integer, ADD COLUMN no_data_seconds integer,
-    ADD COLUMN digital_silence_seconds integer;
+    ADD COLUMN digital_silence_seconds integer, ADD COLUMN under_range_seconds integer;
+ALTER TABLE leqnode.gaps ADD COLUMN duration_s real;
 
 CREATE OR REPLACE VIEW leqnode.minute_levels AS
 SELECT node_id, start_time, LAeq, LCeq, LZeq, LAFmax, LAFmin, LAF1, LAF5, LAF10, LAF50, LAF90,
