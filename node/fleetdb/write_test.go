@@ -2,6 +2,7 @@ package fleetdb
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
 	"strings"
 	"testing"
@@ -178,5 +179,39 @@ func TestPeriods(t *testing.T) {
 	}
 	if n != 1 || laeq != 44.9 || !end.Equal(time.Date(2031, 5, 4, 5, 0, 0, 0, time.UTC)) || bound != "lower" || overload != 3 {
 		t.Errorf("%d periods, LAeq %v, end %s, bound %s, %d overloaded; want one, 44.9, 05:00, lower, 3", n, laeq, end, bound, overload)
+	}
+}
+
+// TestTailHole: the node's status says it committed and sent events up to 5, three arrived:
+// events 4 and 5 are missing; while the status says some are still pending, nothing is.
+func TestTailHole(t *testing.T) {
+	db, _ := openTestDB(t)
+	ctx := context.Background()
+	var rows []Row
+	for seq := 1; seq <= 3; seq++ {
+		at := t0.Add(time.Duration(seq) * time.Minute)
+		rows = append(rows, decode(t, fmt.Appendf(nil, `{"schema_version":1,"kind":"event","node":"wendle-cross-03","store":%q,"delivery":"live","seq":%d,"start":%q,"start_ms":%d,"end":%q,"end_ms":%d,"duration_s":4,"LAFmax":81.2,"LAeq":75.1,"LAE":81.1,"LCpeak":99.5,"flags":[]}`,
+			storeA, seq, at.Format("2006-01-02T15:04:05.000Z"), at.UnixMilli(), at.Add(4*time.Second).Format("2006-01-02T15:04:05.000Z"), at.Add(4*time.Second).UnixMilli()))...)
+	}
+	if _, err := db.Write(ctx, Batch{Rows: rows}); err != nil {
+		t.Fatal(err)
+	}
+	status := func(pending int) map[string]any {
+		return map[string]any{"node": "wendle-cross-03", "store": storeA, "state": "online", "commands": true, "backlog": false,
+			"time_ms": json.Number(fmt.Sprint(t0.Add(time.Hour).UnixMilli())),
+			"last_seq": map[string]any{"event": json.Number("5")}, "pending": map[string]any{"event": json.Number(fmt.Sprint(pending))}}
+	}
+	for _, tt := range []struct {
+		pending, want int
+	}{{2, 0}, {0, 2}} {
+		if err := db.NoteStatus(ctx, status(tt.pending)); err != nil {
+			t.Fatal(err)
+		}
+		var n int
+		var first, last int64
+		_ = db.pool.QueryRow(ctx, "SELECT count(*) OVER (), first_seq, last_seq FROM leqnode.missing_records").Scan(&n, &first, &last)
+		if got := int(last - first + 1); (tt.want == 0 && n != 0) || (tt.want > 0 && (n != 1 || first != 4 || got != tt.want)) {
+			t.Errorf("pending %d: %d holes, %d..%d; want %d missing from 4", tt.pending, n, first, last, tt.want)
+		}
 	}
 }
