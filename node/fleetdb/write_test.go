@@ -198,7 +198,7 @@ func TestTailHole(t *testing.T) {
 	}
 	status := func(pending int) map[string]any {
 		return map[string]any{"node": "wendle-cross-03", "store": storeA, "state": "online", "commands": true, "backlog": false,
-			"time_ms": json.Number(fmt.Sprint(t0.Add(time.Hour).UnixMilli())),
+			"time_ms":  json.Number(fmt.Sprint(t0.Add(time.Hour).UnixMilli())),
 			"last_seq": map[string]any{"event": json.Number("5")}, "pending": map[string]any{"event": json.Number(fmt.Sprint(pending))}}
 	}
 	for _, tt := range []struct {
