@@ -57,6 +57,7 @@ func TestParseConfig(t *testing.T) {
 		{"wildcard prefix", strings.Replace(base, "[database]", "topic_prefix = \"leqnode/#\"\n[database]", 1), "broker.topic_prefix"},
 		{"bad duration", base + "[resend]\ngrace = \"soon\"\n", `duration "soon"`},
 		{"wait too long", base + "[batch]\nmax_wait = \"1m\"\n", "batch.max_wait 1m0s"},
+		{"short retention", base + "[retention]\nsecond = \"1h\"\n", "retention.second 1h0m0s"},
 		{"share group", strings.Replace(base, "[database]", "share_group = \"$share\"\n[database]", 1), "broker.share_group"},
 	} {
 		t.Run(tt.name, func(t *testing.T) {

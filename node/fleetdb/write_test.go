@@ -215,3 +215,38 @@ func TestTailHole(t *testing.T) {
 		}
 	}
 }
+
+// TestDropPartitions: partitions wholly older than the cut go, with their records; the
+// partition that holds the cut stays, and the dropped records are not counted as missing.
+func TestDropPartitions(t *testing.T) {
+	db, _ := openTestDB(t)
+	ctx := context.Background()
+	// Second records on 2031-05-04 (t0) and, 2 days later, 2031-05-06.
+	rows := decode(t, secondPayload("wendle-cross-03", storeA, 1, 10))
+	later := decode(t, secondPayload("wendle-cross-03", storeA, 11, 10))
+	for i := range later {
+		later[i].Time = later[i].Time.Add(48 * time.Hour)
+		later[i].vals[3] = later[i].Time
+	}
+	if _, err := db.Write(ctx, Batch{Rows: append(rows, later...)}); err != nil {
+		t.Fatal(err)
+	}
+	dropped, err := db.DropPartitionsBefore(ctx, "second", time.Date(2031, 5, 6, 12, 0, 0, 0, time.UTC))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if strings.Join(dropped, ",") != "seconds_20310504" {
+		t.Errorf("dropped %v, want seconds_20310504", dropped)
+	}
+	var n, missing int
+	if err := db.pool.QueryRow(ctx, "SELECT (SELECT count(*) FROM leqnode.seconds), (SELECT count(*) FROM leqnode.missing_records)").Scan(&n, &missing); err != nil || n != 10 || missing != 0 {
+		t.Errorf("%d seconds and %d holes left (%v), want 10 and none", n, missing, err)
+	}
+	// A record for a dropped day comes again (a resend): its partition is created anew.
+	if _, err := db.Write(ctx, Batch{Rows: rows[:1]}); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := db.DropPartitionsBefore(ctx, "session", time.Now()); err == nil {
+		t.Error("sessions have no partitions: want an error")
+	}
+}
