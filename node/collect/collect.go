@@ -61,7 +61,6 @@ type Collector struct {
 	subscribed atomic.Bool
 	dbPass     string
 	mqttPass   string
-	tls        bool
 }
 
 // entry is a received message with its classification.

@@ -91,8 +91,8 @@ func TestExactlyOnce(t *testing.T) {
 func TestNothingLostThroughFaults(t *testing.T) {
 	r := newRig(t)
 	// A direct subscription: with mosquitto 2.0.11 (Debian 12), a persistent session's shared
-	// subscription receives nothing after a broker restart, even when subscribed again (seen in
-	// this test; README, "Collector").
+	// subscription received nothing more after a broker restart with messages in flight to the
+	// collector, even when subscribed again (seen in this test; README, "The central collector").
 	cfgPath := r.configFile(r.config(func(c *Config) { c.Broker.ShareGroup = "" }))
 	col := startChild(t, cfgPath)
 	n := startNode(t, r, "wendle-cross-05", nil)

@@ -29,6 +29,8 @@ type Config struct {
 	Database DatabaseConfig `toml:"database"`
 	Batch    BatchConfig    `toml:"batch"`
 	Resend   ResendConfig   `toml:"resend"`
+	// Retention drops old records by whole partitions (default: keep everything).
+	Retention RetentionConfig `toml:"retention"`
 	// Listen is the address of the collector's own HTTP endpoint (/metrics in the Prometheus
 	// text format, /status as JSON). Empty turns it off. Keep it on loopback or a management
 	// network: it tells anyone who asks how the fleet is doing.
@@ -103,6 +105,28 @@ type ResendConfig struct {
 	MaxRange   Duration `toml:"max_range"`   // default 24h (nodes refuse more than their commands.max_resend_range)
 	Backoff    Duration `toml:"backoff"`     // default 10m
 	MaxBackoff Duration `toml:"max_backoff"` // default 6h
+}
+
+// RetentionConfig says how long records of the partitioned kinds are kept; zero keeps them
+// forever. Each is at least 24h; a partition goes once its newest possible record is older
+// (a day for seconds, a month for the others). Danger: what is dropped is gone; the nodes keep
+// seconds 30 days and minutes 5 years, so a resend can bring back only what they still hold.
+type RetentionConfig struct {
+	Second Duration `toml:"second"`
+	Minute Duration `toml:"minute"`
+	Event  Duration `toml:"event"`
+	Health Duration `toml:"health"`
+}
+
+// kinds returns the kinds with a retention, and their durations.
+func (r RetentionConfig) kinds() map[string]time.Duration {
+	out := map[string]time.Duration{}
+	for k, d := range map[string]Duration{"second": r.Second, "minute": r.Minute, "event": r.Event, "health": r.Health} {
+		if d > 0 {
+			out[k] = time.Duration(d)
+		}
+	}
+	return out
 }
 
 // DefaultConfig returns the defaults every key a file leaves out takes.
@@ -219,6 +243,11 @@ func (c *Config) Validate() []error {
 	} {
 		if time.Duration(d.v) < d.lo || time.Duration(d.v) > d.hi {
 			bad("%s %s: %s to %s", d.key, d.v, d.lo, d.hi)
+		}
+	}
+	for k, d := range c.Retention.kinds() {
+		if d < 24*time.Hour {
+			bad("retention.%s %s: 0 (keep forever) or at least 24h", k, d)
 		}
 	}
 	return errs

@@ -2,12 +2,17 @@ package collect
 
 import (
 	"context"
+	"encoding/json"
 	"fmt"
+	"io"
+	"net/http"
 	"strings"
 	"testing"
 	"time"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // good returns a valid gap payload of node wendle-cross-04 (configs/schema/gap.schema.json).
@@ -34,6 +39,9 @@ var quarantineCases = []struct {
 	{"time far ahead", "wendlecross/wendle-cross-04/live/gap", good(60*24*400, "wendle-cross-04"), ReasonContent},
 	{"seconds count mismatch", "wendlecross/wendle-cross-04/live/second", `{"schema_version":1,"kind":"second","node":"wendle-cross-04","store":"0a0b0c0d0e0f1011","delivery":"live","seq":1,"start":"2031-05-04T08:00:00.000Z","start_ms":1967702400000,"last_seq":2,"count":2,"columns":{"seq":[1],"start_ms":[1967702400000],"duration_s":[1],"flags":[[]],"dropped_samples":[0]}}`, ReasonContent},
 	{"level beyond real", "wendlecross/wendle-cross-04/live/minute", `{"schema_version":1,"kind":"minute","node":"wendle-cross-04","store":"0a0b0c0d0e0f1011","delivery":"live","seq":1,"start":"2031-05-04T08:00:00.000Z","start_ms":` + fmt.Sprint(t0.UnixMilli()) + `,"LAeq":1e300,"LCeq":null,"LZeq":null,"LAFmax":null,"LAFmin":null,"LAF1":null,"LAF5":null,"LAF10":null,"LAF50":null,"LAF90":null,"LAF95":null,"LAF99":null,"LAE":null,"LCpeak":null,"LAImax":null,"valid_seconds":60,"flags":[]}`, ReasonContent},
+	// PostgreSQL text cannot hold the character U+0000 (SQLSTATE 22P05): the database refuses
+	// the record, not the schema.
+	{"refused by the database", "wendlecross/wendle-cross-04/live/gap", strings.Replace(good(11, "wendle-cross-04"), `"device lost"`, `"device\u0000lost"`, 1), ReasonDatabase},
 	{"unknown delivery", "wendlecross/wendle-cross-04/odd/gap", good(9, "wendle-cross-04"), ReasonTopic},
 }
 
@@ -41,7 +49,8 @@ var quarantineCases = []struct {
 // is counted, and does not hold up the good payload behind it.
 func TestQuarantine(t *testing.T) {
 	r := newRig(t)
-	col, _ := runCollector(t, r.config(func(c *Config) { c.Broker.MaxPayloadBytes = 4096 }), Options{})
+	listen := fmt.Sprintf("127.0.0.1:%d", testrig.FreePort(t))
+	col, _ := runCollector(t, r.config(func(c *Config) { c.Broker.MaxPayloadBytes = 4096; c.Listen = listen }), Options{})
 	cases := append(quarantineCases, struct{ name, topic, payload, reason string }{
 		"too large", "wendlecross/wendle-cross-04/live/gap", strings.Repeat(" ", 5000) + good(10, "wendle-cross-04"), ReasonTooLarge})
 	opts := mqtt.NewClientOptions().AddBroker(r.broker.URL("tcp")).SetClientID("wendle-test-sender")
@@ -105,6 +114,27 @@ func TestQuarantine(t *testing.T) {
 		if counts[k] != v {
 			t.Errorf("%s = %v, want %v", k, counts[k], v)
 		}
+	}
+	// The same counts on the collector's endpoint, in the Prometheus text format and as JSON.
+	resp, err := http.Get("http://" + listen + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	line := fmt.Sprintf("leqnode_collect_quarantined_total{reason=%q} %v\n", ReasonSchema, want["quarantined_total/"+ReasonSchema])
+	if !strings.Contains(string(body), line) {
+		t.Errorf("/metrics lacks %q:\n%s", line, body)
+	}
+	resp, err = http.Get("http://" + listen + "/status")
+	if err != nil {
+		t.Fatal(err)
+	}
+	var status map[string]float64
+	err = json.NewDecoder(resp.Body).Decode(&status)
+	resp.Body.Close()
+	if err != nil || status["quarantined_total/"+ReasonTopic] != want["quarantined_total/"+ReasonTopic] {
+		t.Errorf("/status: %v %v", status, err)
 	}
 }
 

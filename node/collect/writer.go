@@ -150,8 +150,12 @@ func (c *Collector) oneByOne(ctx context.Context, batch []entry) bool {
 		w, err := c.write(ctx, b)
 		if err != nil && ctx.Err() == nil {
 			m := batch[i].msg
+			node := ""
+			if len(it.rows) > 0 {
+				node = it.rows[0].Node
+			}
 			it.class, it.rows = classBad, nil
-			it.bad = &fleetdb.Quarantined{Topic: m.Topic(), Reason: ReasonDatabase + ": " + oneLine(err.Error()), Payload: m.Payload()}
+			it.bad = &fleetdb.Quarantined{Topic: m.Topic(), TopicNode: node, Reason: ReasonDatabase + ": " + oneLine(err.Error()), Payload: m.Payload()}
 			b = fleetdb.Batch{Quarantine: []fleetdb.Quarantined{*it.bad}}
 			w, err = c.write(ctx, b)
 			c.m.quarantined.WithLabelValues(ReasonDatabase).Inc()
@@ -202,6 +206,7 @@ func (c *Collector) housekeeping(ctx context.Context) {
 	defer resend.Stop()
 	parts := time.NewTicker(6 * time.Hour)
 	defer parts.Stop()
+	c.dropOld(ctx)
 	for {
 		select {
 		case <-ctx.Done():
@@ -210,6 +215,7 @@ func (c *Collector) housekeeping(ctx context.Context) {
 			if err := c.db.CreatePartitionsAhead(ctx, time.Now(), time.Duration(c.cfg.Database.PartitionsAhead)); err != nil && ctx.Err() == nil {
 				c.log.Warn("creating partitions ahead failed; retrying in 6 h (records still create theirs)", "err", err)
 			}
+			c.dropOld(ctx)
 		case <-resend.C:
 			if !*c.cfg.Resend.Enabled {
 				continue
@@ -219,6 +225,15 @@ func (c *Collector) housekeeping(ctx context.Context) {
 			} else if n > 0 {
 				c.log.Info("resend requests sent", "requests", n)
 			}
+		}
+	}
+}
+
+// dropOld drops the partitions that retention no longer keeps.
+func (c *Collector) dropOld(ctx context.Context) {
+	for kind, keep := range c.cfg.Retention.kinds() {
+		if _, err := c.db.DropPartitionsBefore(ctx, kind, time.Now().Add(-keep)); err != nil && ctx.Err() == nil {
+			c.log.Warn("dropping old partitions failed; retrying in 6 h", "kind", kind, "err", err)
 		}
 	}
 }

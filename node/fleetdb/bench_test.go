@@ -58,6 +58,14 @@ func BenchmarkWrite(b *testing.B) {
 	}
 	b.StopTimer()
 	_ = start
+	// Size on disk per second record, table and indexes (all spectra off, as the default
+	// publish.spectra = "minute" sends them).
+	var bytes, count float64
+	if err := db.pool.QueryRow(ctx, `SELECT sum(pg_total_relation_size(c.oid))::float8, (SELECT count(*) FROM leqnode.seconds)::float8
+		FROM pg_inherits i JOIN pg_class c ON c.oid = i.inhrelid WHERE i.inhparent = 'leqnode.seconds'::regclass`).Scan(&bytes, &count); err != nil {
+		b.Fatal(err)
+	}
+	b.ReportMetric(bytes/count, "bytes/record")
 	b.ReportMetric(float64(wrote)/busy.Seconds(), "records/s")
 	b.ReportMetric(0, "ns/op")
 }

@@ -73,6 +73,12 @@ var compiled = sync.OnceValues(schema.Compile)
 // decode validates and converts a payload as the collector does.
 func decode(t testing.TB, payload []byte) []Row {
 	t.Helper()
+	return decodeAt(t, payload, t0.Add(time.Hour))
+}
+
+// decodeAt is decode with the collector's clock at now.
+func decodeAt(t testing.TB, payload []byte, now time.Time) []Row {
+	t.Helper()
 	set, err := compiled()
 	if err != nil {
 		t.Fatal(err)
@@ -85,7 +91,7 @@ func decode(t testing.TB, payload []byte) []Row {
 	if err := set.Validate(m["kind"].(string), doc); err != nil {
 		t.Fatalf("payload invalid: %v\n%s", err, payload)
 	}
-	rows, err := NewDecoder().Rows(m, t0.Add(time.Hour))
+	rows, err := NewDecoder().Rows(m, now)
 	if err != nil {
 		t.Fatal(err)
 	}

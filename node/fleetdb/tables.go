@@ -58,6 +58,14 @@ func cols(groups ...[]column) []column {
 	return out
 }
 
+// countedSeconds are the columns of minutes and periods that say which seconds count (see
+// the README's "which seconds count").
+var countedSeconds = []column{{"bound", "bound", cText}, {"overload_seconds", "overload_seconds", cInt},
+	{"calibrating_seconds", "calibrating_seconds", cInt}, {"settling_seconds", "settling_seconds", cInt},
+	{"excluded_seconds", "excluded_seconds", cInt}, {"suspect_seconds", "suspect_seconds", cInt},
+	{"no_data_seconds", "no_data_seconds", cInt}, {"digital_silence_seconds", "digital_silence_seconds", cInt},
+	{"under_range_seconds", "under_range_seconds", cInt}}
+
 // tables lists the record kinds in the order they are written.
 var tables = []table{
 	{"second", "seconds", "day", cols([]column{{"duration_s", "duration_s", cReal}},
@@ -65,7 +73,8 @@ var tables = []table{
 		[]column{{"flags", "flags", cFlags}, {"dropped_samples", "dropped_samples", cInt}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
 	{"minute", "minutes", "month", cols(
 		levels("LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LAF1", "LAF5", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99", "LAE", "LCpeak", "LAImax"),
-		[]column{{"valid_seconds", "valid_seconds", cInt}, {"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
+		[]column{{"valid_seconds", "valid_seconds", cInt}, {"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum},
+			{"valid_duration_s", "valid_duration_s", cReal}}, countedSeconds)},
 	{"event", "events", "month", cols([]column{{"end_time", "end_ms", cTime}, {"duration_s", "duration_s", cReal}},
 		levels("LAFmax", "LAeq", "LAE", "LCpeak"),
 		[]column{{"flags", "flags", cFlags}, {"third_octave", "third_octave_LZeq", cSpectrum}})},
@@ -81,7 +90,7 @@ var tables = []table{
 		{"deviation_dB", "deviation_dB", cReal}, {"frequency_hz", "frequency_hz", cReal}, {"stability_dB", "stability_dB", cReal},
 		{"sensitivity_before_dBFS", "sensitivity_before_dBFS", cReal}, {"sensitivity_after_dBFS", "sensitivity_after_dBFS", cReal},
 		{"applied", "applied", cBool}, {"passed", "passed", cBool}, {"flags", "flags", cFlags}}},
-	{"gap", "gaps", "", []column{{"end_time", "end_ms", cTime}, {"reason", "reason", cText}}},
+	{"gap", "gaps", "", []column{{"end_time", "end_ms", cTime}, {"reason", "reason", cText}, {"duration_s", "duration_s", cReal}}},
 	{"annotation", "annotations", "", []column{{"end_time", "end_ms", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
 	{"session", "sessions", "", []column{{"software_version", "software_version", cText}, {"config_hash", "config_hash", cText},
 		{"sensitivity_dBFS", "sensitivity_dBFS", cReal}, {"sample_rate_hz", "sample_rate_hz", cInt},
@@ -89,11 +98,12 @@ var tables = []table{
 }
 
 // periodTable is the table of period indicators (no sequence number; see migrations).
-var periodTable = table{"period", "periods", "", []column{{"profile", "profile", cText}, {"period", "period", cText},
+var periodTable = table{"period", "periods", "", cols([]column{{"profile", "profile", cText}, {"period", "period", cText},
 	{"day", "day", cDate}, {"zone", "zone", cText}, {"end_time", "end_ms", cTime}, {"hours", "hours", cReal},
 	{"penalty_dB", "penalty_dB", cReal}, {"LAeq", "LAeq", cReal}, {"LCeq", "LCeq", cReal}, {"LAF10", "LAF10", cReal},
 	{"LAF90", "LAF90", cReal}, {"LAFmax", "LAFmax", cReal}, {"events", "events", cInt}, {"limit_dB", "limit_dB", cReal},
-	{"exceeds", "exceeds", cBool}, {"coverage", "coverage", cReal}, {"coverage_low", "coverage_low", cBool}}}
+	{"exceeds", "exceeds", cBool}, {"coverage", "coverage", cReal}, {"coverage_low", "coverage_low", cBool},
+	{"valid_seconds", "valid_seconds", cInt}}, countedSeconds)}
 
 func tableOf(kind string) *table {
 	if kind == periodTable.kind {
