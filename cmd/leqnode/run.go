@@ -72,8 +72,13 @@ func nodeOptions(cfg *config.Config, src capture.Source, st *buffer.Store, log *
 			SoftwareVersion: softwareVersion(),
 			ConfigHash:      cfg.Hash(),
 			TimeZone:        cfg.Node.TimeZone,
+			NodeID:          cfg.Node.ID,
+			Site:            cfg.Node.Site,
 		},
 		Logger: log,
+	}
+	if lat, lon, ok := cfg.Location(); ok {
+		o.Session.Latitude, o.Session.Longitude = lat, lon
 	}
 	if o.Settling == 0 {
 		o.Settling = time.Nanosecond // zero means the default; a tiny value means none
