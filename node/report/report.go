@@ -34,6 +34,8 @@ type Config struct {
 	Location *time.Location // the node's time zone; nil means UTC
 	From, To time.Time      // [From, To)
 	Options  indicator.Options
+	// skipSeconds reads minute records only (see FleetConfig.Seconds).
+	skipSeconds bool
 }
 
 // Compute reads the records of [cfg.From, cfg.To) from st and computes the indicators.
@@ -70,6 +72,9 @@ func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Resu
 		{buffer.KindCalibration, cfg.From, cfg.To, func(r buffer.Record) { b.AddCalibration(r.(*buffer.Calibration)) }},
 	}
 	for _, s := range steps {
+		if s.kind == buffer.KindSecond && cfg.skipSeconds {
+			continue
+		}
 		err := st.Range(s.kind, s.from, s.to, func(r buffer.Record) error {
 			s.add(r)
 			return check()
