@@ -165,9 +165,9 @@ const colocationHTML = `<!DOCTYPE html>
 </dl>
 {{template "cautions"}}
 <h2>Nodes</h2>
-<table><tr><th class="l">Node</th><th class="l">Site</th><th>LAeq</th><th>Offset dB</th><th>Worst band Hz</th><th>Its offset dB</th><th class="l">Result</th></tr>
+<div class="wide"><table><tr><th class="l">Node</th><th class="l">Site</th><th>LAeq</th><th>Offset dB</th><th>Worst band Hz</th><th>Its offset dB</th><th class="l">Result</th></tr>
 {{range .C.Nodes}}<tr{{if not .Pass}} class="over"{{end}}><td class="l">{{.NodeID}}</td><td class="l">{{.Site}}</td><td>{{printf "%.1f" .LAeq}}</td><td>{{printf "%+.2f" .Offset}}</td><td>{{.WorstBand}}</td><td>{{printf "%+.2f" .Worst}}</td><td class="l">{{if .Pass}}pass{{else}}FAIL{{end}}</td></tr>
-{{end}}</table>
+{{end}}</table></div>
 <figure><img src="{{.Plot}}" alt="each node's offset from the median per band, tolerance dashed"><figcaption>Offset per one-third-octave band; dashed: the tolerance. colocation.csv holds every value.</figcaption></figure>
 <h2>Method</h2>
 <ul>

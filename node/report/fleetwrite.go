@@ -315,7 +315,7 @@ const fleetHTML = `<!DOCTYPE html>
 {{template "cautions"}}
 
 <h2>Nodes</h2>
-<div style="overflow-x:auto"><table><tr><th class="l">Node</th><th class="l">Site</th><th>LAeq</th>{{range .Periods}}<th>{{.}} LAeq</th>{{end}}{{if .Comp}}<th>{{.Comp}}</th>{{end}}<th>Periods above limit</th><th>Coverage %</th><th>Calibrator checks</th><th class="l">Health flags (snapshots)</th></tr>
+<div class="wide"><table><tr><th class="l">Node</th><th class="l">Site</th><th>LAeq</th>{{range .Periods}}<th>{{.}} LAeq</th>{{end}}{{if .Comp}}<th>{{.Comp}}</th>{{end}}<th>Periods above limit</th><th>Coverage %</th><th>Calibrator checks</th><th class="l">Health flags (snapshots)</th></tr>
 {{$comp := .Comp}}{{range .Rows}}<tr class="{{if .Above}}over{{else if .Low}}low{{end}}"><td class="l">{{.ID}}{{if .FromFile}} (file name){{end}}</td><td class="l">{{.Site}}</td><td>{{.LAeq}}</td>{{range .Levels}}<td{{if .Low}} class="low"{{end}}>{{.LAeq}}{{if .Above}} ▲{{.Above}}{{end}}</td>{{end}}{{if $comp}}<td>{{.Comp}}</td>{{end}}<td>{{.Above}}</td><td>{{.Cov}}</td><td>{{.Cals}}{{if .Failed}} ({{.Failed}} failed){{end}}</td><td class="l">{{.Health}}</td></tr>
 {{end}}</table></div>
 <p>Levels are the long-term levels of each period name over the range (energy means of the valid seconds, ISO 1996-1:2016, 3.1.7). ▲n: n periods above the zone's limit (a level rounded to 0.1 dB greater than the limit; periods the range cuts are not counted). Yellow: coverage under {{printf "%.0f" (mulf .F.Config.Options.MinCoverage)}} % (shown, not hidden). ≥ marks a lower bound (overloaded seconds counted), ≤ an upper bound. Each node's own report (leqnode report --db) gives its periods and days in full; the CSV files give every node's days and hours.</p>
@@ -325,9 +325,9 @@ const fleetHTML = `<!DOCTYPE html>
 
 <h2>Simultaneous events</h2>
 {{if .Happenings}}<p>{{.NHappen}} happenings seen by two or more nodes within {{.Window}} of each other; the {{len .Happenings}} with the largest sound exposure level, each node in the order it saw the happening:</p>
-<table><tr><th class="l">First start</th><th>Nodes</th><th>Largest LAE</th><th class="l">Seen by (delay after the first start)</th></tr>
+<div class="wide"><table><tr><th class="l">First start</th><th>Nodes</th><th>Largest LAE</th><th class="l">Seen by (delay after the first start)</th></tr>
 {{range .Happenings}}<tr><td class="l">{{.Start}}</td><td>{{.Nodes}}</td><td>{{.MaxLAE}}</td><td class="l">{{range $i, $s := .Seen}}{{if $i}}; {{end}}{{$s}}{{end}}</td></tr>
-{{end}}</table>{{else}}<p>No event was seen by two or more nodes within {{.Window}} of each other.</p>{{end}}
+{{end}}</table></div>{{else}}<p>No event was seen by two or more nodes within {{.Window}} of each other.</p>{{end}}
 <p>The order follows each node's event start, which rests on its clock: nodes whose clocks are not synchronised (health flag clock-unsynced) may show a false order. Sound takes about 3 s to cover a kilometre.</p>
 
 <h2>Method</h2>

@@ -357,7 +357,8 @@ var pageTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 
 // sharedHTML holds the parts every report page shows alike: the style and the cautions.
 const sharedHTML = `{{define "style"}}<style>
-body{font-family:sans-serif;margin:1.5em auto;max-width:1100px;color:#1d2329;line-height:1.4}
+body{font-family:sans-serif;margin:1.5em auto;padding:0 .8em;max-width:1100px;color:#1d2329;line-height:1.4}
+.wide{overflow-x:auto}dd{overflow-wrap:anywhere}
 h1{font-size:1.5em;border-bottom:3px solid #286eaa;padding-bottom:.2em}
 h2{font-size:1.15em;margin-top:1.6em;color:#286eaa}
 table{border-collapse:collapse;font-size:.85em;margin:.5em 0}
@@ -366,7 +367,7 @@ th{background:#eef2f5}td.l,th.l{text-align:left}
 .over{background:#f7d4d4;font-weight:bold}.low{background:#fff1c9}.part{color:#6b7680;font-style:italic}
 .box{border-left:4px solid #dc8c1e;background:#fdf6ea;padding:.5em 1em;margin:1em 0}
 figure{margin:1em 0}figcaption{font-size:.85em;color:#4a545e}
-img{width:100%;max-width:1000px;border:1px solid #dde2e6}
+img{width:100%;max-width:1000px;border:1px solid #dde2e6;box-sizing:border-box}
 dl{display:grid;grid-template-columns:max-content auto;gap:.1em 1em}dt{font-weight:bold}dd{margin:0}
 </style>{{end}}
 {{define "cautions"}}<div class="box"><strong>Cautions.</strong> These numbers are indicative. Legally valid measurements need a
