@@ -30,10 +30,10 @@ import (
 const (
 	fleetRate    = 16000
 	fleetSeconds = 240
-	bgLevel      = 55.0 // background noise, dB (RMS of a sine of this level, before weighting)
-	burstLevel   = 85.0 // burst noise, dB, same spectrum as the background
-	burstLength  = 2.0  // s
-	burstAt      = 70.0 // s after the start: the first node's burst
+	bgLevel      = 55.0  // background noise, dB (RMS of a sine of this level, before weighting)
+	burstLevel   = 85.0  // burst noise, dB, same spectrum as the background
+	burstLength  = 2.0   // s
+	burstAt      = 70.0  // s after the start: the first node's burst
 	loneAt       = 150.0 // s: each node's own burst starts here or later, 8 s or more apart
 )
 
@@ -67,7 +67,7 @@ func (n *noise) next() float64 {
 func fleetSignal(s fleetSpec) []byte {
 	g := math.Pow(10, s.gainDB/20)
 	bg, gen := noise(11), noise(23)
-	k := math.Sqrt(3) / math.Sqrt2 // uniform noise to the RMS of a sine of the same peak
+	k := math.Sqrt(3) / math.Sqrt2                       // uniform noise to the RMS of a sine of the same peak
 	burst := make([]float64, int(burstLength*fleetRate)) // one burst, the same wherever it is heard
 	for i := range burst {
 		burst[i] = amp(burstLevel) * k * gen.next()
