@@ -129,7 +129,8 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 		lb.TextStyle[i].Font.Size = vg.Points(8)
 		lb.Offset = vg.Point{X: vg.Points(7), Y: vg.Points(-3)}
 	}
-	// Equal metres per unit on both axes: widen the narrower range to the canvas' shape.
+	// About equal metres per unit on both axes (within some 5 %: the plot area is estimated from
+	// the canvas): widen the narrower range to the canvas' shape.
 	x0, x1, y0, y1 := math.Inf(1), math.Inf(-1), math.Inf(1), math.Inf(-1)
 	for _, q := range pts {
 		x0, x1, y0, y1 = min(x0, q.X), max(x1, q.X), min(y0, q.Y), max(y1, q.Y)
@@ -138,12 +139,13 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	aspect := (w - 60) / (h - 70) // plot area, less the axes and title, in points
 	span := max(x1-x0, (y1-y0)*aspect, 50)
 	span *= 1.3 // room for the labels
-	cx, cy := (x0+x1)/2+span*0.08, (y0+y1)/2
-	p.X.Min, p.X.Max = cx-span/2, cx+span/2
-	p.Y.Min, p.Y.Max = cy-span/aspect/2, cy+span/aspect/2
-	// The scale bar, bottom left.
-	sl := scaleLength(span)
-	bx, by := p.X.Min+span*0.05, p.Y.Min+span/aspect*0.08
+	full := span * 1.2 // and a strip along the bottom for the scale bar
+	cx, top := (x0+x1)/2+span*0.08, (y0+y1)/2+span/aspect/2
+	p.X.Min, p.X.Max = cx-full/2, cx+full/2
+	p.Y.Min, p.Y.Max = top-full/aspect, top
+	// The scale bar, in the bottom strip.
+	sl := scaleLength(full)
+	bx, by := p.X.Min+full*0.04, p.Y.Min+full/aspect*0.06
 	bar, err := plotter.NewLine(plotter.XYs{{X: bx, Y: by}, {X: bx + sl, Y: by}})
 	if err != nil {
 		return nil, err
@@ -154,7 +156,7 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	if sl >= 1000 {
 		scaleText = fmt.Sprintf("%g km", sl/1000)
 	}
-	bl, err := plotter.NewLabels(plotter.XYLabels{XYs: plotter.XYs{{X: bx, Y: by + span/aspect*0.02}}, Labels: []string{scaleText}})
+	bl, err := plotter.NewLabels(plotter.XYLabels{XYs: plotter.XYs{{X: bx, Y: by + full/aspect*0.02}}, Labels: []string{scaleText}})
 	if err != nil {
 		return nil, err
 	}
