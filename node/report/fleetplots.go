@@ -138,7 +138,7 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	w, h := float64(plotW), float64(11*vg.Centimeter)
 	aspect := (w - 60) / (h - 70) // plot area, less the axes and title, in points
 	span := max(x1-x0, (y1-y0)*aspect, 50)
-	span *= 1.3 // room for the labels
+	span *= 1.3        // room for the labels
 	full := span * 1.2 // and a strip along the bottom for the scale bar
 	cx, top := (x0+x1)/2+span*0.08, (y0+y1)/2+span/aspect/2
 	p.X.Min, p.X.Max = cx-full/2, cx+full/2
