@@ -9,9 +9,7 @@ import (
 	"fmt"
 	"io/fs"
 	"os"
-	"path/filepath"
 	"runtime/debug"
-	"slices"
 	"sync"
 	"syscall"
 	"time"
@@ -63,15 +61,6 @@ func recBucket(k Kind) []byte { return []byte("rec/" + k.String()) }
 // fillPercent packs pages full: records are appended at the right edge of their B+trees, so
 // half-empty pages would only waste space and writes.
 const fillPercent = 1.0
-
-// retentionEvery is how often age retention runs inside a commit. Deleting a few expired records
-// at every commit would rewrite the head pages of each tree every time; deleting in batches
-// frees whole pages at once.
-const retentionEvery = 15 * time.Minute
-
-// maxDeletePerCommit bounds the deletions of one commit so that a commit after a long outage or a
-// clock jump stays short; the rest follows in later commits.
-const maxDeletePerCommit = 50000
 
 type kindStat struct {
 	count, bytes, removedAge, removedSize uint64
@@ -245,17 +234,6 @@ func (s *Store) open() (err error) {
 	return nil
 }
 
-// isFormatError reports whether an error from bolt.Open is about the file's content rather than
-// the operating system (a missing directory, a permission).
-func isFormatError(err error) bool {
-	var pe *fs.PathError
-	if errors.As(err, &pe) {
-		return false
-	}
-	var se *os.SyscallError
-	return !errors.As(err, &se)
-}
-
 // init creates the buckets of a new store, or checks that an existing file is a store.
 func (s *Store) init(tx *bolt.Tx) error {
 	if tx.Bucket(bucketMeta) == nil {
@@ -349,35 +327,6 @@ func (s *Store) load(tx *bolt.Tx) error {
 		})
 	}
 	return nil
-}
-
-// moveAside renames a damaged file to path.damaged-<time stamp> and syncs the directory.
-func moveAside(path string, now time.Time) (string, error) {
-	base := path + ".damaged-" + now.UTC().Format("20060102T150405Z")
-	dst := base
-	for i := 1; ; i++ {
-		if _, err := os.Lstat(dst); errors.Is(err, fs.ErrNotExist) {
-			break
-		}
-		dst = fmt.Sprintf("%s-%d", base, i)
-	}
-	if err := os.Rename(path, dst); err != nil {
-		return "", err
-	}
-	return dst, syncDir(filepath.Dir(path))
-}
-
-// syncDir fsyncs a directory so that a rename in it survives a power cut.
-func syncDir(dir string) error {
-	d, err := os.Open(dir)
-	if err != nil {
-		return err
-	}
-	err = d.Sync()
-	if cerr := d.Close(); err == nil {
-		err = cerr
-	}
-	return err
 }
 
 // ID returns the store's identity: 16 hex digits made at random when the store was created.
@@ -625,105 +574,6 @@ func (s *Store) commit(final bool) error {
 	return nil
 }
 
-// putKindStats writes the per-kind counters that differ from the committed ones.
-func (s *Store) putKindStats(tx *bolt.Tx, kstat *[KindSession + 1]kindStat) error {
-	kb := tx.Bucket(bucketKinds)
-	for _, k := range Kinds() {
-		if kstat[k] == s.kstat[k] {
-			continue
-		}
-		v := make([]byte, 40)
-		binary.BigEndian.PutUint64(v[32:], kstat[k].reserved)
-		binary.BigEndian.PutUint64(v, kstat[k].count)
-		binary.BigEndian.PutUint64(v[8:], kstat[k].bytes)
-		binary.BigEndian.PutUint64(v[16:], kstat[k].removedAge)
-		binary.BigEndian.PutUint64(v[24:], kstat[k].removedSize)
-		if err := kb.Put([]byte{byte(k)}, v); err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
-// makeRoom answers the first full file system of this opening: the store gives up a tenth of
-// its records, oldest first and shortest-lived kinds first, and from then on (until it is opened
-// again) keeps its records within 90 % of what they were (spaceCap), so that it lives within
-// the pages its file already has. A transaction that only deletes frees those pages for the
-// next commit to reuse. It reports whether that transaction committed. It acts once per
-// opening: when the space stays taken by something else, the records are held in memory and
-// commits retried with back-off (the caller accounts for what the store then refuses). The
-// caller holds s.mu.
-func (s *Store) makeRoom() bool {
-	data := dataBytes(&s.kstat)
-	if s.spaceCap > 0 || data < minSpaceCap {
-		return false // trimmed once already, or too little to give up: hold and retry
-	}
-	s.spaceCap = int64(0.9 * float64(data))
-	s.opts.Logger.Warn("file system full: the store gives up its oldest tenth and keeps within its file until it is opened again",
-		"path", s.path, "records_mb", float64(s.spaceCap)/1e6)
-	kstat := s.kstat
-	cursors := make(map[streamKind]cursor, len(s.cursors))
-	for sk, c := range s.cursors {
-		cursors[sk] = *c
-	}
-	err := s.update(func(tx *bolt.Tx) error {
-		if err := s.retainBySize(tx, &kstat, cursors); err != nil {
-			return err
-		}
-		return s.putKindStats(tx, &kstat)
-	})
-	if err != nil {
-		return false
-	}
-	s.kstat = kstat
-	for sk, c := range cursors {
-		s.cursors[sk] = &c
-	}
-	// The held records were indexed against runs that the deletions may have removed: the first
-	// held record of each kind starts a run of its own (an extra run entry costs nothing).
-	var started [KindSession + 1]bool
-	for i := range s.held {
-		if k := s.held[i].kind; !started[k] {
-			s.held[i].newRun, started[k] = true, true
-		}
-	}
-	return true
-}
-
-// minSpaceCap is the least data makeRoom trims: a store with less gives up nothing (its
-// records would all go), it holds and retries.
-const minSpaceCap = 1 << 20
-
-// SpaceCapped reports the cap, in bytes of records, that a full file system set on the store
-// (0: none): the store gives up its oldest records to stay within its file. ResetSpaceCap
-// lifts it.
-func (s *Store) SpaceCapped() int64 {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	return s.spaceCap
-}
-
-// ResetSpaceCap lifts the cap a full file system set, once there is room again: the store
-// grows its file again as it needs.
-func (s *Store) ResetSpaceCap() {
-	s.mu.Lock()
-	defer s.mu.Unlock()
-	if s.spaceCap > 0 {
-		s.opts.Logger.Info("file system has room again: the store grows its file as it needs", "path", s.path)
-	}
-	s.spaceCap = 0
-}
-
-// dataBytes estimates the bytes the records take, with the allowance for page packing that
-// retainBySize counts when it deletes.
-func dataBytes(kstat *[KindSession + 1]kindStat) int64 {
-	var b int64
-	for _, k := range Kinds() {
-		b += int64(float64(kstat[k].bytes+kstat[k].count*recordOverhead) * 1.1)
-	}
-	return b
-}
-
 // update runs fn in a write transaction; a panic or memory fault on a damaged page rolls the
 // transaction back (bbolt's Update does so on a panic) and becomes an error wrapping ErrDamaged.
 // The store stays open; a node that sees ErrDamaged should Close it and Open it again with
@@ -738,95 +588,10 @@ func outboxKey(sk streamKind) []byte {
 	return append(append([]byte(sk.stream), 0), byte(sk.kind))
 }
 
-// retainByAge deletes the records whose time is older than their kind's retention.
-func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
-	budget := maxDeletePerCommit
-	for _, k := range Kinds() {
-		keep := s.opts.Retention[k]
-		if keep < 0 {
-			continue
-		}
-		cut := timeKey(now.Add(-keep))
-		t := newTrimmer(tx, k, &kstat[k], cursors)
-		for i := range t.runs {
-			for t.heads[i] < cut && budget > 0 {
-				n, err := t.deleteHead(i)
-				if err != nil {
-					return err
-				}
-				if n < 0 {
-					break
-				}
-				kstat[k].removedAge++
-				budget--
-			}
-		}
-	}
-	return nil
-}
-
-// Cap thresholds as fractions of MaxBytes: deletion starts above capHigh and goes down to capLow.
-const (
-	capHigh = 0.90
-	capLow  = 0.85
-	// recordOverhead approximates the B+tree bytes a record costs beyond its value: its 8-byte
-	// key and 16-byte leaf element header.
-	recordOverhead = 8 + 16
-)
-
-// usedBytes is the space the data occupies: the file's high-water mark less its free pages.
-func (s *Store) usedBytes(tx *bolt.Tx) int64 {
-	return tx.Size() - int64(s.db.Stats().FreeAlloc)
-}
-
-// retainBySize deletes the oldest records, kinds with the shortest retention first, when the used
-// space passes capHigh of MaxBytes, until the estimate of freed space brings it to capLow.
-func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
-	used, limit := s.usedBytes(tx), s.opts.MaxBytes
-	if s.spaceCap > 0 {
-		// After a full file system the records' own bytes are held to spaceCap (the file's
-		// fixed cost is not the records' to give up).
-		used, limit = dataBytes(kstat), s.spaceCap
-	}
-	if float64(used) <= capHigh*float64(limit) {
-		return nil
-	}
-	need := used - int64(capLow*float64(limit))
-	order := Kinds()
-	slices.SortStableFunc(order, func(a, b Kind) int {
-		ra, rb := s.opts.Retention[a], s.opts.Retention[b]
-		if ra < 0 {
-			ra = 1<<63 - 1
-		}
-		if rb < 0 {
-			rb = 1<<63 - 1
-		}
-		return int(min(max(ra-rb, -1), 1))
-	})
-	budget := maxDeletePerCommit
-	var freed int64
-	for _, k := range order {
-		t := newTrimmer(tx, k, &kstat[k], cursors)
-		for freed < need && budget > 0 {
-			i := t.oldest()
-			if i < 0 {
-				break
-			}
-			n, err := t.deleteHead(i)
-			if err != nil {
-				return err
-			}
-			if n < 0 {
-				continue // an empty run was removed
-			}
-			// Pages are not packed perfectly: count a little more than the bytes removed.
-			freed += int64(float64(n+recordOverhead) * 1.1)
-			kstat[k].removedSize++
-			budget--
-		}
-		if freed >= need || budget == 0 {
-			break
-		}
-	}
-	return nil
+// view runs fn in a read transaction, turning a bbolt panic on a damaged page, or a memory fault
+// on a page pointer beyond the mapped file, into an error wrapping ErrDamaged.
+func (s *Store) view(fn func(tx *bolt.Tx) error) (err error) {
+	defer debug.SetPanicOnFault(debug.SetPanicOnFault(true))
+	defer s.recoverDamage(&err)
+	return s.db.View(fn)
 }

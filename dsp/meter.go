@@ -103,6 +103,7 @@ type Result struct {
 // at the very start reads as it is. No level reports the filters' start-up, though: a minimum
 // (LAFmin, LASmin) takes only samples from SettleTimeConstants time constants after the first
 // sample on (0.625 s for Fast, 5 s for Slow), and is NaN for an interval that ends before that;
+// so does the histogram of the Fast level behind the percentile levels (empty before that);
 // a band level counts only the samples after its band filter has settled (FilterBank.Settle: the
 // time by which the band's impulse response has delivered 99.9 % of its energy, so a steady
 // noise reads within 0.005 dB), and is NaN for an interval that ends before that. Energy
@@ -241,8 +242,12 @@ func (m *Meter) processChunk(x []float32) {
 	lo, hi := m.rawMin, m.rawMax
 	var sum float64
 	for i, v := range x {
-		lo = min(lo, v)
-		hi = max(hi, v)
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
 		if v >= ClipThreshold || v <= -ClipThreshold {
 			m.clipped++
 		}
@@ -272,6 +277,7 @@ func (m *Meter) processChunk(x []float32) {
 	fromS := int(min(max(m.settleS-m.age, 0), int64(n)))
 	m.age += int64(n)
 	var sumA, sumC, sumZ float64
+	tick := m.tick
 	for i := range n {
 		a2 := a[i] * a[i]
 		sumA += a2
@@ -284,21 +290,32 @@ func (m *Meter) processChunk(x []float32) {
 		if r > d {
 			d = r
 		}
-		maxF = max(maxF, f)
-		maxS = max(maxS, s)
-		maxI = max(maxI, d)
-		if i >= fromF {
-			minF = min(minF, f)
+		// Comparisons rather than the max and min builtins, whose NaN and signed-zero rules
+		// cost several instructions each; the values here are finite and not negative.
+		if f > maxF {
+			maxF = f
 		}
-		if i >= fromS {
-			minS = min(minS, s)
+		if s > maxS {
+			maxS = s
 		}
-		m.tick--
-		if m.tick == 0 {
-			m.tick = m.step
-			m.hist.Add(PowerLevel(f, m.offset))
+		if d > maxI {
+			maxI = d
+		}
+		if f < minF && i >= fromF {
+			minF = f
+		}
+		if s < minS && i >= fromS {
+			minS = s
+		}
+		tick--
+		if tick == 0 {
+			tick = m.step
+			if i >= fromF { // percentiles, like minima, only from the settled Fast level
+				m.hist.Add(PowerLevel(f, m.offset))
+			}
 		}
 	}
+	m.tick = tick
 	m.peakC.process(c)
 	m.peakZ.process(z)
 	m.f, m.s, m.r, m.d = f, s, r, d

@@ -576,8 +576,8 @@ func TestMeterSettling(t *testing.T) {
 	var r Result
 	m.Process(x[:24000]) // 0.5 s: before Fast has settled (0.625 s)
 	m.Take(&r)
-	if !math.IsNaN(r.LAFmin) || !math.IsNaN(r.LASmin) {
-		t.Errorf("first 0.5 s: LAFmin %v LASmin %v, want NaN", r.LAFmin, r.LASmin)
+	if !math.IsNaN(r.LAFmin) || !math.IsNaN(r.LASmin) || r.Histogram.Count() != 0 {
+		t.Errorf("first 0.5 s: LAFmin %v LASmin %v, %d percentile samples, want NaN, NaN, 0", r.LAFmin, r.LASmin, r.Histogram.Count())
 	}
 	if r.LAFmax > 70.01 || math.Abs(r.LAeq-70) > 0.1 {
 		t.Errorf("first 0.5 s: LAFmax %.3f LAeq %.3f: maxima and energy count from the first sample", r.LAFmax, r.LAeq)
@@ -594,6 +594,12 @@ func TestMeterSettling(t *testing.T) {
 	}{{"LAFmin", r.LAFmin}, {"LASmin", r.LASmin}} {
 		if !(c.v >= 70-0.03-0.01 && c.v <= 70.01) {
 			t.Errorf("0.5 to 6 s: %s = %.3f, want 70 within -0.03 dB", c.name, c.v)
+		}
+	}
+	// Every percentile level reads the steady 70.0 (bins centred on the 0.1 dB grid).
+	for _, n := range []float64{1, 50, 99} {
+		if got := r.Histogram.Exceeded(n); math.Abs(got-70) > 1e-9 {
+			t.Errorf("0.5 to 6 s: LAF%g = %.2f, want 70.0", n, got)
 		}
 	}
 	fb, _ := NewFilterBank(Third, testFS)

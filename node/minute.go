@@ -22,12 +22,12 @@ const calMargin = 2 * time.Second
 
 // pendingSecond is a closed second waiting to enter its minute.
 type pendingSecond struct {
-	start time.Time
-	dur   time.Duration
-	flags buffer.Flags
-	res   dsp.Result
-	bands []float64 // storage for res.Bands
-	share []float64 // storage for res.BandSeconds
+	start       time.Time
+	dur         time.Duration
+	flags       buffer.Flags
+	res         dsp.Result
+	bands       []float64 // storage for res.Bands
+	bandSeconds []float64 // storage for res.BandSeconds
 }
 
 // minuteBuilder builds minute records from the seconds that the validity rule counts, so that
@@ -59,11 +59,12 @@ func (m *minuteBuilder) push(start time.Time, dur time.Duration, f buffer.Flags,
 	}
 	q := &m.queue[(m.head+m.n)%len(m.queue)]
 	m.n++
+	// The meter reuses its result's slices: keep copies in the slot's own storage.
 	bands := append(q.bands[:0], r.Bands...)
-	share := append(q.share[:0], r.BandSeconds...)
+	secs := append(q.bandSeconds[:0], r.BandSeconds...)
 	q.start, q.dur, q.flags, q.res = start, dur, f, *r
 	q.res.Bands, q.bands = bands, bands
-	q.res.BandSeconds, q.share = share, share // the meter reuses its slices: copy, not alias
+	q.res.BandSeconds, q.bandSeconds = secs, secs
 	for m.n > 0 && start.Sub(m.queue[m.head].start) >= minuteLag {
 		if err := m.release(emit); err != nil {
 			return err

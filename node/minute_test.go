@@ -94,6 +94,24 @@ func TestMinuteFromValidSeconds(t *testing.T) {
 		t.Errorf("minute counts valid %d overload %d left out %v; seconds say valid %d overload %d left out %d",
 			m.ValidSeconds, m.OverloadSeconds, m.LeftOut, len(counted), overload, leftOut)
 	}
+	// The minute's spectrum is the energy mean of its counted seconds' spectra, band by band
+	// (ISO 1996-1:2016, 3.1.7, per band).
+	var specSecs [][]float64
+	for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
+		if s.Flags&(buffer.Calibrating|buffer.Settling|buffer.Excluded|buffer.Suspect|buffer.Dropped) == 0 && len(s.Spectrum) > 0 && s.Duration == time.Second {
+			specSecs = append(specSecs, s.Spectrum)
+		}
+	}
+	for b := range m.Spectrum {
+		var band []float64
+		for _, sp := range specSecs {
+			band = append(band, sp[b])
+		}
+		if want := energyMean(band); math.Abs(m.Spectrum[b]-want) > 0.05 {
+			t.Errorf("minute band %d: %.2f dB, energy mean of its seconds %.2f", b, m.Spectrum[b], want)
+			break
+		}
+	}
 	// 12 s of tone plus 2 s margins: at least 14 s calibrating; 2 s settling at the start.
 	if c := m.LeftOut[record.Calibration]; c < 14 || c > 17 {
 		t.Errorf("%d seconds left out as calibrating, want 14 to 17", c)

@@ -61,81 +61,6 @@ type processor struct {
 	lastSess *buffer.Session
 }
 
-// startupGap starts the outage that explains the time the node was not running: from the end
-// of the last stored second to the first sample of this run (see opened and data). On an empty
-// store the outage starts now, so that a source missing at start leaves no hole either.
-func (p *processor) startupGap() error {
-	p.lostAt, p.lostWhy = p.o.Now(), ""
-	last, err := p.o.Store.Last(buffer.KindSecond)
-	if err != nil || last == nil {
-		return nil
-	}
-	if s, ok := last.(*buffer.Second); ok {
-		p.lostAt = s.Start.Add(s.Duration)
-		p.lostWhy = "node was not running (stopped, restarting, crashed or powered off)"
-	}
-	return nil
-}
-
-// endOutage records the outage in progress as a gap ending at the first sample measured after
-// it, so that the gap and the next record meet exactly. A gap shorter than minGap is left out:
-// a fresh start's first sample comes a few milliseconds after the node starts.
-func (p *processor) endOutage(firstSample time.Time) error {
-	from, why := p.lostAt, p.lostWhy
-	p.lostAt, p.lostWhy = time.Time{}, ""
-	if from.IsZero() || firstSample.Sub(from) < minGap {
-		return nil
-	}
-	if why == "" {
-		why = "no audio yet"
-	}
-	return p.gap(from, firstSample, why)
-}
-
-// minGap is the shortest stretch without records that is recorded as a gap.
-const minGap = 50 * time.Millisecond
-
-func (p *processor) gap(from, to time.Time, why string) error {
-	if to.Before(from) {
-		from, to = to, from
-	}
-	if !to.After(from) {
-		return nil
-	}
-	p.n.Counters.Gaps.Add(1)
-	p.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
-	return p.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
-}
-
-// append stores r. A store that cannot write (a full disk, an I/O error) never stops the
-// node: records it holds in memory are written when it can again (buffer.ErrNotCommitted);
-// what it refuses is covered by a gap record once it accepts records again
-// (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
-func (p *processor) append(r buffer.Record) error {
-	if p.o.Synthetic {
-		markSynthetic(r)
-	}
-	_, err := p.o.Store.Append(r)
-	switch {
-	case err == nil:
-		if p.store.failing {
-			return p.storeRecovered()
-		}
-	case errors.Is(err, buffer.ErrNotCommitted):
-		p.storeFailing(err)
-	case errors.Is(err, buffer.ErrRefused):
-		p.storeFailing(err)
-		p.store.lose(r)
-		return nil
-	default:
-		return fmt.Errorf("node: storing a %T: %w", r, err)
-	}
-	if p.o.Notify != nil {
-		p.o.Notify()
-	}
-	return nil
-}
-
 // loop handles events until the capture goroutine ends or a store error stops the node.
 func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- []float32) error {
 	o := p.o
@@ -351,25 +276,6 @@ func (p *processor) closeSecondAt() error {
 	return err
 }
 
-// lost closes the partial second and remembers when the source went away.
-func (p *processor) lost(why string) error {
-	if p.meter != nil && p.anchored {
-		p.closeSecond()
-		p.flushEvents()
-	}
-	if p.lostAt.IsZero() { // a new outage; one that goes on keeps its start and first reason
-		p.lostAt = p.lastEnd
-		if p.lostAt.IsZero() {
-			p.lostAt = p.o.Now()
-		}
-		if p.lostWhy != "" { // the watchdog said why first
-			why = p.lostWhy + ": " + why
-		}
-		p.lostWhy = "capture device lost: " + why
-	}
-	return nil
-}
-
 // data measures one block.
 func (p *processor) data(ev event) error {
 	o := p.o
@@ -480,31 +386,6 @@ func (p *processor) flushEvents() error {
 	return p.storeEvents()
 }
 
-// skip accounts for samples lost before the next block: the sample count (and so time) moves
-// on, the seconds they fall in are flagged.
-func (p *processor) skip(k int64) {
-	p.evSkew += k
-	p.calSkew += k
-	for k > 0 {
-		end := max(p.clock.Sample(p.nextSecond), p.pos)
-		take := min(k, end-p.pos)
-		p.pos += take
-		k -= take
-		p.secFlags |= buffer.Dropped
-		p.secDropped += uint64(take)
-		if p.pos == end {
-			p.closeSecond()
-		}
-	}
-}
-
-// skipLost accounts for samples lost at the end of a stream.
-func (p *processor) skipLost(k int64) {
-	if k > 0 && p.anchored {
-		p.skip(k)
-	}
-}
-
 // closeSecond ends the interval being measured, stores its record and moves to the next.
 func (p *processor) closeSecond() error {
 	o := p.o
@@ -599,22 +480,5 @@ func (p *processor) finish() {
 		} else {
 			p.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", p.store.lost)
 		}
-	}
-}
-
-// markSynthetic flags a record made from the synthetic scene, so that no reader takes it for a
-// measurement.
-func markSynthetic(r buffer.Record) {
-	switch v := r.(type) {
-	case *buffer.Second:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Minute:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Event:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Calibration:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Health:
-		v.Flags |= buffer.Synthetic
 	}
 }

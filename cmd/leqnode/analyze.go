@@ -17,6 +17,7 @@ import (
 
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/analyze"
+	"github.com/leqnode/leqnode/node/strict"
 	"github.com/leqnode/leqnode/node/wav"
 )
 
@@ -68,7 +69,7 @@ func runAnalyze(ctx context.Context, std stdio, args []string) error {
 		only:   *only,
 	}
 	if *start != "" {
-		if cfg.t0, err = time.Parse(time.RFC3339Nano, *start); err != nil {
+		if cfg.t0, err = strict.ParseTime(*start); err != nil {
 			return badInput("--start %q is not an RFC 3339 time: write e.g. 2026-05-04T07:00:00Z", *start)
 		}
 		cfg.stamped = true
@@ -528,6 +529,9 @@ func (w *analyzeWriter) summary(r *dsp.Result) {
 			for i, b := range w.bands {
 				fmt.Fprintf(w.buf, "  %7s Hz %8s\n", b.Nominal, cell(r.Bands[i]))
 			}
+		}
+		if w.file != "" {
+			w.buf.WriteByte('\n') // a blank line before the next recording's heading
 		}
 	}
 }

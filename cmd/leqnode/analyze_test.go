@@ -284,6 +284,13 @@ func TestAnalyzeStartUp(t *testing.T) {
 			t.Errorf("%s: LAeq %.3f, want %.1f", what, v, level)
 		}
 	}
+	// Percentiles too count only the settled Fast level: every one reads the steady 85.7 (bins
+	// of 0.1 dB centred on the grid).
+	for _, k := range []string{"LAF1", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99"} {
+		if v, ok := lines[7][k].(float64); !ok || math.Abs(v-level) > 1e-9 {
+			t.Errorf("summary %s = %v, want %.1f", k, lines[7][k], level)
+		}
+	}
 	// The summary carries the same level keys as the CSV summary.
 	for _, k := range []string{"LAeq", "LCeq", "LZeq", "LAFmax", "LAFmin", "LASmax", "LASmin", "LAImax", "LCpeak", "LZpeak", "LAE", "LAF1", "LAF5", "LAF10", "LAF50", "LAF90", "LAF95", "LAF99"} {
 		if _, ok := lines[7][k]; !ok {

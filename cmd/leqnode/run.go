@@ -175,6 +175,9 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 	hup := make(chan os.Signal, 1)
 	signal.Notify(hup, syscall.SIGHUP)
 	defer signal.Stop(hup)
+	for _, w := range cfg.Warnings() {
+		log.Warn(w)
+	}
 	return runNode(ctx, cfg, std.in, log, nil, func(ctx context.Context, n *node.Node) {
 		for {
 			select {

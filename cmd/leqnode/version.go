@@ -6,6 +6,8 @@ import (
 	"runtime"
 	"runtime/debug"
 	"strings"
+
+	"github.com/leqnode/leqnode/node/capture"
 )
 
 // version is the release, set when building for release or packaging:
@@ -18,7 +20,8 @@ import (
 var version string
 
 // versionLine returns the one line `leqnode version` prints: the release, the commit and its
-// time when the build recorded them, the Go version and the platform.
+// time when the build recorded them, the Go version, the platform and whether the build has
+// PortAudio.
 func versionLine() string {
 	v := version
 	info, ok := debug.ReadBuildInfo()
@@ -51,6 +54,11 @@ func versionLine() string {
 		}
 	}
 	parts = append(parts, runtime.Version(), runtime.GOOS+"/"+runtime.GOARCH)
+	if capture.HavePortAudio() {
+		parts = append(parts, "with PortAudio")
+	} else {
+		parts = append(parts, "without PortAudio (arecord, stdin and file sources)")
+	}
 	return strings.Join(parts, " ")
 }
 

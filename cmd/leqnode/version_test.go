@@ -32,7 +32,7 @@ func TestVersion(t *testing.T) {
 		t.Fatalf("go build: %v\n%s", err, out)
 	}
 	out, err := exec.Command(bin, "--version").Output()
-	if err != nil || !strings.HasPrefix(string(out), "leqnode 1.2.3~test ") {
+	if err != nil || !strings.HasPrefix(string(out), "leqnode 1.2.3~test ") || !strings.Contains(string(out), "without PortAudio") {
 		t.Errorf("built with -X main.version=1.2.3~test: %q, %v", out, err)
 	}
 }

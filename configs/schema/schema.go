@@ -16,6 +16,8 @@ import (
 	"strings"
 
 	"github.com/santhosh-tekuri/jsonschema/v6"
+
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 //go:embed *.schema.json
@@ -27,7 +29,9 @@ type Set struct {
 	byKind map[string]*jsonschema.Schema
 }
 
-// Compile compiles every schema file. Formats (date-time, date) are asserted, not just noted.
+// Compile compiles every schema file. Formats (date-time, date) are asserted, not just noted;
+// date-time is RFC 3339 section 5.6 exactly (strict.ParseTime): the validator's own check
+// reads hours with strconv.Atoi and so takes "2031-05-01T+1:00:00Z".
 func Compile() (*Set, error) {
 	names, err := files.ReadDir(".")
 	if err != nil {
@@ -35,6 +39,7 @@ func Compile() (*Set, error) {
 	}
 	c := jsonschema.NewCompiler()
 	c.AssertFormat()
+	c.RegisterFormat(&jsonschema.Format{Name: "date-time", Validate: strict.DateTime})
 	ids := map[string]string{}
 	for _, f := range names {
 		b, err := files.ReadFile(f.Name())
@@ -83,8 +88,13 @@ func (s *Set) Kinds() []string {
 func (s *Set) Schema(kind string) *jsonschema.Schema { return s.byKind[kind] }
 
 // Decode parses a payload as JSON the way the validator needs it (numbers kept as json.Number,
-// so no integer loses precision).
+// so no integer loses precision). The payload must be one I-JSON value (strict.CheckJSON):
+// valid UTF-8 and no key twice, which the validator's decoder would let through silently
+// (keeping the last value, replacing bad bytes).
 func Decode(payload []byte) (any, error) {
+	if err := strict.CheckJSON(payload); err != nil {
+		return nil, err
+	}
 	return jsonschema.UnmarshalJSON(bytes.NewReader(payload))
 }
 

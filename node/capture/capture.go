@@ -148,3 +148,7 @@ func newSource(c Config, r io.Reader, logger *slog.Logger) (Source, error) {
 	}
 	return nil, fmt.Errorf("%s.kind = %q: unknown kind", section, c.Kind)
 }
+
+// HavePortAudio reports whether this build has the portaudio source (a cgo build with
+// PortAudio); a pure-Go build captures through arecord, standard input or files only.
+func HavePortAudio() bool { return havePortAudio }

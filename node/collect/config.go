@@ -1,7 +1,6 @@
 package collect
 
 import (
-	"bytes"
 	"crypto/tls"
 	"crypto/x509"
 	"errors"
@@ -11,10 +10,9 @@ import (
 	"strings"
 	"time"
 
-	"github.com/pelletier/go-toml/v2"
-
 	"github.com/leqnode/leqnode/node/fleetdb"
 	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/strict"
 )
 
 // ConfigVersion is the collector configuration format this release reads.
@@ -123,33 +121,24 @@ func DefaultConfig() Config {
 	}
 }
 
-// ParseConfig decodes a configuration file strictly over the defaults; name is used in errors.
+// ParseConfig decodes a configuration file strictly over the defaults (package strict: exact
+// key names, no unknown keys, plain-word type errors) and validates it; every problem is
+// listed, one line each. name is used in errors.
 func ParseConfig(data []byte, name string) (*Config, error) {
 	c := DefaultConfig()
 	c.Version = 0
-	dec := toml.NewDecoder(bytes.NewReader(data)).DisallowUnknownFields()
-	if err := dec.Decode(&c); err != nil {
-		var strict *toml.StrictMissingError
-		if errors.As(err, &strict) && len(strict.Errors) > 0 {
-			var lines []string
-			for _, e := range strict.Errors {
-				row, _ := e.Position()
-				lines = append(lines, fmt.Sprintf("%s:%d: unknown key %q: check its spelling against configs/collector.toml", name, row, strings.Join(e.Key(), ".")))
-			}
-			return nil, errors.New(strings.Join(lines, "\n"))
-		}
-		var de *toml.DecodeError
-		if errors.As(err, &de) {
-			row, _ := de.Position()
-			return nil, fmt.Errorf("%s:%d: %s: give a value of the type configs/collector.toml shows", name, row, de.Error())
-		}
-		return nil, fmt.Errorf("%s: %w", name, err)
+	var lines []string
+	reported := map[string]bool{}
+	if err := strict.TOML(data, &c); err != nil {
+		lines, reported = strict.FileLines(err, name, "configs/collector.toml")
 	}
-	if errs := c.Validate(); len(errs) > 0 {
-		lines := make([]string, len(errs))
-		for i, e := range errs {
-			lines[i] = name + ": " + e.Error()
+	for _, e := range c.Validate() {
+		key, _, _ := strings.Cut(e.Error(), " ")
+		if !reported[strings.TrimSuffix(key, ":")] {
+			lines = append(lines, name+": "+e.Error())
 		}
+	}
+	if len(lines) > 0 {
 		return nil, errors.New(strings.Join(lines, "\n"))
 	}
 	return &c, nil

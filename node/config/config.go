@@ -188,7 +188,8 @@ type Store struct {
 	// writes less to flash (measured in package buffer); a power cut loses up to one interval,
 	// and MQTT consumers see live records only once they are committed.
 	CommitInterval string `toml:"commit_interval"`
-	// MaxMB caps the store's size in megabytes (0: the store's default cap).
+	// MaxMB caps the store's size in megabytes (0: the store's default cap,
+	// buffer.DefaultMaxBytes: 1024 on 64-bit systems, 512 on 32-bit ones).
 	MaxMB int64 `toml:"max_mb"`
 }
 
@@ -213,13 +214,19 @@ func Default() *Config {
 	return c
 }
 
-// WithDefaults fills the defaults that depend on other keys or belong to another package's
-// section: the audio source's (capture.Config.WithDefaults, by kind) and MQTT publishing's
-// (publish.Config.WithDefaults; the client id follows node.id). Parse calls it after
-// decoding, so `config check` prints the values the daemon runs with.
+// WithDefaults fills the defaults that depend on other keys, on the machine or on another
+// package's section: the audio source's (capture.Config.WithDefaults, by kind), MQTT
+// publishing's (publish.Config.WithDefaults; the client id follows node.id) and the store's
+// size cap (buffer.DefaultMaxBytes, which depends on the word size). Parse calls it after
+// decoding, and also settles measure.timestamps for the file's source (see SampleTimed), so
+// `config check` prints the values the daemon runs with. (Default leaves measure.timestamps
+// empty: the demo changes its source's pacing afterwards.)
 func (c *Config) WithDefaults() {
 	c.Capture = c.Capture.WithDefaults()
 	c.Publish = c.Publish.WithDefaults(c.Node.ID)
+	if c.Store.MaxMB == 0 {
+		c.Store.MaxMB = buffer.DefaultMaxBytes >> 20
+	}
 }
 
 // Parse decodes a configuration file strictly over the defaults (package strict: exact key
@@ -233,23 +240,16 @@ func Parse(data []byte, name string) (*Config, error) {
 	var lines []string
 	reported := map[string]bool{}
 	if err := strict.TOML(data, c); err != nil {
-		for _, p := range strict.Problems(err) {
-			at := name
-			if p.Line > 0 {
-				at = fmt.Sprintf("%s:%d", name, p.Line)
-			}
-			switch rest, unknown := strings.CutPrefix(p.Msg, "unknown key"); {
-			case p.Key == "":
-				lines = append(lines, fmt.Sprintf("%s: %s", at, p.Msg))
-			case unknown:
-				lines = append(lines, fmt.Sprintf("%s: unknown key %q%s: check its spelling against configs/leqnode.toml", at, p.Key, rest))
-			default:
-				lines = append(lines, fmt.Sprintf("%s: %s: %s: give a value of the type configs/leqnode.toml shows", at, p.Key, p.Msg))
-			}
-			reported[p.Key] = true
-		}
+		lines, reported = strict.FileLines(err, name, "configs/leqnode.toml")
 	}
 	c.WithDefaults()
+	if c.Measure.Timestamps == "" {
+		ts := "clock"
+		if c.SampleTimed() {
+			ts = "samples"
+		}
+		c.Measure.Timestamps = ts
+	}
 	lines = append(lines, required(data, name)...)
 	for _, e := range c.Validate() {
 		key, _, _ := strings.Cut(e.Error(), " = ")

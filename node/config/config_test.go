@@ -153,11 +153,19 @@ func TestResolvedDefaults(t *testing.T) {
 	if c.Capture.Device != "default" || c.Capture.ArecordPath != "arecord" || c.Capture.StdinFormat == "" {
 		t.Errorf("capture defaults not filled: %+v", c.Capture)
 	}
+	// A live source stamps records by the clock, a file read faster than real time by its
+	// samples; the size cap is the store's own default.
+	if f, err := Parse([]byte("version = 1\n[node]\nid = \"n\"\n[capture]\nkind = \"file\"\nfile = \"x.wav\"\nrealtime = false\n"), "f.toml"); err != nil || f.Measure.Timestamps != "samples" {
+		t.Errorf("file source not in real time: timestamps %v, %v; want samples", f, err)
+	}
+	if c.Measure.Timestamps != "clock" || c.Store.MaxMB<<20 != buffer.DefaultMaxBytes {
+		t.Errorf("timestamps %q, max_mb %d: want clock and %d", c.Measure.Timestamps, c.Store.MaxMB, buffer.DefaultMaxBytes>>20)
+	}
 	b, err := c.Encode()
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, zero := range []string{"topic_prefix = ''", "keep_alive = '0s'"} {
+	for _, zero := range []string{"topic_prefix = ''", "keep_alive = '0s'", "timestamps = ''", "max_mb = 0"} {
 		if strings.Contains(string(b), zero) {
 			t.Errorf("resolved configuration shows the zero value %s", zero)
 		}

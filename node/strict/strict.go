@@ -126,6 +126,41 @@ func JSON(data []byte, v any) error {
 	return nil
 }
 
+// CheckJSON reports whether data is one I-JSON value (RFC 7493): valid UTF-8 (section 2.1),
+// no object with a repeated key (section 2.3), nested at most 64 levels, nothing after it.
+// It is for documents checked by a JSON Schema rather than decoded into a Go type: the schema
+// validator's decoder (like encoding/json) keeps the last of repeated keys and replaces
+// invalid UTF-8 without a word.
+func CheckJSON(data []byte) error {
+	if !utf8.Valid(data) {
+		return &Error{[]Problem{{Msg: "not valid UTF-8 text"}}}
+	}
+	dec := json.NewDecoder(strings.NewReader(string(data)))
+	dec.UseNumber()
+	var probs []Problem
+	if _, err := readJSON(dec, "", &probs, 0); err != nil {
+		return &Error{[]Problem{{Msg: "not valid JSON: " + plainJSONError(err)}}}
+	}
+	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+		return &Error{[]Problem{{Msg: "data after the JSON value"}}}
+	}
+	if len(probs) > 0 {
+		return &Error{probs}
+	}
+	return nil
+}
+
+// DateTime is the check of the JSON Schema format "date-time" by ParseTime, for a schema
+// validator: nil for a value that is not a string (the format applies to strings only).
+func DateTime(v any) error {
+	s, ok := v.(string)
+	if !ok {
+		return nil
+	}
+	_, err := ParseTime(s)
+	return err
+}
+
 // maxDepth bounds the nesting of a JSON document (RFC 8259 section 9 lets a parser set one).
 const maxDepth = 64
 

@@ -3,6 +3,7 @@ package strict
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"reflect"
 	"regexp"
 	"strings"
@@ -56,6 +57,30 @@ func TOML(data []byte, v any) error {
 		return &Error{[]Problem{{Msg: err.Error()}}}
 	}
 	return nil
+}
+
+// FileLines turns the error of TOML into one line per problem for a configuration file: file
+// name and line, the key, what is wrong and what to do, the fix naming example (the file that
+// shows every key, e.g. configs/leqnode.toml). It also returns the keys it reported, so that a
+// caller validating values afterwards can leave those out.
+func FileLines(err error, name, example string) (lines []string, keys map[string]bool) {
+	keys = map[string]bool{}
+	for _, p := range Problems(err) {
+		at := name
+		if p.Line > 0 {
+			at = fmt.Sprintf("%s:%d", name, p.Line)
+		}
+		switch rest, unknown := strings.CutPrefix(p.Msg, "unknown key"); {
+		case p.Key == "":
+			lines = append(lines, fmt.Sprintf("%s: %s", at, p.Msg))
+		case unknown:
+			lines = append(lines, fmt.Sprintf("%s: unknown key %q%s: check its spelling against %s", at, p.Key, rest, example))
+		default:
+			lines = append(lines, fmt.Sprintf("%s: %s: %s: give a value of the type %s shows", at, p.Key, p.Msg, example))
+		}
+		keys[p.Key] = true
+	}
+	return lines, keys
 }
 
 // prune deletes key from tree: the key itself where it names a table's entry, else (within a

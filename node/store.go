@@ -1,6 +1,7 @@
 package node
 
 import (
+	"errors"
 	"fmt"
 	"time"
 
@@ -109,5 +110,51 @@ func (p *processor) checkSpaceCap(rec *buffer.Health) {
 		rec.Flags |= buffer.StoreFault
 	case !p.store.failing:
 		p.health.sticky &^= buffer.StoreFault
+	}
+}
+
+// append stores r. A store that cannot write (a full disk, an I/O error) never stops the
+// node: records it holds in memory are written when it can again (buffer.ErrNotCommitted);
+// what it refuses is covered by a gap record once it accepts records again
+// (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
+func (p *processor) append(r buffer.Record) error {
+	if p.o.Synthetic {
+		markSynthetic(r)
+	}
+	_, err := p.o.Store.Append(r)
+	switch {
+	case err == nil:
+		if p.store.failing {
+			return p.storeRecovered()
+		}
+	case errors.Is(err, buffer.ErrNotCommitted):
+		p.storeFailing(err)
+	case errors.Is(err, buffer.ErrRefused):
+		p.storeFailing(err)
+		p.store.lose(r)
+		return nil
+	default:
+		return fmt.Errorf("node: storing a %T: %w", r, err)
+	}
+	if p.o.Notify != nil {
+		p.o.Notify()
+	}
+	return nil
+}
+
+// markSynthetic flags a record made from the synthetic scene, so that no reader takes it for a
+// measurement.
+func markSynthetic(r buffer.Record) {
+	switch v := r.(type) {
+	case *buffer.Second:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Minute:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Event:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Calibration:
+		v.Flags |= buffer.Synthetic
+	case *buffer.Health:
+		v.Flags |= buffer.Synthetic
 	}
 }
