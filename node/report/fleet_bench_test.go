@@ -20,15 +20,7 @@ import (
 func minuteStore(tb testing.TB, path string, node int, start time.Time, days int) {
 	tb.Helper()
 	end := start.Add(time.Duration(days) * 24 * time.Hour)
-	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	add := func(r buffer.Record) {
-		if _, err := st.Append(r); err != nil {
-			tb.Fatal(err)
-		}
-	}
+	st, add := fillStore(tb, path, end)
 	id := fmt.Sprintf("wendle-cross-%02d", node+1)
 	add(&buffer.Session{At: start, SoftwareVersion: "bench", SensitivityDBFS: -26, SampleRate: 48000, Device: "bench", TimeZone: "UTC",
 		NodeID: id, Site: "Harrowby Lane " + strconv.Itoa(node+1), Latitude: 47 + 0.001*float64(node%7), Longitude: -30 + 0.0015*float64(node/7)})

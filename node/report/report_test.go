@@ -44,15 +44,7 @@ func hourLevel(h int) float64 {
 func testStore(tb testing.TB, path string, start time.Time, days int) {
 	tb.Helper()
 	end := start.Add(time.Duration(days) * 24 * time.Hour)
-	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	add := func(r buffer.Record) {
-		if _, err := st.Append(r); err != nil {
-			tb.Fatal(err)
-		}
-	}
+	st, add := fillStore(tb, path, end)
 	add(&buffer.Session{At: start, SoftwareVersion: "test", SensitivityDBFS: -26, SampleRate: 48000, Device: "test", TimeZone: "UTC"})
 	// A gap on the first day from 03:00 to 04:00 and a calibration check at 10:00-10:02.
 	gapFrom, gapTo := start.Add(3*time.Hour), start.Add(4*time.Hour)
@@ -104,6 +96,21 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 	}
 	if err := st.Close(); err != nil {
 		tb.Fatal(err)
+	}
+}
+
+// fillStore opens a new store for filling fast (one commit an hour, no sync) whose clock reads
+// end, and returns it with a function that appends a record or fails tb.
+func fillStore(tb testing.TB, path string, end time.Time) (*buffer.Store, func(buffer.Record)) {
+	tb.Helper()
+	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return st, func(r buffer.Record) {
+		if _, err := st.Append(r); err != nil {
+			tb.Fatal(err)
+		}
 	}
 }
 
