@@ -294,7 +294,7 @@ func TestFleetReport(t *testing.T) {
 			t.Errorf("fleet.html holds %q", bad)
 		}
 	}
-	testrig.CheckPage(t, "file://"+filepath.Join(out, report.FleetHTMLFile), testrig.Phone, testrig.Desktop)
+	saveShots(t, "fleet", testrig.CheckPage(t, "file://"+filepath.Join(out, report.FleetHTMLFile), testrig.Phone, testrig.Desktop))
 
 	// The co-location check on the same nodes: they heard the same sound at gains 0, +0.2,
 	// -0.3 and +1.5 dB. The median gain is 0.1 dB, so the offsets are -0.1, +0.1, -0.4 and +1.4
@@ -331,7 +331,24 @@ func TestFleetReport(t *testing.T) {
 	if err := report.WriteColocation(out, c, fleetStart); err != nil {
 		t.Fatal(err)
 	}
-	testrig.CheckPage(t, "file://"+filepath.Join(out, report.ColocationHTMLFile), testrig.Phone, testrig.Desktop)
+	saveShots(t, "colocation", testrig.CheckPage(t, "file://"+filepath.Join(out, report.ColocationHTMLFile), testrig.Phone, testrig.Desktop))
+}
+
+// saveShots writes screenshots into the directory LEQNODE_REPORT_ARTIFACTS names, if any, for a
+// person to look at.
+func saveShots(t *testing.T, page string, shots map[string][]byte) {
+	dir := os.Getenv("LEQNODE_REPORT_ARTIFACTS")
+	if dir == "" {
+		return
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		t.Fatal(err)
+	}
+	for name, png := range shots {
+		if err := os.WriteFile(filepath.Join(dir, page+"-"+name+".png"), png, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
 }
 
 // backgroundLA returns the energy mean of a node's counted seconds in the quiet minute before

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"image/color"
 	"math"
+	"slices"
 	"time"
 
 	"gonum.org/v1/plot/palette"
@@ -196,6 +197,11 @@ func nodeMap(g nodeGrid, pal palette.Palette, lo, hi float64, title string, node
 	return renderPNG(p, plotW, h)
 }
 
+// colours is a fixed palette.
+type colours []color.Color
+
+func (c colours) Colors() []color.Color { return c }
+
 // dates returns the local calendar dates that [from, to) touches in loc.
 func dates(from, to time.Time, loc *time.Location) []time.Time {
 	var out []time.Time
@@ -257,8 +263,9 @@ func (f *Fleet) coverageMapPlot() ([]byte, error) {
 	cm := moreland.SmoothBlueRed()
 	cm.SetMin(0)
 	cm.SetMax(100)
-	pal := palette.Reverse(cm).Palette(20)
-	return nodeMap(g, pal, 0, 100, fmt.Sprintf("Valid data per node and day (red 0 %%, blue 100 %%; floor %.0f %%)", 100*f.Config.Options.MinCoverage), f.nodeNames(), cols)
+	cs := cm.Palette(20).Colors()
+	slices.Reverse(cs) // red for little data, blue for full coverage
+	return nodeMap(g, colours(cs), 0, 100, fmt.Sprintf("Valid data per node and day (red 0 %%, blue 100 %%; floor %.0f %%)", 100*f.Config.Options.MinCoverage), f.nodeNames(), cols)
 }
 
 // hourlyGrid returns each node's LAeq per hour of the range (NaN without data) and the hours.

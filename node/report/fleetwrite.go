@@ -324,7 +324,7 @@ const fleetHTML = `<!DOCTYPE html>
 {{end}}{{if .Unplaced}}<p>Not on the map (no position in their session records): {{range $i, $n := .Unplaced}}{{if $i}}, {{end}}{{$n}}{{end}}.</p>{{end}}
 
 <h2>Simultaneous events</h2>
-{{if .Happenings}}<p>{{.NHappen}} happenings seen by two or more nodes within {{.Window}} of each other; the {{len .Happenings}} with the largest sound exposure level, each node in the order it saw the happening:</p>
+{{if .Happenings}}<p>Happenings seen by two or more nodes within {{.Window}} of each other: {{.NHappen}}. Listed: the {{len .Happenings}} with the largest sound exposure level, each node in the order it heard the happening.</p>
 <div class="wide"><table><tr><th class="l">First start</th><th>Nodes</th><th>Largest LAE</th><th class="l">Seen by (delay after the first start)</th></tr>
 {{range .Happenings}}<tr><td class="l">{{.Start}}</td><td>{{.Nodes}}</td><td>{{.MaxLAE}}</td><td class="l">{{range $i, $s := .Seen}}{{if $i}}; {{end}}{{$s}}{{end}}</td></tr>
 {{end}}</table></div>{{else}}<p>No event was seen by two or more nodes within {{.Window}} of each other.</p>{{end}}
