@@ -90,6 +90,9 @@ func CheckColocation(ctx context.Context, cfg ColocationConfig) (*Colocation, er
 		if ids[i], mins[i], err = readWholeMinutes(ctx, path, cfg.From, cfg.To); err != nil {
 			return nil, err
 		}
+		if len(mins[i]) == 0 {
+			return nil, fmt.Errorf("report: node %s (%s) has no whole valid minute in %s to %s: check the range and its coverage", ids[i].NodeID, path, cfg.From.Format(time.RFC3339), cfg.To.Format(time.RFC3339))
+		}
 		for j := range i {
 			if ids[j].NodeID == ids[i].NodeID {
 				return nil, fmt.Errorf("report: node %q is in two stores, %s and %s: give one store per node", ids[i].NodeID, ids[j].Path, path)
@@ -198,7 +201,7 @@ func CheckColocation(ctx context.Context, cfg ColocationConfig) (*Colocation, er
 func readWholeMinutes(ctx context.Context, path string, from, to time.Time) (Identity, map[int64]colocMinute, error) {
 	st, err := buffer.OpenReadOnly(path, 2*time.Second)
 	if err != nil {
-		return Identity{}, nil, fmt.Errorf("report: opening store %s: %w", path, err)
+		return Identity{}, nil, fmt.Errorf("report: opening store %s: %w (a node still writing it holds it: check a copy)", path, err)
 	}
 	defer st.Close()
 	id, err := ReadIdentity(st, to)

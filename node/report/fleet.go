@@ -149,7 +149,7 @@ func computeNode(ctx context.Context, path string, cfg FleetConfig) (FleetNode, 
 	var n FleetNode
 	st, err := buffer.OpenReadOnly(path, 2*time.Second)
 	if err != nil {
-		return n, nil, fmt.Errorf("report: opening store %s: %w", path, err)
+		return n, nil, fmt.Errorf("report: opening store %s: %w (a node still writing it holds it: report over a copy)", path, err)
 	}
 	defer st.Close()
 	if n.Identity, err = ReadIdentity(st, cfg.To); err != nil {

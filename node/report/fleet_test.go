@@ -219,6 +219,28 @@ func TestFleetReport(t *testing.T) {
 			}
 		}
 	}
+	// Read from second records as well, the fleet report equals the single-node reports.
+	exact, err := report.ComputeFleet(ctx, report.FleetConfig{Config: cfg, Stores: paths, Seconds: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, n := range exact.Nodes {
+		st, err := buffer.OpenReadOnly(paths[i], time.Second)
+		if err != nil {
+			t.Fatal(err)
+		}
+		single, err := report.Compute(ctx, st, cfg)
+		st.Close()
+		if err != nil {
+			t.Fatal(err)
+		}
+		for k, o := range single.Overall {
+			if fo := n.Result.Overall[k]; fo.LAeq != o.LAeq && !(math.IsNaN(fo.LAeq) && math.IsNaN(o.LAeq)) {
+				t.Errorf("%s %s from seconds: fleet LAeq %v, single-node report %v", n.NodeID, o.Name, fo.LAeq, o.LAeq)
+			}
+		}
+	}
+
 	// The offsets the signals were built with: every level scales by the node's gain.
 	for i, s := range fleetSpecs[1:] {
 		if d := f.Nodes[i+1].LAeq - f.Nodes[0].LAeq; math.Abs(d-s.gainDB) > 0.02 {
