@@ -5,6 +5,7 @@ import (
 	"image/color"
 	"math"
 	"slices"
+	"strings"
 	"time"
 
 	"gonum.org/v1/plot/palette"
@@ -79,7 +80,7 @@ func finiteRange(vs []float64) (lo, hi float64, ok bool) {
 }
 
 // mapPlot draws the nodes that have a position, in metres around their centre, coloured by
-// values (blue low, red high, grey without a value), each labelled with its name and value,
+// values (blue low, red high, a ring without a value), each labelled with its name and value,
 // with a distance scale bar. No tiles or other services: only the positions are drawn.
 func mapPlot(names []string, lat, lon, values []float64, indicatorName string) ([]byte, error) {
 	if len(names) == 0 {
@@ -93,7 +94,7 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	cm := levelColors(lo, hi)
 	p := newPlot()
 	if ok {
-		p.Title.Text = fmt.Sprintf("Node positions, coloured by %s (%.1f dB blue to %.1f dB red; grey: no value)", indicatorName, lo, hi)
+		p.Title.Text = fmt.Sprintf("Node positions, coloured by %s (%.1f dB blue to %.1f dB red; ring: no value)", indicatorName, lo, hi)
 	} else {
 		p.Title.Text = fmt.Sprintf("Node positions (no %s value)", indicatorName)
 	}
@@ -103,21 +104,22 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	labels := make([]string, len(pts))
 	for i, q := range pts {
 		xys[i].X, xys[i].Y = q.X, q.Y
-		labels[i] = names[i]
-		if v := values[i]; !math.IsNaN(v) {
-			labels[i] += fmt.Sprintf(" %.1f", v)
-		}
+		labels[i] = mapLabel(names[i], values[i], len(names))
 	}
 	sc, err := plotter.NewScatter(xys)
 	if err != nil {
 		return nil, err
 	}
 	sc.GlyphStyleFunc = func(i int) draw.GlyphStyle {
-		c := color.Color(color.Gray{Y: 160})
-		if v := values[i]; !math.IsNaN(v) {
-			if cc, err := cm.At(min(max(v, cm.Min()), cm.Max())); err == nil {
-				c = cc
-			}
+		v := values[i]
+		if math.IsNaN(v) { // the colour map's middle is a light grey: mark no value by shape
+			return draw.GlyphStyle{Color: color.Gray{Y: 60}, Radius: vg.Points(6), Shape: draw.RingGlyph{}}
+		}
+		// Inside the map's range by a hair: the ends themselves may count as outside.
+		eps := 1e-9 * (cm.Max() - cm.Min())
+		c, err := cm.At(min(max(v, cm.Min()+eps), cm.Max()-eps))
+		if err != nil {
+			c = color.Black
 		}
 		return draw.GlyphStyle{Color: c, Radius: vg.Points(6), Shape: draw.CircleGlyph{}}
 	}
@@ -168,6 +170,24 @@ func mapPlot(names []string, lat, lon, values []float64, indicatorName string) (
 	return renderPNG(p, plotW, vg.Length(h))
 }
 
+// mapLabels is the number of nodes up to which the map labels each node with its full name and
+// value; above it, with the last part of its name only (wendle-cross-07: "07"), so that labels
+// of close nodes do not cover each other. The table names every node in full.
+const mapLabels = 12
+
+func mapLabel(name string, v float64, n int) string {
+	if n > mapLabels {
+		if i := strings.LastIndexAny(name, "-_"); i >= 0 && i < len(name)-1 {
+			return name[i+1:]
+		}
+		return name
+	}
+	if math.IsNaN(v) {
+		return name
+	}
+	return fmt.Sprintf("%s %.1f", name, v)
+}
+
 // nodeGrid is a nodes-by-columns map for a heat map: rows are nodes, bottom up.
 type nodeGrid struct {
 	v [][]float64 // [node][column]
@@ -192,8 +212,8 @@ func nodeMap(g nodeGrid, pal palette.Palette, lo, hi float64, title string, node
 	p.Title.Text = title
 	p.Add(hm)
 	p.NominalX(thinLabels(cols, 16)...)
-	p.NominalY(thinLabels(append([]string(nil), nodes...), 40)...)
-	h := max(6*vg.Centimeter, vg.Length(len(nodes))*0.4*vg.Centimeter+3*vg.Centimeter)
+	p.NominalY(thinLabels(append([]string(nil), nodes...), 80)...)
+	h := max(6*vg.Centimeter, vg.Length(len(nodes))*0.5*vg.Centimeter+3*vg.Centimeter)
 	return renderPNG(p, plotW, h)
 }
 
