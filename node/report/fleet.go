@@ -116,58 +116,94 @@ func ComputeFleet(ctx context.Context, cfg FleetConfig) (*Fleet, error) {
 	if len(cfg.Stores) == 0 {
 		return nil, fmt.Errorf("report: no stores given for the fleet report")
 	}
-	if cfg.Window <= 0 {
-		cfg.Window = DefaultWindow
-	}
-	f := &Fleet{Config: cfg}
-	seen := map[string]string{}
+	f := newFleet(cfg)
 	for _, path := range cfg.Stores {
-		n, loc, err := computeNode(ctx, path, f.Config)
+		st, err := buffer.OpenReadOnly(path, 2*time.Second)
+		if err != nil {
+			return nil, fmt.Errorf("report: opening store %s: %w (a node still writing it holds it: report over a copy)", path, err)
+		}
+		id, err := ReadIdentity(st, cfg.To)
+		if err == nil {
+			err = f.add(ctx, id, st)
+		}
+		st.Close()
 		if err != nil {
 			return nil, err
 		}
-		if f.Config.Location == nil {
-			f.Config.Location = loc
-		}
-		if other, ok := seen[n.NodeID]; ok {
-			return nil, fmt.Errorf("report: node %q is in two stores, %s and %s: give one store per node", n.NodeID, other, path)
-		}
-		seen[n.NodeID] = path
-		f.Nodes = append(f.Nodes, n)
 	}
+	return f.finish(), nil
+}
+
+// FleetSource is one node's records for ComputeFleetFrom.
+type FleetSource struct {
+	Identity
+	Records Records
+}
+
+// ComputeFleetFrom is ComputeFleet over sources other than store files (cfg.Stores unused),
+// such as the collector's database (package fleetdb).
+func ComputeFleetFrom(ctx context.Context, cfg FleetConfig, sources []FleetSource) (*Fleet, error) {
+	if len(sources) == 0 {
+		return nil, fmt.Errorf("report: no nodes for the fleet report")
+	}
+	f := newFleet(cfg)
+	for _, s := range sources {
+		if err := f.add(ctx, s.Identity, s.Records); err != nil {
+			return nil, err
+		}
+	}
+	return f.finish(), nil
+}
+
+func newFleet(cfg FleetConfig) *Fleet {
+	if cfg.Window <= 0 {
+		cfg.Window = DefaultWindow
+	}
+	return &Fleet{Config: cfg}
+}
+
+// add computes one node's part. The first node without a zone set decides the fleet's zone.
+func (f *Fleet) add(ctx context.Context, id Identity, recs Records) error {
+	for _, n := range f.Nodes {
+		if n.NodeID == id.NodeID {
+			return fmt.Errorf("report: node %q is in two stores, %s and %s: give one store per node", id.NodeID, n.Path, id.Path)
+		}
+	}
+	if f.Config.Location == nil {
+		f.Config.Location = time.UTC
+		if id.TimeZone != "" {
+			if l, err := time.LoadLocation(id.TimeZone); err == nil {
+				f.Config.Location = l
+			}
+		}
+	}
+	n, err := computeNode(ctx, id, recs, f.Config)
+	if err != nil {
+		return err
+	}
+	f.Nodes = append(f.Nodes, n)
+	return nil
+}
+
+// finish sorts the nodes and groups their simultaneous events.
+func (f *Fleet) finish() *Fleet {
 	sort.Slice(f.Nodes, func(i, j int) bool { return f.Nodes[i].NodeID < f.Nodes[j].NodeID })
 	evs := make([][]*buffer.Event, len(f.Nodes))
 	for i, n := range f.Nodes {
 		evs[i] = n.Result.Events
 	}
-	f.Happenings = Simultaneous(evs, cfg.Window)
-	return f, nil
+	f.Happenings = Simultaneous(evs, f.Config.Window)
+	return f
 }
 
-// computeNode reads one store. With cfg.Location nil it uses the node's own zone and returns it.
-func computeNode(ctx context.Context, path string, cfg FleetConfig) (FleetNode, *time.Location, error) {
-	var n FleetNode
-	st, err := buffer.OpenReadOnly(path, 2*time.Second)
-	if err != nil {
-		return n, nil, fmt.Errorf("report: opening store %s: %w (a node still writing it holds it: report over a copy)", path, err)
-	}
-	defer st.Close()
-	if n.Identity, err = ReadIdentity(st, cfg.To); err != nil {
-		return n, nil, err
-	}
-	loc := cfg.Location
-	if loc == nil {
-		loc = time.UTC
-		if n.TimeZone != "" {
-			if l, err := time.LoadLocation(n.TimeZone); err == nil {
-				loc = l
-			}
-		}
-	}
+// computeNode computes one node's indicators, calibrations and health counts.
+func computeNode(ctx context.Context, id Identity, recs Records, cfg FleetConfig) (FleetNode, error) {
+	n := FleetNode{Identity: id}
 	c := cfg.Config
-	c.Location, c.skipSeconds = loc, !cfg.Seconds
-	if n.Result, err = Compute(ctx, st, c); err != nil {
-		return n, nil, fmt.Errorf("report: store %s (node %s): %w", path, n.NodeID, err)
+	c.skipSeconds = !cfg.Seconds
+	var err error
+	if n.Result, err = Compute(ctx, recs, c); err != nil {
+		return n, fmt.Errorf("report: node %s (%s): %w", n.NodeID, n.Path, err)
 	}
 	n.LAeq, n.Bound = rangeLevel(n.Result)
 	for _, cal := range n.Result.Calibrations {
@@ -177,7 +213,7 @@ func computeNode(ctx context.Context, path string, cfg FleetConfig) (FleetNode, 
 		}
 	}
 	counts := map[string]int{}
-	err = st.Range(buffer.KindHealth, cfg.From, cfg.To, func(r buffer.Record) error {
+	err = recs.Range(buffer.KindHealth, cfg.From, cfg.To, func(r buffer.Record) error {
 		n.Snapshots++
 		for _, name := range r.(*buffer.Health).Flags.Names() {
 			counts[name]++
@@ -185,13 +221,13 @@ func computeNode(ctx context.Context, path string, cfg FleetConfig) (FleetNode, 
 		return nil
 	})
 	if err != nil {
-		return n, nil, fmt.Errorf("report: reading health records of %s: %w", path, err)
+		return n, fmt.Errorf("report: reading health records of node %s (%s): %w", n.NodeID, n.Path, err)
 	}
 	for name, k := range counts {
 		n.Health = append(n.Health, HealthCount{Flag: name, Snapshots: k})
 	}
 	sort.Slice(n.Health, func(i, j int) bool { return n.Health[i].Flag < n.Health[j].Flag })
-	return n, loc, nil
+	return n, nil
 }
 
 // rangeLevel returns the LAeq over the whole range: the energy mean of the hours' levels

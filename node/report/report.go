@@ -38,8 +38,15 @@ type Config struct {
 	skipSeconds bool
 }
 
+// Records is where a report reads records from: a buffer.Store, or another source of the same
+// records (the collector's database, package fleetdb). Range calls fn for each record of kind k
+// whose time lies in [from, to), in time order.
+type Records interface {
+	Range(k buffer.Kind, from, to time.Time, fn func(buffer.Record) error) error
+}
+
 // Compute reads the records of [cfg.From, cfg.To) from st and computes the indicators.
-func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Result, error) {
+func Compute(ctx context.Context, st Records, cfg Config) (*indicator.Result, error) {
 	if cfg.Profile == nil {
 		return nil, fmt.Errorf("report: no profile given")
 	}
@@ -90,7 +97,7 @@ func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Resu
 // now, for publishing when a period closes: the caller calls it once the period's last
 // records are stored (say a minute after the boundary). It returns the period's indicators and
 // its interval.
-func ClosedPeriod(ctx context.Context, st *buffer.Store, prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, now time.Time, opt indicator.Options) (*indicator.Period, profiles.Interval, error) {
+func ClosedPeriod(ctx context.Context, st Records, prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, now time.Time, opt indicator.Options) (*indicator.Period, profiles.Interval, error) {
 	if loc == nil {
 		loc = time.UTC
 	}
