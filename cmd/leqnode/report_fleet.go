@@ -13,6 +13,8 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/collect"
+	"github.com/leqnode/leqnode/node/fleetdb"
 	"github.com/leqnode/leqnode/node/report"
 )
 
@@ -25,12 +27,13 @@ func (m *manyFlags) Set(v string) error { *m = append(*m, v); return nil }
 // runFleetReport writes the fleet report, or with --colocation the co-location check, over a
 // set of exported stores.
 func runFleetReport(ctx context.Context, std stdio, args []string) error {
-	fl := newFlags("report --fleet", "(--db FILE --db FILE ... | --dir DIR) --from DATE --to DATE --profile NAME [--zone Z] --out DIR\n       leqnode report --fleet --colocation (--db FILE ... | --dir DIR) --from T --to T --out DIR [--tolerance DB]", std.err)
+	fl := newFlags("report --fleet", "(--db FILE --db FILE ... | --dir DIR | --config COLLECTOR.toml) --from DATE --to DATE --profile NAME [--zone Z] --out DIR\n       leqnode report --fleet --colocation (--db FILE ... | --dir DIR) --from T --to T --out DIR [--tolerance DB]", std.err)
 	var dbs manyFlags
 	fl.Var(&dbs, "db", "a node's store file; repeat for every node")
 	dir := fl.String("dir", "", "a directory whose *.db files are the nodes' stores")
+	collector := fl.String("config", "", "the collector's configuration: report over its database (every node with minute records in the range)")
 	rf := addReportFlags(fl, "output directory for fleet.html and the CSV files (required)")
-	tz := fl.String("time-zone", "", "IANA zone in which days and periods are counted (default: the first store's node zone)")
+	tz := fl.String("time-zone", "", "IANA zone in which days and periods are counted (default: the first store's node zone; UTC over the database)")
 	mapInd := fl.String("map-indicator", "", "indicator the map colours nodes by: LAeq, a period name or the whole-day indicator (default: the profile's whole-day indicator, else LAeq)")
 	window := fl.Duration("window", report.DefaultWindow, "events on different nodes starting within this time are one happening")
 	seconds := fl.Bool("seconds", false, "read second records too (exact to single-node reports, about 60 times slower)")
@@ -43,9 +46,14 @@ func runFleetReport(ctx context.Context, std stdio, args []string) error {
 	if len(pos) != 0 {
 		return badInput("unexpected argument %q: give stores with --db FILE or --dir DIR", pos[0])
 	}
-	stores, err := fleetStores(dbs, *dir)
-	if err != nil {
-		return err
+	if *collector != "" && (len(dbs) > 0 || *dir != "") {
+		return badInput("give either stores (--db, --dir) or the collector's database (--config), not both")
+	}
+	var stores []string
+	if *collector == "" {
+		if stores, err = fleetStores(dbs, *dir); err != nil {
+			return err
+		}
 	}
 	if *window <= 0 || *window > 10*time.Minute {
 		return badInput("--window %s: give a duration above 0 and at most 10m", *window)
@@ -53,7 +61,14 @@ func runFleetReport(ctx context.Context, std stdio, args []string) error {
 	if !(*tol > 0 && *tol <= 20) {
 		return badInput("--tolerance %g: give a level difference above 0 and at most 20 dB", *tol)
 	}
-	loc, err := fleetZone(*tz, stores[0])
+	if *collector != "" && *coloc {
+		return badInput("the co-location check reads stores: give them with --db or --dir")
+	}
+	first := ""
+	if len(stores) > 0 {
+		first = stores[0]
+	}
+	loc, err := fleetZone(*tz, first)
 	if err != nil {
 		return err
 	}
@@ -68,10 +83,16 @@ func runFleetReport(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	f, err := report.ComputeFleet(ctx, report.FleetConfig{
+	fc := report.FleetConfig{
 		Config: report.Config{Profile: p, Zone: z, Location: loc, From: lo, To: hi, Options: rf.options()},
 		Stores: stores, Window: *window, Seconds: *seconds,
-	})
+	}
+	var f *report.Fleet
+	if *collector != "" {
+		f, err = fleetFromDatabase(ctx, *collector, fc)
+	} else {
+		f, err = report.ComputeFleet(ctx, fc)
+	}
 	if err != nil {
 		return err
 	}
@@ -148,7 +169,26 @@ func fleetStores(dbs []string, dir string) ([]string, error) {
 	return out, nil
 }
 
-// fleetZone returns the zone named by --time-zone, else the first store's node zone, else UTC.
+// fleetFromDatabase computes the fleet report over the collector's database.
+func fleetFromDatabase(ctx context.Context, path string, fc report.FleetConfig) (*report.Fleet, error) {
+	cfg, err := loadCollectorConfig(path)
+	if err != nil {
+		return nil, err
+	}
+	db, err := collect.OpenDB(ctx, cfg)
+	if err != nil {
+		return nil, err
+	}
+	defer db.Close()
+	f, err := db.FleetReport(ctx, fc)
+	if err != nil {
+		return nil, fmt.Errorf("database %s: %w: is it migrated (leqnode collect --migrate), and does it hold the range?", fleetdb.Describe(cfg.Database.URL), err)
+	}
+	return f, nil
+}
+
+// fleetZone returns the zone named by --time-zone, else the first store's node zone (UTC
+// without a store: days are counted in UTC over the database).
 func fleetZone(tz, first string) (*time.Location, error) {
 	if tz != "" {
 		loc, err := time.LoadLocation(tz)
@@ -156,6 +196,9 @@ func fleetZone(tz, first string) (*time.Location, error) {
 			return nil, badInput("--time-zone %q: give an IANA zone name such as Europe/London", tz)
 		}
 		return loc, nil
+	}
+	if first == "" {
+		return time.UTC, nil
 	}
 	st, err := buffer.OpenReadOnly(first, 2*time.Second)
 	if err != nil {
