@@ -200,16 +200,15 @@ backlog_messages_per_second = -1
 
 func readCSVRows(t *testing.T, path string) [][]string {
 	t.Helper()
-	f, err := os.Open(path)
-	if err != nil {
-		t.Fatal(err)
+	data, err := os.ReadFile(path)
+	if err == nil {
+		var rows [][]string
+		if rows, err = csv.NewReader(bytes.NewReader(data)).ReadAll(); err == nil {
+			return rows
+		}
 	}
-	defer f.Close()
-	rows, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	return rows
+	t.Fatalf("%s: %v", path, err)
+	return nil
 }
 
 func writeFile(t *testing.T, p, s string) {

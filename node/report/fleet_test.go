@@ -20,6 +20,7 @@ import (
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/report"
+	"github.com/leqnode/leqnode/node/report/indicator"
 	"github.com/leqnode/leqnode/node/testrig"
 )
 
@@ -204,15 +205,7 @@ func TestFleetReport(t *testing.T) {
 			t.Errorf("%s: fleet LAeq %.3f, energy mean of its counted seconds %.3f", s.id, n.LAeq, want)
 		}
 		// Against the node's own report from second records.
-		st, err := buffer.OpenReadOnly(paths[i], time.Second)
-		if err != nil {
-			t.Fatal(err)
-		}
-		single, err := report.Compute(ctx, st, cfg)
-		st.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
+		single := singleReport(t, paths[i], cfg)
 		for k, o := range single.Overall {
 			if fo := n.Result.Overall[k]; math.Abs(fo.LAeq-o.LAeq) > 0.02 || fo.Events != o.Events {
 				t.Errorf("%s %s: fleet LAeq %.3f with %d events, single-node report %.3f with %d", s.id, o.Name, fo.LAeq, fo.Events, o.LAeq, o.Events)
@@ -225,15 +218,7 @@ func TestFleetReport(t *testing.T) {
 		t.Fatal(err)
 	}
 	for i, n := range exact.Nodes {
-		st, err := buffer.OpenReadOnly(paths[i], time.Second)
-		if err != nil {
-			t.Fatal(err)
-		}
-		single, err := report.Compute(ctx, st, cfg)
-		st.Close()
-		if err != nil {
-			t.Fatal(err)
-		}
+		single := singleReport(t, paths[i], cfg)
 		for k, o := range single.Overall {
 			if fo := n.Result.Overall[k]; fo.LAeq != o.LAeq && !(math.IsNaN(fo.LAeq) && math.IsNaN(o.LAeq)) {
 				t.Errorf("%s %s from seconds: fleet LAeq %v, single-node report %v", n.NodeID, o.Name, fo.LAeq, o.LAeq)
@@ -371,6 +356,21 @@ func saveShots(t *testing.T, page string, shots map[string][]byte) {
 			t.Fatal(err)
 		}
 	}
+}
+
+// singleReport computes the single-node report of the store at path.
+func singleReport(t *testing.T, path string, cfg report.Config) *indicator.Result {
+	t.Helper()
+	st, err := buffer.OpenReadOnly(path, time.Second)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	r, err := report.Compute(context.Background(), st, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
 }
 
 // backgroundLA returns the energy mean of a node's counted seconds in the quiet minute before
