@@ -12,6 +12,14 @@
 // ClosedPeriod computes the indicators of the period that closed last, for publishing when a
 // period ends. Write renders a Result into a directory.
 //
+// A fleet report (ComputeFleet over store files, ComputeFleetFrom over other Records sources
+// such as the collector's database) runs Compute for each node in turn, so every node's
+// numbers come from the same machinery and validity rule as its own report, and adds what only
+// many nodes give: a map of their positions (Project), a node-by-day coverage and a
+// node-by-hour level chart, and the happenings several nodes heard (Simultaneous). WriteFleet
+// renders it. CheckColocation compares nodes standing side by side with their median before
+// an array goes out. Every report names each node's id and site in its header and CSV rows.
+//
 // Every report carries its cautions: leqnode's numbers are indicative unless the whole chain (a
 // type-approved class 1 instrument with traceable calibration) is verified, and local rules and
 // accredited practice prevail.
