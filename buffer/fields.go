@@ -216,6 +216,10 @@ var sessionFields = func() []Field {
 		count("sample_rate_hz", "Hz", "sample rate", func(r Record) uint64 { return uint64(session(r).SampleRate) }),
 		text("device", "the capture source", func(r Record) string { return session(r).Device }),
 		text("time_zone", "IANA name of the node's configured time zone", func(r Record) string { return session(r).TimeZone }),
+		text("node_id", "the node's configured id (node.id); empty from nodes that do not say", func(r Record) string { return session(r).NodeID }),
+		text("site", "the node's configured measurement site (node.site); empty from nodes that do not say", func(r Record) string { return session(r).Site }),
+		num("latitude", "°", 5, "the node's latitude, WGS 84, rounded as configured; 0 with longitude 0: no position", func(r Record) float64 { return session(r).Latitude }),
+		num("longitude", "°", 5, "the node's longitude, WGS 84, rounded as configured; 0 with latitude 0: no position", func(r Record) float64 { return session(r).Longitude }),
 	}
 	// first_seq_<kind>: the first sequence number of each kind in this run of the node.
 	for _, k := range Kinds() {

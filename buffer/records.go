@@ -246,7 +246,18 @@ type Session struct {
 	// of the node (Store.FirstSeq): numbers skipped just before it were never committed (a
 	// crash), not lost. Zero in records of format version 1.
 	FirstSeq [KindSession + 1]uint64
+	// NodeID and Site name the node and its measurement site (the configuration's node.id and
+	// node.site), so that a store or a report read away from its node still says whose it is.
+	// Empty in records of format versions 1 and 2.
+	NodeID, Site string
+	// Latitude and Longitude place the node in decimal degrees (WGS 84), already rounded to
+	// the configuration's node.location_decimals; both zero means no position is configured
+	// (the configuration's own rule), as in records of format versions 1 and 2.
+	Latitude, Longitude float64
 }
+
+// HasLocation says whether the session carries a position.
+func (r *Session) HasLocation() bool { return r.Latitude != 0 || r.Longitude != 0 }
 
 func (*Second) Kind() Kind      { return KindSecond }
 func (*Minute) Kind() Kind      { return KindMinute }
@@ -322,7 +333,7 @@ const (
 	healthVersion      = 1
 	gapVersion         = 1
 	annotationVersion  = 1
-	sessionVersion     = 2 // 2 adds the run's first sequence numbers
+	sessionVersion     = 3 // 2 adds the run's first sequence numbers; 3 the node id, site and position
 )
 
 // AppendBinary encodes r: version, flags, start, duration, the eleven levels (int16 centi-dB),
@@ -794,7 +805,8 @@ func (r *Annotation) UnmarshalBinary(data []byte) error {
 }
 
 // AppendBinary encodes r: version, time, software version, config hash, sensitivity (float64),
-// sample rate, device, time zone.
+// sample rate, device, time zone, the first sequence numbers (version 2), node id, site,
+// latitude and longitude (float64, version 3).
 func (r *Session) AppendBinary(b []byte) ([]byte, error) {
 	if err := checkTime(r.At); err != nil {
 		return b, fmt.Errorf("session record: %w", err)
@@ -815,6 +827,10 @@ func (r *Session) AppendBinary(b []byte) ([]byte, error) {
 	for _, v := range r.FirstSeq[1:] {
 		e.uvarint(v)
 	}
+	e.str(r.NodeID)
+	e.str(r.Site)
+	e.float(r.Latitude)
+	e.float(r.Longitude)
 	return e.b, nil
 }
 
@@ -845,6 +861,12 @@ func (r *Session) UnmarshalBinary(data []byte) error {
 				r.FirstSeq[i+1] = seq // kinds a newer build adds are skipped
 			}
 		}
+	}
+	if v >= 3 {
+		r.NodeID = d.str()
+		r.Site = d.str()
+		r.Latitude = d.float()
+		r.Longitude = d.float()
 	}
 	return d.end()
 }

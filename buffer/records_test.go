@@ -47,7 +47,8 @@ func sampleRecords() []Record {
 		&Gap{From: t0, To: t0.Add(47 * time.Second), Reason: "audio device lost"},
 		&Annotation{From: t0, To: t0.Add(time.Hour), Flags: Suspect | Excluded, Reason: "calibrator drift 0.9 dB found at the next check"},
 		&Session{At: t0, SoftwareVersion: "0.1.0", ConfigHash: "sha256:5be1", SensitivityDBFS: -26.0, SampleRate: 48000,
-			Device: "hw:CARD=Array,DEV=0", TimeZone: "Europe/Berlin"},
+			Device: "hw:CARD=Array,DEV=0", TimeZone: "Europe/Berlin", NodeID: "wendle-cross-03",
+			Site: "Harrowby Lane, Wendle Cross", Latitude: 52.41, Longitude: -1.52},
 	}
 }
 

@@ -231,7 +231,8 @@ func (p *processor) opened(ev event) error {
 func sameSession(a, b *buffer.Session) bool {
 	return a.SoftwareVersion == b.SoftwareVersion && a.ConfigHash == b.ConfigHash &&
 		a.SensitivityDBFS == b.SensitivityDBFS && a.SampleRate == b.SampleRate &&
-		a.Device == b.Device && a.TimeZone == b.TimeZone
+		a.Device == b.Device && a.TimeZone == b.TimeZone && a.NodeID == b.NodeID && a.Site == b.Site &&
+		a.Latitude == b.Latitude && a.Longitude == b.Longitude
 }
 
 // reconfigure applies settings that change while the node runs.

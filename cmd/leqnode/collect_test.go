@@ -171,6 +171,44 @@ backlog_messages_per_second = -1
 	if code, _, errs := runCmd(t, nil, "fleet", "status", "--config", colCfg, "--format", "html"); code != 2 || !strings.Contains(errs, "--format") {
 		t.Errorf("fleet status --format html: exit %d %q", code, errs)
 	}
+
+	// The fleet report over the database names the node and its site (from its status), and
+	// gives the level the same report over the node's own store gives, when every minute arrived.
+	day := time.Now().UTC().AddDate(0, 0, -1).Format(time.DateOnly)
+	end := time.Now().UTC().AddDate(0, 0, 3).Format(time.DateOnly)
+	fromDB, fromStore := filepath.Join(dir, "fleet-db"), filepath.Join(dir, "fleet-store")
+	if code, out, errs := runCmd(t, nil, "report", "--fleet", "--config", colCfg, "--from", day, "--to", end, "--profile", "eu-lden", "--out", fromDB); code != 0 {
+		t.Fatalf("report --fleet over the database: exit %d %s %s", code, out, errs)
+	}
+	if code, out, errs := runCmd(t, nil, "report", "--fleet", "--db", filepath.Join(dir, "node.db"), "--from", day, "--to", end, "--profile", "eu-lden", "--out", fromStore); code != 0 {
+		t.Fatalf("report --fleet over the store: exit %d %s %s", code, out, errs)
+	}
+	dbRows, stRows := readCSVRows(t, filepath.Join(fromDB, "fleet-nodes.csv")), readCSVRows(t, filepath.Join(fromStore, "fleet-nodes.csv"))
+	if len(dbRows) != 2 || dbRows[1][0] != "wendle-cross-11" || dbRows[1][1] != "Tanners Row, Wendle Cross" {
+		t.Fatalf("fleet-nodes.csv over the database:\n%v", dbRows)
+	}
+	var stored, arrived int
+	db.Pool().QueryRow(context.Background(), "SELECT count(*) FROM leqnode.minutes").Scan(&arrived)
+	if code, out, _ := runCmd(t, nil, "export", "--config", nodeCfg, "--kind", "minute", "--format", "jsonl"); code == 0 {
+		stored = strings.Count(out, "\n")
+	}
+	if arrived == stored && dbRows[1][5] != stRows[1][5] {
+		t.Errorf("LAeq %s over the database, %s over the store (%d minutes in both)", dbRows[1][5], stRows[1][5], stored)
+	}
+	t.Logf("fleet report: LAeq %s over the database (%d minutes), %s over the store (%d minutes)", dbRows[1][5], arrived, stRows[1][5], stored)
+}
+
+func readCSVRows(t *testing.T, path string) [][]string {
+	t.Helper()
+	data, err := os.ReadFile(path)
+	if err == nil {
+		var rows [][]string
+		if rows, err = csv.NewReader(bytes.NewReader(data)).ReadAll(); err == nil {
+			return rows
+		}
+	}
+	t.Fatalf("%s: %v", path, err)
+	return nil
 }
 
 func writeFile(t *testing.T, p, s string) {

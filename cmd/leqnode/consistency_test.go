@@ -73,6 +73,9 @@ func TestOneTruth(t *testing.T) {
 [node]
 id = "wc-harrowby-04"
 site = "Harrowby Lane, Wendle Cross (invented)"
+latitude = 47.00123
+longitude = -30.00456
+location_decimals = 3
 time_zone = "UTC"
 [microphone]
 sensitivity_dbfs = -26
@@ -115,6 +118,13 @@ references = [94.0, 114.0]
 	}
 	all(buffer.KindSecond, func(r buffer.Record) { secs = append(secs, r.(*buffer.Second)) })
 	all(buffer.KindMinute, func(r buffer.Record) { mins = append(mins, r.(*buffer.Minute)) })
+	// The session record names the node, its site and its position rounded as configured.
+	var sessions []*buffer.Session
+	all(buffer.KindSession, func(r buffer.Record) { sessions = append(sessions, r.(*buffer.Session)) })
+	if len(sessions) == 0 || sessions[0].NodeID != "wc-harrowby-04" || sessions[0].Site != "Harrowby Lane, Wendle Cross (invented)" ||
+		sessions[0].Latitude != 47.001 || sessions[0].Longitude != -30.005 {
+		t.Errorf("session records %+v do not name the configured node", sessions)
+	}
 	if len(secs) < 148 || len(mins) < 2 {
 		t.Fatalf("%d seconds, %d minutes", len(secs), len(mins))
 	}

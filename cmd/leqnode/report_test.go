@@ -54,6 +54,10 @@ func TestReportCommand(t *testing.T) {
 	// (Regulation and Control) Rules 2000, Schedule, area C). The range cuts the night at 24:00:
 	// it is partial, and its one hour of data covers 12.5 % of the whole 8 h night.
 	lines := strings.Split(strings.TrimSpace(string(daily)), "\n")
+	// The session record names no node (an older store): the node is named by its file.
+	if !strings.HasPrefix(lines[0], "node_id,site,date,") || !strings.HasPrefix(lines[len(lines)-1], "harrowby-lane-1,,") {
+		t.Errorf("daily.csv does not name the node in every row:\n%s", daily)
+	}
 	if len(lines) != 3 || !strings.Contains(lines[2], "2026-05-03,false,2026-05-03T06:00:00+05:30,16,56.0,exact,,,55.0,true,false,") ||
 		!strings.Contains(lines[2], "2026-05-03T22:00:00+05:30,8,56.0,exact,,,45.0,true,true,0,12.5,true") {
 		t.Errorf("daily.csv:\n%s", daily)

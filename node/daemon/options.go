@@ -31,8 +31,13 @@ func (d *daemon) nodeOptions(src capture.Source, st *buffer.Store) node.Options 
 			SoftwareVersion: d.o.Version,
 			ConfigHash:      cfg.Hash(),
 			TimeZone:        cfg.Node.TimeZone,
+			NodeID:          cfg.Node.ID,
+			Site:            cfg.Node.Site,
 		},
 		Logger: log,
+	}
+	if lat, lon, ok := cfg.Location(); ok {
+		o.Session.Latitude, o.Session.Longitude = lat, lon
 	}
 	if o.Settling == 0 {
 		o.Settling = time.Nanosecond // zero means the default; a tiny value means none

@@ -12,6 +12,14 @@
 // ClosedPeriod computes the indicators of the period that closed last, for publishing when a
 // period ends. Write renders a Result into a directory.
 //
+// A fleet report (ComputeFleet over store files, ComputeFleetFrom over other Records sources
+// such as the collector's database) runs Compute for each node in turn, so every node's
+// numbers come from the same machinery and validity rule as its own report, and adds what only
+// many nodes give: a map of their positions (Project), a node-by-day coverage and a
+// node-by-hour level chart, and the happenings several nodes heard (Simultaneous). WriteFleet
+// renders it. CheckColocation compares nodes standing side by side with their median before
+// an array goes out. Every report names each node's id and site in its header and CSV rows.
+//
 // Every report carries its cautions: leqnode's numbers are indicative unless the whole chain (a
 // type-approved class 1 instrument with traceable calibration) is verified, and local rules and
 // accredited practice prevail.
@@ -34,10 +42,19 @@ type Config struct {
 	Location *time.Location // the node's time zone; nil means UTC
 	From, To time.Time      // [From, To)
 	Options  indicator.Options
+	// skipSeconds reads minute records only (see FleetConfig.Seconds).
+	skipSeconds bool
+}
+
+// Records is where a report reads records from: a buffer.Store, or another source of the same
+// records (the collector's database, package fleetdb). Range calls fn for each record of kind k
+// whose time lies in [from, to), in time order.
+type Records interface {
+	Range(k buffer.Kind, from, to time.Time, fn func(buffer.Record) error) error
 }
 
 // Compute reads the records of [cfg.From, cfg.To) from st and computes the indicators.
-func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Result, error) {
+func Compute(ctx context.Context, st Records, cfg Config) (*indicator.Result, error) {
 	if cfg.Profile == nil {
 		return nil, fmt.Errorf("report: no profile given")
 	}
@@ -70,6 +87,9 @@ func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Resu
 		{buffer.KindCalibration, cfg.From, cfg.To, func(r buffer.Record) { b.AddCalibration(r.(*buffer.Calibration)) }},
 	}
 	for _, s := range steps {
+		if s.kind == buffer.KindSecond && cfg.skipSeconds {
+			continue
+		}
 		err := st.Range(s.kind, s.from, s.to, func(r buffer.Record) error {
 			s.add(r)
 			return check()
@@ -85,7 +105,7 @@ func Compute(ctx context.Context, st *buffer.Store, cfg Config) (*indicator.Resu
 // now, for publishing when a period closes: the caller calls it once the period's last
 // records are stored (say a minute after the boundary). It returns the period's indicators and
 // its interval.
-func ClosedPeriod(ctx context.Context, st *buffer.Store, prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, now time.Time, opt indicator.Options) (*indicator.Period, profiles.Interval, error) {
+func ClosedPeriod(ctx context.Context, st Records, prof *profiles.Profile, zone *profiles.Zone, loc *time.Location, now time.Time, opt indicator.Options) (*indicator.Period, profiles.Interval, error) {
 	if loc == nil {
 		loc = time.UTC
 	}

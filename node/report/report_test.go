@@ -44,15 +44,7 @@ func hourLevel(h int) float64 {
 func testStore(tb testing.TB, path string, start time.Time, days int) {
 	tb.Helper()
 	end := start.Add(time.Duration(days) * 24 * time.Hour)
-	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
-	if err != nil {
-		tb.Fatal(err)
-	}
-	add := func(r buffer.Record) {
-		if _, err := st.Append(r); err != nil {
-			tb.Fatal(err)
-		}
-	}
+	st, add := fillStore(tb, path, end)
 	add(&buffer.Session{At: start, SoftwareVersion: "test", SensitivityDBFS: -26, SampleRate: 48000, Device: "test", TimeZone: "UTC"})
 	// A gap on the first day from 03:00 to 04:00 and a calibration check at 10:00-10:02.
 	gapFrom, gapTo := start.Add(3*time.Hour), start.Add(4*time.Hour)
@@ -104,6 +96,21 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 	}
 	if err := st.Close(); err != nil {
 		tb.Fatal(err)
+	}
+}
+
+// fillStore opens a new store for filling fast (one commit an hour, no sync) whose clock reads
+// end, and returns it with a function that appends a record or fails tb.
+func fillStore(tb testing.TB, path string, end time.Time) (*buffer.Store, func(buffer.Record)) {
+	tb.Helper()
+	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return st, func(r buffer.Record) {
+		if _, err := st.Append(r); err != nil {
+			tb.Fatal(err)
+		}
 	}
 }
 
@@ -183,7 +190,7 @@ func TestReportFromStore(t *testing.T) {
 
 	// The report files.
 	out := filepath.Join(dir, "out")
-	if err := Write(out, r, Meta{Node: "wendle-cross-2", StoreID: st.ID(), Created: start}); err != nil {
+	if err := Write(out, r, Meta{Node: "wendle-cross-2.db", NodeID: "wendle-cross-2", Site: "Harrowby Lane, Wendle Cross", StoreID: st.ID(), Created: start}); err != nil {
 		t.Fatal(err)
 	}
 	rows := readCSV(t, filepath.Join(out, DailyFile))
@@ -205,14 +212,27 @@ func TestReportFromStore(t *testing.T) {
 	for i, h := range hours[0] {
 		hcol[h] = i
 	}
-	if len(hours) != 49 || hours[4][1] != "" || hours[4][hcol["gap_s"]] != "3600" {
+	if len(hours) != 49 || hours[4][hcol["LAeq"]] != "" || hours[4][hcol["gap_s"]] != "3600" {
 		t.Errorf("hourly.csv: %d rows, 03:00 row %v", len(hours), hours[min(4, len(hours)-1)])
+	}
+	// Every CSV row names the node and its site.
+	for name, rs := range map[string][][]string{DailyFile: rows, HourlyFile: hours} {
+		for i, row := range rs {
+			want := []string{"wendle-cross-2", "Harrowby Lane, Wendle Cross"}
+			if i == 0 {
+				want = []string{"node_id", "site"}
+			}
+			if row[0] != want[0] || row[1] != want[1] {
+				t.Errorf("%s row %d starts %q, %q", name, i, row[0], row[1])
+				break
+			}
+		}
 	}
 	page, err := os.ReadFile(filepath.Join(out, HTMLFile))
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{"Lden", "type-approved", "Calibration history", "power cut", "data:image/png;base64,",
+	for _, want := range []string{"Lden", "wendle-cross-2, Harrowby Lane, Wendle Cross (store file wendle-cross-2.db", "type-approved", "Calibration history", "power cut", "data:image/png;base64,",
 		"6 events in the range", "<td class=\"l\">2026-06-01 23:30:00</td><td class=\"l\">night</td><td>6.0</td><td>80.0</td>"} {
 		if !bytes.Contains(page, []byte(want)) {
 			t.Errorf("report.html lacks %q", want)

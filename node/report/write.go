@@ -29,12 +29,15 @@ const (
 
 // Meta describes the node and store a report came from, for its header.
 type Meta struct {
-	Node    string // node or store name
+	Node    string // the store's file name
+	NodeID  string // the node's configured id (Identity.NodeID)
+	Site    string // the node's measurement site
 	StoreID string
 	Created time.Time
 }
 
-// Write renders r into dir (created if needed): report.html, daily.csv and hourly.csv. Files
+// Write renders r into dir (created if needed): report.html, daily.csv and hourly.csv (each
+// CSV row starts with the node id and site of meta). Files
 // are written to a temporary name and renamed, so a failed run leaves no half-written file.
 func Write(dir string, r *indicator.Result, meta Meta) error {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
@@ -47,7 +50,7 @@ func Write(dir string, r *indicator.Result, meta Meta) error {
 	for _, f := range []struct {
 		name string
 		data []byte
-	}{{HTMLFile, page}, {DailyFile, DailyCSV(r)}, {HourlyFile, HourlyCSV(r)}} {
+	}{{HTMLFile, page}, {DailyFile, nodeColumns(DailyCSV(r), meta.NodeID, meta.Site)}, {HourlyFile, nodeColumns(HourlyCSV(r), meta.NodeID, meta.Site)}} {
 		if err := writeFile(filepath.Join(dir, f.name), f.data); err != nil {
 			return err
 		}
@@ -65,6 +68,26 @@ func writeFile(path string, data []byte) error {
 		return fmt.Errorf("report: writing %s: %w", path, err)
 	}
 	return nil
+}
+
+// nodeColumns puts the columns node_id and site in front of every row of a CSV file, so that
+// a file read away from its report still says whose it is.
+func nodeColumns(data []byte, id, site string) []byte {
+	rows, err := csv.NewReader(bytes.NewReader(data)).ReadAll()
+	if err != nil {
+		return data // our own CSV: cannot happen
+	}
+	var buf bytes.Buffer
+	w := csv.NewWriter(&buf)
+	for i, row := range rows {
+		head := []string{id, site}
+		if i == 0 {
+			head = []string{"node_id", "site"}
+		}
+		w.Write(append(head, row...))
+	}
+	w.Flush()
+	return buf.Bytes()
 }
 
 // num formats a level with one decimal, or "" for no value.
@@ -330,14 +353,12 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 var pageTemplate = template.Must(template.New("report").Funcs(template.FuncMap{
 	"secs": func(s float64) string { return (time.Duration(s) * time.Second).String() },
 	"mulf": func(v float64) float64 { return 100 * v },
-}).Parse(pageHTML))
+}).Parse(sharedHTML + pageHTML))
 
-const pageHTML = `<!DOCTYPE html>
-<html lang="en"><head><meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<title>leqnode report {{.From}} to {{.To}}</title>
-<style>
-body{font-family:sans-serif;margin:1.5em auto;max-width:1100px;color:#1d2329;line-height:1.4}
+// sharedHTML holds the parts every report page shows alike: the style and the cautions.
+const sharedHTML = `{{define "style"}}<style>
+body{font-family:sans-serif;margin:1.5em auto;padding:0 .8em;max-width:1100px;color:#1d2329;line-height:1.4}
+.wide{overflow-x:auto}dd{overflow-wrap:anywhere}
 h1{font-size:1.5em;border-bottom:3px solid #286eaa;padding-bottom:.2em}
 h2{font-size:1.15em;margin-top:1.6em;color:#286eaa}
 table{border-collapse:collapse;font-size:.85em;margin:.5em 0}
@@ -346,13 +367,24 @@ th{background:#eef2f5}td.l,th.l{text-align:left}
 .over{background:#f7d4d4;font-weight:bold}.low{background:#fff1c9}.part{color:#6b7680;font-style:italic}
 .box{border-left:4px solid #dc8c1e;background:#fdf6ea;padding:.5em 1em;margin:1em 0}
 figure{margin:1em 0}figcaption{font-size:.85em;color:#4a545e}
-img{width:100%;max-width:1000px;border:1px solid #dde2e6}
+img{width:100%;max-width:1000px;border:1px solid #dde2e6;box-sizing:border-box}
 dl{display:grid;grid-template-columns:max-content auto;gap:.1em 1em}dt{font-weight:bold}dd{margin:0}
-</style></head><body>
+</style>{{end}}
+{{define "cautions"}}<div class="box"><strong>Cautions.</strong> These numbers are indicative. Legally valid measurements need a
+type-approved class 1 sound level meter with traceable calibration; leqnode's results are only as good as
+its microphone, its calibration and its installation, and they count as class 1 only where the whole chain
+has been verified. Local regulations and accredited practice prevail over anything in this report. Sound
+above about 85 dB(A) over long periods damages hearing: protect yourself when working near loud sources.</div>{{end}}`
+
+const pageHTML = `<!DOCTYPE html>
+<html lang="en"><head><meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<title>leqnode report {{.Meta.NodeID}} {{.From}} to {{.To}}</title>
+{{template "style"}}</head><body>
 <h1>Noise indicators: {{.R.Profile.Title}}</h1>
 <dl>
 <dt>Range</dt><dd>{{.From}} to {{.To}} ({{.R.Location}}), half-open</dd>
-<dt>Node</dt><dd>{{.Meta.Node}}{{if .Meta.StoreID}} (store {{.Meta.StoreID}}){{end}}</dd>
+<dt>Node</dt><dd>{{.Meta.NodeID}}{{if .Meta.Site}}, {{.Meta.Site}}{{end}} (store file {{.Meta.Node}}{{if .Meta.StoreID}}, id {{.Meta.StoreID}}{{end}})</dd>
 <dt>Profile</dt><dd>{{.R.Profile.Name}}: {{.R.Profile.Source}}</dd>
 <dt>Zone</dt><dd>{{if .Zone}}{{.Zone}}{{else}}none (no limits){{end}}</dd>
 <dt>Data coverage</dt><dd>{{printf "%.1f" (mulf .Cov.Share)}} % valid; left out: {{range $i, $s := .LeftOut}}{{if $i}}, {{end}}{{$s}}{{end}}; in gaps {{secs .Cov.Gap}}; without records {{secs .Cov.Missing}}{{if .Cov.Overload}}; {{secs .Cov.Overload}} overloaded, kept (levels marked ≥ are lower bounds){{end}}{{if .Cov.UnderRange}}; {{secs .Cov.UnderRange}} under the measuring range, kept (levels marked ≤ are upper bounds){{end}}</dd>
@@ -361,11 +393,7 @@ dl{display:grid;grid-template-columns:max-content auto;gap:.1em 1em}dt{font-weig
 <dt>Periods under {{printf "%.0f" (mulf .R.Options.MinCoverage)}} % coverage</dt><dd>{{.Low}} (marked in yellow; their levels are shown, not hidden)</dd>
 <dt>Generated</dt><dd>{{.Meta.Created.Format "2006-01-02 15:04 MST"}} by leqnode</dd>
 </dl>
-<div class="box"><strong>Cautions.</strong> These numbers are indicative. Legally valid measurements need a
-type-approved class 1 sound level meter with traceable calibration; leqnode's results are only as good as
-its microphone, its calibration and its installation, and they count as class 1 only where the whole chain
-has been verified. Local regulations and accredited practice prevail over anything in this report. Sound
-above about 85 dB(A) over long periods damages hearing: protect yourself when working near loud sources.</div>
+{{template "cautions"}}
 
 <h2>Long-term levels per period</h2>
 <table><tr><th class="l">Period</th><th>LAeq</th><th>LAF10</th><th>LAF90</th><th>Limit</th><th>Periods above limit</th><th>Events</th><th>Coverage %</th></tr>
