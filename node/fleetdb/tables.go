@@ -94,7 +94,9 @@ var tables = []table{
 	{"annotation", "annotations", "", []column{{"end_time", "end_ms", cTime}, {"flags", "flags", cFlags}, {"reason", "reason", cText}}},
 	{"session", "sessions", "", []column{{"software_version", "software_version", cText}, {"config_hash", "config_hash", cText},
 		{"sensitivity_dBFS", "sensitivity_dBFS", cReal}, {"sample_rate_hz", "sample_rate_hz", cInt},
-		{"device", "device", cText}, {"time_zone", "time_zone", cText}, {"first_seq", "first_seq_", cFirstSeq}}},
+		{"device", "device", cText}, {"time_zone", "time_zone", cText}, {"first_seq", "first_seq_", cFirstSeq},
+		{"stated_node_id", "node_id", cText}, {"site", "site", cText}, {"latitude", "latitude", cDouble},
+		{"longitude", "longitude", cDouble}}},
 }
 
 // periodTable is the table of period indicators (no sequence number; see migrations).
