@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
@@ -145,7 +146,23 @@ func liveLine(s *buffer.Second) string {
 }
 
 // minuteLine is the demo's summary of a minute.
+// It says which seconds the validity rule left out and marks a bound (≥ with overloaded
+// seconds in it, ≤ with seconds under the measuring range).
 func minuteLine(m *buffer.Minute) string {
-	return fmt.Sprintf("-- minute %s  LAeq %.1f  LAFmax %.1f  LAF10 %.1f  LAF50 %.1f  LAF90 %.1f  LCpeak %.1f  (%d valid seconds)",
-		m.Start.Local().Format("15:04"), m.LAeq, m.LAFmax, m.LAF10, m.LAF50, m.LAF90, m.LCpeak, m.ValidSeconds)
+	var out []string
+	for why := record.Calibration; why < record.NumReasons; why++ {
+		if n := m.LeftOut[why]; n > 0 {
+			out = append(out, fmt.Sprintf("%s %d", strings.ReplaceAll(why.String(), "_", " "), n))
+		}
+	}
+	left := ""
+	if len(out) > 0 {
+		left = "; left out: " + strings.Join(out, ", ")
+	}
+	if m.ValidSeconds == 0 {
+		return fmt.Sprintf("-- minute %s  no valid seconds%s", m.Start.Local().Format("15:04"), left)
+	}
+	b := m.Tally().Bound().Sign()
+	return fmt.Sprintf("-- minute %s  LAeq %s%.1f  LAFmax %.1f  LAF10 %.1f  LAF50 %.1f  LAF90 %.1f  LCpeak %.1f  (%d valid seconds%s)",
+		m.Start.Local().Format("15:04"), b, m.LAeq, m.LAFmax, m.LAF10, m.LAF50, m.LAF90, m.LCpeak, m.ValidSeconds, left)
 }
