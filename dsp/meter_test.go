@@ -33,11 +33,32 @@ func newTestMeter(t testing.TB, bands BandSet) *Meter {
 	return m
 }
 
-func TestReferencePressure(t *testing.T) {
-	// 94 dB SPL is 1.0024 Pa, about 1 Pa (common practice; 20 lg(p/20 µPa), ISO 1996-1:2016 3.1.2).
-	p := ReferencePressure * math.Pow(10, ReferenceLevel/20)
-	if math.Abs(p-1.00237) > 5e-5 {
-		t.Errorf("94 dB = %.5f Pa, want 1.00237 Pa", p)
+func TestOnePascal(t *testing.T) {
+	// A 1 kHz sine of 1 Pa RMS reads 20 lg(1 Pa / 20 µPa) = 93.98 dB, not 94 (ISO 1996-1:2016,
+	// 3.1.2, written out). The samples are made from the sensitivity's definition: S dBFS at
+	// 94 dB SPL and a full-scale sine at 0 dBFS (AES17), so a sine of level L has peak
+	// 10^((L - 94 + S)/20).
+	const fs, sens = 48000.0, -26.0
+	want := 20 * math.Log10(1/ReferencePressure) // the package's p0
+	if math.Abs(want-20*math.Log10(1/20e-6)) > 1e-12 {
+		t.Fatalf("p0 = %g Pa, want 20 µPa (ISO 1996-1:2016, 3.1.2)", ReferencePressure)
+	}
+	m, err := NewMeter(MeterConfig{SampleRate: fs, SensitivityDBFS: sens})
+	if err != nil {
+		t.Fatal(err)
+	}
+	amp := math.Pow(10, (want-94+sens)/20)
+	x := make([]float32, 2*int(fs))
+	for i := range x {
+		x[i] = float32(amp * math.Sin(2*math.Pi*1000*float64(i)/fs))
+	}
+	m.Process(x[:int(fs)]) // let the filters settle
+	var r Result
+	m.Take(&r)
+	m.Process(x[int(fs):])
+	m.Take(&r)
+	if math.Abs(r.LZeq-want) > 0.01 || math.Abs(want-93.98) > 0.005 {
+		t.Errorf("1 Pa RMS reads LZeq %.3f dB, want %.3f", r.LZeq, want)
 	}
 }
 

@@ -1,6 +1,7 @@
 package capture
 
 import (
+	"context"
 	"errors"
 	"strings"
 	"testing"
@@ -76,12 +77,31 @@ func TestPortAudioKindInThisBuild(t *testing.T) {
 	}
 }
 
-func TestErrorsAreDistinct(t *testing.T) {
-	all := []error{ErrDeviceLost, ErrNoDevice, ErrClosed, ErrBadInput}
-	for i, a := range all {
-		for j, b := range all {
-			if (i == j) != errors.Is(a, b) {
-				t.Errorf("errors.Is(%v, %v) = %v", a, b, errors.Is(a, b))
+// TestSourceErrorsCarryTheirSentinel: what the node decides from a source's error (re-open,
+// stop, report bad input) rests on the sentinel the error wraps; real sources wrap the one their
+// documentation names.
+func TestSourceErrorsCarryTheirSentinel(t *testing.T) {
+	garbage, err := NewReader(Config{Kind: KindStdin, StdinFormat: "wav"}, strings.NewReader("this is not a WAV file at all"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, openErr := garbage.Open(context.Background())
+	garbage.Close()
+	_, closedErr := garbage.Read(make([]float32, 8))
+	for _, tc := range []struct {
+		what string
+		err  error
+		want error
+	}{
+		{"stdin that is not a WAV stream", openErr, ErrBadInput},
+		{"a read after Close", closedErr, ErrClosed},
+	} {
+		if !errors.Is(tc.err, tc.want) {
+			t.Errorf("%s: %v, want an error wrapping %v", tc.what, tc.err, tc.want)
+		}
+		for _, other := range []error{ErrDeviceLost, ErrNoDevice, ErrClosed, ErrBadInput} {
+			if other != tc.want && errors.Is(tc.err, other) {
+				t.Errorf("%s: %v also wraps %v", tc.what, tc.err, other)
 			}
 		}
 	}
