@@ -28,6 +28,8 @@ var (
 	ErrClosed = errors.New("store is closed")
 	// ErrNotStore: the file is a bbolt database but not a leqnode store.
 	ErrNotStore = errors.New("not a leqnode store")
+	// ErrNoStore: OpenReadOnly found no file at the path.
+	ErrNoStore = errors.New("no store")
 	// ErrDamaged: the file cannot be read as a store.
 	ErrDamaged = errors.New("store file is damaged")
 	// ErrNotCommitted: Append kept the record in memory, but the commit it was due for failed
@@ -158,7 +160,7 @@ func OpenReadOnly(path string, timeout time.Duration) (*Store, error) {
 	o := (&Options{LockTimeout: timeout}).resolved()
 	if _, err := os.Stat(path); err != nil {
 		if errors.Is(err, fs.ErrNotExist) {
-			return nil, fmt.Errorf("no store at %s: check the path given with --db or the store path in the config", path)
+			return nil, fmt.Errorf("%w at %s: check the path given with --db or the store path in the config", ErrNoStore, path)
 		}
 		return nil, fmt.Errorf("store %s: %w", path, err)
 	}
