@@ -13,6 +13,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/internal/when"
 )
 
 // Options set up a node. Source and Store are required; every other field has a default.
@@ -310,7 +311,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		f, err := o.Source.Open(ctx)
 		if err != nil {
 			say.log(n.log, "cannot open the audio source; retrying", "source", o.Source.Describe(), "err", err, "retry_in", backoff)
-			if !send(event{kind: evOpenFailed, err: err, arrival: stamp()}) || !sleepCtx(ctx, backoff) {
+			if !send(event{kind: evOpenFailed, err: err, arrival: stamp()}) || !when.Sleep(ctx, backoff) {
 				return
 			}
 			backoff = min(2*backoff, o.RetryMax)
@@ -394,7 +395,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 				}
 				say.log(n.log, "audio source failed; will re-open", "source", o.Source.Describe(), "err", rerr, "retry_in", backoff)
 				n.Counters.DroppedSamples.Add(skipped)
-				if !send(event{kind: evLost, err: rerr, skipped: skipped}) || !sleepCtx(ctx, backoff) {
+				if !send(event{kind: evLost, err: rerr, skipped: skipped}) || !when.Sleep(ctx, backoff) {
 					return
 				}
 				backoff = min(2*backoff, o.RetryMax)
@@ -430,15 +431,4 @@ func (r *rateLimited) log(l *slog.Logger, msg string, args ...any) {
 		return
 	}
 	l.Debug(msg, args...)
-}
-
-func sleepCtx(ctx context.Context, d time.Duration) bool {
-	t := time.NewTimer(d)
-	defer t.Stop()
-	select {
-	case <-t.C:
-		return true
-	case <-ctx.Done():
-		return false
-	}
 }

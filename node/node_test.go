@@ -19,6 +19,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/internal/when"
 )
 
 // simClock is a simulated system clock driven by the fake source: the time of the latest
@@ -531,7 +532,7 @@ func TestNodeCalibration(t *testing.T) {
 		if !a.Flags.Has(buffer.Calibrating) {
 			t.Errorf("annotation %+v does not mark calibrating", a)
 		}
-		from, to = minTime(from, a.From), maxTime(to, a.To)
+		from, to = when.Earlier(from, a.From), when.Later(to, a.To)
 	}
 	if len(anns) == 0 || from.After(t0.Add(time.Second)) || to.Before(t0.Add(13*time.Second)) {
 		t.Errorf("annotations %+v do not cover the tone with its margins", anns)

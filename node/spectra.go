@@ -3,6 +3,8 @@ package node
 import (
 	"math"
 	"time"
+
+	"github.com/leqnode/leqnode/node/internal/when"
 )
 
 // spectrumHistory keeps the band levels of the most recent seconds, so that an event's
@@ -48,7 +50,7 @@ func (h *spectrumHistory) over(from, to time.Time) []float64 {
 	for i := range h.n {
 		s := &h.secs[(h.next-1-i+spectrumSeconds)%spectrumSeconds]
 		end := s.start.Add(time.Duration(s.dur * 1e9))
-		lo, hi := maxTime(s.start, from), minTime(end, to)
+		lo, hi := when.Later(s.start, from), when.Earlier(end, to)
 		w := hi.Sub(lo).Seconds()
 		if w <= 0 {
 			continue
@@ -68,18 +70,4 @@ func (h *spectrumHistory) over(from, to time.Time) []float64 {
 		sum[j] = 10 * math.Log10(sum[j]/wsum)
 	}
 	return sum
-}
-
-func maxTime(a, b time.Time) time.Time {
-	if a.After(b) {
-		return a
-	}
-	return b
-}
-
-func minTime(a, b time.Time) time.Time {
-	if a.Before(b) {
-		return a
-	}
-	return b
 }

@@ -7,6 +7,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/configs/profiles"
+	"github.com/leqnode/leqnode/node/internal/when"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/report"
 	"github.com/leqnode/leqnode/node/report/indicator"
@@ -58,7 +59,7 @@ func (d *daemon) publishPeriods(ctx context.Context, st *buffer.Store, pub *publ
 			}
 			done = last.To
 		}
-		if !sleepFor(ctx, 30*time.Second) {
+		if !when.Sleep(ctx, 30*time.Second) {
 			return
 		}
 	}

@@ -12,6 +12,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp/selftest"
 	"github.com/leqnode/leqnode/node"
+	"github.com/leqnode/leqnode/node/internal/when"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/web"
 )
@@ -62,7 +63,7 @@ func (d *daemon) verifyDaily(ctx context.Context, n *node.Node, last *atomic.Poi
 	for {
 		fs := n.Status().SampleRate
 		if fs == 0 { // not open yet
-			if !sleepFor(ctx, time.Second) {
+			if !when.Sleep(ctx, time.Second) {
 				return
 			}
 			continue
@@ -89,19 +90,8 @@ func (d *daemon) verifyDaily(ctx context.Context, n *node.Node, last *atomic.Poi
 			}
 			log.Error("self-verification FAILED: the measurement chain is not to be trusted", "failed", strings.Join(names, ", "), "error", rep.Error)
 		}
-		if !sleepFor(ctx, 24*time.Hour) {
+		if !when.Sleep(ctx, 24*time.Hour) {
 			return
 		}
-	}
-}
-
-func sleepFor(ctx context.Context, d time.Duration) bool {
-	t := time.NewTimer(d)
-	defer t.Stop()
-	select {
-	case <-t.C:
-		return true
-	case <-ctx.Done():
-		return false
 	}
 }

@@ -15,6 +15,7 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgimg"
 
+	"github.com/leqnode/leqnode/node/internal/when"
 	"github.com/leqnode/leqnode/node/report/indicator"
 )
 
@@ -112,7 +113,7 @@ func historyPlot(r *indicator.Result) ([]byte, error) {
 		if math.IsNaN(per.Limit) {
 			continue
 		}
-		from, to := maxTime(per.From, r.From), minTime(per.To, r.To)
+		from, to := when.Later(per.From, r.From), when.Earlier(per.To, r.To)
 		l, err := plotter.NewLine(plotter.XYs{{X: float64(from.Unix()), Y: per.Limit}, {X: float64(to.Unix()), Y: per.Limit}})
 		if err != nil {
 			return nil, err
@@ -406,18 +407,4 @@ func emptyPlot(title string) ([]byte, error) {
 	p.Title.TextStyle.Color = color.Gray{Y: 90}
 	p.Title.Padding = vg.Points(10)
 	return renderPNG(p, plotW, 2*vg.Centimeter)
-}
-
-func maxTime(a, b time.Time) time.Time {
-	if a.After(b) {
-		return a
-	}
-	return b
-}
-
-func minTime(a, b time.Time) time.Time {
-	if a.Before(b) {
-		return a
-	}
-	return b
 }

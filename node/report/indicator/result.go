@@ -10,6 +10,7 @@ import (
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node/internal/when"
 )
 
 // Coverage counts the seconds of a stretch of time by what the validity rule (package record)
@@ -191,26 +192,12 @@ func (b *Builder) limit(key string) float64 {
 func (b *Builder) gapSeconds(from, to time.Time) float64 {
 	var s float64
 	for _, g := range b.gaps {
-		lo, hi := maxTime(g.From, from), minTime(g.To, to)
+		lo, hi := when.Later(g.From, from), when.Earlier(g.To, to)
 		if hi.After(lo) {
 			s += hi.Sub(lo).Seconds()
 		}
 	}
 	return s
-}
-
-func maxTime(a, b time.Time) time.Time {
-	if a.After(b) {
-		return a
-	}
-	return b
-}
-
-func minTime(a, b time.Time) time.Time {
-	if a.Before(b) {
-		return a
-	}
-	return b
 }
 
 // resolve folds the minute-record fallback into bins without second records.
@@ -276,8 +263,8 @@ func (b *Builder) Result() *Result {
 
 	for h, start := range b.hours {
 		c := hc[h]
-		end := minTime(start.Add(time.Hour), b.to)
-		c.Gap = b.gapSeconds(maxTime(start, b.from), end)
+		end := when.Earlier(start.Add(time.Hour), b.to)
+		c.Gap = b.gapSeconds(when.Later(start, b.from), end)
 		c.Length = time.Hour.Seconds() // the whole hour, also where the range cuts it
 		c.finish(o.MinCoverage)
 		r.Hours = append(r.Hours, Hour{From: start, LAeq: level(he[h].eA, c.Valid), Coverage: c})
@@ -290,7 +277,7 @@ func (b *Builder) Result() *Result {
 		per := b.prof.Periods[iv.Period]
 		acc := b.per[i]
 		c := pc[i]
-		lo, hi := maxTime(iv.From, b.from), minTime(iv.To, b.to)
+		lo, hi := when.Later(iv.From, b.from), when.Earlier(iv.To, b.to)
 		c.Gap = b.gapSeconds(lo, hi)
 		c.Length = iv.To.Sub(iv.From).Seconds() // the whole period, also where the range cuts it
 		c.finish(o.MinCoverage)
@@ -399,7 +386,7 @@ func (b *Builder) Result() *Result {
 				ov.Exceedances++ // a period the range cuts is never judged
 			}
 			h.Merge(&b.per[i].hist)
-			length += minTime(p.To, b.to).Sub(maxTime(p.From, b.from)).Hours() // the part inside the range
+			length += when.Earlier(p.To, b.to).Sub(when.Later(p.From, b.from)).Hours() // the part inside the range
 		}
 		ov.Coverage.finish(o.MinCoverage)
 		ov.LAeq = level(e, ov.Coverage.Valid)
