@@ -11,6 +11,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // unitCopy writes a copy of the unit whose ExecStart names an existing binary, as
@@ -34,9 +36,7 @@ func unitCopy(t *testing.T) string {
 }
 
 func needAnalyze(t *testing.T) {
-	if _, err := exec.LookPath("systemd-analyze"); err != nil {
-		t.Skip("systemd-analyze is not installed: run `make test`, which installs systemd")
-	}
+	testrig.Need(t, "systemd", "systemd-analyze")
 }
 
 func TestUnitVerifies(t *testing.T) {

@@ -15,6 +15,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/wav"
 )
 
@@ -471,12 +472,10 @@ func TestAnalyzeAgainstSox(t *testing.T) {
 	// (Debian package sox) gives their RMS level re full-scale amplitude; per AES17 a full-scale
 	// sine is 0 dBFS, i.e. RMS level + 3.01 dB, and with sensitivity S the SPL is
 	// dBFS - S + 94 (MEMS data-sheet definition). The summary LZeq must agree within 0.05 dB.
-	if _, err := exec.LookPath("sox"); err != nil {
-		t.Skip("sox is not installed: run `make test`, which installs it")
-	}
+	testrig.Need(t, "sox", "sox")
 	files, _ := filepath.Glob("/usr/share/sounds/alsa/*.wav")
 	if len(files) == 0 {
-		t.Skip("no recordings under /usr/share/sounds/alsa: run `make test`, which installs alsa-utils")
+		testrig.Missing(t, "no recordings under /usr/share/sounds/alsa: install the Debian package alsa-utils (make test-deps does)")
 	}
 	const sens = -30.0
 	for _, f := range files {

@@ -17,6 +17,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/wav"
 )
 
@@ -271,9 +272,7 @@ func TestRunArecordEndToEnd(t *testing.T) {
 	// pacing needs a pipe on an inherited file descriptor, which arecord, the node's child,
 	// does not get), so the node takes its time stamps from the sample count. arecord opens
 	// S32_LE, so the file holds 32-bit integers.
-	if _, err := exec.LookPath("arecord"); err != nil {
-		t.Skip("arecord is not installed: run `make test`, which installs alsa-utils")
-	}
+	testrig.Need(t, "alsa-utils", "arecord")
 	dir := t.TempDir()
 	x := e2eSignal()
 	raw := make([]byte, 4*len(x))
@@ -353,12 +352,7 @@ func TestAcceleratedRunsDoNotOverlap(t *testing.T) {
 // (the outage has one, written when audio comes back or the node stops) and warns at most
 // once a minute.
 func TestRunArecordMissingDevice(t *testing.T) {
-	if _, err := exec.LookPath("arecord"); err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatal("arecord is not installed: `make test` installs alsa-utils")
-		}
-		t.Skip("arecord is not installed: run `make test`, which installs alsa-utils")
-	}
+	testrig.Need(t, "alsa-utils", "arecord")
 	dir := t.TempDir()
 	asound := filepath.Join(dir, "asound.conf")
 	os.WriteFile(asound, []byte("pcm.testsig {\n  type file\n  slave.pcm { type null }\n  file \"/dev/null\"\n  infile \"/dev/null\"\n  format \"raw\"\n}\npcm.!default \"testsig\"\n"), 0o644)

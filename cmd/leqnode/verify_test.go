@@ -12,6 +12,7 @@ import (
 
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/dsp/selftest"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestVerifyPasses: the real chain passes the IEC 61672-1:2013 / IEC 61260-1:2014 class 1
@@ -91,15 +92,7 @@ func TestVerifyHTML(t *testing.T) {
 	if code != 0 || !strings.HasPrefix(out, "<!DOCTYPE html>") || strings.Contains(out, "http") {
 		t.Fatalf("exit %d; page must be self-contained:\n%.300s", code, out)
 	}
-	browser := ""
-	for _, b := range []string{"chromium", "chromium-browser"} {
-		if p, err := exec.LookPath(b); err == nil {
-			browser = p
-		}
-	}
-	if browser == "" {
-		t.Skip("chromium not installed")
-	}
+	browser := testrig.Need(t, "chromium", "chromium")
 	dir := t.TempDir()
 	page := filepath.Join(dir, "verify.html")
 	if err := os.WriteFile(page, []byte(out), 0o644); err != nil {
@@ -108,7 +101,7 @@ func TestVerifyHTML(t *testing.T) {
 	cmd := exec.Command(browser, "--headless", "--no-sandbox", "--disable-gpu", "--user-data-dir="+filepath.Join(dir, "profile"), "--dump-dom", "file://"+page)
 	dom, err := cmd.Output()
 	if err != nil {
-		t.Skipf("chromium could not run here: %v", err)
+		t.Fatalf("chromium could not render the page: %v", err)
 	}
 	for _, want := range []string{"tests passed at 16000 Hz", "A weighting at 63 Hz", "LCpeak - LC", "not the microphone"} {
 		if !strings.Contains(string(dom), want) {

@@ -5,6 +5,8 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 func mustLoad(t *testing.T, name string) *Profile {
@@ -75,7 +77,7 @@ func TestIndiaZones(t *testing.T) {
 func TestDSTNights(t *testing.T) {
 	berlin, err := time.LoadLocation("Europe/Berlin")
 	if err != nil {
-		t.Skip("no time zone data:", err)
+		testrig.Missing(t, "no time zone data (install the Debian package tzdata): "+err.Error())
 	}
 	p := mustLoad(t, "eu-lden")
 	tests := []struct {

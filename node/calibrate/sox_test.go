@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"strconv"
 	"testing"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestSoxRecordings checks the file form against recordings made by sox (Debian package sox,
@@ -14,10 +16,7 @@ import (
 // (AES17), with a 2 s fade-in and a pink-noise background mixed 30 dB below. The sensitivity
 // must come back within 0.1 dB; sox's pink noise alone is not a calibrator.
 func TestSoxRecordings(t *testing.T) {
-	sox, err := exec.LookPath("sox")
-	if err != nil {
-		t.Skip("sox not installed (make test installs it)")
-	}
+	sox := testrig.Need(t, "sox", "sox")
 	dir := t.TempDir()
 	run := func(args ...string) {
 		t.Helper()

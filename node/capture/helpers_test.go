@@ -5,9 +5,9 @@ import (
 	"errors"
 	"io"
 	"math"
-	"os"
-	"os/exec"
 	"testing"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // signal returns n samples of a deterministic test signal: a 1 kHz sine of peak amplitude amp
@@ -114,20 +114,11 @@ func levelDBFS(x []float32) float64 {
 	return 10 * math.Log10(2*ms)
 }
 
-// needTool returns the path of a Debian tool the test needs. It skips the test when the tool is
-// missing and the user is not root (who cannot install it); as root a missing tool is a
-// failure, since make test installs it.
+// needTool returns the path of a Debian tool the test needs (testrig.Need: missing fails under
+// CI=true, skips elsewhere).
 func needTool(t testing.TB, name, pkg string) string {
 	t.Helper()
-	p, err := exec.LookPath(name)
-	if err == nil {
-		return p
-	}
-	if os.Geteuid() != 0 {
-		t.Skipf("%s not found and not root: install Debian's %s (.ci/install-debs %s) to run this test", name, pkg, pkg)
-	}
-	t.Fatalf("%s not found: install Debian's %s (.ci/install-debs %s; make test does it)", name, pkg, pkg)
-	return ""
+	return testrig.Need(t, pkg, name)
 }
 
 func isEOF(err error) bool { return errors.Is(err, io.EOF) }

@@ -22,6 +22,7 @@ import (
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/report/indicator"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // The test store: the node "wendle-cross-2" on Harrowby Lane (an invented street) in UTC, with a
@@ -352,36 +353,11 @@ func manyColours(img image.Image) bool {
 }
 
 // screenshot renders page in headless Debian chromium and checks the screenshot. The browser
-// is installed with .ci/install-debs when missing (as root on CI); elsewhere without it the
-// check is skipped, saying why.
+// comes with make test-deps (testrig.Need: missing fails under CI=true, skips elsewhere).
 func screenshot(t *testing.T, page string) {
 	t.Helper()
 	const browser = "/usr/lib/chromium/chromium"
-	install := filepath.Join(repoRoot(t), ".ci", "install-debs")
-	// Another package's test may be installing it at the same moment (go test runs packages in
-	// parallel, and dpkg takes one installer at a time): retry for a few minutes.
-	deadline := time.Now().Add(5 * time.Minute)
-	installed := func() bool {
-		st, err := exec.Command("dpkg-query", "-W", "-f=${Status}", "chromium").Output()
-		if err != nil || strings.TrimSpace(string(st)) != "install ok installed" {
-			return false
-		}
-		_, err = os.Stat(browser)
-		return err == nil
-	}
-	for !installed() {
-		if os.Geteuid() != 0 {
-			t.Skipf("no %s and not root to install it: run %s chromium", browser, install)
-		}
-		out, err := exec.Command(install, "chromium").CombinedOutput()
-		if err == nil && installed() {
-			break
-		}
-		if time.Now().After(deadline) {
-			t.Fatalf("installing chromium: %v: %s", err, lastLines(out))
-		}
-		time.Sleep(5 * time.Second)
-	}
+	testrig.Need(t, "chromium", browser)
 	shot := filepath.Join(t.TempDir(), "report.png")
 	ctx, cancel := context.WithTimeout(context.Background(), 90*time.Second)
 	defer cancel()
@@ -402,24 +378,6 @@ func screenshot(t *testing.T, page string) {
 func lastLines(b []byte) string {
 	lines := strings.Split(strings.TrimSpace(string(b)), "\n")
 	return strings.Join(lines[max(0, len(lines)-5):], " | ")
-}
-
-func repoRoot(t *testing.T) string {
-	t.Helper()
-	dir, err := os.Getwd()
-	if err != nil {
-		t.Fatal(err)
-	}
-	for {
-		if _, err := os.Stat(filepath.Join(dir, "go.mod")); err == nil {
-			return dir
-		}
-		parent := filepath.Dir(dir)
-		if parent == dir {
-			t.Fatal("no go.mod above the test's directory")
-		}
-		dir = parent
-	}
 }
 
 // BenchmarkReport computes and renders a report over days of second and minute records from a

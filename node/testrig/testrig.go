@@ -32,19 +32,35 @@ func FreePort(t testing.TB) int {
 func need(t testing.TB, pkg string, bins ...string) {
 	t.Helper()
 	for _, b := range bins {
-		if filepath.IsAbs(b) {
-			if _, err := os.Stat(b); err == nil {
-				continue
-			}
-		} else if _, err := exec.LookPath(b); err == nil {
-			continue
-		}
-		msg := b + " not found: install the Debian package " + pkg + " (make test-deps)"
-		if os.Getenv("CI") == "true" {
-			t.Fatal(msg)
-		}
-		t.Skip(msg)
+		Need(t, pkg, b)
 	}
+}
+
+// Need returns the path of program bin (a path, or a name on PATH) from Debian package pkg.
+// When it is missing the test fails under CI=true (CI installs every package the tests use,
+// through make test-deps) and is skipped elsewhere, naming the package. Tests never install
+// packages themselves.
+func Need(t testing.TB, pkg, bin string) string {
+	t.Helper()
+	if filepath.IsAbs(bin) {
+		if _, err := os.Stat(bin); err == nil {
+			return bin
+		}
+	} else if p, err := exec.LookPath(bin); err == nil {
+		return p
+	}
+	Missing(t, bin+" not found: install the Debian package "+pkg+" (make test-deps does, as root)")
+	return ""
+}
+
+// Missing ends a test that lacks something it needs from the machine: a failure under
+// CI=true, a skip elsewhere.
+func Missing(t testing.TB, msg string) {
+	t.Helper()
+	if os.Getenv("CI") == "true" {
+		t.Fatal(msg)
+	}
+	t.Skip(msg)
 }
 
 // RepoRoot returns the top directory of the source tree (where go.mod is).

@@ -11,27 +11,14 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
-// needSox returns the path of sox (Debian package sox), installing it as root when it is
-// missing, as `make test` does.
+// needSox returns the path of sox (Debian package sox, which make test installs).
 func needSox(t *testing.T) string {
 	t.Helper()
-	if p, err := exec.LookPath("sox"); err == nil {
-		return p
-	}
-	if os.Geteuid() != 0 {
-		t.Skip("sox is missing and this test is not running as root to install it: run `.ci/install-debs sox` as root (or `make test`)")
-	}
-	out, err := exec.Command("../../.ci/install-debs", "sox").CombinedOutput()
-	if err != nil {
-		t.Fatalf("installing sox: %v\n%s", err, out)
-	}
-	p, err := exec.LookPath("sox")
-	if err != nil {
-		t.Fatal("sox still missing after .ci/install-debs sox")
-	}
-	return p
+	return testrig.Need(t, "sox", "sox")
 }
 
 func runSox(t *testing.T, sox string, args ...string) []byte {

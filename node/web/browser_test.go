@@ -22,6 +22,7 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/wav"
 	"github.com/leqnode/leqnode/node/web"
 )
@@ -85,12 +86,7 @@ func writeSignal(t *testing.T, path string, seconds int) {
 // into a real store: the page loads without console errors, the live level follows the signal,
 // the chart and the spectrum are drawn, and screenshots at phone and desktop widths are kept.
 func TestBrowser(t *testing.T) {
-	if _, err := os.Stat(chromiumPath); err != nil {
-		if os.Geteuid() != 0 {
-			t.Skipf("chromium is not installed at %s and this user cannot install it: run .ci/install-debs chromium as root", chromiumPath)
-		}
-		t.Fatalf("chromium is not installed at %s: run .ci/install-debs chromium (make test does)", chromiumPath)
-	}
+	testrig.Need(t, "chromium", chromiumPath)
 	dir := t.TempDir()
 	art := os.Getenv(artefactsEnv)
 	if art == "" {

@@ -11,6 +11,7 @@ import (
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 func profile(t *testing.T, name string) *profiles.Profile {
@@ -127,7 +128,7 @@ func TestIndiaResidentialNight(t *testing.T) {
 	}
 	ist, err := time.LoadLocation("Asia/Kolkata")
 	if err != nil {
-		t.Skip("no time zone data:", err)
+		testrig.Missing(t, "no time zone data (install the Debian package tzdata): "+err.Error())
 	}
 	day := time.Date(2026, 2, 3, 0, 0, 0, 0, ist)
 	b := NewBuilder(prof, zone, ist, day.Add(6*time.Hour), day.Add(30*time.Hour), Options{})
@@ -162,7 +163,7 @@ func TestIndiaResidentialNight(t *testing.T) {
 func TestDSTDays(t *testing.T) {
 	berlin, err := time.LoadLocation("Europe/Berlin")
 	if err != nil {
-		t.Skip("no time zone data:", err)
+		testrig.Missing(t, "no time zone data (install the Debian package tzdata): "+err.Error())
 	}
 	prof := profile(t, "eu-lden")
 	for _, tc := range []struct {
