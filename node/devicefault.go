@@ -67,7 +67,7 @@ func (p *processor) clockStepped(now time.Time) bool {
 
 // faultyBlock takes a block while the device is faulty: it counts the samples, and every
 // deviceCheck compares them with the time passed.
-func (p *processor) faultyBlock(ev event) error {
+func (p *processor) faultyBlock(ev handoff) error {
 	d := &p.rate
 	now := ev.arrival
 	d.samples += int64(len(ev.samples)) + ev.skipped
@@ -91,5 +91,5 @@ func (p *processor) faultyBlock(ev event) error {
 	*d = deviceState{format: format}
 	p.health.sticky &^= buffer.DeviceFault
 	p.healthNow(now)
-	return p.opened(event{kind: evOpened, format: format, arrival: now})
+	return p.opened(handoff{kind: evOpened, format: format, arrival: now})
 }

@@ -217,24 +217,26 @@ func New(o Options) (*Node, error) {
 	return n, nil
 }
 
-// event is what the capture goroutine hands to the processing goroutine.
-type event struct {
-	kind    eventKind
+// handoff is what the capture goroutine hands to the processing goroutine: a block of
+// samples, or news of the source (opened, lost, ended, failed to open). ("Event" is kept for
+// noise events.)
+type handoff struct {
+	kind    handoffKind
 	samples []float32 // data: the block's samples (a pool buffer, returned after use)
 	arrival time.Time // when the block arrived, or when the source opened
-	skipped int64     // data, lost, EOF: samples lost just before this event
+	skipped int64     // data, lost, EOF: samples lost just before this handoff
 	format  capture.Format
 	err     error
 }
 
-type eventKind int
+type handoffKind int
 
 const (
-	evData       eventKind = iota
-	evOpened               // the source was (re)opened
-	evLost                 // the source failed; it has been closed
-	evEOF                  // a finite source ended
-	evOpenFailed           // an attempt to open the source failed (err); capture retries with back-off
+	evData       handoffKind = iota
+	evOpened                 // the source was (re)opened
+	evLost                   // the source failed; it has been closed
+	evEOF                    // a finite source ended
+	evOpenFailed             // an attempt to open the source failed (err); capture retries with back-off
 )
 
 // Run captures and measures until ctx ends or a finite source ends, then flushes the store.
@@ -247,19 +249,19 @@ func (n *Node) Run(ctx context.Context) error {
 	if err := p.startupGap(); err != nil {
 		return err
 	}
-	events := make(chan event, o.QueueBlocks+4)
+	blocks := make(chan handoff, o.QueueBlocks+4)
 	free := make(chan []float32, o.QueueBlocks)
 	done := make(chan struct{})
 	go func() {
 		defer close(done)
-		n.capture(ctx, events, free)
+		n.capture(ctx, blocks, free)
 	}()
-	err := p.loop(ctx, events, free)
+	err := p.loop(ctx, blocks, free)
 	cancel()
 	// A Read blocked on a device that delivers nothing more ends when the source is closed.
 	go o.Source.Close()
 	go func() {
-		for range events { // unblock a capture goroutine waiting to send
+		for range blocks { // unblock a capture goroutine waiting to send
 		}
 	}()
 	select {
@@ -275,12 +277,12 @@ func (n *Node) Run(ctx context.Context) error {
 }
 
 // capture runs the source: open, read blocks into pool buffers, re-open after failures.
-func (n *Node) capture(ctx context.Context, events chan<- event, free chan []float32) {
-	defer close(events)
+func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []float32) {
+	defer close(blocks)
 	o := &n.o
-	send := func(ev event) bool {
+	send := func(ev handoff) bool {
 		select {
-		case events <- ev:
+		case blocks <- ev:
 			return true
 		case <-ctx.Done():
 			return false
@@ -311,7 +313,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		f, err := o.Source.Open(ctx)
 		if err != nil {
 			say.log(n.log, "cannot open the audio source; retrying", "source", o.Source.Describe(), "err", err, "retry_in", backoff)
-			if !send(event{kind: evOpenFailed, err: err, arrival: stamp()}) || !when.Sleep(ctx, backoff) {
+			if !send(handoff{kind: evOpenFailed, err: err, arrival: stamp()}) || !when.Sleep(ctx, backoff) {
 				return
 			}
 			backoff = min(2*backoff, o.RetryMax)
@@ -321,7 +323,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 		n.openGen.Add(1)
 		fs = float64(f.SampleRate)
 		openedAt := delivered // the back-off restarts only once this stream has run a second
-		if !send(event{kind: evOpened, format: f, arrival: stamp()}) {
+		if !send(handoff{kind: evOpened, format: f, arrival: stamp()}) {
 			o.Source.Close()
 			return
 		}
@@ -367,7 +369,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 				n.Counters.QueueOverflows.Add(1)
 			} else if nr > 0 {
 				n.Counters.DroppedSamples.Add(skipped)
-				if !send(event{kind: evData, samples: buf[:nr], arrival: arrival, skipped: skipped}) {
+				if !send(handoff{kind: evData, samples: buf[:nr], arrival: arrival, skipped: skipped}) {
 					o.Source.Close()
 					return
 				}
@@ -382,7 +384,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 			if errors.Is(rerr, io.EOF) {
 				o.Source.Close()
 				n.Counters.DroppedSamples.Add(skipped)
-				send(event{kind: evEOF, skipped: skipped})
+				send(handoff{kind: evEOF, skipped: skipped})
 				return
 			}
 			if rerr != nil {
@@ -395,7 +397,7 @@ func (n *Node) capture(ctx context.Context, events chan<- event, free chan []flo
 				}
 				say.log(n.log, "audio source failed; will re-open", "source", o.Source.Describe(), "err", rerr, "retry_in", backoff)
 				n.Counters.DroppedSamples.Add(skipped)
-				if !send(event{kind: evLost, err: rerr, skipped: skipped}) || !when.Sleep(ctx, backoff) {
+				if !send(handoff{kind: evLost, err: rerr, skipped: skipped}) || !when.Sleep(ctx, backoff) {
 					return
 				}
 				backoff = min(2*backoff, o.RetryMax)

@@ -62,12 +62,12 @@ type processor struct {
 }
 
 // loop handles events until the capture goroutine ends or a store error stops the node.
-func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- []float32) error {
+func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<- []float32) error {
 	o := p.o
 	watchdog := time.NewTimer(o.Watchdog)
 	defer watchdog.Stop()
 	open := false
-	handle := func(ev event) error {
+	handle := func(ev handoff) error {
 		switch ev.kind {
 		case evOpened:
 			open = true
@@ -100,7 +100,7 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 			// Measure what capture already queued, without waiting for more.
 			for {
 				select {
-				case ev, ok := <-events:
+				case ev, ok := <-blocks:
 					if !ok {
 						return nil
 					}
@@ -111,7 +111,7 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 					return nil
 				}
 			}
-		case ev, ok := <-events:
+		case ev, ok := <-blocks:
 			if !ok {
 				return nil
 			}
@@ -159,7 +159,7 @@ func (p *processor) loop(ctx context.Context, events <-chan event, free chan<- [
 
 // opened starts measuring a (re)opened source: a new meter and clock, a gap for the time the
 // source was away, a session record when the settings changed.
-func (p *processor) opened(ev event) error {
+func (p *processor) opened(ev handoff) error {
 	o := p.o
 	now := ev.arrival
 	// An outage in progress ends with the first sample measured (data), not here: a device that
@@ -277,7 +277,7 @@ func (p *processor) closeSecondAt() error {
 }
 
 // data measures one block.
-func (p *processor) data(ev event) error {
+func (p *processor) data(ev handoff) error {
 	o := p.o
 	x := ev.samples
 	n := int64(len(x))
