@@ -465,7 +465,7 @@ func FuzzWeightingSections(f *testing.F) {
 			// The design accepts 0.15 dB from the Annex E formula at any rate (fuzzing found
 			// 0.14 dB near 19.6 kHz at 43.6 to 43.9 kHz, where the bilinear warping is steepest;
 			// 0.045 dB at 48 kHz), far inside the class 1 limits of IEC 61672-1:2013 Table 3
-			// there (+2.5/-16.0 dB at 16 kHz, +3.0 dB/-inf at 20 kHz, via the transcription in
+			// there (+2.5/-16.0 dB at 16 kHz, +3.0 dB/-inf at 20 kHz, via the open copy of the table in
 			// dsp/reference).
 			tol := 0.15
 			if ec := gain(chainC, f, fs) - annexC(f); math.Abs(ec) > tol {
