@@ -132,7 +132,7 @@ func FromFile(ctx context.Context, path string, opts Options) (*Result, error) {
 	if err != nil {
 		return nil, err
 	}
-	defer f.Close()
+	defer func() { _ = f.Close() }() // read only: a failing Close loses nothing
 	return FromReader(ctx, f, opts)
 }
 

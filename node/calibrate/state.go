@@ -84,8 +84,10 @@ func SaveState(dir string, s State) error {
 	}
 	name := tmp.Name()
 	fail := func(err error) error {
-		tmp.Close()
-		os.Remove(name)
+		// The write already failed: the temporary file is useless whatever Close and Remove
+		// report, and err is the one that explains the failure.
+		_ = tmp.Close()
+		_ = os.Remove(name)
 		return fmt.Errorf("sensitivity state: %w", err)
 	}
 	if _, err := tmp.Write(b); err != nil {
@@ -95,42 +97,55 @@ func SaveState(dir string, s State) error {
 		return fail(err)
 	}
 	if err := tmp.Close(); err != nil {
-		os.Remove(name)
+		_ = os.Remove(name) // best effort: the Close error is the one to report
 		return fmt.Errorf("sensitivity state: %w", err)
 	}
 	if err := os.Rename(name, filepath.Join(dir, StateFile)); err != nil {
-		os.Remove(name)
+		_ = os.Remove(name) // best effort: the Rename error is the one to report
 		return fmt.Errorf("sensitivity state: %w", err)
 	}
 	d, err := os.Open(dir)
 	if err != nil {
 		return fmt.Errorf("sensitivity state: syncing %s: %w", dir, err)
 	}
-	defer d.Close()
-	if err := d.Sync(); err != nil && !errors.Is(err, fs.ErrInvalid) {
+	serr := d.Sync()
+	if errors.Is(serr, fs.ErrInvalid) {
+		serr = nil // a file system that cannot sync a directory
+	}
+	if err := errors.Join(serr, d.Close()); err != nil {
 		return fmt.Errorf("sensitivity state: syncing %s: %w", dir, err)
 	}
 	return nil
 }
 
-// Apply puts the sensitivity a check implies into use: it refuses (an error wrapping
-// ErrMicrophoneFault, nothing changed) when the sensitivity lies beyond rangeDB (default
-// DefaultAdjustRange) of nominal or the check clipped; otherwise it saves the state file in dir
-// and marks the check Applied with its SensitivityAfter. Call it before RecordCheck so that the
-// stored check says what was applied. The caller then measures with State.SensitivityDBFS and
-// writes a new session record.
-func Apply(dir string, c *buffer.Calibration, nominal, rangeDB float64) (*State, error) {
+// Prepare judges whether the sensitivity a check implies may be put into use, without saving
+// anything: it refuses (an error wrapping ErrMicrophoneFault) when the sensitivity lies beyond
+// rangeDB (default DefaultAdjustRange) of nominal or the check clipped, and otherwise returns
+// the state to save. It does no I/O, so a caller that must not block (the node's processing
+// goroutine) can judge at once and save elsewhere with SaveState.
+func Prepare(c *buffer.Calibration, nominal, rangeDB float64) (State, error) {
 	if c.Flags.Has(buffer.Clipped) {
-		return nil, fmt.Errorf("%w: the calibrator's tone clipped: use its 94 dB setting or lower the input gain", ErrMicrophoneFault)
+		return State{}, fmt.Errorf("%w: the calibrator's tone clipped: use its 94 dB setting or lower the input gain", ErrMicrophoneFault)
 	}
 	s, err := Adjust(nominal, Implied(c), rangeDB)
 	if err != nil {
+		return State{}, err
+	}
+	return State{SensitivityDBFS: s, NominalDBFS: nominal, At: c.At, Reference: c.Reference, FrequencyHz: c.Frequency}, nil
+}
+
+// Apply puts the sensitivity a check implies into use: it refuses as Prepare does (nothing
+// changed); otherwise it saves the state file in dir and marks the check Applied with its
+// SensitivityAfter. Call it before RecordCheck so that the stored check says what was applied.
+// The caller then measures with State.SensitivityDBFS and writes a new session record.
+func Apply(dir string, c *buffer.Calibration, nominal, rangeDB float64) (*State, error) {
+	st, err := Prepare(c, nominal, rangeDB)
+	if err != nil {
 		return nil, err
 	}
-	st := State{SensitivityDBFS: s, NominalDBFS: nominal, At: c.At, Reference: c.Reference, FrequencyHz: c.Frequency}
 	if err := SaveState(dir, st); err != nil {
 		return nil, err
 	}
-	c.SensitivityAfter, c.Applied = s, true
+	c.SensitivityAfter, c.Applied = st.SensitivityDBFS, true
 	return &st, nil
 }
