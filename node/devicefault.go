@@ -1,6 +1,7 @@
 package node
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"time"
@@ -38,18 +39,19 @@ type deviceState struct {
 
 // clockStepped handles a step of the sample clock at wall time now: a first step is the
 // system clock's (the caller records it); a second within deviceFaultWindow starts a device
-// fault, and clockStepped reports true.
-func (p *processor) clockStepped(now time.Time) bool {
+// fault, and clockStepped reports true. An error is a store error from closing what was being
+// measured.
+func (p *processor) clockStepped(now time.Time) (bool, error) {
 	d := &p.rate
 	recent := !d.lastStep.IsZero() && now.Sub(d.lastStep) < deviceFaultWindow
 	d.lastStep = now
 	if !recent {
-		return false
+		return false, nil
 	}
 	d.faulty, d.since, d.window, d.samples = true, now, now, 0
-	p.closeSecond()
-	p.flushMinutes()
-	p.flushEvents()
+	if err := errors.Join(p.closeSecond(), p.flushMinutes(), p.flushChains()); err != nil {
+		return true, err
+	}
 	if p.lostAt.IsZero() {
 		p.lostAt = p.lastEnd
 		if p.lostAt.IsZero() {
@@ -57,12 +59,12 @@ func (p *processor) clockStepped(now time.Time) bool {
 		}
 		p.lostWhy = "capture device delivers audio at the wrong rate (not measured)"
 	}
-	p.health.sticky |= buffer.DeviceFault
+	p.health.raise(buffer.DeviceFault)
 	p.n.log.Error("the capture device delivers audio faster or slower than its stated rate: not measuring it until it is right again",
 		"source", p.o.Source.Describe())
 	d.lastLog = now
-	p.healthNow(now)
-	return true
+	p.health.now(now)
+	return true, nil
 }
 
 // faultyBlock takes a block while the device is faulty: it counts the samples, and every
@@ -89,7 +91,7 @@ func (p *processor) faultyBlock(ev handoff) error {
 	p.n.log.Info("the capture device delivers audio at its rate again", "source", p.o.Source.Describe(), "faulty_for", now.Sub(d.since).Round(time.Second))
 	format := d.format
 	*d = deviceState{format: format}
-	p.health.sticky &^= buffer.DeviceFault
-	p.healthNow(now)
+	p.health.clear(buffer.DeviceFault)
+	p.health.now(now)
 	return p.opened(handoff{kind: evOpened, format: format, arrival: now})
 }

@@ -42,14 +42,23 @@ func (h HealthOptions) withDefaults() HealthOptions {
 	return h
 }
 
-// healthState accumulates what the health snapshots report.
-type healthState struct {
-	o HealthOptions
+// healthChain runs the health checks beside the meter: it follows each closed second for
+// digital silence, a stuck input, DC offset and clipping, accumulates what the snapshots report,
+// and stores a snapshot every HealthOptions.Interval and at once when a health flag is raised or
+// cleared. Other parts of the node raise and clear the flags whose cause they follow (a failing
+// store, a faulty device, a failed self-verification, a microphone fault) with raise and clear.
+// The machine's readings (memory, free space, temperature, clock error) come from the node's
+// system watcher (sysWatch), so that a snapshot reads no file.
+type healthChain struct {
+	p   *processor
+	o   HealthOptions
+	sys *sysWatch
 
 	silentRun, stuckRun    time.Duration
 	flags                  buffer.Flags // the health flags now raised
 	sticky                 buffer.Flags // flags raised until cleared by their cause (microphone fault)
 	selfChecks, selfFailed uint64       // a self-verification to report in the next snapshot
+	judged                 buffer.Flags // the health flags the second being closed raised (judge)
 
 	// Since the last snapshot.
 	clipped       uint64
@@ -63,8 +72,20 @@ type healthState struct {
 	lastDC        float64
 }
 
-// second takes one closed second into account and returns the health flags now raised.
-func (h *healthState) second(r *dsp.Result, secFlags buffer.Flags, dropped uint64) buffer.Flags {
+func (h *healthChain) open(float64) error    { return nil }
+func (h *healthChain) skip(int64)            {}
+func (h *healthChain) block([]float32) error { return nil }
+func (h *healthChain) measured() error       { return nil }
+func (h *healthChain) flush() error          { return nil }
+func (h *healthChain) raise(f buffer.Flags)  { h.sticky |= f }
+func (h *healthChain) clear(f buffer.Flags)  { h.sticky &^= f }
+func (h *healthChain) second(rec *buffer.Second, _ *dsp.Result) error {
+	return h.after(h.judged, rec.Start.Add(rec.Duration))
+}
+
+// judge takes one closed second into account, before its record is made, and returns the
+// health flags now raised.
+func (h *healthChain) judge(r *dsp.Result, secFlags buffer.Flags, dropped uint64) buffer.Flags {
 	d := time.Duration(r.Duration * float64(time.Second))
 	if r.Silent {
 		h.silentRun += d
@@ -99,12 +120,14 @@ func (h *healthState) second(r *dsp.Result, secFlags buffer.Flags, dropped uint6
 	if r.Clipped > 0 {
 		f |= buffer.Clipped
 	}
-	return f | h.sticky
+	h.judged = f | h.sticky
+	return h.judged
 }
 
 // snapshot builds a health record and starts a new snapshot period.
-func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
-	h := &p.health
+func (h *healthChain) snapshot(now time.Time) *buffer.Health {
+	p := h.p
+	sys := h.sys.latest()
 	rec := &buffer.Health{
 		At:                now.UTC(),
 		Flags:             h.flags,
@@ -113,10 +136,11 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 		Stuck:             h.flags.Has(buffer.StuckInput),
 		UnderRangeSeconds: h.underRange,
 		DroppedSamples:    h.dropped,
-		MemoryMB:          residentMB(),
-		DiskFreeMB:        diskFreeMB(p.o.Store.Path()),
+		MemoryMB:          sys.memoryMB,
+		DiskFreeMB:        sys.diskFreeMB,
 		ClockSynced:       p.synced,
-		ClockErrorMs:      clockErrorMs(),
+		ClockErrorMs:      sys.clockErrorMs,
+		TemperatureC:      sys.temperatureC,
 	}
 	if h.dcTime > 0 {
 		rec.DCOffset = h.dcSum / h.dcTime
@@ -138,11 +162,6 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 	if st, err := p.o.Store.Stats(); err == nil {
 		rec.StoreBytes = uint64(st.FileBytes)
 	}
-	if t, ok := boardTemperature(h.o.ThermalDir); ok {
-		rec.TemperatureC = t
-	} else {
-		rec.TemperatureC = math.NaN()
-	}
 	rec.SelfTestChecks, rec.SelfTestFailed = h.selfChecks, h.selfFailed
 	h.selfChecks, h.selfFailed = 0, 0
 	h.clipped, h.dcSum, h.dcTime, h.underRange, h.dropped = 0, 0, 0, 0, 0
@@ -150,10 +169,10 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 	return rec
 }
 
-// healthAfter runs after every second with the health flags that second raised: it stores a
+// after runs after every second with the health flags that second raised: it stores a
 // snapshot when a health flag changed or the snapshot interval has passed.
-func (p *processor) healthAfter(f buffer.Flags, now time.Time) error {
-	h := &p.health
+func (h *healthChain) after(f buffer.Flags, now time.Time) error {
+	p := h.p
 	changed := f != h.flags
 	if changed {
 		raised, cleared := f&^h.flags, h.flags&^f
@@ -171,15 +190,15 @@ func (p *processor) healthAfter(f buffer.Flags, now time.Time) error {
 	if !changed && now.Sub(h.lastSnap) < h.o.Interval {
 		return nil
 	}
-	rec := p.healthSnapshot(now)
+	rec := h.snapshot(now)
 	p.checkSpaceCap(rec)
 	p.n.lastHealth.Store(rec)
 	return p.append(rec)
 }
 
 // selfTest stores a health snapshot at once with the outcome of a self-verification.
-func (p *processor) selfTest(checks, failed int) error {
-	h := &p.health
+func (h *healthChain) selfTest(checks, failed int) error {
+	p := h.p
 	h.selfChecks, h.selfFailed = uint64(checks), uint64(failed)
 	if failed > 0 {
 		h.sticky |= buffer.ChainFault
@@ -191,7 +210,21 @@ func (p *processor) selfTest(checks, failed int) error {
 	if p.anchored {
 		now = p.lastEnd
 	}
-	rec := p.healthSnapshot(now)
+	rec := h.snapshot(now)
 	p.n.lastHealth.Store(rec)
 	return p.append(rec)
+}
+
+// now stores a health snapshot at once, with the store-fault and device-fault flags as they
+// now stand, so that the page and the control socket show a fault without waiting for the next
+// second. A snapshot the store does not take is logged: the fault it reports is logged already.
+func (h *healthChain) now(now time.Time) {
+	p := h.p
+	const faults = buffer.StoreFault | buffer.DeviceFault
+	h.flags = h.flags&^faults | h.sticky&faults
+	rec := h.snapshot(now)
+	p.n.lastHealth.Store(rec)
+	if err := p.append(rec); err != nil {
+		p.n.log.Warn("health snapshot not stored", "err", err)
+	}
 }

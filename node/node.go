@@ -241,11 +241,32 @@ const (
 
 // Run captures and measures until ctx ends or a finite source ends, then flushes the store.
 // It returns nil on a clean end.
+//
+// Run owns four goroutines: capture (the source), processing (Run's own: the meter, the
+// sample clock, the side-chains and the store appends), the state writer (the sensitivity state
+// file, when calibration is on) and the system watcher (the machine's readings for the health
+// snapshots). The processing goroutine does no file I/O but the store's appends, which the
+// store commits in groups. All four have ended when Run returns.
 func (n *Node) Run(ctx context.Context) error {
 	o := &n.o
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	p := &processor{n: n, o: o, health: healthState{o: o.Health}, minutes: newMinuteBuilder(), calRun: -1}
+	sys := newSysWatch(o.Store.Path(), o.Health.ThermalDir)
+	sysDone := make(chan struct{})
+	go func() {
+		defer close(sysDone)
+		sys.run(ctx)
+	}()
+	defer func() {
+		cancel()
+		<-sysDone
+	}()
+	var states *stateWriter
+	if o.Calibration != nil {
+		states = startStateWriter()
+		defer states.stop()
+	}
+	p := newProcessor(n, states, sys)
 	if err := p.startupGap(); err != nil {
 		return err
 	}
@@ -259,7 +280,11 @@ func (n *Node) Run(ctx context.Context) error {
 	err := p.loop(ctx, blocks, free)
 	cancel()
 	// A Read blocked on a device that delivers nothing more ends when the source is closed.
-	go o.Source.Close()
+	go func() {
+		if cerr := o.Source.Close(); cerr != nil {
+			n.log.Debug("closing the audio source", "source", o.Source.Describe(), "err", cerr)
+		}
+	}()
 	go func() {
 		for range blocks { // unblock a capture goroutine waiting to send
 		}
@@ -269,7 +294,9 @@ func (n *Node) Run(ctx context.Context) error {
 	case <-time.After(5 * time.Second):
 		n.log.Warn("the audio source did not stop within 5 s; leaving it behind", "source", o.Source.Describe())
 	}
-	p.finish()
+	if ferr := p.finish(); ferr != nil && err == nil {
+		err = ferr
+	}
 	if ferr := o.Store.Flush(); ferr != nil && err == nil {
 		err = fmt.Errorf("node: flushing the store: %w", ferr)
 	}

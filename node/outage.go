@@ -1,6 +1,7 @@
 package node
 
 import (
+	"errors"
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
@@ -55,8 +56,9 @@ func (p *processor) gap(from, to time.Time, why string) error {
 // lost closes the partial second and remembers when the source went away.
 func (p *processor) lost(why string) error {
 	if p.meter != nil && p.anchored {
-		p.closeSecond()
-		p.flushEvents()
+		if err := errors.Join(p.closeSecond(), p.flushChains()); err != nil {
+			return err
+		}
 	}
 	if p.lostAt.IsZero() { // a new outage; one that goes on keeps its start and first reason
 		p.lostAt = p.lastEnd
@@ -73,9 +75,10 @@ func (p *processor) lost(why string) error {
 
 // skip accounts for samples lost before the next block: the sample count (and so time) moves
 // on, the seconds they fall in are flagged.
-func (p *processor) skip(k int64) {
-	p.evSkew += k
-	p.calSkew += k
+func (p *processor) skip(k int64) error {
+	for _, c := range p.chains {
+		c.skip(k)
+	}
 	for k > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
 		take := min(k, end-p.pos)
@@ -84,14 +87,18 @@ func (p *processor) skip(k int64) {
 		p.secFlags |= buffer.Dropped
 		p.secDropped += uint64(take)
 		if p.pos == end {
-			p.closeSecond()
+			if err := p.closeSecond(); err != nil {
+				return err
+			}
 		}
 	}
+	return nil
 }
 
 // skipLost accounts for samples lost at the end of a stream.
-func (p *processor) skipLost(k int64) {
+func (p *processor) skipLost(k int64) error {
 	if k > 0 && p.anchored {
-		p.skip(k)
+		return p.skip(k)
 	}
+	return nil
 }

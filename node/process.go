@@ -11,19 +11,22 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 )
 
-// processor is the processing goroutine's state: the meter, the sample clock and the
-// interval being measured.
+// processor is the processing goroutine's state: the meter, the sample clock, the interval
+// being measured and its flags. The measurements beside the meter (events, the calibrator
+// watch, the health checks) are side-chains with their own state (sideChain); the processor
+// drives them.
 type processor struct {
 	n *Node
 	o *Options
 
-	meter     *dsp.Meter
-	clock     *SampleClock
-	fs        float64
-	device    string
-	res       dsp.Result
-	minutes   *minuteBuilder
-	firstBand int
+	meter      *dsp.Meter
+	clock      *SampleClock
+	fs         float64
+	device     string
+	res        dsp.Result
+	minutes    *minuteBuilder
+	firstBand  int
+	correction []dsp.Section // fitted from Options.Correction for the current rate
 
 	anchored    bool
 	pos         int64     // samples fed to the meter since the source was opened
@@ -35,22 +38,12 @@ type processor struct {
 	synced      bool
 	syncChecked time.Time
 
-	health healthState
-
-	correction []dsp.Section // fitted from Options.Correction for the current rate
-	cal        *dsp.CalibratorDetector
-	calSkew    int64 // samples skipped since the calibrator detector started
-	calPending *calRequest
-	calErr     error
-	// calRun is the detector's tonal run that matched a configured calibrator (-1: none);
-	// [calFrom, calUntil) is the time its seconds are marked calibrating, margins included.
-	calRun            int64
-	calFrom, calUntil time.Time
-
-	spectra spectrumHistory // band levels of the recent seconds, for event spectra
-	events  *dsp.EventDetector
-	event   dsp.Event
-	evSkew  int64 // samples skipped since the detector started: its positions lag pos by this
+	// The side-chains, in the order they see each block: the calibrator watch first (events
+	// are suppressed while it hears a calibrator). events and cal are nil when not configured.
+	health *healthChain
+	events *eventChain
+	cal    *calChain
+	chains []sideChain
 
 	store storeState  // what the node knows of a store that cannot write
 	rate  deviceState // what the node knows of a device at the wrong rate
@@ -61,11 +54,37 @@ type processor struct {
 	lastSess *buffer.Session
 }
 
+// newProcessor sets up the processing state and its side-chains. states writes the
+// sensitivity state file (nil when calibration is off); sys reads the machine for the health
+// snapshots.
+func newProcessor(n *Node, states *stateWriter, sys *sysWatch) *processor {
+	o := &n.o
+	p := &processor{n: n, o: o, minutes: newMinuteBuilder()}
+	p.health = &healthChain{p: p, o: o.Health, sys: sys}
+	if o.Calibration != nil {
+		p.cal = newCalChain(p, states)
+		p.chains = append(p.chains, p.cal)
+	}
+	if o.Events != nil {
+		p.events = &eventChain{p: p}
+		p.chains = append(p.chains, p.events)
+	}
+	p.chains = append(p.chains, p.health)
+	return p
+}
+
 // loop handles events until the capture goroutine ends or a store error stops the node.
 func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<- []float32) error {
 	o := p.o
 	watchdog := time.NewTimer(o.Watchdog)
 	defer watchdog.Stop()
+	// Calibration requests and the state writer's outcomes, when calibration is on (a nil
+	// channel is never ready).
+	var calRequests <-chan calRequest
+	var saved <-chan error
+	if p.cal != nil {
+		calRequests, saved = p.n.calRequests, p.cal.states.done
+	}
 	open := false
 	handle := func(ev handoff) error {
 		switch ev.kind {
@@ -81,7 +100,9 @@ func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<-
 			return err
 		case evLost:
 			open = false
-			p.skipLost(ev.skipped)
+			if err := p.skipLost(ev.skipped); err != nil {
+				return err
+			}
 			return p.lost(ev.err.Error())
 		case evOpenFailed:
 			if p.lostWhy == "" {
@@ -89,8 +110,10 @@ func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<-
 			}
 		case evEOF:
 			open = false
-			p.skipLost(ev.skipped)
-			p.finish()
+			if err := p.skipLost(ev.skipped); err != nil {
+				return err
+			}
+			return p.finish()
 		}
 		return nil
 	}
@@ -126,14 +149,14 @@ func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<-
 			}
 			watchdog.Reset(o.Watchdog)
 		case st := <-p.n.selfTests:
-			if err := p.selfTest(st[0], st[1]); err != nil {
+			if err := p.health.selfTest(st[0], st[1]); err != nil {
 				return err
 			}
-		case r := <-p.n.calRequests:
-			if p.calPending != nil {
-				r.reply <- calReply{err: errors.New("another calibration request is waiting for a tone: try again later")}
-			} else {
-				p.calPending = &r
+		case r := <-calRequests:
+			p.cal.request(r)
+		case err := <-saved:
+			if err := p.cal.saved(err); err != nil {
+				return err
 			}
 		case st := <-p.n.settings:
 			if err := p.reconfigure(st); err != nil {
@@ -149,7 +172,9 @@ func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<-
 				gen := p.n.openGen.Load()
 				go func() {
 					if p.n.openGen.Load() == gen {
-						o.Source.Close()
+						if err := o.Source.Close(); err != nil {
+							p.n.log.Debug("closing the stalled audio source", "source", o.Source.Describe(), "err", err)
+						}
 					}
 				}()
 			}
@@ -175,20 +200,16 @@ func (p *processor) opened(ev handoff) error {
 		}
 		p.correction = secs
 	}
-	// The event detector reads the meter's filtered signals (MeterConfig.Tap) rather than
-	// filtering every sample again; its spectrum comes from the seconds' band levels.
-	var tap func(z, c, a []float64)
-	p.events = nil
-	if o.Events != nil {
-		cfg := *o.Events
-		cfg.SensitivityDBFS = o.SensitivityDBFS
-		cfg.Bands = 0
-		d, err := dsp.NewEventDetector(cfg, fs)
-		if err != nil {
-			return fmt.Errorf("node: %w", err)
+	for _, c := range p.chains {
+		if err := c.open(fs); err != nil {
+			return err
 		}
-		p.events, p.evSkew = d, 0
-		tap = d.ProcessWeighted
+	}
+	// The event detector reads the meter's filtered signals (MeterConfig.Tap) rather than
+	// filtering every sample again.
+	var tap func(z, c, a []float64)
+	if p.events != nil {
+		tap = p.events.tap()
 	}
 	// A fresh meter at every open, so the old filter state does not smear into the new stream.
 	m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: fs, SensitivityDBFS: o.SensitivityDBFS, Bands: o.Bands, Correction: p.correction, Tap: tap})
@@ -202,13 +223,6 @@ func (p *processor) opened(ev handoff) error {
 	p.clock = NewSampleClock(fs)
 	p.anchored = false
 	p.pos = 0
-	if o.Calibration != nil {
-		d, err := dsp.NewCalibratorDetector(dsp.CalibratorConfig{SampleRate: fs})
-		if err != nil {
-			return fmt.Errorf("node: %w", err)
-		}
-		p.cal, p.calSkew = d, 0
-	}
 
 	p.settleUntil = now.Add(o.Settling)
 	p.device = o.Source.Describe()
@@ -295,14 +309,18 @@ func (p *processor) data(ev handoff) error {
 		}
 	} else {
 		if ev.skipped > 0 {
-			p.skip(ev.skipped)
+			if err := p.skip(ev.skipped); err != nil {
+				return err
+			}
 		}
 		before := p.clock.Time(p.pos)
 		if step := p.clock.Observe(p.pos+n, ev.arrival); step != 0 {
-			if p.clockStepped(ev.arrival) {
-				return nil // a device fault: this block is not measured
+			if faulty, err := p.clockStepped(ev.arrival); faulty || err != nil {
+				return err // a device fault: this block is not measured
 			}
-			p.closeSecond()
+			if err := p.closeSecond(); err != nil {
+				return err
+			}
 			after := p.clock.Time(p.pos)
 			if err := p.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {
 				return err
@@ -317,19 +335,10 @@ func (p *processor) data(ev handoff) error {
 	if now := o.Now(); now.Sub(p.syncChecked) >= time.Minute {
 		p.synced, p.syncChecked = o.ClockSynced(), now
 	}
-	inTone := false
-	if p.cal != nil {
-		p.cal.Process(x, p.onTone)
-		if p.calErr != nil {
-			return p.calErr
-		}
-		var err error
-		if inTone, err = p.calibratorOn(); err != nil {
+	for _, c := range p.chains {
+		if err := c.block(x); err != nil {
 			return err
 		}
-	}
-	if p.events != nil {
-		p.events.SetSuppressed(inTone) // no event while a calibrator is on
 	}
 	for len(x) > 0 {
 		end := max(p.clock.Sample(p.nextSecond), p.pos)
@@ -347,43 +356,21 @@ func (p *processor) data(ev handoff) error {
 	}
 	p.lastEnd = p.clock.Time(p.pos)
 	p.n.Counters.FastLevel.Store(math.Float64bits(p.meter.FastLevel()))
-	if p.events != nil {
-		return p.storeEvents() // the meter's tap fed the detector
-	}
-	return nil
-}
-
-// storeEvents stores the events the detector has closed.
-func (p *processor) storeEvents() error {
-	for p.events.Next(&p.event) {
-		e := &p.event
-		from := p.clock.Time(e.Start + p.evSkew)
-		rec := &buffer.Event{
-			Start: from.UTC(), End: from.Add(time.Duration(e.Duration * 1e9)).UTC(),
-			LAFmax: e.LAFmax, LAeq: e.LAeq, LAE: e.LAE, LCpeak: e.LCpeak,
-		}
-		if !p.synced {
-			rec.Flags |= buffer.ClockUnsynced
-		}
-		if p.o.Events.Bands != 0 {
-			if sp := p.spectra.over(rec.Start, rec.End); sp != nil {
-				rec.Spectrum, rec.FirstBand = sp, p.firstBand
-			}
-		}
-		if err := p.append(rec); err != nil {
+	for _, c := range p.chains {
+		if err := c.measured(); err != nil {
 			return err
 		}
 	}
 	return nil
 }
 
-// flushEvents closes an event in progress when the stream ends.
-func (p *processor) flushEvents() error {
-	if p.events == nil {
-		return nil
+// flushChains closes what the side-chains have open: the stream ended or broke.
+func (p *processor) flushChains() error {
+	var errs []error
+	for _, c := range p.chains {
+		errs = append(errs, c.flush())
 	}
-	p.events.Flush()
-	return p.storeEvents()
+	return errors.Join(errs...)
 }
 
 // closeSecond ends the interval being measured, stores its record and moves to the next.
@@ -403,7 +390,7 @@ func (p *processor) closeSecond() error {
 		if !p.synced {
 			f |= buffer.ClockUnsynced
 		}
-		if start.Before(p.calUntil) && p.calFrom.Before(start.Add(time.Duration(r.Duration*1e9))) {
+		if p.cal != nil && p.cal.covers(start, time.Duration(r.Duration*1e9)) {
 			f |= buffer.Calibrating
 		}
 		if r.Clipped > 0 {
@@ -415,16 +402,13 @@ func (p *processor) closeSecond() error {
 		if o.UnderRangeLevel > 0 && r.LAeq < o.UnderRangeLevel {
 			f |= buffer.UnderRange
 		}
-		hf := p.health.second(r, f, p.secDropped)
+		hf := p.health.judge(r, f, p.secDropped)
 		f |= hf & (buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset)
 		rec := &buffer.Second{
 			Start: start.UTC(), Duration: time.Duration(math.Round(r.Duration * 1e9)),
 			LAeq: r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
 			LASmax: r.LASmax, LASmin: r.LASmin, LAImax: r.LAImax, LCpeak: r.LCpeak, LZpeak: r.LZpeak,
 			LAE: r.LAE, Flags: f, DroppedSamples: p.secDropped,
-		}
-		if o.Events != nil && o.Events.Bands != 0 && len(r.Bands) > 0 {
-			p.spectra.add(start, r.Duration, r.Bands)
 		}
 		if o.SecondSpectra && len(r.Bands) > 0 {
 			rec.Spectrum = append([]float64(nil), r.Bands...)
@@ -438,8 +422,11 @@ func (p *processor) closeSecond() error {
 		if o.OnSecond != nil {
 			o.OnSecond(rec)
 		}
-		if err == nil {
-			err = p.healthAfter(hf, start.Add(rec.Duration))
+		for _, c := range p.chains {
+			if err != nil {
+				break
+			}
+			err = c.second(rec, r)
 		}
 	}
 	p.secFlags, p.secDropped = 0, 0
@@ -465,20 +452,26 @@ func (p *processor) storeMinute(rec *buffer.Minute) error {
 // ended or the clock stepped.
 func (p *processor) flushMinutes() error { return p.minutes.flush(p.storeMinute) }
 
-// finish stores what is left when the node stops: the partial second and minute.
-func (p *processor) finish() {
+// finish stores what is left when the node stops or the stream ends: the partial second and
+// minute, the event in progress, and the check whose state file is being written. Every part is
+// tried; the errors are joined.
+func (p *processor) finish() error {
+	var errs []error
 	if p.meter != nil && p.anchored {
-		p.closeSecond()
-		p.flushMinutes()
-		p.flushEvents()
+		errs = append(errs, p.closeSecond(), p.flushMinutes(), p.flushChains())
 		p.anchored = false
+	}
+	if p.cal != nil && p.cal.saving != nil {
+		// The processing is over: waiting for the file system no longer holds up the audio.
+		errs = append(errs, p.cal.saved(<-p.cal.states.done))
 	}
 	if p.store.failing {
 		// A last try, so that what the store refused is explained before the node stops.
 		if err := p.o.Store.Flush(); err == nil {
-			p.storeRecovered()
+			errs = append(errs, p.storeRecovered())
 		} else {
 			p.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", p.store.lost)
 		}
 	}
+	return errors.Join(errs...)
 }

@@ -51,11 +51,11 @@ func (p *processor) storeFailing(err error) {
 	now := p.o.Now()
 	if !s.failing {
 		s.failing, s.since = true, now
-		p.health.sticky |= buffer.StoreFault
+		p.health.raise(buffer.StoreFault)
 		p.n.log.Error("the store cannot write: measuring on, records held in memory; free space on its file system",
 			"store", p.o.Store.Path(), "err", err)
 		s.lastLog = now
-		p.healthNow(now)
+		p.health.now(now)
 	} else if now.Sub(s.lastLog) >= storeLogEvery {
 		p.n.log.Error("the store still cannot write", "store", p.o.Store.Path(), "since", s.since.UTC(), "refused", s.lost, "err", err)
 		s.lastLog = now
@@ -69,26 +69,12 @@ func (p *processor) storeRecovered() error {
 	lost, from, to := s.lost, s.lostFrom, s.lostTo
 	p.n.log.Info("the store writes again", "store", p.o.Store.Path(), "failed_for", p.o.Now().Sub(s.since).Round(time.Second), "refused", lost)
 	*s = storeState{}
-	p.health.sticky &^= buffer.StoreFault
-	p.healthNow(p.o.Now())
+	p.health.clear(buffer.StoreFault)
+	p.health.now(p.o.Now())
 	if lost > 0 {
 		return p.gap(from, to, fmt.Sprintf("the store could not write (full disk or I/O error): %d records could not be kept", lost))
 	}
 	return nil
-}
-
-// healthNow stores a health snapshot at once, with the store-fault and device-fault flags as
-// they now stand, so that the page and the control socket show a fault without waiting for the
-// next second.
-func (p *processor) healthNow(now time.Time) {
-	h := &p.health
-	const faults = buffer.StoreFault | buffer.DeviceFault
-	h.flags = h.flags&^faults | h.sticky&faults
-	rec := p.healthSnapshot(now)
-	p.n.lastHealth.Store(rec)
-	if err := p.append(rec); err != nil {
-		p.n.log.Warn("health snapshot not stored", "err", err)
-	}
 }
 
 // spaceRoom is the free space on the store's file system, in MB, at which a store that a full
@@ -106,10 +92,10 @@ func (p *processor) checkSpaceCap(rec *buffer.Health) {
 	}
 	switch {
 	case capped:
-		p.health.sticky |= buffer.StoreFault
+		p.health.raise(buffer.StoreFault)
 		rec.Flags |= buffer.StoreFault
 	case !p.store.failing:
-		p.health.sticky &^= buffer.StoreFault
+		p.health.clear(buffer.StoreFault)
 	}
 }
 

@@ -2,14 +2,69 @@ package node
 
 import (
 	"bytes"
+	"context"
+	"math"
 	"os"
 	"path/filepath"
 	"strconv"
+	"sync/atomic"
 	"syscall"
 	"time"
 
 	"golang.org/x/sys/unix"
 )
+
+// sysWatch reads the machine's state that the health snapshots report (resident memory, free
+// space under the store, board temperature, the kernel's clock error) on a goroutine of its
+// own, every sysEvery, so that the processing goroutine reads no file: /proc and /sys reads are
+// quick, but statfs on a failing memory card is not. A snapshot carries the latest reading, at
+// most sysEvery old.
+type sysWatch struct {
+	storePath, thermalDir string
+	last                  atomic.Pointer[sysReading]
+}
+
+// sysEvery is how often sysWatch reads the machine: well within the default snapshot interval
+// of a minute, rare enough to cost nothing.
+const sysEvery = 10 * time.Second
+
+// sysReading is one reading of the machine; a value that could not be read is 0, the
+// temperature NaN.
+type sysReading struct {
+	memoryMB, diskFreeMB, clockErrorMs, temperatureC float64
+}
+
+// newSysWatch takes a first reading at once, so that the first snapshot has one.
+func newSysWatch(storePath, thermalDir string) *sysWatch {
+	w := &sysWatch{storePath: storePath, thermalDir: thermalDir}
+	w.read()
+	return w
+}
+
+func (w *sysWatch) read() {
+	r := &sysReading{memoryMB: residentMB(), diskFreeMB: diskFreeMB(w.storePath), clockErrorMs: clockErrorMs(), temperatureC: math.NaN()}
+	if t, ok := boardTemperature(w.thermalDir); ok {
+		r.temperatureC = t
+	}
+	w.last.Store(r)
+}
+
+// latest returns the latest reading.
+func (w *sysWatch) latest() *sysReading { return w.last.Load() }
+
+// run reads the machine every sysEvery until ctx ends.
+func (w *sysWatch) run(ctx context.Context) {
+	t := time.NewTicker(sysEvery)
+	defer t.Stop()
+	for {
+		select {
+		case <-ctx.Done():
+			return
+		case <-t.C:
+			w.read()
+		}
+	}
+}
 
 // processCPU returns the CPU time the process has used (user and system).
 func processCPU() time.Duration {
