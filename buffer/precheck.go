@@ -58,7 +58,7 @@ func precheck(path string) error {
 	if err != nil {
 		return err
 	}
-	defer f.Close()
+	defer func() { _ = f.Close() }() // read only: a failing Close loses nothing
 	fi, err := f.Stat()
 	if err != nil {
 		return err

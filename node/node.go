@@ -280,11 +280,7 @@ func (n *Node) Run(ctx context.Context) error {
 	err := p.loop(ctx, blocks, free)
 	cancel()
 	// A Read blocked on a device that delivers nothing more ends when the source is closed.
-	go func() {
-		if cerr := o.Source.Close(); cerr != nil {
-			n.log.Debug("closing the audio source", "source", o.Source.Describe(), "err", cerr)
-		}
-	}()
+	go n.closeSource()
 	go func() {
 		for range blocks { // unblock a capture goroutine waiting to send
 		}
@@ -351,7 +347,7 @@ func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []f
 		fs = float64(f.SampleRate)
 		openedAt := delivered // the back-off restarts only once this stream has run a second
 		if !send(handoff{kind: evOpened, format: f, arrival: stamp()}) {
-			o.Source.Close()
+			n.closeSource()
 			return
 		}
 		blockLen := max(1, int(math.Round(float64(f.SampleRate)*o.BlockDuration.Seconds())))
@@ -375,7 +371,7 @@ func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []f
 					select {
 					case buf = <-free:
 					case <-ctx.Done():
-						o.Source.Close()
+						n.closeSource()
 						return
 					}
 				} else {
@@ -397,7 +393,7 @@ func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []f
 			} else if nr > 0 {
 				n.Counters.DroppedSamples.Add(skipped)
 				if !send(handoff{kind: evData, samples: buf[:nr], arrival: arrival, skipped: skipped}) {
-					o.Source.Close()
+					n.closeSource()
 					return
 				}
 				skipped = 0
@@ -405,17 +401,17 @@ func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []f
 				free <- buf
 			}
 			if rerr == nil && ctx.Err() != nil {
-				o.Source.Close()
+				n.closeSource()
 				return
 			}
 			if errors.Is(rerr, io.EOF) {
-				o.Source.Close()
+				n.closeSource()
 				n.Counters.DroppedSamples.Add(skipped)
 				send(handoff{kind: evEOF, skipped: skipped})
 				return
 			}
 			if rerr != nil {
-				o.Source.Close()
+				n.closeSource()
 				if ctx.Err() != nil {
 					return
 				}
@@ -431,6 +427,15 @@ func (n *Node) capture(ctx context.Context, blocks chan<- handoff, free chan []f
 				break
 			}
 		}
+	}
+}
+
+// closeSource closes the audio source. A source that cannot close (arecord that outlives its
+// signals) has nothing more to give and the node re-opens or stops regardless: the error is
+// logged for whoever looks after the device.
+func (n *Node) closeSource() {
+	if err := n.o.Source.Close(); err != nil {
+		n.log.Warn("closing the audio source", "source", n.o.Source.Describe(), "err", err)
 	}
 }
 

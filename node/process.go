@@ -172,9 +172,7 @@ func (p *processor) loop(ctx context.Context, blocks <-chan handoff, free chan<-
 				gen := p.n.openGen.Load()
 				go func() {
 					if p.n.openGen.Load() == gen {
-						if err := o.Source.Close(); err != nil {
-							p.n.log.Debug("closing the stalled audio source", "source", o.Source.Describe(), "err", err)
-						}
+						p.n.closeSource()
 					}
 				}()
 			}

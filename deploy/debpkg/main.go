@@ -106,7 +106,7 @@ func Dependencies(path, arch string) ([]string, error) {
 	if err != nil {
 		return nil, fmt.Errorf("binary %s: %w", path, err)
 	}
-	defer f.Close()
+	defer func() { _ = f.Close() }() // read only: a failing Close loses nothing
 	if f.Machine != want.machine || f.Class != want.class {
 		return nil, fmt.Errorf("binary %s is %v %v, not a %s binary: build it with the %s toolchain", path, f.Class, f.Machine, arch, arch)
 	}
@@ -190,7 +190,9 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	if err != nil {
 		return "", fmt.Errorf("temporary directory: %w", err)
 	}
-	defer os.RemoveAll(tmp)
+	// Best effort: a temporary directory left behind spoils no package, and the build's own
+	// error, if any, is the one to report.
+	defer func() { _ = os.RemoveAll(tmp) }()
 	gen := func(name string, data []byte) (string, error) {
 		p := filepath.Join(tmp, name)
 		return p, os.WriteFile(p, data, 0o644)
@@ -540,12 +542,12 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	if *arecordFrom != "" {
 		data, err := os.ReadFile(*arecordFrom)
 		if err != nil {
-			fmt.Fprintf(stderr, "debpkg: %v\n", err)
+			complain(stderr, "debpkg: %v\n", err)
 			return 2
 		}
 		out, err := ArecordConfig(data)
 		if err != nil {
-			fmt.Fprintf(stderr, "debpkg: %s: %v\n", *arecordFrom, err)
+			complain(stderr, "debpkg: %s: %v\n", *arecordFrom, err)
 			return 2
 		}
 		_, err = stdout.Write(out)
@@ -555,20 +557,20 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 		return 0
 	}
 	if s.Binary == "" || s.Version == "" || fs.NArg() != 0 {
-		fmt.Fprintln(stderr, "debpkg: give --binary FILE and --version VERSION (and no other arguments)")
+		complain(stderr, "debpkg: give --binary FILE and --version VERSION (and no other arguments)\n")
 		return 2
 	}
 	switch s.Compression {
 	case "gzip", "xz", "none":
 	default:
-		fmt.Fprintf(stderr, "debpkg: --compression %q: use gzip, xz or none\n", s.Compression)
+		complain(stderr, "debpkg: --compression %q: use gzip, xz or none\n", s.Compression)
 		return 2
 	}
 	if mtime == 0 {
 		if e := os.Getenv("SOURCE_DATE_EPOCH"); e != "" {
 			n, err := strconv.ParseInt(e, 10, 64)
 			if err != nil {
-				fmt.Fprintf(stderr, "debpkg: SOURCE_DATE_EPOCH=%q: give Unix seconds\n", e)
+				complain(stderr, "debpkg: SOURCE_DATE_EPOCH=%q: give Unix seconds\n", e)
 				return 2
 			}
 			mtime = n
@@ -579,10 +581,19 @@ func run(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	start := time.Now()
 	p, err := Build(ctx, s)
 	if err != nil {
-		fmt.Fprintf(stderr, "debpkg: %v\n", err)
+		complain(stderr, "debpkg: %v\n", err)
 		return 1
 	}
 	log.Info("package built", "file", p, "arch", s.Arch, "seconds", time.Since(start).Seconds())
-	fmt.Fprintln(stdout, p)
+	if _, err := fmt.Fprintln(stdout, p); err != nil {
+		return 1 // the caller reads the package's name from standard output
+	}
 	return 0
+}
+
+// complain writes a message for the user to standard error. The exit status already says the
+// run failed; a standard error that cannot be written leaves nowhere else to say so, so a
+// failed write is dropped.
+func complain(stderr io.Writer, format string, args ...any) {
+	_, _ = fmt.Fprintf(stderr, format, args...)
 }

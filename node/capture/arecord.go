@@ -100,8 +100,7 @@ func (s *arecordSource) Open(ctx context.Context) (Format, error) {
 	}
 	errR, errW, err := os.Pipe()
 	if err != nil {
-		outR.Close()
-		outW.Close()
+		closeAll(outR, outW)
 		return Format{}, fmt.Errorf("arecord: %w", err)
 	}
 	cmd := exec.Command(path, s.args()...)
@@ -111,11 +110,9 @@ func (s *arecordSource) Open(ctx context.Context) (Format, error) {
 	// Our own pipes rather than cmd.StdoutPipe: Wait then never closes the read ends, so the
 	// samples arecord wrote before it died are all read.
 	err = cmd.Start()
-	outW.Close()
-	errW.Close()
+	closeAll(outW, errW) // the child holds its own copies of the write ends
 	if err != nil {
-		outR.Close()
-		errR.Close()
+		closeAll(outR, errR)
 		return Format{}, fmt.Errorf("arecord: starting %s: %w: %w", path, ErrDeviceLost, err)
 	}
 	p := &arecordProc{cmd: cmd, stdout: outR, exited: make(chan struct{}), errDone: make(chan struct{})}
@@ -143,7 +140,7 @@ func (s *arecordSource) Open(ctx context.Context) (Format, error) {
 // arecord's standard error closes.
 func (s *arecordSource) readStderr(p *arecordProc, r *os.File) {
 	defer close(p.errDone)
-	defer r.Close()
+	defer closeAll(r)
 	sc := bufio.NewScanner(r)
 	for sc.Scan() {
 		line := strings.TrimSpace(sc.Text())
@@ -310,7 +307,7 @@ func (s *arecordSource) Close() error {
 	p := s.proc
 	s.mu.Unlock()
 	p.stop()
-	p.stdout.Close() // ends a Read blocked on the pipe
+	closeAll(p.stdout) // ends a Read blocked on the pipe
 	t := time.NewTimer(2 * time.Second)
 	defer t.Stop()
 	select {
@@ -324,4 +321,13 @@ func (s *arecordSource) Close() error {
 func (s *arecordSource) Describe() string {
 	return fmt.Sprintf("arecord: %s @%d Hz, channel %d of %d, %s", s.cfg.Device, s.cfg.SampleRate,
 		s.cfg.Channel, s.cfg.Channels, s.cfg.Sample)
+}
+
+// closeAll closes pipe ends whose data is read or no longer wanted. Closing a pipe end loses
+// nothing (only a second Close fails, with os.ErrClosed, and the callers close each end once),
+// so the errors are dropped here, in one place.
+func closeAll(fs ...*os.File) {
+	for _, f := range fs {
+		_ = f.Close()
+	}
 }

@@ -47,16 +47,16 @@ func (s *fileSource) Open(ctx context.Context) (Format, error) {
 	}
 	wr, err := wav.NewReader(f)
 	if err != nil {
-		f.Close()
+		_ = f.Close() // read only, and the header's error is the one to report
 		return Format{}, fmt.Errorf("file %s: %w: %w", s.cfg.File, ErrBadInput, err)
 	}
 	format, err := wavFormat(wr.Format(), s.cfg, "file "+s.cfg.File)
 	if err != nil {
-		f.Close()
+		_ = f.Close() // read only, and the format's error is the one to report
 		return Format{}, err
 	}
 	if s.pos > 0 && format != s.format {
-		f.Close()
+		_ = f.Close() // read only, and the change is the error to report
 		return Format{}, fmt.Errorf("file %s: %w: the file changed from %s to %s while it was replayed", s.cfg.File, ErrBadInput, s.format, format)
 	}
 	dec := newWAVDecoder(wr, format, s.cfg.FramesPerBuffer)

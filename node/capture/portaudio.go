@@ -147,11 +147,16 @@ func (s *paSource) Open(ctx context.Context) (Format, error) {
 	if s.stream != nil && !s.closed.Load() {
 		return s.format, fmt.Errorf("portaudio: already open")
 	}
-	s.release()
+	if err := s.release(); err != nil {
+		// What a closed or hung stream left behind: the open below starts afresh regardless.
+		s.logger.Warn("portaudio: releasing the previous stream", "err", err)
+	}
 	s.closed.Store(false)
 	f, err := s.open(ctx)
 	if err != nil {
-		s.release()
+		if rerr := s.release(); rerr != nil {
+			return Format{}, errors.Join(err, rerr)
+		}
 		return Format{}, err
 	}
 	return f, nil
@@ -298,7 +303,9 @@ func (s *paSource) Read(dst []float32) (int, error) {
 		err := s.read()
 		if s.closed.Load() {
 			// Close gave up waiting for this read (a hung device): release what it left.
-			s.release()
+			if rerr := s.release(); rerr != nil {
+				return 0, fmt.Errorf("portaudio: %w: %w", ErrClosed, rerr)
+			}
 			return 0, fmt.Errorf("portaudio: %w", ErrClosed)
 		}
 		if errors.Is(err, portaudio.InputOverflowed) {
@@ -405,7 +412,10 @@ func Devices() ([]DeviceInfo, error) {
 	if err := paInit(); err != nil {
 		return nil, err
 	}
-	defer paTerminate()
+	defer func() {
+		// The list is read; a Terminate that fails leaves nothing the next Initialize minds.
+		_ = paTerminate()
+	}()
 	devs, err := portaudio.Devices()
 	if err != nil {
 		return nil, fmt.Errorf("portaudio: listing devices: %w", err)

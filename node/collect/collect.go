@@ -163,8 +163,12 @@ func (c *Collector) Run(ctx context.Context) error {
 			return fmt.Errorf("listen %s: %w: choose another address or set listen = \"\"", c.cfg.Listen, err)
 		}
 		srv = &http.Server{Handler: c.m.handler(), ReadHeaderTimeout: 5 * time.Second}
-		go func() { _ = srv.Serve(l) }()
-		defer srv.Close()
+		go func() { _ = srv.Serve(l) }() // Serve returns ErrServerClosed after Close below
+		defer func() {
+			if err := srv.Close(); err != nil {
+				c.log.Warn("closing the metrics listener", "listen", c.cfg.Listen, "err", err)
+			}
+		}()
 	}
 	house := make(chan struct{})
 	go func() { defer close(house); c.housekeeping(ctx) }()

@@ -201,7 +201,9 @@ func (db *DB) inTx(ctx context.Context, f func(pgx.Tx) error) error {
 	if err != nil {
 		return err
 	}
-	defer tx.Rollback(ctx) //nolint:errcheck // a no-op after commit
+	// A no-op after Commit; after a failure f's error is the one to report, and a connection
+	// whose rollback failed is closed by pgx, which frees whatever the transaction held.
+	defer func() { _ = tx.Rollback(ctx) }()
 	if err := f(tx); err != nil {
 		return err
 	}

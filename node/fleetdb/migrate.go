@@ -3,6 +3,7 @@ package fleetdb
 import (
 	"context"
 	"embed"
+	"errors"
 	"fmt"
 	"sort"
 	"strconv"
@@ -56,7 +57,7 @@ func SchemaVersion() int {
 // Migrate applies every migration the database lacks, each in its own transaction, under an
 // advisory lock (several collectors may start at once). It returns the names applied. A
 // database newer than this release is an error: run the newer release.
-func (db *DB) Migrate(ctx context.Context) ([]string, error) {
+func (db *DB) Migrate(ctx context.Context) (_ []string, err error) {
 	ms, err := loadMigrations()
 	if err != nil {
 		return nil, err
@@ -69,7 +70,15 @@ func (db *DB) Migrate(ctx context.Context) ([]string, error) {
 	if _, err := conn.Exec(ctx, "SELECT pg_advisory_lock($1)", int64(migrationLock)); err != nil {
 		return nil, err
 	}
-	defer conn.Exec(context.WithoutCancel(ctx), "SELECT pg_advisory_unlock($1)", int64(migrationLock)) //nolint:errcheck
+	defer func() {
+		bg := context.WithoutCancel(ctx)
+		if _, uerr := conn.Exec(bg, "SELECT pg_advisory_unlock($1)", int64(migrationLock)); uerr != nil {
+			// The lock lasts as long as the session: close it, so that the pool does not hand
+			// out a session that still holds the lock and every other collector waits forever.
+			_ = conn.Conn().Close(bg) // the unlock's error is the one to report
+			err = errors.Join(err, fmt.Errorf("releasing the migration lock: %w", uerr))
+		}
+	}()
 	if _, err := conn.Exec(ctx, `CREATE SCHEMA IF NOT EXISTS leqnode;
 		CREATE TABLE IF NOT EXISTS leqnode.migrations (version integer PRIMARY KEY, name text NOT NULL,
 		applied_at timestamptz NOT NULL DEFAULT now())`); err != nil {

@@ -203,7 +203,7 @@ func readWholeMinutes(ctx context.Context, path string, from, to time.Time) (Ide
 	if err != nil {
 		return Identity{}, nil, fmt.Errorf("report: opening store %s: %w (a node still writing it holds it: check a copy)", path, err)
 	}
-	defer st.Close()
+	defer func() { _ = st.Close() }() // opened read only: closing it loses nothing
 	id, err := ReadIdentity(st, to)
 	if err != nil {
 		return id, nil, err

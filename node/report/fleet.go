@@ -126,7 +126,7 @@ func ComputeFleet(ctx context.Context, cfg FleetConfig) (*Fleet, error) {
 		if err == nil {
 			err = f.add(ctx, id, st)
 		}
-		st.Close()
+		_ = st.Close() // opened read only: closing it loses nothing
 		if err != nil {
 			return nil, err
 		}

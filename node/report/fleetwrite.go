@@ -2,7 +2,6 @@ package report
 
 import (
 	"bytes"
-	"encoding/csv"
 	"fmt"
 	"html/template"
 	"math"
@@ -87,8 +86,7 @@ func coord(v float64, ok bool) string {
 // level, limit, periods above it and coverage, the whole-day indicator over the range,
 // coverage, calibrator checks and health flags.
 func FleetNodesCSV(f *Fleet) []byte {
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	head := []string{"node_id", "site", "latitude", "longitude", "store_id", "LAeq", "LAeq_bound"}
 	prof := f.Config.Profile
 	for _, p := range prof.Periods {
@@ -117,8 +115,7 @@ func FleetNodesCSV(f *Fleet) []byte {
 		w.Write(append(row, pct(r.Coverage.Share), strconv.FormatBool(r.Coverage.Low), strconv.Itoa(n.Calibrations), strconv.Itoa(n.Failed),
 			strconv.Itoa(n.Snapshots), healthText(n.Health)))
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 func overallOf(r *indicator.Result, name string) *indicator.Overall {
@@ -132,8 +129,7 @@ func overallOf(r *indicator.Result, name string) *indicator.Overall {
 
 // fleetCoverageCSV returns the node-by-day coverage chart's numbers: one row per node and date.
 func fleetCoverageCSV(f *Fleet) []byte {
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	w.Write([]string{"node_id", "site", "date", "coverage_pct"})
 	g, days := f.coverageGrid()
 	for i, n := range f.Nodes {
@@ -145,16 +141,14 @@ func fleetCoverageCSV(f *Fleet) []byte {
 			w.Write([]string{n.NodeID, n.Site, d.Format(time.DateOnly), v})
 		}
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 // SimultaneousCSV returns one row per node sighting of each happening: its number, its start,
 // the node, the order in which the node saw it, its delay after the first, and the node's event
 // levels.
 func SimultaneousCSV(f *Fleet) []byte {
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	w.Write([]string{"happening", "start", "node_id", "site", "order", "delay_s", "event_start", "duration_s", "LAFmax", "LAeq", "LAE", "LCpeak"})
 	loc := f.Config.Location
 	for i, h := range f.Happenings {
@@ -166,8 +160,7 @@ func SimultaneousCSV(f *Fleet) []byte {
 				strconv.FormatFloat(e.End.Sub(e.Start).Seconds(), 'f', 1, 64), num(e.LAFmax), num(e.LAeq), num(e.LAE), num(e.LCpeak)})
 		}
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 type fleetPage struct {

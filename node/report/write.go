@@ -64,10 +64,33 @@ func writeFile(path string, data []byte) error {
 		return fmt.Errorf("report: writing %s: %w", path, err)
 	}
 	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
+		_ = os.Remove(tmp) // best effort: the Rename error is the one to report
 		return fmt.Errorf("report: writing %s: %w", path, err)
 	}
 	return nil
+}
+
+// memCSV writes CSV rows into memory. encoding/csv reports only its destination's errors
+// (csv.Writer.Error), and a bytes.Buffer takes every byte or panics, so its writes cannot fail
+// and return nothing.
+type memCSV struct {
+	buf bytes.Buffer
+	w   *csv.Writer
+}
+
+func newMemCSV() *memCSV {
+	m := &memCSV{}
+	m.w = csv.NewWriter(&m.buf)
+	return m
+}
+
+// Write adds a row.
+func (m *memCSV) Write(row []string) { _ = m.w.Write(row) }
+
+// Bytes returns the rows written.
+func (m *memCSV) Bytes() []byte {
+	m.w.Flush()
+	return m.buf.Bytes()
 }
 
 // nodeColumns puts the columns node_id and site in front of every row of a CSV file, so that
@@ -77,8 +100,7 @@ func nodeColumns(data []byte, id, site string) []byte {
 	if err != nil {
 		return data // our own CSV: cannot happen
 	}
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	for i, row := range rows {
 		head := []string{id, site}
 		if i == 0 {
@@ -86,8 +108,7 @@ func nodeColumns(data []byte, id, site string) []byte {
 		}
 		w.Write(append(head, row...))
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 // num formats a level with one decimal, or "" for no value.
@@ -112,8 +133,7 @@ func bounded(v float64, b record.Bound) string {
 // DailyCSV returns one row per reporting day: per period LAeq, LAF10, LAF90, limit, exceedance
 // and coverage; the day's LAeq, the whole-day indicator and the day's coverage.
 func DailyCSV(r *indicator.Result) []byte {
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	head := []string{"date", "complete"}
 	for _, p := range r.Profile.Periods {
 		n := p.Name
@@ -149,14 +169,12 @@ func DailyCSV(r *indicator.Result) []byte {
 		row = append(row, pct(d.Coverage.Share), strconv.FormatBool(d.Coverage.Low))
 		w.Write(row)
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 // HourlyCSV returns one row per local clock hour: LAeq and what is known of its seconds.
 func HourlyCSV(r *indicator.Result) []byte {
-	var buf bytes.Buffer
-	w := csv.NewWriter(&buf)
+	w := newMemCSV()
 	head := []string{"from", "LAeq", "LAeq_bound", "valid_s", "overload_s", "under_range_s"}
 	for why := record.Calibration; why < record.NumReasons; why++ {
 		head = append(head, why.String()+"_s")
@@ -171,8 +189,7 @@ func HourlyCSV(r *indicator.Result) []byte {
 		}
 		w.Write(append(row, f(c.Gap), f(c.Missing), pct(c.Share), strconv.FormatBool(c.Low)))
 	}
-	w.Flush()
-	return buf.Bytes()
+	return w.Bytes()
 }
 
 // page is what the HTML template shows.

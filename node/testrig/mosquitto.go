@@ -112,7 +112,7 @@ func (m *Mosquitto) Start() {
 	for {
 		c, err := net.DialTimeout("tcp", fmt.Sprintf("127.0.0.1:%d", m.Port), 200*time.Millisecond)
 		if err == nil {
-			c.Close()
+			_ = c.Close() // a probe that sent nothing: it has done its job
 			return
 		}
 		if time.Now().After(deadline) {

@@ -47,7 +47,12 @@ func StartPostgres(t testing.TB, o PostgresOptions) *Postgres {
 		t.Fatal(err)
 	}
 	p := &Postgres{t: t, Dir: dir, Port: FreePort(t), User: "leqtest", opts: o}
-	t.Cleanup(func() { p.Stop(); os.RemoveAll(dir) })
+	t.Cleanup(func() {
+		p.Stop()
+		if err := os.RemoveAll(dir); err != nil {
+			t.Logf("the PostgreSQL cluster is left in %s: %v", dir, err)
+		}
+	})
 	if os.Geteuid() == 0 {
 		u, err := user.Lookup("postgres")
 		if err != nil {
@@ -93,7 +98,7 @@ func (p *Postgres) Start() {
 	for {
 		c, err := (&net.Dialer{Timeout: 200 * time.Millisecond}).DialContext(context.Background(), "tcp", fmt.Sprintf("127.0.0.1:%d", p.Port))
 		if err == nil {
-			c.Close()
+			_ = c.Close() // a probe that sent nothing: it has done its job
 			return
 		}
 		if time.Now().After(deadline) {
