@@ -11,8 +11,10 @@ BIN := bin/leqnode
 # source, built with cgo), mosquitto and openssl (the MQTT tests' broker and test CA), systemd
 # (systemd-analyze for the unit), chromium (the status page and report in a real browser),
 # python3-scipy (the scipy chain that `leqnode analyze` is benchmarked against) and postgresql
-# (the central collector's database, started by its tests as user postgres).
-TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium python3-scipy postgresql
+# (the central collector's database, started by its tests as user postgres), binutils (readelf,
+# the packaging test's independent reading of a binary's library versions) and tzdata (the
+# reports' local days and periods in named time zones).
+TEST_DEBS := gcc libc6-dev sox alsa-utils portaudio19-dev mosquitto mosquitto-clients openssl systemd chromium python3-scipy postgresql binutils tzdata
 # What building the daemon with PortAudio needs.
 # Without a C compiler Go turns cgo off quietly and the PortAudio source drops out of the build.
 BUILD_DEBS := gcc libc6-dev portaudio19-dev

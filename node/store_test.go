@@ -1,6 +1,7 @@
 package node
 
 import (
+	"fmt"
 	"log/slog"
 	"math"
 	"os"
@@ -11,6 +12,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/dsp"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // smallFS mounts a tmpfs of the given size for the test (a full disk without filling the
@@ -19,12 +21,13 @@ func smallFS(t *testing.T, size string) string {
 	t.Helper()
 	dir := t.TempDir()
 	if out, err := exec.Command("mount", "-t", "tmpfs", "-o", "size="+size, "tmpfs", dir).CombinedOutput(); err != nil {
-		if os.Getenv("CI") == "true" {
-			t.Fatalf("mounting a tmpfs for the full-disk test: %v: %s", err, out)
-		}
-		t.Skipf("cannot mount a tmpfs (needs root): %v: %s", err, out)
+		testrig.Missing(t, fmt.Sprintf("cannot mount a tmpfs for the full-disk test (needs root): %v: %s", err, out))
 	}
-	t.Cleanup(func() { exec.Command("umount", "-l", dir).Run() })
+	t.Cleanup(func() {
+		if out, err := exec.Command("umount", "-l", dir).CombinedOutput(); err != nil {
+			t.Errorf("unmounting the test's tmpfs %s: %v: %s", dir, err, out)
+		}
+	})
 	return dir
 }
 

@@ -31,6 +31,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // repoRoot is the source tree: tests run in deploy/debpkg.
@@ -72,12 +73,26 @@ func mustRun(t *testing.T, name string, args ...string) string {
 	return out
 }
 
+// toolPackage names the Debian package of each program the tests run.
+var toolPackage = map[string]string{
+	"readelf": "binutils", "dpkg": "dpkg", "dpkg-deb": "dpkg", "dpkg-query": "dpkg", "md5sum": "coreutils",
+	"getent": "libc-bin", "systemd-analyze": "systemd", "openssl": "openssl",
+	"mosquitto": "mosquitto", "mosquitto_passwd": "mosquitto", "mosquitto_pub": "mosquitto-clients",
+	"qemu-aarch64-static": "qemu-user-static", "qemu-arm-static": "qemu-user-static", "lintian": "lintian",
+	"go": "golang-go (or Go from the project's toolchain)",
+}
+
+// need makes sure the programs are there: a missing one fails the test under CI=true and skips
+// it elsewhere (testrig.Need), naming its Debian package (make test-deps or make package-deps
+// installs it).
 func need(t *testing.T, tools ...string) {
 	t.Helper()
 	for _, tool := range tools {
-		if _, err := exec.LookPath(tool); err != nil {
-			t.Skipf("%s not found: install its Debian package (make package-deps / make test-deps)", tool)
+		pkg, ok := toolPackage[tool]
+		if !ok {
+			t.Fatalf("need: no Debian package known for %s: add it to toolPackage", tool)
 		}
+		testrig.Need(t, pkg, tool)
 	}
 }
 
@@ -149,6 +164,10 @@ func debs(t *testing.T) map[string]string {
 
 func TestDependenciesOfSystemBinaries(t *testing.T) {
 	need(t, "readelf")
+	notELF := filepath.Join(t.TempDir(), "hostname")
+	if err := os.WriteFile(notELF, []byte("wendle-cross-07\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
 	// Real ELF files of the machine, read by debug/elf; the expected GLIBC bound is read
 	// independently from readelf's version references (binutils).
 	tests := []struct {
@@ -160,12 +179,12 @@ func TestDependenciesOfSystemBinaries(t *testing.T) {
 		{"wrong machine", "/bin/true", "arm64", "not a arm64 binary", true},
 		{"unknown library", "/bin/ls", "amd64", "libselinux.so.1", true},
 		{"unknown arch", "/bin/true", "mips", `use amd64, arm64 or armhf`, true},
-		{"not ELF", "/etc/hostname", "amd64", "/etc/hostname", true},
+		{"not ELF", notELF, "amd64", notELF, true},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			if _, err := os.Stat(tc.path); err != nil {
-				t.Skip(err)
+				testrig.Missing(t, fmt.Sprintf("%v: the Debian package coreutils is missing", err))
 			}
 			deps, err := Dependencies(tc.path, tc.arch)
 			if tc.fails {
@@ -504,11 +523,11 @@ func TestPreinstRefusesARMv6(t *testing.T) {
 // installAllowed says whether the test may install packages on this machine for real.
 func installAllowed(t *testing.T) {
 	t.Helper()
-	if os.Geteuid() != 0 {
-		t.Skip("installing a package needs root")
-	}
 	if os.Getenv("CI") != "true" && os.Getenv("LEQNODE_PACKAGE_INSTALL") != "1" {
 		t.Skip("installs for real only in CI (CI=true) or with LEQNODE_PACKAGE_INSTALL=1")
+	}
+	if os.Geteuid() != 0 {
+		testrig.Missing(t, "installing a package needs root: run the test as root")
 	}
 	if out, _ := runCmd(context.Background(), "", nil, "dpkg-query", "-W", "-f=${Status}", "leqnode"); strings.Contains(out, "installed") {
 		t.Skipf("leqnode is already installed here (%s); the test will not touch it", out)

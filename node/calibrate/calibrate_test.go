@@ -248,10 +248,12 @@ func TestDriftScenario(t *testing.T) {
 		t.Errorf("suspect seconds %v, want 20 to 44", suspect)
 	}
 	var cals []*buffer.Calibration
-	s.Range(buffer.KindCalibration, t0, t0.Add(time.Minute), func(r buffer.Record) error {
+	if err := s.Range(buffer.KindCalibration, t0, t0.Add(time.Minute), func(r buffer.Record) error {
 		cals = append(cals, r.(*buffer.Calibration))
 		return nil
-	})
+	}); err != nil {
+		t.Fatal(err)
+	}
 	if len(cals) != 3 || !cals[0].OK || !cals[1].OK || cals[2].OK {
 		t.Errorf("stored checks: %+v", cals)
 	}
@@ -344,17 +346,25 @@ func TestState(t *testing.T) {
 	if got, _ := LoadState(dir); got.SensitivityDBFS != -24.9 {
 		t.Errorf("a refused save changed the state: %+v", got)
 	}
-	os.WriteFile(filepath.Join(dir, StateFile), []byte(`{"sensitivity_dBFS": 12`), 0o644)
+	// Each case writes its own file: a write that failed would leave the previous case's file,
+	// whose error could pass for this one's.
+	put := func(content string) {
+		t.Helper()
+		if err := os.WriteFile(filepath.Join(dir, StateFile), []byte(content), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	put(`{"sensitivity_dBFS": 12`)
 	if _, err := LoadState(dir); err == nil || errors.Is(err, fs.ErrNotExist) {
 		t.Errorf("damaged state: %v", err)
 	}
-	os.WriteFile(filepath.Join(dir, StateFile), []byte(`{"sensitivity_dBFS": 12, "nominal_dBFS": -26}`), 0o644)
+	put(`{"sensitivity_dBFS": 12, "nominal_dBFS": -26}`)
 	if _, err := LoadState(dir); err == nil {
 		t.Error("positive sensitivity accepted")
 	}
 	// Keys in another case are not the state's keys (encoding/json matched them without
 	// regard to case, issue 20): the file is damaged, not a sensitivity of -20.
-	os.WriteFile(filepath.Join(dir, StateFile), []byte(`{"SENSITIVITY_DBFS": -20, "nominal_dBFS": -26, "at": "2031-05-01T00:00:00Z", "reference_dB": 94, "frequency_hz": 1000}`), 0o644)
+	put(`{"SENSITIVITY_DBFS": -20, "nominal_dBFS": -26, "at": "2031-05-01T00:00:00Z", "reference_dB": 94, "frequency_hz": 1000}`)
 	if _, err := LoadState(dir); err == nil || !strings.Contains(err.Error(), "case-sensitive") {
 		t.Errorf("state with a key in another case: %v", err)
 	}

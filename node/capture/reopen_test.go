@@ -21,9 +21,17 @@ func TestReopenResumes(t *testing.T) {
 	for i, v := range x {
 		wantF[i] = float32(v)
 	}
-	sc, _ := New(Config{Kind: KindSynthetic, SampleRate: 8000, DurationSeconds: 9000.0 / 8000}, nil)
-	sc.Open(context.Background())
+	sc, err := New(Config{Kind: KindSynthetic, SampleRate: 8000, DurationSeconds: 9000.0 / 8000}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := sc.Open(context.Background()); err != nil {
+		t.Fatal(err)
+	}
 	wantS, _ := readAll(t, sc, 1000, 1<<20)
+	if len(wantS) != 9000 {
+		t.Fatalf("the synthetic scene gave %d samples, want 9000", len(wantS))
+	}
 	sc.Close()
 
 	tests := []struct {
