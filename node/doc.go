@@ -13,6 +13,16 @@
 // after a crash each leave an explicit gap record, so that a report can tell silence from
 // missing data.
 //
+// The processing goroutine keeps the clock anchoring, the cutting of seconds and their flags;
+// the measurements beside the meter (noise events, the calibrator watch, the health checks) are
+// side-chains with their own state that it drives through one small interface. It does no file
+// I/O but the store's appends, which the store commits in groups: the sensitivity state file
+// that an applied calibration writes goes to a state writer goroutine, and the machine's
+// readings (memory, free space, temperature, clock state) come from a system watcher goroutine.
+// Every store error is handled: a store that cannot write (a full disk) raises the store-fault
+// flag while the node measures on, and any other store error stops the node and comes back
+// from Run.
+//
 // Sub-packages hold the parts: capture (audio sources), wav (WAV codec), scene (the synthetic
 // demo scene), analyze (offline analysis with the same chain) and publish (MQTT).
 package node

@@ -99,7 +99,8 @@ type Options struct {
 	// Now is the system clock (default time.Now); tests inject their own.
 	Now func() time.Time
 	// ClockSynced reports whether the system clock is synchronised (default: the kernel's
-	// view through adjtimex). Checked once a minute.
+	// view through adjtimex). Checked when the node starts and every 10 s after, on a
+	// goroutine of the node's own: it may block without holding up the measurement.
 	ClockSynced func() bool
 
 	// OnSecond and OnMinute, when set, receive each record after it is appended (the live
@@ -251,7 +252,7 @@ func (n *Node) Run(ctx context.Context) error {
 	o := &n.o
 	ctx, cancel := context.WithCancel(ctx)
 	defer cancel()
-	sys := newSysWatch(o.Store.Path(), o.Health.ThermalDir)
+	sys := newSysWatch(o.Store.Path(), o.Health.ThermalDir, o.ClockSynced)
 	sysDone := make(chan struct{})
 	go func() {
 		defer close(sysDone)

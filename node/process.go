@@ -35,8 +35,7 @@ type processor struct {
 	secFlags    buffer.Flags
 	secDropped  uint64
 	settleUntil time.Time
-	synced      bool
-	syncChecked time.Time
+	synced      bool // the system clock was synchronised at the latest reading (sysWatch)
 
 	// The side-chains, in the order they see each block: the calibrator watch first (events
 	// are suppressed while it hears a calibrator). events and cal are nil when not configured.
@@ -290,7 +289,6 @@ func (p *processor) closeSecondAt() error {
 
 // data measures one block.
 func (p *processor) data(ev handoff) error {
-	o := p.o
 	x := ev.samples
 	n := int64(len(x))
 	if p.rate.faulty {
@@ -330,9 +328,7 @@ func (p *processor) data(ev handoff) error {
 			p.nextSecond = after.Truncate(time.Second).Add(time.Second)
 		}
 	}
-	if now := o.Now(); now.Sub(p.syncChecked) >= time.Minute {
-		p.synced, p.syncChecked = o.ClockSynced(), now
-	}
+	p.synced = p.health.sys.latest().synced
 	for _, c := range p.chains {
 		if err := c.block(x); err != nil {
 			return err

@@ -14,13 +14,15 @@ import (
 	"golang.org/x/sys/unix"
 )
 
-// sysWatch reads the machine's state that the health snapshots report (resident memory, free
-// space under the store, board temperature, the kernel's clock error) on a goroutine of its
-// own, every sysEvery, so that the processing goroutine reads no file: /proc and /sys reads are
-// quick, but statfs on a failing memory card is not. A snapshot carries the latest reading, at
-// most sysEvery old.
+// sysWatch reads the machine's state that the records report (resident memory, free space
+// under the store, board temperature, the kernel's clock error, whether the clock is
+// synchronised) on a goroutine of its own, every sysEvery, so that the processing goroutine
+// reads no file: /proc and /sys reads are quick, but statfs on a failing memory card is not,
+// and the clock check may fall back to a file (KernelClockSynced). Records carry the latest
+// reading, at most sysEvery old.
 type sysWatch struct {
 	storePath, thermalDir string
+	clockSynced           func() bool
 	last                  atomic.Pointer[sysReading]
 }
 
@@ -32,17 +34,19 @@ const sysEvery = 10 * time.Second
 // temperature NaN.
 type sysReading struct {
 	memoryMB, diskFreeMB, clockErrorMs, temperatureC float64
+	synced                                           bool
 }
 
-// newSysWatch takes a first reading at once, so that the first snapshot has one.
-func newSysWatch(storePath, thermalDir string) *sysWatch {
-	w := &sysWatch{storePath: storePath, thermalDir: thermalDir}
+// newSysWatch takes a first reading at once, so that the first record has one.
+func newSysWatch(storePath, thermalDir string, clockSynced func() bool) *sysWatch {
+	w := &sysWatch{storePath: storePath, thermalDir: thermalDir, clockSynced: clockSynced}
 	w.read()
 	return w
 }
 
 func (w *sysWatch) read() {
-	r := &sysReading{memoryMB: residentMB(), diskFreeMB: diskFreeMB(w.storePath), clockErrorMs: clockErrorMs(), temperatureC: math.NaN()}
+	r := &sysReading{memoryMB: residentMB(), diskFreeMB: diskFreeMB(w.storePath), clockErrorMs: clockErrorMs(),
+		temperatureC: math.NaN(), synced: w.clockSynced()}
 	if t, ok := boardTemperature(w.thermalDir); ok {
 		r.temperatureC = t
 	}
