@@ -230,7 +230,7 @@ func (c *calChain) checked(d dsp.Detection, rec *buffer.Calibration, ref float64
 	dr, err := calibrate.RecordCheck(p.o.Store, rec)
 	switch {
 	case errors.Is(err, buffer.ErrNotCommitted) || errors.Is(err, buffer.ErrRefused):
-		p.storeFailing(err) // held, or refused and counted; the node measures on
+		p.rec.failing(err) // held, or refused and counted; the node measures on
 	case err != nil:
 		c.err = fmt.Errorf("node: storing a calibration check: %w", err)
 	}

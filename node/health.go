@@ -191,7 +191,7 @@ func (h *healthChain) after(f buffer.Flags, now time.Time) error {
 		return nil
 	}
 	rec := h.snapshot(now)
-	p.checkSpaceCap(rec)
+	p.rec.checkSpaceCap(rec)
 	p.n.lastHealth.Store(rec)
 	return p.append(rec)
 }

@@ -35,23 +35,11 @@ func (p *processor) endOutage(firstSample time.Time) error {
 	if why == "" {
 		why = "no audio yet"
 	}
-	return p.gap(from, firstSample, why)
+	return p.rec.gap(from, firstSample, why)
 }
 
 // minGap is the shortest stretch without records that is recorded as a gap.
 const minGap = 50 * time.Millisecond
-
-func (p *processor) gap(from, to time.Time, why string) error {
-	if to.Before(from) {
-		from, to = to, from
-	}
-	if !to.After(from) {
-		return nil
-	}
-	p.n.Counters.Gaps.Add(1)
-	p.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
-	return p.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
-}
 
 // lost closes the partial second and remembers when the source went away.
 func (p *processor) lost(why string) error {

@@ -44,8 +44,8 @@ type processor struct {
 	cal    *calChain
 	chains []sideChain
 
-	store storeState  // what the node knows of a store that cannot write
-	rate  deviceState // what the node knows of a device at the wrong rate
+	rec  *recorder   // appends to the store, and follows a store that cannot write
+	rate deviceState // what the node knows of a device at the wrong rate
 
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
@@ -60,6 +60,7 @@ func newProcessor(n *Node, states *stateWriter, sys *sysWatch) *processor {
 	o := &n.o
 	p := &processor{n: n, o: o, minutes: newMinuteBuilder()}
 	p.health = &healthChain{p: p, o: o.Health, sys: sys}
+	p.rec = &recorder{n: n, o: o, health: p.health}
 	if o.Calibration != nil {
 		p.cal = newCalChain(p, states)
 		p.chains = append(p.chains, p.cal)
@@ -318,7 +319,7 @@ func (p *processor) data(ev handoff) error {
 				return err
 			}
 			after := p.clock.Time(p.pos)
-			if err := p.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {
+			if err := p.rec.gap(before, after, fmt.Sprintf("system clock stepped by %v", step.Round(time.Millisecond))); err != nil {
 				return err
 			}
 			if err := p.flushMinutes(); err != nil {
@@ -442,6 +443,9 @@ func (p *processor) storeMinute(rec *buffer.Minute) error {
 	return nil
 }
 
+// append stores r (recorder.append).
+func (p *processor) append(r buffer.Record) error { return p.rec.append(r) }
+
 // flushMinutes puts every waiting second into its minute and stores the minute: the stream
 // ended or the clock stepped.
 func (p *processor) flushMinutes() error { return p.minutes.flush(p.storeMinute) }
@@ -459,13 +463,6 @@ func (p *processor) finish() error {
 		// The processing is over: waiting for the file system no longer holds up the audio.
 		errs = append(errs, p.cal.saved(<-p.cal.states.done))
 	}
-	if p.store.failing {
-		// A last try, so that what the store refused is explained before the node stops.
-		if err := p.o.Store.Flush(); err == nil {
-			errs = append(errs, p.storeRecovered())
-		} else {
-			p.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", p.store.lost)
-		}
-	}
+	errs = append(errs, p.rec.finish())
 	return errors.Join(errs...)
 }

@@ -45,36 +45,74 @@ func (s *storeState) lose(r buffer.Record) {
 	s.lost++
 }
 
-// storeFailing raises the store-fault flag at once and logs at most once a minute.
-func (p *processor) storeFailing(err error) {
-	s := &p.store
-	now := p.o.Now()
+// recorder appends the processing goroutine's records to the store. A store that cannot write
+// (a full disk, an I/O error) never stops the node: records the store holds in memory are
+// written when it can again (buffer.ErrNotCommitted); what it refuses is counted and covered by
+// a gap record once it accepts records again (buffer.ErrRefused). Meanwhile the store-fault
+// health flag is raised. Any other store error is returned, and stops the node.
+type recorder struct {
+	n      *Node
+	o      *Options
+	health *healthChain
+	state  storeState
+}
+
+// failing raises the store-fault flag at once and logs at most once a minute.
+func (w *recorder) failing(err error) {
+	s := &w.state
+	now := w.o.Now()
 	if !s.failing {
 		s.failing, s.since = true, now
-		p.health.raise(buffer.StoreFault)
-		p.n.log.Error("the store cannot write: measuring on, records held in memory; free space on its file system",
-			"store", p.o.Store.Path(), "err", err)
+		w.health.raise(buffer.StoreFault)
+		w.n.log.Error("the store cannot write: measuring on, records held in memory; free space on its file system",
+			"store", w.o.Store.Path(), "err", err)
 		s.lastLog = now
-		p.health.now(now)
+		w.health.now(now)
 	} else if now.Sub(s.lastLog) >= storeLogEvery {
-		p.n.log.Error("the store still cannot write", "store", p.o.Store.Path(), "since", s.since.UTC(), "refused", s.lost, "err", err)
+		w.n.log.Error("the store still cannot write", "store", w.o.Store.Path(), "since", s.since.UTC(), "refused", s.lost, "err", err)
 		s.lastLog = now
 	}
 	s.lastErr = err
 }
 
-// storeRecovered clears the flag and covers what the store refused with a gap record.
-func (p *processor) storeRecovered() error {
-	s := &p.store
+// recovered clears the flag and covers what the store refused with a gap record.
+func (w *recorder) recovered() error {
+	s := &w.state
 	lost, from, to := s.lost, s.lostFrom, s.lostTo
-	p.n.log.Info("the store writes again", "store", p.o.Store.Path(), "failed_for", p.o.Now().Sub(s.since).Round(time.Second), "refused", lost)
+	w.n.log.Info("the store writes again", "store", w.o.Store.Path(), "failed_for", w.o.Now().Sub(s.since).Round(time.Second), "refused", lost)
 	*s = storeState{}
-	p.health.clear(buffer.StoreFault)
-	p.health.now(p.o.Now())
+	w.health.clear(buffer.StoreFault)
+	w.health.now(w.o.Now())
 	if lost > 0 {
-		return p.gap(from, to, fmt.Sprintf("the store could not write (full disk or I/O error): %d records could not be kept", lost))
+		return w.gap(from, to, fmt.Sprintf("the store could not write (full disk or I/O error): %d records could not be kept", lost))
 	}
 	return nil
+}
+
+// finish makes a last try when the node stops, so that what a failing store refused is
+// explained (a gap record) or, when it still cannot write, logged.
+func (w *recorder) finish() error {
+	if !w.state.failing {
+		return nil
+	}
+	if err := w.o.Store.Flush(); err != nil {
+		w.n.log.Error("the store still cannot write as the node stops: records held in memory are lost", "err", err, "refused", w.state.lost)
+		return nil // said; Run's own Flush returns the error
+	}
+	return w.recovered()
+}
+
+// gap stores a gap record for [from, to): time without measurement, and why.
+func (w *recorder) gap(from, to time.Time, why string) error {
+	if to.Before(from) {
+		from, to = to, from
+	}
+	if !to.After(from) {
+		return nil
+	}
+	w.n.Counters.Gaps.Add(1)
+	w.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
+	return w.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
 }
 
 // spaceRoom is the free space on the store's file system, in MB, at which a store that a full
@@ -84,46 +122,43 @@ const spaceRoom = 64
 // checkSpaceCap keeps store-fault raised while a full file system holds the store within its
 // file (it gives up its oldest records to take new ones), and lifts the cap once the file
 // system has room again.
-func (p *processor) checkSpaceCap(rec *buffer.Health) {
-	capped := p.o.Store.SpaceCapped() > 0
+func (w *recorder) checkSpaceCap(rec *buffer.Health) {
+	capped := w.o.Store.SpaceCapped() > 0
 	if capped && rec.DiskFreeMB >= spaceRoom {
-		p.o.Store.ResetSpaceCap()
+		w.o.Store.ResetSpaceCap()
 		capped = false
 	}
 	switch {
 	case capped:
-		p.health.raise(buffer.StoreFault)
+		w.health.raise(buffer.StoreFault)
 		rec.Flags |= buffer.StoreFault
-	case !p.store.failing:
-		p.health.clear(buffer.StoreFault)
+	case !w.state.failing:
+		w.health.clear(buffer.StoreFault)
 	}
 }
 
-// append stores r. A store that cannot write (a full disk, an I/O error) never stops the
-// node: records it holds in memory are written when it can again (buffer.ErrNotCommitted);
-// what it refuses is covered by a gap record once it accepts records again
-// (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
-func (p *processor) append(r buffer.Record) error {
-	if p.o.Synthetic {
+// append stores r; see recorder for what happens when the store cannot write.
+func (w *recorder) append(r buffer.Record) error {
+	if w.o.Synthetic {
 		markSynthetic(r)
 	}
-	_, err := p.o.Store.Append(r)
+	_, err := w.o.Store.Append(r)
 	switch {
 	case err == nil:
-		if p.store.failing {
-			return p.storeRecovered()
+		if w.state.failing {
+			return w.recovered()
 		}
 	case errors.Is(err, buffer.ErrNotCommitted):
-		p.storeFailing(err)
+		w.failing(err)
 	case errors.Is(err, buffer.ErrRefused):
-		p.storeFailing(err)
-		p.store.lose(r)
+		w.failing(err)
+		w.state.lose(r)
 		return nil
 	default:
 		return fmt.Errorf("node: storing a %T: %w", r, err)
 	}
-	if p.o.Notify != nil {
-		p.o.Notify()
+	if w.o.Notify != nil {
+		w.o.Notify()
 	}
 	return nil
 }
