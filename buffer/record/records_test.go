@@ -1,11 +1,10 @@
-package buffer
+package record
 
 import (
 	"errors"
 	"math"
 	"math/rand/v2"
 	"reflect"
-	"strconv"
 	"testing"
 	"time"
 )
@@ -293,18 +292,5 @@ func TestHistogramMerge(t *testing.T) {
 	}
 	if got.Total() != a.Total()+b.Total() {
 		t.Errorf("total %d", got.Total())
-	}
-}
-
-// bbolt maps the whole file: on 32-bit builds the cap must leave room in a 4 GiB address space.
-// The 512 MiB and 1 GiB defaults are the project's decision (common practice for bbolt on
-// 32-bit boards), not a published value.
-func TestDefaultMaxBytes(t *testing.T) {
-	want := int64(1 << 30)
-	if strconv.IntSize == 32 {
-		want = 512 << 20
-	}
-	if DefaultMaxBytes != want {
-		t.Errorf("DefaultMaxBytes = %d on a %d-bit build, want %d", DefaultMaxBytes, strconv.IntSize, want)
 	}
 }
