@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 )
 
 // Benchmarks. `make test` runs each once on small data; the sizes grow with environment
@@ -50,7 +51,7 @@ func minuteRecord(start time.Time, laeq float64) *record.Minute {
 	m := &record.Minute{Start: start, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9, LAFmax: laeq + 12, LAFmin: laeq - 8,
 		LAF1: laeq + 9, LAF5: laeq + 6, LAF10: laeq + 4, LAF50: laeq - 1, LAF90: laeq - 5, LAF95: laeq - 6,
 		LAF99: laeq - 7, LAE: laeq + 17.8, LCpeak: laeq + 30, LAImax: laeq + 14,
-		Spectrum: thirdOctave(33, laeq-30), FirstBand: -19, ValidSeconds: 60}
+		Spectrum: recordtest.ThirdOctave(33, laeq-30), FirstBand: -19, ValidSeconds: 60}
 	m.Histogram.First = int32(10 * (laeq - 9))
 	m.Histogram.Counts = make([]uint32, 250)
 	for i := range m.Histogram.Counts {

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 )
 
 // The crash test re-executes the test binary as a writer child. The child appends records as
@@ -192,7 +193,7 @@ func verifyCrashStore(t *testing.T, path string, reported map[uint64]bool, kill 
 			}
 			want := crashSecond(r.Seq())
 			want.SetSeq(r.Seq())
-			if !sameRecord(r, want) {
+			if !recordtest.Same(r, want) {
 				t.Fatalf("kill %d: record %d has the wrong content: %+v", kill, r.Seq(), r)
 			}
 			last = r.Seq()

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -56,7 +57,7 @@ func openTest(t testing.TB, path string, o *Options) *Store {
 func second(start time.Time, laeq float64) *record.Second {
 	return &record.Second{Start: start, Duration: time.Second, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9,
 		LAFmax: laeq + 4, LAFmin: laeq - 4, LASmax: laeq + 2, LASmin: laeq - 2, LAImax: laeq + 5,
-		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: thirdOctave(33, laeq-30), FirstBand: -19}
+		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: recordtest.ThirdOctave(33, laeq-30), FirstBand: -19}
 }
 
 func collect(t testing.TB, s *Store, k record.Kind, from, to time.Time) []record.Record {
@@ -85,7 +86,7 @@ func TestAppendReopen(t *testing.T) {
 	}
 	var want []record.Record
 	for i := range 5 {
-		for _, r := range sampleRecords() {
+		for _, r := range recordtest.Samples() {
 			if sec, ok := r.(*record.Second); ok {
 				sec.Start = sec.Start.Add(time.Duration(i) * 2 * time.Second)
 			}
