@@ -213,7 +213,7 @@ func TestNodeIDAndSourceRequired(t *testing.T) {
 
 // TestOneCommitInterval: the commit interval has one default, buffer.DefaultCommitInterval
 // (60 s, chosen from the write-volume measurements in package buffer), and the configuration's
-// default, both example files and the README all state that value (issue 19 item 8: the code
+// default, both example files and docs/store.md all state that value (issue 19 item 8: the code
 // and the packaged file said 10 s, the README and the other file 60 s).
 func TestOneCommitInterval(t *testing.T) {
 	if got := Default().CommitInterval(); got != buffer.DefaultCommitInterval {
@@ -228,12 +228,12 @@ func TestOneCommitInterval(t *testing.T) {
 			t.Errorf("%s: commit_interval %v, want the default %v", f, c.CommitInterval(), buffer.DefaultCommitInterval)
 		}
 	}
-	readme, err := os.ReadFile("../../README.md")
+	readme, err := os.ReadFile("../../docs/store.md")
 	if err != nil {
 		t.Fatal(err)
 	}
 	want := fmt.Sprintf("committed every %g s (`store.commit_interval`)", buffer.DefaultCommitInterval.Seconds())
 	if !strings.Contains(string(readme), want) {
-		t.Errorf("README.md does not say %q", want)
+		t.Errorf("docs/store.md does not say %q", want)
 	}
 }
