@@ -16,7 +16,7 @@ import (
 )
 
 // Benchmarks. `make test` runs each once on small data; the sizes grow with environment
-// variables for the figures in the README:
+// variables for the figures in docs/store.md and docs/performance.md:
 //
 //	LEQNODE_BENCH_RECORDS  stored records for BenchmarkAppend's large case (default 100000)
 //	LEQNODE_BENCH_DAYS     days of second records for BenchmarkRange and BenchmarkWriteVolume

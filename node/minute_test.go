@@ -37,7 +37,7 @@ func minuteFromSeconds(t *testing.T, st *buffer.Store, m time.Time) (counted []f
 		if s.Start.Before(m) || !s.Start.Before(m.Add(time.Minute)) {
 			continue
 		}
-		// The rule, written out (README, "Which seconds count"): calibrating, settling,
+		// The rule, written out (docs/measuring.md, "Which seconds count"): calibrating, settling,
 		// excluded, suspect, dropped and silent seconds are left out; overloaded seconds stay.
 		if s.Flags&(record.Calibrating|record.Settling|record.Excluded|record.Suspect|record.Dropped|record.DigitalSilence) != 0 || math.IsNaN(s.LAeq) {
 			leftOut++

@@ -70,16 +70,16 @@ func TestExceeds(t *testing.T) {
 	}
 }
 
-// TestREADMEListsEveryFlag: the README's "Which seconds count" names every flag and reason.
+// TestREADMEListsEveryFlag: "Which seconds count" in docs/measuring.md names every flag and reason.
 func TestREADMEListsEveryFlag(t *testing.T) {
-	b, err := os.ReadFile(filepath.Join("..", "..", "README.md"))
+	b, err := os.ReadFile(filepath.Join("..", "..", "docs", "measuring.md"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	s := string(b)
 	i := strings.Index(s, "## Which seconds count")
 	if i < 0 {
-		t.Fatal("README has no section \"Which seconds count\"")
+		t.Fatal("docs/measuring.md has no section \"Which seconds count\"")
 	}
 	sec := s[i:]
 	if j := strings.Index(sec[3:], "\n#"); j > 0 {
@@ -87,7 +87,7 @@ func TestREADMEListsEveryFlag(t *testing.T) {
 	}
 	for _, n := range FlagNames() {
 		if !strings.Contains(sec, "`"+n+"`") {
-			t.Errorf("README's rule does not name the flag %q", n)
+			t.Errorf("docs/measuring.md's rule does not name the flag %q", n)
 		}
 		if FlagMeaning(n) == "" {
 			t.Errorf("flag %q has no meaning", n)
@@ -95,7 +95,7 @@ func TestREADMEListsEveryFlag(t *testing.T) {
 	}
 	for r := ReasonCalibrating; r < NumReasons; r++ {
 		if !strings.Contains(sec, "`"+r.String()+"`") {
-			t.Errorf("README's rule does not name the reason %q", r)
+			t.Errorf("docs/measuring.md's rule does not name the reason %q", r)
 		}
 	}
 }

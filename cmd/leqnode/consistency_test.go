@@ -64,7 +64,7 @@ func consistencySignal() []float32 {
 // second records, the minute records, `leqnode export`, the status page's JSON, the metrics and
 // the report: the numbers agree to the rounding and carry the same names. Expected minute levels
 // are the energy mean of the counted seconds written out here (ISO 1996-1:2016, 3.1.7), with the
-// rule of the README's "Which seconds count" applied by hand.
+// rule of "Which seconds count" (docs/measuring.md) applied by hand.
 func TestOneTruth(t *testing.T) {
 	dir := t.TempDir()
 	sig := writeWAV(t, dir, "street.wav", wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.Float32}, consistencySignal())

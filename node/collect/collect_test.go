@@ -92,7 +92,7 @@ func TestNothingLostThroughFaults(t *testing.T) {
 	r := newRig(t)
 	// A direct subscription: with mosquitto 2.0.11 (Debian 12), a persistent session's shared
 	// subscription received nothing more after a broker restart with messages in flight to the
-	// collector, even when subscribed again (seen in this test; README, "The central collector").
+	// collector, even when subscribed again (seen in this test; docs/collector.md, "The central collector").
 	cfgPath := r.configFile(r.config(func(c *Config) { c.Broker.ShareGroup = "" }))
 	col := startChild(t, cfgPath)
 	n := startNode(t, r, "wendle-cross-05", nil)

@@ -12,7 +12,7 @@ import (
 )
 
 // benchHours is the backlog size of BenchmarkBacklog in hours of records: 1 by default (cheap
-// in make test), LEQNODE_BENCH_HOURS=24 for the README figure.
+// in make test), LEQNODE_BENCH_HOURS=24 for the figure in docs/mqtt.md.
 func benchHours(b *testing.B) int {
 	h := 1
 	if s := os.Getenv("LEQNODE_BENCH_HOURS"); s != "" {

@@ -251,7 +251,7 @@ func measureVolume(t testing.TB) []volume {
 	return out
 }
 
-// TestMonthlyVolume prints the README's table of MQTT volume per spectra mode and checks the
+// TestMonthlyVolume prints the table of MQTT volume in docs/mqtt.md per spectra mode and checks the
 // order of magnitude the configuration documentation states.
 func TestMonthlyVolume(t *testing.T) {
 	vols := measureVolume(t)
@@ -261,10 +261,10 @@ func TestMonthlyVolume(t *testing.T) {
 		fmt.Fprintf(&b, "| %s | %d B | %d B | %d B | %d B | %.0f | %.0f |\n", v.mode, v.secondMsg, v.secondMsg1, v.minuteMsg, v.stat, v.month/1e6, v.monthLive/1e6)
 	}
 	t.Logf("MQTT volume per node (payloads measured, 30 days, QoS 1 packets, TCP/TLS not counted):\n%s", b.String())
-	// The README quotes these figures; per-second spectra cost about a gigabyte a month before
+	// docs/mqtt.md quotes these figures; per-second spectra cost about a gigabyte a month before
 	// TCP/TLS overheads, at least twice the other modes.
 	if v := vols[0]; v.month < 0.8e9 || v.month < 2*vols[1].month {
-		t.Errorf("per-second spectra: %.0f MB a month; the README says about a gigabyte, over twice the per-minute mode", v.month/1e6)
+		t.Errorf("per-second spectra: %.0f MB a month; docs/mqtt.md says about a gigabyte, over twice the per-minute mode", v.month/1e6)
 	}
 	if vols[3].month > vols[1].month || vols[2].month > vols[1].month || vols[1].month > vols[0].month {
 		t.Errorf("volumes do not fall from second to minute to none spectra: %+v", vols)

@@ -135,7 +135,7 @@ func fleetStores(t *testing.T) []string {
 }
 
 // countedSeconds returns a store's second records that the validity rule counts, the rule
-// applied by hand (README, "Which seconds count"): flagged calibrating, settling, excluded,
+// applied by hand (docs/measuring.md, "Which seconds count"): flagged calibrating, settling, excluded,
 // suspect or dropped, or without a level, are left out.
 func countedSeconds(t *testing.T, path string, from, to time.Time) []*record.Second {
 	t.Helper()

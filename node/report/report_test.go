@@ -381,7 +381,7 @@ func lastLines(b []byte) string {
 }
 
 // BenchmarkReport computes and renders a report over days of second and minute records from a
-// real bbolt store: LEQNODE_REPORT_DAYS days (default 2; the README figure uses 30). With
+// real bbolt store: LEQNODE_REPORT_DAYS days (default 2; the figure in docs/reports.md uses 30). With
 // LEQNODE_REPORT_STORE=FILE the store is built there once and reused by later runs.
 func BenchmarkReport(b *testing.B) {
 	days := 2

@@ -5,6 +5,7 @@ import (
 	"math"
 	"net/http"
 	"os"
+	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
@@ -151,20 +152,20 @@ func TestMetrics(t *testing.T) {
 		}
 	}
 
-	// Every leqnode_ family is documented in the README section, and every documented
+	// Every leqnode_ family is documented in docs/page-and-metrics.md, and every documented
 	// series exists.
-	doc, err := os.ReadFile("README-section.md")
+	doc, err := os.ReadFile(filepath.Join("..", "..", "docs", "page-and-metrics.md"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	for name := range fams {
 		if strings.HasPrefix(name, "leqnode_") && !strings.Contains(string(doc), "`"+name) {
-			t.Errorf("%s is not documented in README-section.md", name)
+			t.Errorf("%s is not documented in docs/page-and-metrics.md", name)
 		}
 	}
 	for _, m := range regexp.MustCompile("`(leqnode_[a-z_]+)").FindAllStringSubmatch(string(doc), -1) {
 		if fams[m[1]] == nil {
-			t.Errorf("README-section.md documents %s, which /metrics does not carry", m[1])
+			t.Errorf("docs/page-and-metrics.md documents %s, which /metrics does not carry", m[1])
 		}
 	}
 }
