@@ -46,7 +46,7 @@ test: test-deps
 	CGO_ENABLED=0 $(GO) test -count=1 -tags noportaudio ./node/capture/... ./node ./dsp/... ./buffer/...
 	$(GO) test -count=1 -run '^$$' -bench . -benchtime 1x ./...
 
-# The figures recorded in the README: benchmarks at full size, five runs each (quote medians).
+# The figures recorded in docs/performance.md: benchmarks at full size, five runs each (quote medians).
 bench: test-deps
 	LEQNODE_BENCH_HOURS=24 LEQNODE_BENCH_SECONDS=300 LEQNODE_FLEET_NODES=50 LEQNODE_FLEET_DAYS=30 $(GO) test -count=5 -run '^$$' -bench . -benchtime 2s ./... | tee bench.txt
 	.ci/callgrind-meter | tee -a bench.txt

@@ -9,6 +9,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -175,7 +176,7 @@ func TestCommitFailureHoldsRecords(t *testing.T) {
 	if errs != 8 || st.CommitError == "" || st.Held != 5 {
 		t.Errorf("%d append errors, commit error %q, %d held; want 8, an error, 5", errs, st.CommitError, st.Held)
 	}
-	if n := s.LastSeq(KindSecond); n != 6 { // one committed, five held, three refused
+	if n := s.LastSeq(record.KindSecond); n != 6 { // one committed, five held, three refused
 		t.Errorf("last number handed out %d, want 6", n)
 	}
 }

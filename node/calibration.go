@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/calibrate"
 )
@@ -37,7 +38,7 @@ type CalibrationOptions struct {
 // CalibrationResult is the outcome of a requested calibration.
 type CalibrationResult struct {
 	Detection dsp.Detection
-	Check     *buffer.Calibration
+	Check     *record.Calibration
 	Applied   bool
 }
 
@@ -103,7 +104,7 @@ type calChain struct {
 // calSaving is an applied check waiting for its state file.
 type calSaving struct {
 	det      dsp.Detection
-	rec      *buffer.Calibration
+	rec      *record.Calibration
 	ref      float64
 	state    calibrate.State
 	previous float64 // the sensitivity before the check
@@ -138,7 +139,7 @@ func (c *calChain) block(x []float32) error {
 }
 
 func (c *calChain) measured() error                          { return nil }
-func (c *calChain) second(*buffer.Second, *dsp.Result) error { return nil }
+func (c *calChain) second(*record.Second, *dsp.Result) error { return nil }
 func (c *calChain) flush() error                             { return nil }
 
 // covers reports whether a calibrator covered part of the interval [start, start+dur).
@@ -185,7 +186,7 @@ func (c *calChain) onTone(d dsp.Detection) {
 		} else if st, err := calibrate.Prepare(rec, o.NominalDBFS, o.AdjustRange); err != nil {
 			applyErr = err
 			if errors.Is(err, calibrate.ErrMicrophoneFault) {
-				p.health.raise(buffer.MicFault)
+				p.health.raise(record.MicFault)
 				p.n.log.Error("calibration refused: microphone fault", "err", err)
 			}
 		} else {
@@ -212,7 +213,7 @@ func (c *calChain) saved(err error) error {
 	}
 	if err == nil {
 		s.rec.SensitivityAfter, s.rec.Applied = s.state.SensitivityDBFS, true
-		p.health.clear(buffer.MicFault)
+		p.health.clear(record.MicFault)
 	} else {
 		p.n.log.Error("the new sensitivity could not be kept in the state directory: measuring with the old one again; free space or fix the permissions of [calibration] state_dir",
 			"state_dir", c.o.StateDir, "err", err)
@@ -225,7 +226,7 @@ func (c *calChain) saved(err error) error {
 }
 
 // checked stores a calibration check, logs it and answers the request it served.
-func (c *calChain) checked(d dsp.Detection, rec *buffer.Calibration, ref float64, req *calRequest, applyErr error) {
+func (c *calChain) checked(d dsp.Detection, rec *record.Calibration, ref float64, req *calRequest, applyErr error) {
 	p := c.p
 	dr, err := calibrate.RecordCheck(p.o.Store, rec)
 	switch {
@@ -278,7 +279,7 @@ func (c *calChain) on() (bool, error) {
 	c.run = start
 	c.from = p.clock.Time(start + c.skew).Add(-calMargin)
 	c.until = now.Add(calMargin)
-	p.minutes.mark(c.from, c.until, buffer.Calibrating)
+	p.minutes.mark(c.from, c.until, record.Calibrating)
 	if p.secStart.After(c.from) {
 		// Seconds already stored: marked when read, as a calibration check's are.
 		if err := p.append(calibrate.CalibratingAnnotation(c.from, p.secStart, ref)); err != nil {

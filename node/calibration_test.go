@@ -8,7 +8,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -52,13 +52,13 @@ func TestNodeCalibrationStateNotKept(t *testing.T) {
 	if got.err == nil || got.res == nil || got.res.Applied || got.res.Check == nil || got.res.Check.Applied {
 		t.Fatalf("a calibration whose state could not be kept: %+v, err %v; want not applied and an error", got.res, got.err)
 	}
-	checks := records[*buffer.Calibration](t, r.store, buffer.KindCalibration)
+	checks := records[*record.Calibration](t, r.store, record.KindCalibration)
 	if len(checks) != 1 || checks[0].Applied {
 		t.Errorf("checks %+v, want one, not applied", checks)
 	}
 	// Sessions: the start, the new sensitivity from the tone on, the old one back once the
 	// write failed.
-	sess := records[*buffer.Session](t, r.store, buffer.KindSession)
+	sess := records[*record.Session](t, r.store, record.KindSession)
 	if len(sess) != 3 || math.Abs(sess[1].SensitivityDBFS-actual) > 0.1 || sess[2].SensitivityDBFS != nominal {
 		t.Errorf("sessions %+v, want the start, %.0f dBFS, then %.0f dBFS again", sess, actual, nominal)
 	}

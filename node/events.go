@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -49,7 +49,7 @@ func (e *eventChain) block([]float32) error {
 func (e *eventChain) measured() error { return e.store() }
 
 // second keeps the second's band levels for the spectra of the events it overlaps.
-func (e *eventChain) second(rec *buffer.Second, r *dsp.Result) error {
+func (e *eventChain) second(rec *record.Second, r *dsp.Result) error {
 	if e.p.o.Events.Bands != 0 && len(r.Bands) > 0 {
 		e.spectra.add(rec.Start, r.Duration, r.Bands)
 	}
@@ -71,12 +71,12 @@ func (e *eventChain) store() error {
 	for e.det.Next(&e.event) {
 		ev := &e.event
 		from := p.clock.Time(ev.Start + e.skew)
-		rec := &buffer.Event{
+		rec := &record.Event{
 			Start: from.UTC(), End: from.Add(time.Duration(ev.Duration * 1e9)).UTC(),
 			LAFmax: ev.LAFmax, LAeq: ev.LAeq, LAE: ev.LAE, LCpeak: ev.LCpeak,
 		}
 		if !p.synced {
-			rec.Flags |= buffer.ClockUnsynced
+			rec.Flags |= record.ClockUnsynced
 		}
 		if p.o.Events.Bands != 0 {
 			if sp := e.spectra.over(rec.Start, rec.End); sp != nil {

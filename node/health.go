@@ -4,7 +4,7 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -55,10 +55,10 @@ type healthChain struct {
 	sys *sysWatch
 
 	silentRun, stuckRun    time.Duration
-	flags                  buffer.Flags // the health flags now raised
-	sticky                 buffer.Flags // flags raised until cleared by their cause (microphone fault)
+	flags                  record.Flags // the health flags now raised
+	sticky                 record.Flags // flags raised until cleared by their cause (microphone fault)
 	selfChecks, selfFailed uint64       // a self-verification to report in the next snapshot
-	judged                 buffer.Flags // the health flags the second being closed raised (judge)
+	judged                 record.Flags // the health flags the second being closed raised (judge)
 
 	// Since the last snapshot.
 	clipped       uint64
@@ -77,15 +77,15 @@ func (h *healthChain) skip(int64)            {}
 func (h *healthChain) block([]float32) error { return nil }
 func (h *healthChain) measured() error       { return nil }
 func (h *healthChain) flush() error          { return nil }
-func (h *healthChain) raise(f buffer.Flags)  { h.sticky |= f }
-func (h *healthChain) clear(f buffer.Flags)  { h.sticky &^= f }
-func (h *healthChain) second(rec *buffer.Second, _ *dsp.Result) error {
+func (h *healthChain) raise(f record.Flags)  { h.sticky |= f }
+func (h *healthChain) clear(f record.Flags)  { h.sticky &^= f }
+func (h *healthChain) second(rec *record.Second, _ *dsp.Result) error {
 	return h.after(h.judged, rec.Start.Add(rec.Duration))
 }
 
 // judge takes one closed second into account, before its record is made, and returns the
 // health flags now raised.
-func (h *healthChain) judge(r *dsp.Result, secFlags buffer.Flags, dropped uint64) buffer.Flags {
+func (h *healthChain) judge(r *dsp.Result, secFlags record.Flags, dropped uint64) record.Flags {
 	d := time.Duration(r.Duration * float64(time.Second))
 	if r.Silent {
 		h.silentRun += d
@@ -103,37 +103,37 @@ func (h *healthChain) judge(r *dsp.Result, secFlags buffer.Flags, dropped uint64
 		h.dcTime += r.Duration
 		h.lastDC = r.DC
 	}
-	if secFlags.Has(buffer.UnderRange) {
+	if secFlags.Has(record.UnderRange) {
 		h.underRange++
 	}
 	h.dropped += dropped
-	f := buffer.Flags(0)
+	f := record.Flags(0)
 	if h.silentRun >= h.o.SilenceLimit {
-		f |= buffer.DigitalSilence
+		f |= record.DigitalSilence
 	}
 	if h.stuckRun >= h.o.SilenceLimit {
-		f |= buffer.StuckInput
+		f |= record.StuckInput
 	}
 	if math.Abs(h.lastDC) > h.o.DCLimit {
-		f |= buffer.DCOffset
+		f |= record.DCOffset
 	}
 	if r.Clipped > 0 {
-		f |= buffer.Clipped
+		f |= record.Clipped
 	}
 	h.judged = f | h.sticky
 	return h.judged
 }
 
 // snapshot builds a health record and starts a new snapshot period.
-func (h *healthChain) snapshot(now time.Time) *buffer.Health {
+func (h *healthChain) snapshot(now time.Time) *record.Health {
 	p := h.p
 	sys := h.sys.latest()
-	rec := &buffer.Health{
+	rec := &record.Health{
 		At:                now.UTC(),
 		Flags:             h.flags,
 		Clipped:           h.clipped,
-		Silent:            h.flags.Has(buffer.DigitalSilence),
-		Stuck:             h.flags.Has(buffer.StuckInput),
+		Silent:            h.flags.Has(record.DigitalSilence),
+		Stuck:             h.flags.Has(record.StuckInput),
 		UnderRangeSeconds: h.underRange,
 		DroppedSamples:    h.dropped,
 		MemoryMB:          sys.memoryMB,
@@ -146,7 +146,7 @@ func (h *healthChain) snapshot(now time.Time) *buffer.Health {
 		rec.DCOffset = h.dcSum / h.dcTime
 	}
 	if !p.synced {
-		rec.Flags |= buffer.ClockUnsynced
+		rec.Flags |= record.ClockUnsynced
 	}
 	ov := p.n.Counters.QueueOverflows.Load()
 	rec.QueueOverflows = uint64(ov - h.overflowsSeen)
@@ -171,7 +171,7 @@ func (h *healthChain) snapshot(now time.Time) *buffer.Health {
 
 // after runs after every second with the health flags that second raised: it stores a
 // snapshot when a health flag changed or the snapshot interval has passed.
-func (h *healthChain) after(f buffer.Flags, now time.Time) error {
+func (h *healthChain) after(f record.Flags, now time.Time) error {
 	p := h.p
 	changed := f != h.flags
 	if changed {
@@ -201,11 +201,11 @@ func (h *healthChain) selfTest(checks, failed int) error {
 	p := h.p
 	h.selfChecks, h.selfFailed = uint64(checks), uint64(failed)
 	if failed > 0 {
-		h.sticky |= buffer.ChainFault
+		h.sticky |= record.ChainFault
 	} else {
-		h.sticky &^= buffer.ChainFault
+		h.sticky &^= record.ChainFault
 	}
-	h.flags = h.flags&^buffer.ChainFault | h.sticky&buffer.ChainFault
+	h.flags = h.flags&^record.ChainFault | h.sticky&record.ChainFault
 	now := p.o.Now()
 	if p.anchored {
 		now = p.lastEnd
@@ -220,7 +220,7 @@ func (h *healthChain) selfTest(checks, failed int) error {
 // second. A snapshot the store does not take is logged: the fault it reports is logged already.
 func (h *healthChain) now(now time.Time) {
 	p := h.p
-	const faults = buffer.StoreFault | buffer.DeviceFault
+	const faults = record.StoreFault | record.DeviceFault
 	h.flags = h.flags&^faults | h.sticky&faults
 	rec := h.snapshot(now)
 	p.n.lastHealth.Store(rec)

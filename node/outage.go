@@ -4,7 +4,7 @@ import (
 	"errors"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // startupGap starts the outage that explains the time the node was not running: from the end
@@ -12,11 +12,11 @@ import (
 // store the outage starts now, so that a source missing at start leaves no hole either.
 func (p *processor) startupGap() error {
 	p.lostAt, p.lostWhy = p.o.Now(), ""
-	last, err := p.o.Store.Last(buffer.KindSecond)
+	last, err := p.o.Store.Last(record.KindSecond)
 	if err != nil || last == nil {
 		return nil
 	}
-	if s, ok := last.(*buffer.Second); ok {
+	if s, ok := last.(*record.Second); ok {
 		p.lostAt = s.Start.Add(s.Duration)
 		p.lostWhy = "node was not running (stopped, restarting, crashed or powered off)"
 	}
@@ -72,7 +72,7 @@ func (p *processor) skip(k int64) error {
 		take := min(k, end-p.pos)
 		p.pos += take
 		k -= take
-		p.secFlags |= buffer.Dropped
+		p.secFlags |= record.Dropped
 		p.secDropped += uint64(take)
 		if p.pos == end {
 			if err := p.closeSecond(); err != nil {

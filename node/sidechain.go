@@ -1,7 +1,7 @@
 package node
 
 import (
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -28,7 +28,7 @@ type sideChain interface {
 	skip(k int64)
 	block(x []float32) error
 	measured() error
-	second(rec *buffer.Second, r *dsp.Result) error
+	second(rec *record.Second, r *dsp.Result) error
 	flush() error
 }
 

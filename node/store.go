@@ -6,6 +6,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // storeState follows a store that cannot write: since when, what it refused, and when the
@@ -24,16 +25,16 @@ type storeState struct {
 const storeLogEvery = time.Minute
 
 // lose accounts for a record the store refused.
-func (s *storeState) lose(r buffer.Record) {
+func (s *storeState) lose(r record.Record) {
 	from, to := r.Time(), r.Time()
 	switch v := r.(type) {
-	case *buffer.Second:
+	case *record.Second:
 		to = v.Start.Add(v.Duration)
-	case *buffer.Minute:
+	case *record.Minute:
 		to = v.Start.Add(time.Minute)
-	case *buffer.Event:
+	case *record.Event:
 		to = v.End
-	case *buffer.Gap:
+	case *record.Gap:
 		to = v.To
 	}
 	if s.lost == 0 || from.Before(s.lostFrom) {
@@ -63,7 +64,7 @@ func (w *recorder) failing(err error) {
 	now := w.o.Now()
 	if !s.failing {
 		s.failing, s.since = true, now
-		w.health.raise(buffer.StoreFault)
+		w.health.raise(record.StoreFault)
 		w.n.log.Error("the store cannot write: measuring on, records held in memory; free space on its file system",
 			"store", w.o.Store.Path(), "err", err)
 		s.lastLog = now
@@ -81,7 +82,7 @@ func (w *recorder) recovered() error {
 	lost, from, to := s.lost, s.lostFrom, s.lostTo
 	w.n.log.Info("the store writes again", "store", w.o.Store.Path(), "failed_for", w.o.Now().Sub(s.since).Round(time.Second), "refused", lost)
 	*s = storeState{}
-	w.health.clear(buffer.StoreFault)
+	w.health.clear(record.StoreFault)
 	w.health.now(w.o.Now())
 	if lost > 0 {
 		return w.gap(from, to, fmt.Sprintf("the store could not write (full disk or I/O error): %d records could not be kept", lost))
@@ -112,7 +113,7 @@ func (w *recorder) gap(from, to time.Time, why string) error {
 	}
 	w.n.Counters.Gaps.Add(1)
 	w.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
-	return w.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
+	return w.append(&record.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
 }
 
 // spaceRoom is the free space on the store's file system, in MB, at which a store that a full
@@ -122,7 +123,7 @@ const spaceRoom = 64
 // checkSpaceCap keeps store-fault raised while a full file system holds the store within its
 // file (it gives up its oldest records to take new ones), and lifts the cap once the file
 // system has room again.
-func (w *recorder) checkSpaceCap(rec *buffer.Health) {
+func (w *recorder) checkSpaceCap(rec *record.Health) {
 	capped := w.o.Store.SpaceCapped() > 0
 	if capped && rec.DiskFreeMB >= spaceRoom {
 		w.o.Store.ResetSpaceCap()
@@ -130,15 +131,15 @@ func (w *recorder) checkSpaceCap(rec *buffer.Health) {
 	}
 	switch {
 	case capped:
-		w.health.raise(buffer.StoreFault)
-		rec.Flags |= buffer.StoreFault
+		w.health.raise(record.StoreFault)
+		rec.Flags |= record.StoreFault
 	case !w.state.failing:
-		w.health.clear(buffer.StoreFault)
+		w.health.clear(record.StoreFault)
 	}
 }
 
 // append stores r; see recorder for what happens when the store cannot write.
-func (w *recorder) append(r buffer.Record) error {
+func (w *recorder) append(r record.Record) error {
 	if w.o.Synthetic {
 		markSynthetic(r)
 	}
@@ -165,17 +166,17 @@ func (w *recorder) append(r buffer.Record) error {
 
 // markSynthetic flags a record made from the synthetic scene, so that no reader takes it for a
 // measurement.
-func markSynthetic(r buffer.Record) {
+func markSynthetic(r record.Record) {
 	switch v := r.(type) {
-	case *buffer.Second:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Minute:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Event:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Calibration:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Health:
-		v.Flags |= buffer.Synthetic
+	case *record.Second:
+		v.Flags |= record.Synthetic
+	case *record.Minute:
+		v.Flags |= record.Synthetic
+	case *record.Event:
+		v.Flags |= record.Synthetic
+	case *record.Calibration:
+		v.Flags |= record.Synthetic
+	case *record.Health:
+		v.Flags |= record.Synthetic
 	}
 }

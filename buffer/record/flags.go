@@ -32,7 +32,7 @@ const (
 	Synthetic      // made from the synthetic scene, not from a microphone
 )
 
-// flagInfo names and explains every flag, in bit order: the one table that the README, the
+// flagInfo names and explains every flag, in bit order: the one table that docs/measuring.md, the
 // JSON Schemas and every output take their flag names from.
 var flagInfo = [...]struct{ name, meaning string }{
 	{"overload", "the signal exceeded the upper limit of the measuring range; levels are lower bounds"},

@@ -20,14 +20,14 @@ func TestJudge(t *testing.T) {
 		{Overload | Clipped, 112, Counted}, // kept: a lower bound
 		{UnderRange, 21, Counted},          // kept: an upper bound
 		{ClockUnsynced, 55, Counted},
-		{Calibrating, 94, Calibration},
-		{Calibrating | Overload, 114, Calibration},
-		{Settling, 40, Settle},
-		{Excluded, 70, ByUser},
-		{Suspect, 60, Doubtful},
-		{Dropped, 55, NoData},
-		{0, nan, Silence},
-		{DigitalSilence, nan, Silence},
+		{Calibrating, 94, ReasonCalibrating},
+		{Calibrating | Overload, 114, ReasonCalibrating},
+		{Settling, 40, ReasonSettling},
+		{Excluded, 70, ReasonExcluded},
+		{Suspect, 60, ReasonSuspect},
+		{Dropped, 55, ReasonNoData},
+		{0, nan, ReasonSilence},
+		{DigitalSilence, nan, ReasonSilence},
 	} {
 		if got := Judge(tc.flags, tc.level); got != tc.want {
 			t.Errorf("Judge(%v, %v) = %v, want %v", tc.flags, tc.level, got, tc.want)
@@ -70,16 +70,16 @@ func TestExceeds(t *testing.T) {
 	}
 }
 
-// TestREADMEListsEveryFlag: the README's "Which seconds count" names every flag and reason.
+// TestREADMEListsEveryFlag: "Which seconds count" in docs/measuring.md names every flag and reason.
 func TestREADMEListsEveryFlag(t *testing.T) {
-	b, err := os.ReadFile(filepath.Join("..", "..", "README.md"))
+	b, err := os.ReadFile(filepath.Join("..", "..", "docs", "measuring.md"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	s := string(b)
 	i := strings.Index(s, "## Which seconds count")
 	if i < 0 {
-		t.Fatal("README has no section \"Which seconds count\"")
+		t.Fatal("docs/measuring.md has no section \"Which seconds count\"")
 	}
 	sec := s[i:]
 	if j := strings.Index(sec[3:], "\n#"); j > 0 {
@@ -87,15 +87,15 @@ func TestREADMEListsEveryFlag(t *testing.T) {
 	}
 	for _, n := range FlagNames() {
 		if !strings.Contains(sec, "`"+n+"`") {
-			t.Errorf("README's rule does not name the flag %q", n)
+			t.Errorf("docs/measuring.md's rule does not name the flag %q", n)
 		}
 		if FlagMeaning(n) == "" {
 			t.Errorf("flag %q has no meaning", n)
 		}
 	}
-	for r := Calibration; r < NumReasons; r++ {
+	for r := ReasonCalibrating; r < NumReasons; r++ {
 		if !strings.Contains(sec, "`"+r.String()+"`") {
-			t.Errorf("README's rule does not name the reason %q", r)
+			t.Errorf("docs/measuring.md's rule does not name the reason %q", r)
 		}
 	}
 }
@@ -112,6 +112,6 @@ func ExampleTally() {
 	for range 2 {
 		t.Add(Overload|Clipped, 121, 1)
 	}
-	fmt.Println(t.Counted, t.LeftOut[Calibration], t.Bound(), t.Bound().Sign())
+	fmt.Println(t.Counted, t.LeftOut[ReasonCalibrating], t.Bound(), t.Bound().Sign())
 	// Output: 52 8 lower ≥
 }

@@ -20,7 +20,7 @@ import (
 )
 
 // benchSeconds is the length of the benchmark recordings: LEQNODE_BENCH_SECONDS, 300 in
-// `make bench` (the README's figures), 10 by default so that `make test` runs the benchmarks
+// `make bench` (the figures in docs/performance.md), 10 by default so that `make test` runs the benchmarks
 // quickly once.
 func benchSeconds(b *testing.B) int {
 	if s := os.Getenv("LEQNODE_BENCH_SECONDS"); s != "" {

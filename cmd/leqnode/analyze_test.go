@@ -202,32 +202,25 @@ func TestAnalyzeFormats(t *testing.T) {
 func TestAnalyzeBadInput(t *testing.T) {
 	dir := t.TempDir()
 	good := writeWAV(t, dir, "good.wav", wav.Format{SampleRate: 48000, Channels: 1, Encoding: wav.Float32}, sineSamples(48000*2, 1000, 0.1, 48000))
-	data, _ := os.ReadFile(good)
-	// A NaN sample half-way through: the reader fails late, after intervals were measured.
-	nan := append([]byte(nil), data...)
-	off := len(nan) - 4*1000
-	copy(nan[off:], []byte{0x00, 0x00, 0xc0, 0x7f})
-	write := func(name string, b []byte) string {
-		p := filepath.Join(dir, name)
-		if err := os.WriteFile(p, b, 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return p
-	}
-	eightBit := append([]byte(nil), data[:44]...)
-	eightBit[34] = 8 // bits per sample
+	// The bad recordings are the shared ones of testdata/wav (made by sox; see its gen.sh).
+	// nan-sample.wav holds a NaN at 1.375 s: the reader fails late, after an interval was measured.
+	bad := func(name string) []string { return []string{sharedTestdata("wav", name)} }
 	tests := []struct {
 		name string
 		args []string
 		want string // in the error line
 	}{
 		{"missing file", []string{filepath.Join(dir, "nope.wav")}, "nope.wav"},
-		{"empty file", []string{write("empty.wav", nil)}, "empty.wav"},
-		{"truncated header", []string{write("trunc.wav", data[:30])}, "trunc.wav"},
-		{"not a WAV", []string{write("text.wav", []byte("hello, this is not audio at all"))}, "text.wav"},
-		{"zero samples", []string{write("zero.wav", data[:44])}, "zero.wav"},
-		{"8-bit", []string{write("eight.wav", eightBit)}, "eight.wav"},
-		{"NaN sample", []string{write("nan.wav", nan)}, "nan.wav"},
+		{"empty file", bad("empty.wav"), "empty.wav"},
+		{"truncated header", bad("truncated-header.wav"), "truncated-header.wav"},
+		{"not a WAV", bad("not-a-wav.wav"), "not-a-wav.wav"},
+		{"zero samples", bad("header-only.wav"), "header-only.wav"},
+		{"data shorter than declared", bad("short-data.wav"), "short-data.wav"},
+		{"8-bit", bad("eight-bit.wav"), "eight-bit.wav"},
+		{"mu-law", bad("mu-law.wav"), "mu-law.wav"},
+		{"A-law", bad("a-law.wav"), "a-law.wav"},
+		{"NaN sample", bad("nan-sample.wav"), "nan-sample.wav"},
+		{"infinite sample", bad("inf-sample.wav"), "inf-sample.wav"},
 		{"bad channel", []string{"--channel", "3", good}, "channel 3"},
 		{"bad format", []string{"--format", "xml", good}, "--format"},
 		{"bad interval", []string{"--interval", "-1s", good}, "--interval"},
@@ -391,12 +384,9 @@ func TestAnalyzeBatch(t *testing.T) {
 	}
 
 	// A bad recording in the middle: its error on one line, the others measured, exit 2.
-	bad := filepath.Join(dir, "broken.wav")
-	if err := os.WriteFile(bad, []byte("not a recording"), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	bad := sharedTestdata("wav", "not-a-wav.wav")
 	code, out, errs = runCmd(t, nil, "analyze", "--summary", "-j", "2", "--format", "jsonl", files[0], bad, files[3])
-	if code != 2 || len(jsonLines(t, out)) != 2 || !strings.Contains(errs, "broken.wav") || !strings.Contains(errs, "1 of 3 recordings") {
+	if code != 2 || len(jsonLines(t, out)) != 2 || !strings.Contains(errs, "not-a-wav.wav") || !strings.Contains(errs, "1 of 3 recordings") {
 		t.Errorf("with a bad recording: exit %d, %d lines, stderr %q", code, len(jsonLines(t, out)), errs)
 	}
 	for _, tc := range []struct {

@@ -90,8 +90,7 @@ func TestCalibrateErrors(t *testing.T) {
 		clipped[i] = max(-1, min(1, v))
 	}
 	clip := writeWAV(t, dir, "clip.wav", f, clipped)
-	junk := filepath.Join(dir, "junk.wav")
-	os.WriteFile(junk, []byte("not a wav file at all"), 0o644)
+	junk := sharedTestdata("wav", "not-a-wav.wav")
 	for _, tc := range []struct {
 		name     string
 		args     []string
@@ -106,7 +105,9 @@ func TestCalibrateErrors(t *testing.T) {
 		{"within a wider range", []string{"--format", "json", "--sensitivity", "-26", "--range", "7", cal}, 0, "", true},
 		{"clipped tone", []string{"--format", "json", "--reference", "114", clip}, 1, "clipped", false},
 		{"missing file", []string{filepath.Join(dir, "nope.wav")}, 2, "cannot open", nil},
-		{"not a WAV file", []string{junk}, 2, "junk.wav", nil},
+		{"not a WAV file", []string{junk}, 2, "not-a-wav.wav", nil},
+		{"8-bit recording", []string{sharedTestdata("wav", "eight-bit.wav")}, 2, "eight-bit.wav", nil},
+		{"NaN sample", []string{sharedTestdata("wav", "nan-sample.wav")}, 2, "nan-sample.wav", nil},
 		{"two files", []string{cal, cal}, 2, "at most one", nil},
 		{"bad format", []string{"--format", "csv", cal}, 2, "--format", nil},
 		{"bad reference", []string{"--reference", "12", cal}, 2, "--reference", nil},

@@ -1,8 +1,6 @@
 package main
 
 import (
-	"os"
-	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -11,15 +9,8 @@ import (
 // lists every problem at once, and warns about a page served to the network without a token;
 // `config --help` is help (exit 0), not a usage error.
 func TestConfigCheck(t *testing.T) {
-	dir := t.TempDir()
-	write := func(name, text string) string {
-		p := filepath.Join(dir, name)
-		if err := os.WriteFile(p, []byte(text), 0o644); err != nil {
-			t.Fatal(err)
-		}
-		return p
-	}
-	good := write("good.toml", "version = 1\n[node]\nid = \"wendle-cross-07\"\n[capture]\nkind = \"arecord\"\n[web]\nenabled = true\naddr = \"0.0.0.0:8080\"\n")
+	// The shared files of testdata/config, which node/config's tests read too.
+	good := sharedTestdata("config", "node-open-page.toml")
 	code, out, errOut := runCmd(t, nil, "config", "check", good)
 	if code != 0 {
 		t.Fatalf("exit %d: %s", code, errOut)
@@ -33,12 +24,12 @@ func TestConfigCheck(t *testing.T) {
 		t.Errorf("no warning for web.addr 0.0.0.0 without a token: %q", errOut)
 	}
 
-	bad := write("bad.toml", "version = 1\n[node]\nid = \"wendle-cross-07\"\n[Web]\nenabled = true\n[capture]\nkind = \"arecord\"\nsample_rate = \"fast\"\n[microphone]\nsensitivity_dbfs = 12\n")
+	bad := sharedTestdata("config", "node-problems.toml")
 	code, _, errOut = runCmd(t, nil, "config", "check", bad)
 	if code != 2 {
 		t.Fatalf("exit %d, want 2", code)
 	}
-	for _, want := range []string{`unknown key "Web"`, "capture.sample_rate: want a whole number", "microphone.sensitivity_dbfs = 12"} {
+	for _, want := range []string{`node-problems.toml:4: unknown key "Node"`, "capture.sample_rate: want a whole number", "microphone.sensitivity_dbfs = 12", "events.threshold_db: want a number"} {
 		if !strings.Contains(errOut, want) {
 			t.Errorf("stderr lacks %q:\n%s", want, errOut)
 		}

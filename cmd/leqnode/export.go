@@ -11,7 +11,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp/reference"
 )
 
@@ -32,7 +32,7 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 	if *kindName == "" {
 		return badInput("give the record kind with --kind (second, minute, event, calibration, health, gap, annotation or session)")
 	}
-	kind, err := buffer.ParseKind(*kindName)
+	kind, err := record.ParseKind(*kindName)
 	if err != nil {
 		return badInput("--kind: %v", err)
 	}
@@ -64,7 +64,7 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 	if *format == "csv" && hasSpectrum(kind) {
 		// The CSV header needs the span of bands over the whole range: a first pass finds it.
 		ex.lowBand, ex.highBand = math.MaxInt, math.MinInt
-		err := st.Range(kind, lo, hi, func(r buffer.Record) error {
+		err := st.Range(kind, lo, hi, func(r record.Record) error {
 			if first, s := spectrumOf(r); len(s) > 0 {
 				ex.lowBand, ex.highBand = min(ex.lowBand, first), max(ex.highBand, first+len(s)-1)
 			}
@@ -75,7 +75,7 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 		}
 	}
 	ex.header()
-	err = st.Range(kind, lo, hi, func(r buffer.Record) error {
+	err = st.Range(kind, lo, hi, func(r record.Record) error {
 		ex.record(r)
 		if ex.err != nil {
 			return ex.err
@@ -91,17 +91,17 @@ func runExport(ctx context.Context, std stdio, args []string) error {
 	return err
 }
 
-func hasSpectrum(k buffer.Kind) bool {
-	return k == buffer.KindSecond || k == buffer.KindMinute || k == buffer.KindEvent
+func hasSpectrum(k record.Kind) bool {
+	return k == record.KindSecond || k == record.KindMinute || k == record.KindEvent
 }
 
-func spectrumOf(r buffer.Record) (int, []float64) {
+func spectrumOf(r record.Record) (int, []float64) {
 	switch v := r.(type) {
-	case *buffer.Second:
+	case *record.Second:
 		return v.FirstBand, v.Spectrum
-	case *buffer.Minute:
+	case *record.Minute:
 		return v.FirstBand, v.Spectrum
-	case *buffer.Event:
+	case *record.Event:
 		return v.FirstBand, v.Spectrum
 	}
 	return 0, nil
@@ -114,7 +114,7 @@ func spectrumOf(r buffer.Record) (int, []float64) {
 type exporter struct {
 	w                 io.Writer
 	format            string
-	kind              buffer.Kind
+	kind              record.Kind
 	store             string
 	lowBand, highBand int // band span of the CSV spectrum columns (low > high: none)
 	err               error
@@ -157,7 +157,7 @@ func text(key, v string) field { return field{key, csvQuote(v), strconv.Quote(v)
 func stamp(key string, t time.Time) field { return text(key, t.UTC().Format(time.RFC3339Nano)) }
 
 // flagList is the flags as "a|b" in CSV and as an array of names in JSON, as in the MQTT payloads.
-func flagList(f buffer.Flags) field {
+func flagList(f record.Flags) field {
 	names := f.Names()
 	q := make([]string, len(names))
 	for i, n := range names {
@@ -185,10 +185,10 @@ const spectrumKey = "third_octave_LZeq"
 func bandName(x int) string { return reference.NominalMidband(3, x) }
 
 // fields returns the record's fields as the record model names and rounds them
-// (buffer.Fields), after the store, the sequence number and the record's time.
-func (e *exporter) fields(r buffer.Record) []field {
+// (record.Fields), after the store, the sequence number and the record's time.
+func (e *exporter) fields(r record.Record) []field {
 	f := []field{text("store", e.store), integer("seq", r.Seq()), stamp("start", r.Time())}
-	for _, m := range buffer.Fields(r.Kind()) {
+	for _, m := range record.Fields(r.Kind()) {
 		switch v := m.Value(r).(type) {
 		case float64:
 			f = append(f, rounded(m.Name, v))
@@ -200,7 +200,7 @@ func (e *exporter) fields(r buffer.Record) []field {
 			f = append(f, text(m.Name, v))
 		case time.Time:
 			f = append(f, stamp(m.Name, v))
-		case buffer.Flags:
+		case record.Flags:
 			f = append(f, flagList(v))
 		}
 	}
@@ -212,7 +212,7 @@ func (e *exporter) header() {
 	if e.format != "csv" {
 		return
 	}
-	r, _ := buffer.NewRecord(e.kind)
+	r, _ := record.NewRecord(e.kind)
 	var cols []string
 	for _, f := range e.fields(r) {
 		cols = append(cols, f.key)
@@ -229,7 +229,7 @@ func (e *exporter) write(s string) {
 	}
 }
 
-func (e *exporter) record(r buffer.Record) {
+func (e *exporter) record(r record.Record) {
 	fs := e.fields(r)
 	first, spec := spectrumOf(r)
 	var b strings.Builder
@@ -267,7 +267,7 @@ func (e *exporter) record(r buffer.Record) {
 		}
 		b.WriteByte('}')
 	}
-	if m, ok := r.(*buffer.Minute); ok && len(m.Histogram.Counts) > 0 {
+	if m, ok := r.(*record.Minute); ok && len(m.Histogram.Counts) > 0 {
 		// Fast level histogram: counts[i] is the number of 10 ms samples in
 		// [first_dB + i/10, first_dB + (i+1)/10) dB.
 		fmt.Fprintf(&b, `,"LAF_histogram":{"first_dB":%s,"bin_dB":0.1,"counts":[`, strconv.FormatFloat(float64(m.Histogram.First)/10, 'f', 1, 64))

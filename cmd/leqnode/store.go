@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
 	"github.com/leqnode/leqnode/node/strict"
@@ -49,8 +50,8 @@ func (f storeFlags) target() (path, zone string, err error) {
 // session record, else UTC.
 func zoneOf(st *buffer.Store, zone string) *time.Location {
 	if zone == "" {
-		if r, err := st.Last(buffer.KindSession); err == nil && r != nil {
-			zone = r.(*buffer.Session).TimeZone
+		if r, err := st.Last(record.KindSession); err == nil && r != nil {
+			zone = r.(*record.Session).TimeZone
 		}
 	}
 	if zone != "" {

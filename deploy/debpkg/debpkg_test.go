@@ -334,6 +334,8 @@ func TestPackageContents(t *testing.T) {
 				"/usr/share/lintian/overrides/leqnode":        "-rw-r--r--",
 				"/usr/share/doc/leqnode/leqnode.toml":         "-rw-r--r--",
 				"/usr/share/doc/leqnode/fleet/README.md":      "-rw-r--r--",
+				"/usr/share/doc/leqnode/docs/installing.md":   "-rw-r--r--",
+				"/usr/share/doc/leqnode/docs/measuring.md":    "-rw-r--r--",
 				"/lib/systemd/system/leqnode-collect.service": "-rw-r--r--",
 				"/usr/share/doc/leqnode/collector.toml":       "-rw-r--r--",
 			}

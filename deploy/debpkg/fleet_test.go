@@ -20,10 +20,10 @@ import (
 // brokers on 127.0.0.1: a central broker (central.conf, leqnode-central.acl) and a site gateway
 // (site-gateway.conf, leqnode-site.acl) bridged to it over TLS. Only the addresses, ports and
 // file paths are changed, line by line, so that a change to an example line the test depends on
-// fails here. It checks what README.md promises: node records cross the bridge in order; a node
-// cannot publish under another node's id; commands come back to the node they name; and records
-// a node hands to the gateway while the uplink is down reach a consumer's persistent session
-// once the uplink returns, none lost and in order.
+// fails here. It checks what docs/collector.md promises: node records cross the bridge in
+// order; a node cannot publish under another node's id; commands come back to the node they
+// name; and records a node hands to the gateway while the uplink is down reach a consumer's
+// persistent session once the uplink returns, none lost and in order.
 func TestFleetBridge(t *testing.T) {
 	need(t, "mosquitto", "mosquitto_pub", "mosquitto_passwd", "openssl")
 	root := repoRoot(t)

@@ -232,7 +232,20 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	if !slices.Contains(fleetDocs, "deploy/fleet/README.md") {
 		return "", fmt.Errorf("source tree %s: no deploy/fleet/README.md (run from the repository's top or give --root)", s.Root)
 	}
-	for _, p := range append(sources, fleetDocs...) {
+	// The README links into docs/: the pages go beside it, so that its links work where the
+	// package installs it.
+	pages, err := filepath.Glob(filepath.Join(s.Root, "docs", "*.md"))
+	if err != nil {
+		return "", err
+	}
+	var userDocs []string
+	for _, f := range pages {
+		userDocs = append(userDocs, "docs/"+filepath.Base(f))
+	}
+	if !slices.Contains(userDocs, "docs/installing.md") {
+		return "", fmt.Errorf("source tree %s: no docs/installing.md (run from the repository's top or give --root)", s.Root)
+	}
+	for _, p := range append(append(sources, fleetDocs...), userDocs...) {
 		data, err := os.ReadFile(filepath.Join(s.Root, filepath.FromSlash(p)))
 		if err != nil {
 			return "", fmt.Errorf("source tree %s: %w (run from the repository's top or give --root)", s.Root, err)
@@ -289,6 +302,9 @@ func Build(ctx context.Context, s Spec) (string, error) {
 	}
 	for _, f := range fleetDocs {
 		contents = append(contents, &files.Content{Source: src(f), Destination: doc + "fleet/" + filepath.Base(f), FileInfo: fi(0o644)})
+	}
+	for _, f := range userDocs {
+		contents = append(contents, &files.Content{Source: src(f), Destination: doc + f, FileInfo: fi(0o644)})
 	}
 	info := &nfpm.Info{
 		Name:          "leqnode",

@@ -10,7 +10,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/strict"
 )
 
@@ -123,8 +123,8 @@ func SaveState(dir string, s State) error {
 // rangeDB (default DefaultAdjustRange) of nominal or the check clipped, and otherwise returns
 // the state to save. It does no I/O, so a caller that must not block (the node's processing
 // goroutine) can judge at once and save elsewhere with SaveState.
-func Prepare(c *buffer.Calibration, nominal, rangeDB float64) (State, error) {
-	if c.Flags.Has(buffer.Clipped) {
+func Prepare(c *record.Calibration, nominal, rangeDB float64) (State, error) {
+	if c.Flags.Has(record.Clipped) {
 		return State{}, fmt.Errorf("%w: the calibrator's tone clipped: use its 94 dB setting or lower the input gain", ErrMicrophoneFault)
 	}
 	s, err := Adjust(nominal, Implied(c), rangeDB)
@@ -138,7 +138,7 @@ func Prepare(c *buffer.Calibration, nominal, rangeDB float64) (State, error) {
 // changed); otherwise it saves the state file in dir and marks the check Applied with its
 // SensitivityAfter. Call it before RecordCheck so that the stored check says what was applied.
 // The caller then measures with State.SensitivityDBFS and writes a new session record.
-func Apply(dir string, c *buffer.Calibration, nominal, rangeDB float64) (*State, error) {
+func Apply(dir string, c *record.Calibration, nominal, rangeDB float64) (*State, error) {
 	st, err := Prepare(c, nominal, rangeDB)
 	if err != nil {
 		return nil, err

@@ -106,17 +106,22 @@ func TestSectionsKeepDefaults(t *testing.T) {
 // TestEveryProblemAtOnce: keys in another case are unknown (go-toml matched them without
 // regard to case), and one unknown key does not hide the other problems: the form's and the
 // values' problems come together, type errors in plain words without Go type names.
+// The file is the shared testdata/config/node-problems.toml, which `leqnode config check` is
+// tested with too.
 func TestEveryProblemAtOnce(t *testing.T) {
-	text := "version = 1\n[Node]\nid = \"x\"\n[capture]\nsample_rate = \"fast\"\nSAMPLE_RATE = 5\n[microphone]\nsensitivity_dbfs = 12\noverload_db = 3\n[events]\nthreshold_db = \"loud\"\n"
-	_, err := Parse([]byte(text), "test.toml")
+	text, err := os.ReadFile(filepath.Join("..", "..", "testdata", "config", "node-problems.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = Parse(text, "test.toml")
 	if err == nil {
 		t.Fatal("accepted")
 	}
 	want := []string{
-		`test.toml:2: unknown key "Node" (keys are case-sensitive: write "node")`,
-		`test.toml:6: unknown key "capture.SAMPLE_RATE" (keys are case-sensitive: write "sample_rate")`,
-		`test.toml:5: capture.sample_rate: want a whole number, got the string "fast"`,
-		`test.toml:11: events.threshold_db: want a number, got the string "loud"`,
+		`test.toml:4: unknown key "Node" (keys are case-sensitive: write "node")`,
+		`test.toml:8: unknown key "capture.SAMPLE_RATE" (keys are case-sensitive: write "sample_rate")`,
+		`test.toml:7: capture.sample_rate: want a whole number, got the string "fast"`,
+		`test.toml:13: events.threshold_db: want a number, got the string "loud"`,
 		`microphone.sensitivity_dbfs = 12`,
 		`microphone.overload_db = 3`,
 		`node.id is not set`,      // [Node] is not [node]
@@ -195,6 +200,14 @@ func TestWarnings(t *testing.T) {
 			t.Errorf("%q: warnings %q, want any: %v", tt.web, w, tt.warn)
 		}
 	}
+	// The shared file `leqnode config check` is tested with: a warning, and nothing refused.
+	c, err := Load(filepath.Join("..", "..", "testdata", "config", "node-open-page.toml"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if w := c.Warnings(); len(w) != 1 || !strings.Contains(w[0], "token") {
+		t.Errorf("node-open-page.toml: warnings %q, want one about the token", w)
+	}
 }
 
 // TestNodeIDAndSourceRequired: a configuration that names neither the node nor its audio source
@@ -213,7 +226,7 @@ func TestNodeIDAndSourceRequired(t *testing.T) {
 
 // TestOneCommitInterval: the commit interval has one default, buffer.DefaultCommitInterval
 // (60 s, chosen from the write-volume measurements in package buffer), and the configuration's
-// default, both example files and the README all state that value (issue 19 item 8: the code
+// default, both example files and docs/store.md all state that value (issue 19 item 8: the code
 // and the packaged file said 10 s, the README and the other file 60 s).
 func TestOneCommitInterval(t *testing.T) {
 	if got := Default().CommitInterval(); got != buffer.DefaultCommitInterval {
@@ -228,12 +241,12 @@ func TestOneCommitInterval(t *testing.T) {
 			t.Errorf("%s: commit_interval %v, want the default %v", f, c.CommitInterval(), buffer.DefaultCommitInterval)
 		}
 	}
-	readme, err := os.ReadFile("../../README.md")
+	readme, err := os.ReadFile("../../docs/store.md")
 	if err != nil {
 		t.Fatal(err)
 	}
 	want := fmt.Sprintf("committed every %g s (`store.commit_interval`)", buffer.DefaultCommitInterval.Seconds())
 	if !strings.Contains(string(readme), want) {
-		t.Errorf("README.md does not say %q", want)
+		t.Errorf("docs/store.md does not say %q", want)
 	}
 }

@@ -2,6 +2,7 @@ package config
 
 import (
 	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 )
@@ -10,7 +11,8 @@ import (
 // accepted is printed (Encode, what `config check` shows) as a file that is accepted again
 // with the same settings.
 func FuzzParse(f *testing.F) {
-	for _, p := range []string{"../../configs/leqnode.toml", "../../deploy/leqnode.toml"} {
+	shared, _ := filepath.Glob("../../testdata/config/*.toml")
+	for _, p := range append([]string{"../../configs/leqnode.toml", "../../deploy/leqnode.toml"}, shared...) {
 		if b, err := os.ReadFile(p); err == nil {
 			f.Add(b)
 		}

@@ -8,11 +8,11 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // benchHours is the backlog size of BenchmarkBacklog in hours of records: 1 by default (cheap
-// in make test), LEQNODE_BENCH_HOURS=24 for the README figure.
+// in make test), LEQNODE_BENCH_HOURS=24 for the figure in docs/mqtt.md.
 func benchHours(b *testing.B) int {
 	h := 1
 	if s := os.Getenv("LEQNODE_BENCH_HOURS"); s != "" {
@@ -68,7 +68,7 @@ func BenchmarkBacklog(b *testing.B) {
 						b.Fatal(err)
 					}
 					s := st.Streams[DefaultStream]
-					if s[buffer.KindSecond].Acked == uint64(hours*3600) && s[buffer.KindMinute].Acked == uint64(hours*60) {
+					if s[record.KindSecond].Acked == uint64(hours*3600) && s[record.KindMinute].Acked == uint64(hours*60) {
 						break
 					}
 					time.Sleep(2 * time.Millisecond)

@@ -8,9 +8,8 @@ import (
 	"testing"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/pelletier/go-toml/v2"
-
-	"github.com/leqnode/leqnode/buffer"
 )
 
 func TestConfigValidate(t *testing.T) {
@@ -161,14 +160,14 @@ func TestBucket(t *testing.T) {
 }
 
 func TestTakeBatch(t *testing.T) {
-	recs := stored(t, 0, func() []buffer.Record {
-		var out []buffer.Record
+	recs := stored(t, 0, func() []record.Record {
+		var out []record.Record
 		for i := range 25 {
 			out = append(out, second(i, false))
 		}
 		return out
 	}())
-	seqs := func(rs []buffer.Record) []uint64 {
+	seqs := func(rs []record.Record) []uint64 {
 		var out []uint64
 		for _, r := range rs {
 			out = append(out, r.Seq())
@@ -193,43 +192,31 @@ func TestTakeBatch(t *testing.T) {
 	}
 }
 
-// exampleTOML is the [publish] section as the README documents it.
-const exampleTOML = `
-brokers = ["ssl://mqtt.wendlecross.invalid:8883", "ssl://mqtt-backup.wendlecross.invalid:8883"]
-client_id = "leqnode-wendle-cross-03"
-keep_alive = "30s"
-connect_timeout = "10s"
-persistent_session = false
-reconnect_max_delay = "2m"
-username = "wendle-cross-03"
-password_file = "/etc/leqnode/mqtt-password"
-topic_prefix = "wendlecross/noise"
-spectra = "minute"
-seconds_per_message = 10
-max_in_flight = 32
-backlog_messages_per_second = 250
-backlog_bytes_per_second = 0
-status_interval = "1m"
-stream = "mqtt"
-
-[tls]
-ca_file = "/etc/leqnode/wendlecross-ca.pem"
-cert_file = ""
-key_file = ""
-server_name = ""
-insecure_skip_verify = false
-
-[commands]
-enabled = false
-allow = ["calibration_check", "publish_status", "resend"]
-max_payload_bytes = 1024
-max_resend_range = "168h"
-`
+// documentedTOML returns the [publish] section as docs/mqtt.md documents it (its ```toml
+// block), with its sub-tables named as Config sees them.
+func documentedTOML(t *testing.T) string {
+	t.Helper()
+	b, err := os.ReadFile(filepath.Join("..", "..", "docs", "mqtt.md"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, rest, ok := strings.Cut(string(b), "## Configuration: the `[publish]` section")
+	if !ok {
+		t.Fatal("docs/mqtt.md has no section \"Configuration: the `[publish]` section\"")
+	}
+	_, rest, ok = strings.Cut(rest, "```toml\n")
+	block, _, ok2 := strings.Cut(rest, "```")
+	if !ok || !ok2 || !strings.HasPrefix(block, "[publish]\n") {
+		t.Fatal("docs/mqtt.md: the [publish] section's example is not a ```toml block starting with [publish]")
+	}
+	block = strings.TrimPrefix(block, "[publish]\n")
+	return strings.NewReplacer("[publish.tls]", "[tls]", "[publish.commands]", "[commands]").Replace(block)
+}
 
 // TestConfigTOML decodes the documented section strictly with the project's TOML library.
 func TestConfigTOML(t *testing.T) {
 	var c Config
-	dec := toml.NewDecoder(strings.NewReader(exampleTOML)).DisallowUnknownFields()
+	dec := toml.NewDecoder(strings.NewReader(documentedTOML(t))).DisallowUnknownFields()
 	if err := dec.Decode(&c); err != nil {
 		t.Fatal(err)
 	}
