@@ -13,6 +13,7 @@ import (
 
 	"github.com/leqnode/leqnode/node/collect"
 	"github.com/leqnode/leqnode/node/fleetdb"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // runFleet dispatches the fleet subcommands.
@@ -49,13 +50,13 @@ func runFleetStatus(ctx context.Context, std stdio, args []string) error {
 	}
 	hi, lo := time.Now(), time.Time{}
 	if *to != "" {
-		if hi, err = parseWhen("to", *to, time.UTC); err != nil {
+		if hi, err = query.ParseWhen("to", *to, time.UTC); err != nil {
 			return err
 		}
 	}
 	lo = hi.Add(-24 * time.Hour)
 	if *from != "" {
-		if lo, err = parseWhen("from", *from, time.UTC); err != nil {
+		if lo, err = query.ParseWhen("from", *from, time.UTC); err != nil {
 			return err
 		}
 	}

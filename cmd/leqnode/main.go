@@ -22,7 +22,7 @@ import (
 	"sort"
 	"syscall"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // stdio is what a command reads and writes; tests swap it.
@@ -32,12 +32,6 @@ type stdio struct {
 	err      io.Writer
 	outIsTTY bool
 	errIsTTY bool
-	// args is the whole command line after the program's name, for read-through: a reading
-	// command that finds the store held by the daemon sends it to the daemon's control socket.
-	args []string
-	// daemon, when set, is the store of the daemon this command runs inside (a request on the
-	// control socket): reading commands use it instead of opening the file.
-	daemon *buffer.Store
 }
 
 // command is one subcommand: a thin function over the packages.
@@ -100,7 +94,6 @@ func run(ctx context.Context, io stdio, args []string) int {
 	if args[0] == "--version" || args[0] == "-version" {
 		args = append([]string{"version"}, args[1:]...)
 	}
-	io.args = args
 	c, ok := cmds[args[0]]
 	if !ok {
 		fmt.Fprintf(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
@@ -110,12 +103,14 @@ func run(ctx context.Context, io stdio, args []string) int {
 	switch {
 	case err == nil:
 		return 0
-	case errors.Is(err, errHelpShown), errors.Is(err, errDoneByDaemon):
+	case errors.Is(err, errHelpShown):
 		return 0
 	default:
 		fmt.Fprintf(io.err, "leqnode %s: %v\n", args[0], err)
+		// Bad input: a usage error here, or a reading request refused as given (whether the
+		// store was read here or by the daemon through its control socket).
 		var u usageError
-		if errors.As(err, &u) {
+		if errors.As(err, &u) || errors.Is(err, query.ErrBadRequest) {
 			return 2
 		}
 		return 1

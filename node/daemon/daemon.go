@@ -25,7 +25,6 @@ import (
 	"sync/atomic"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
@@ -49,9 +48,6 @@ type Options struct {
 	// the microphone settings apply at once; other changes are named as needing a restart.
 	Reload     <-chan os.Signal
 	ConfigPath string
-	// Exec runs a reading command (export, report, db) against the store this daemon holds,
-	// for the control socket: it returns whether a failure was bad input, and the error.
-	Exec func(ctx context.Context, args []string, st *buffer.Store, stdout io.Writer) (badInput bool, err error)
 }
 
 // ErrConfig marks an error in the configuration or the environment it names (a token file, a
