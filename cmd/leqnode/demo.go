@@ -16,10 +16,10 @@ import (
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
-	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/demobroker"
 )
 
-func runDemo(ctx context.Context, std stdio, args []string) error {
+func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR] [--no-broker]", std.err)
 	dur := fl.Duration("duration", 65*time.Second, "how long a scene to play (0: until interrupted); in real time, or with --fast that much audio as fast as the processor allows")
 	fast := fl.Bool("fast", false, "play --duration of the scene as fast as the processor allows (not in real time), its records dated to end now")
@@ -73,11 +73,15 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 		defer cancel()
 	}
 	if !*noBroker {
-		url, stop, err := publish.StartLocalBroker(ctx, "127.0.0.1:0")
+		url, stop, err := demobroker.Start(ctx, "127.0.0.1:0")
 		if err != nil {
 			return err
 		}
-		defer stop()
+		defer func() {
+			if serr := stop(); serr != nil && rerr == nil {
+				rerr = fmt.Errorf("the demo's MQTT broker: %w", serr)
+			}
+		}()
 		cfg.Publish.Brokers = []string{url}
 		host, port, _ := strings.Cut(strings.TrimPrefix(url, "tcp://"), ":")
 		fmt.Fprintf(std.out, "MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
