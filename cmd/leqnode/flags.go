@@ -65,3 +65,12 @@ func openRecording(std stdio, name string) (r io.Reader, display string, done fu
 	}
 	return f, name, func() { f.Close() }, nil
 }
+
+// unwrapPath drops the *PathError prefix (the file name is already in the message).
+func unwrapPath(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
+}
