@@ -5,7 +5,6 @@ import (
 	"bytes"
 	"context"
 	"errors"
-	"fmt"
 
 	"github.com/leqnode/leqnode/node/analyze"
 	"github.com/leqnode/leqnode/node/analyze/resultwriter"
@@ -84,7 +83,7 @@ func (c *analyzeConfig) batch(ctx context.Context, std stdio, files []string, jo
 		if r.err != nil {
 			failed++
 			if !errors.Is(r.err, context.Canceled) {
-				fmt.Fprintf(std.err, "leqnode analyze: %v\n", r.err)
+				say(std.err, "leqnode analyze: %v\n", r.err)
 			}
 			return
 		}

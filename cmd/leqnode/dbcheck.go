@@ -2,7 +2,6 @@ package main
 
 import (
 	"context"
-	"fmt"
 
 	"github.com/leqnode/leqnode/node/query"
 )
@@ -11,10 +10,10 @@ import (
 func runDB(ctx context.Context, std stdio, args []string) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
 		if len(args) == 0 {
-			fmt.Fprintln(std.err, "usage: leqnode db check (--db FILE | --config FILE) [--format table|json]")
+			say(std.err, "usage: leqnode db check (--db FILE | --config FILE) [--format table|json]\n")
 			return badInput("give a db subcommand: check")
 		}
-		fmt.Fprintln(std.err, "leqnode db check: verify a store file (bbolt's page check, every record decodes, the time index and the counters agree) and summarise it in one line")
+		say(std.err, "leqnode db check: verify a store file (bbolt's page check, every record decodes, the time index and the counters agree) and summarise it in one line\n")
 		return runDBCheck(ctx, std, []string{"-h"}) // its usage line and flags
 	}
 	switch args[0] {

@@ -29,6 +29,7 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	if err != nil {
 		return err
 	}
+	out := &printer{w: std.out}
 	if len(pos) != 0 || *dur < 0 {
 		return badInput("demo takes no arguments; --duration must be 0 or more")
 	}
@@ -84,22 +85,25 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 		}()
 		cfg.Publish.Brokers = []string{url}
 		host, port, _ := strings.Cut(strings.TrimPrefix(url, "tcp://"), ":")
-		fmt.Fprintf(std.out, "MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
+		out.printf("MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
 	}
 	if ln, err := net.Listen("tcp", "127.0.0.1:0"); err == nil {
 		cfg.Web.Enabled, cfg.Web.Addr = true, ln.Addr().String()
-		ln.Close()
-		fmt.Fprintf(std.out, "status page: http://%s/ (this computer only, while the demo runs)\n", cfg.Web.Addr)
+		if err := ln.Close(); err != nil {
+			return fmt.Errorf("the status page's port: %w", err)
+		}
+		out.printf("status page: http://%s/ (this computer only, while the demo runs)\n", cfg.Web.Addr)
 	}
-	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
-	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
-	fmt.Fprintf(std.out, "while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
-	fmt.Fprintf(std.out, "levels are indicative: see the README's cautions\n\n")
+	out.printf("leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
+	out.printf("synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
+	out.printf("while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
+	out.printf("levels are indicative: see the README's cautions\n\n")
 	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
 	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Hooks: func(o *node.Options) {
 		o.SampleOrigin = origin
-		o.OnSecond = func(s *buffer.Second) { fmt.Fprintln(std.out, liveLine(s)) }
-		o.OnMinute = func(m *buffer.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
+		// Called on the node's processing goroutine while this one waits in runDaemon.
+		o.OnSecond = func(s *buffer.Second) { out.println(liveLine(s)) }
+		o.OnMinute = func(m *buffer.Minute) { out.println(minuteLine(m)) }
 	}})
 	if err != nil {
 		return err
@@ -108,22 +112,26 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	defer func() {
+		if cerr := st.Close(); cerr != nil && rerr == nil {
+			rerr = fmt.Errorf("closing the store %s: %w", cfg.Store.Path, cerr)
+		}
+	}()
 	stats, err := st.Stats()
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(std.out, "\nstored in %s (store %s):", cfg.Store.Path, st.ID())
+	out.printf("\nstored in %s (store %s):", cfg.Store.Path, st.ID())
 	for _, k := range buffer.Kinds() {
 		if ks := stats.Kinds[k]; ks.Count > 0 {
-			fmt.Fprintf(std.out, " %d %s", ks.Count, k)
+			out.printf(" %d %s", ks.Count, k)
 		}
 	}
-	fmt.Fprintf(std.out, "\nexport them with: %s export --config %s --kind second --format csv\n", prog(), cfgPath)
+	out.printf("\nexport them with: %s export --config %s --kind second --format csv\n", prog(), cfgPath)
 	if cfg.Web.Enabled {
-		fmt.Fprintf(std.out, "the status page stopped with the demo; `%s demo --duration 0` keeps it until you press Ctrl-C\n", prog())
+		out.printf("the status page stopped with the demo; `%s demo --duration 0` keeps it until you press Ctrl-C\n", prog())
 	}
-	return nil
+	return out.err
 }
 
 // prog is the command as the user typed it (bin/leqnode from make demo), or "leqnode".

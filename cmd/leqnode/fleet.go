@@ -19,7 +19,7 @@ import (
 // runFleet dispatches the fleet subcommands.
 func runFleet(ctx context.Context, std stdio, args []string) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
-		fmt.Fprintln(std.err, "usage: leqnode fleet status --config FILE [--from T] [--to T] [--format table|csv|json]")
+		say(std.err, "usage: leqnode fleet status --config FILE [--from T] [--to T] [--format table|csv|json]\n")
 		if len(args) == 0 {
 			return badInput("give a fleet subcommand: status")
 		}
@@ -123,13 +123,17 @@ func writeFleet(w io.Writer, format string, nodes []fleetdb.NodeSummary) error {
 		return cw.Error()
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	p := &printer{w: tw}
 	for _, r := range rows {
 		for i := range r {
 			if r[i] == "" {
 				r[i] = "-"
 			}
 		}
-		fmt.Fprintln(tw, strings.Join(r, "\t"))
+		p.println(strings.Join(r, "\t"))
+	}
+	if p.err != nil {
+		return p.err
 	}
 	return tw.Flush()
 }

@@ -20,6 +20,7 @@ import (
 	"os"
 	"os/signal"
 	"sort"
+	"strings"
 	"syscall"
 
 	"github.com/leqnode/leqnode/node/query"
@@ -85,9 +86,13 @@ func main() {
 func run(ctx context.Context, io stdio, args []string) int {
 	cmds := commands()
 	if len(args) == 0 || args[0] == "help" || args[0] == "-h" || args[0] == "--help" {
-		printHelp(io.out, cmds)
-		if len(args) == 0 {
+		err := printHelp(io.out, cmds)
+		switch {
+		case len(args) == 0:
 			return 2
+		case err != nil:
+			say(io.err, "leqnode help: %v\n", err)
+			return 1
 		}
 		return 0
 	}
@@ -96,7 +101,7 @@ func run(ctx context.Context, io stdio, args []string) int {
 	}
 	c, ok := cmds[args[0]]
 	if !ok {
-		fmt.Fprintf(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
+		say(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
 		return 2
 	}
 	err := c.run(ctx, io, args[1:])
@@ -106,7 +111,7 @@ func run(ctx context.Context, io stdio, args []string) int {
 	case errors.Is(err, errHelpShown):
 		return 0
 	default:
-		fmt.Fprintf(io.err, "leqnode %s: %v\n", args[0], err)
+		say(io.err, "leqnode %s: %v\n", args[0], err)
 		// Bad input: a usage error here, or a reading request refused as given (whether the
 		// store was read here or by the daemon through its control socket).
 		var u usageError
@@ -120,20 +125,20 @@ func run(ctx context.Context, io stdio, args []string) int {
 // errHelpShown reports that a command printed its help on request (-h); the exit status is 0.
 var errHelpShown = errors.New("help shown")
 
-func printHelp(w io.Writer, cmds map[string]command) {
+func printHelp(w io.Writer, cmds map[string]command) error {
 	names := make([]string, 0, len(cmds))
 	for n := range cmds {
 		names = append(names, n)
 	}
 	sort.Strings(names)
-	fmt.Fprintln(w, "usage: leqnode <command> [flags] [args]")
-	fmt.Fprintln(w)
-	fmt.Fprintln(w, "commands:")
+	var b strings.Builder
+	b.WriteString("usage: leqnode <command> [flags] [args]\n\ncommands:\n")
 	for _, n := range names {
-		fmt.Fprintf(w, "  %-10s %s\n", n, cmds[n].summary)
+		fmt.Fprintf(&b, "  %-10s %s\n", n, cmds[n].summary)
 	}
-	fmt.Fprintln(w)
-	fmt.Fprintln(w, "Run 'leqnode <command> -h' for a command's flags.")
+	b.WriteString("\nRun 'leqnode <command> -h' for a command's flags.\n")
+	_, err := io.WriteString(w, b.String())
+	return err
 }
 
 // isTerminal reports whether f is a character device (a terminal).

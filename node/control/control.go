@@ -78,10 +78,12 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			return nil, fmt.Errorf("control socket %s: a file that is not a socket is in the way: move it or set another path", path)
 		}
 		if c, err := net.DialTimeout("unix", path, 200*time.Millisecond); err == nil {
-			c.Close()
+			_ = c.Close() // a probe: nothing was sent on it
 			return nil, fmt.Errorf("control socket %s: another leqnode daemon is listening there: stop it or set another path", path)
 		}
-		os.Remove(path)
+		if err := os.Remove(path); err != nil && !errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("control socket %s: a stale socket is in the way and cannot be removed: %w", path, err)
+		}
 	}
 	if gid < 0 {
 		gid = os.Getgid()
@@ -94,12 +96,10 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 		return nil, fmt.Errorf("control socket %s: %w", path, err)
 	}
 	if err := os.Chown(path, -1, gid); err != nil && !errors.Is(err, os.ErrPermission) {
-		ln.Close()
-		return nil, fmt.Errorf("control socket %s: %w", path, err)
+		return nil, errors.Join(fmt.Errorf("control socket %s: %w", path, err), ln.Close())
 	}
 	if err := os.Chmod(path, 0o660); err != nil {
-		ln.Close()
-		return nil, fmt.Errorf("control socket %s: %w", path, err)
+		return nil, errors.Join(fmt.Errorf("control socket %s: %w", path, err), ln.Close())
 	}
 	s := &Server{path: path, ln: ln, log: log, gid: gid}
 	mux := http.NewServeMux()
@@ -109,7 +109,7 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 				http.Error(w, name+" is not available", http.StatusNotFound)
 				return
 			}
-			writeJSON(w, f())
+			s.writeJSON(w, f())
 		})
 	}
 	getJSON("status", h.Status)
@@ -139,7 +139,7 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			http.Error(w, err.Error(), http.StatusConflict)
 			return
 		}
-		writeJSON(w, res)
+		s.writeJSON(w, res)
 	})
 	mux.HandleFunc("POST /read", func(w http.ResponseWriter, r *http.Request) { s.read(w, r, h.Read) })
 	s.srv = &http.Server{
@@ -163,10 +163,14 @@ func (s *Server) Serve(ctx context.Context) error {
 		<-ctx.Done()
 		sctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
 		defer cancel()
-		s.srv.Shutdown(sctx)
+		if err := s.srv.Shutdown(sctx); err != nil {
+			s.log.Warn("control socket: requests still running at shutdown were cut off", "err", err)
+		}
 	}()
 	err := s.srv.Serve(s.ln)
-	os.Remove(s.path)
+	if rerr := os.Remove(s.path); rerr != nil && !errors.Is(rerr, os.ErrNotExist) {
+		s.log.Warn("control socket: the socket file was left behind", "path", s.path, "err", rerr)
+	}
 	if errors.Is(err, http.ErrServerClosed) {
 		return nil
 	}
@@ -223,11 +227,14 @@ func inGroup(pid, gid int) bool {
 	return false
 }
 
-func writeJSON(w http.ResponseWriter, v any) {
+// writeJSON answers v as indented JSON. A failure is the client's (it went away): logged.
+func (s *Server) writeJSON(w http.ResponseWriter, v any) {
 	w.Header().Set("Content-Type", "application/json")
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
-	enc.Encode(v)
+	if err := enc.Encode(v); err != nil {
+		s.log.Debug("control socket: an answer was not delivered", "err", err)
+	}
 }
 
 // Client talks to a daemon's control socket.
@@ -252,19 +259,25 @@ func (c *Client) Available() bool {
 	if err != nil {
 		return false
 	}
-	conn.Close()
+	_ = conn.Close() // a probe: nothing was sent on it
 	return true
 }
 
 // Get fetches a JSON answer (status, live, health) into v.
 func (c *Client) Get(ctx context.Context, name string, v any) error {
-	req, _ := http.NewRequestWithContext(ctx, http.MethodGet, "http://leqnode/"+name, nil)
+	req, err := http.NewRequestWithContext(ctx, http.MethodGet, "http://leqnode/"+name, nil)
+	if err != nil {
+		return fmt.Errorf("control socket %s: %w", c.path, err)
+	}
 	return c.do(req, v)
 }
 
 // Calibrate asks the daemon to take the next stable calibrator tone of the given level.
 func (c *Client) Calibrate(ctx context.Context, reference float64, v any) error {
-	req, _ := http.NewRequestWithContext(ctx, http.MethodPost, "http://leqnode/calibrate?reference="+strconv.FormatFloat(reference, 'f', -1, 64), nil)
+	req, err := http.NewRequestWithContext(ctx, http.MethodPost, "http://leqnode/calibrate?reference="+strconv.FormatFloat(reference, 'f', -1, 64), nil)
+	if err != nil {
+		return fmt.Errorf("control socket %s: %w", c.path, err)
+	}
 	return c.do(req, v)
 }
 
@@ -273,9 +286,12 @@ func (c *Client) do(req *http.Request, v any) error {
 	if err != nil {
 		return fmt.Errorf("control socket %s: %w", c.path, err)
 	}
-	defer resp.Body.Close()
+	defer closeBody(resp.Body)
 	if resp.StatusCode != http.StatusOK {
-		b, _ := io.ReadAll(io.LimitReader(resp.Body, 4096))
+		b, err := io.ReadAll(io.LimitReader(resp.Body, 4096))
+		if err != nil {
+			return fmt.Errorf("control socket %s: %s, and the answer was cut off: %w", c.path, resp.Status, err)
+		}
 		return fmt.Errorf("control socket %s: %s", c.path, strings.TrimSpace(string(b)))
 	}
 	return json.NewDecoder(resp.Body).Decode(v)

@@ -69,14 +69,20 @@ type daemon struct{ o Options }
 // Run runs a node with o until ctx ends (or a finite source ends), with every part its
 // configuration enables, and returns when all have stopped and the store is closed. An error
 // wrapping ErrConfig names a problem of the configuration.
-func Run(ctx context.Context, o Options) error {
+func Run(ctx context.Context, o Options) (err error) {
 	d := &daemon{o: o}
 	cfg, stdin, log, hooks := o.Config, o.Stdin, o.Logger, o.Hooks
 	st, err := d.openStore()
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	// Closed at the end of a run, and here on the way out of a start that failed (closing
+	// twice is harmless); it commits what the store still holds.
+	defer func() {
+		if cerr := st.Close(); cerr != nil && err == nil {
+			err = fmt.Errorf("closing the store: %w", cerr)
+		}
+	}()
 	src, err := capture.NewReader(cfg.Capture, stdin, log)
 	if err != nil {
 		return configError(fmt.Errorf("capture: %w", err))

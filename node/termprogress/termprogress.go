@@ -13,20 +13,24 @@ import (
 )
 
 // Clear erases the line a bar was drawn on.
-func Clear(w io.Writer) { fmt.Fprint(w, "\r\033[K") }
+func Clear(w io.Writer) { draw(w, "\r\033[K") }
+
+// draw writes to the terminal. A failed write is dropped: a bar is a courtesy to the person
+// watching, and the read it follows goes on whether the terminal shows it or not.
+func draw(w io.Writer, format string, a ...any) { _, _ = fmt.Fprintf(w, format, a...) }
 
 // Bar returns the progress callback of one read (frames done of total; total <= 0: not
 // known) that draws a bar on the terminal w.
 func Bar(w io.Writer) func(done, total int64) {
 	return func(done, total int64) {
 		if total <= 0 {
-			fmt.Fprintf(w, "\r%d frames read", done)
+			draw(w, "\r%d frames read", done)
 			return
 		}
 		const width = 40
 		frac := float64(done) / float64(total)
 		n := int(frac * width)
-		fmt.Fprintf(w, "\r[%s%s] %3.0f%%", strings.Repeat("#", n), strings.Repeat(".", width-n), 100*frac)
+		draw(w, "\r[%s%s] %3.0f%%", strings.Repeat("#", n), strings.Repeat(".", width-n), 100*frac)
 	}
 }
 
@@ -74,7 +78,7 @@ func (b *Batch) Finish(i int) {
 func (b *Batch) Clear() {
 	b.mu.Lock()
 	defer b.mu.Unlock()
-	fmt.Fprint(b.w, "\r\033[K")
+	Clear(b.w)
 }
 
 // draw writes the bar; the caller holds b.mu. Recordings whose length is not known yet count
@@ -96,5 +100,5 @@ func (b *Batch) draw() {
 	}
 	const width = 40
 	n := min(width, int(frac*width))
-	fmt.Fprintf(b.w, "\r[%s%s] %3.0f%%  %d/%d recordings", strings.Repeat("#", n), strings.Repeat(".", width-n), 100*frac, b.finished, len(b.total))
+	draw(b.w, "\r[%s%s] %3.0f%%  %d/%d recordings", strings.Repeat("#", n), strings.Repeat(".", width-n), 100*frac, b.finished, len(b.total))
 }
