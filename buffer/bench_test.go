@@ -10,6 +10,9 @@ import (
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 )
 
 // Benchmarks. `make test` runs each once on small data; the sizes grow with environment
@@ -44,11 +47,11 @@ func benchDir(b *testing.B) string {
 }
 
 // minuteRecord is a realistic minute record: spectrum and a 25 dB wide Fast level histogram.
-func minuteRecord(start time.Time, laeq float64) *Minute {
-	m := &Minute{Start: start, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9, LAFmax: laeq + 12, LAFmin: laeq - 8,
+func minuteRecord(start time.Time, laeq float64) *record.Minute {
+	m := &record.Minute{Start: start, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9, LAFmax: laeq + 12, LAFmin: laeq - 8,
 		LAF1: laeq + 9, LAF5: laeq + 6, LAF10: laeq + 4, LAF50: laeq - 1, LAF90: laeq - 5, LAF95: laeq - 6,
 		LAF99: laeq - 7, LAE: laeq + 17.8, LCpeak: laeq + 30, LAImax: laeq + 14,
-		Spectrum: thirdOctave(33, laeq-30), FirstBand: -19, ValidSeconds: 60}
+		Spectrum: recordtest.ThirdOctave(33, laeq-30), FirstBand: -19, ValidSeconds: 60}
 	m.Histogram.First = int32(10 * (laeq - 9))
 	m.Histogram.Counts = make([]uint32, 250)
 	for i := range m.Histogram.Counts {
@@ -58,8 +61,8 @@ func minuteRecord(start time.Time, laeq float64) *Minute {
 	return m
 }
 
-func healthRecord(at time.Time) *Health {
-	return &Health{At: at, CPU: 7.5, MemoryMB: 28, DiskFreeMB: 12000, StoreBytes: 1 << 28, ClockSynced: true,
+func healthRecord(at time.Time) *record.Health {
+	return &record.Health{At: at, CPU: 7.5, MemoryMB: 28, DiskFreeMB: 12000, StoreBytes: 1 << 28, ClockSynced: true,
 		ClockErrorMs: 0.4, TemperatureC: 48, DCOffset: 0.001}
 }
 
@@ -93,7 +96,7 @@ func fill(b *testing.B, s *Store, start time.Time, d time.Duration, spectra bool
 
 func fillOptions(clk *clock) *Options {
 	return &Options{Now: clk.Now, MaxHeld: 50000, CommitInterval: time.Hour, NoSync: true, Logger: quietLogger(),
-		Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}}
+		Retention: map[record.Kind]time.Duration{record.KindSecond: -1, record.KindHealth: -1}}
 }
 
 // BenchmarkAppend measures the cost of one Append (a second record with spectrum, a commit every
@@ -174,7 +177,7 @@ func BenchmarkRange(b *testing.B) {
 	var n int
 	for range b.N {
 		n = 0
-		err := r.Range(KindSecond, t0, t0.Add(time.Duration(days*24*float64(time.Hour))), func(Record) error { n++; return nil })
+		err := r.Range(record.KindSecond, t0, t0.Add(time.Duration(days*24*float64(time.Hour))), func(record.Record) error { n++; return nil })
 		if err != nil {
 			b.Fatal(err)
 		}
@@ -269,12 +272,12 @@ func BenchmarkWriteVolume(b *testing.B) {
 		for _, syncFreelist := range []bool{false, true} {
 			b.Run(fmt.Sprintf("commit=%v/freelist-sync=%v", interval, syncFreelist), func(b *testing.B) {
 				s, err := Open(path, &Options{Now: clk.Now, CommitInterval: interval, NoFreelistSync: !syncFreelist,
-					Logger: quietLogger(), Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}})
+					Logger: quietLogger(), Retention: map[record.Kind]time.Duration{record.KindSecond: -1, record.KindHealth: -1}})
 				if err != nil {
 					b.Fatal(err)
 				}
 				defer s.Close()
-				s.Pending("mqtt", KindSecond, 1)
+				s.Pending("mqtt", record.KindSecond, 1)
 				s.Flush()
 				st0, _ := s.Stats()
 				disk0, diskOK := diskWriteBytes()
@@ -285,8 +288,8 @@ func BenchmarkWriteVolume(b *testing.B) {
 						fill1(b, s, next, true)
 						next++
 						if j%10 == 9 {
-							if c := s.LastSeq(KindSecond); c > 0 {
-								_ = s.Ack("mqtt", KindSecond, s.committedSeq(KindSecond))
+							if c := s.LastSeq(record.KindSecond); c > 0 {
+								_ = s.Ack("mqtt", record.KindSecond, s.committedSeq(record.KindSecond))
 							}
 						}
 					}
@@ -306,7 +309,7 @@ func BenchmarkWriteVolume(b *testing.B) {
 }
 
 // committedSeq returns the last committed sequence number of kind k (test helper).
-func (s *Store) committedSeq(k Kind) uint64 {
+func (s *Store) committedSeq(k record.Kind) uint64 {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	return s.committed[k]
@@ -329,7 +332,7 @@ func BenchmarkOpen(b *testing.B) {
 		b.Run(fmt.Sprintf("freelist-sync=%v", syncFreelist), func(b *testing.B) {
 			for range b.N {
 				s, err := Open(path, &Options{NoFreelistSync: !syncFreelist, Now: clk.Now, Logger: quietLogger(),
-					Retention: map[Kind]time.Duration{KindSecond: -1, KindHealth: -1}})
+					Retention: map[record.Kind]time.Duration{record.KindSecond: -1, record.KindHealth: -1}})
 				if err != nil {
 					b.Fatal(err)
 				}

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -35,7 +36,7 @@ func (s *Store) check() error {
 	// damaged page into an error. bbolt's check runs in a goroutine of its own, where a fault
 	// would end the process, so it runs only over trees the walk has read safely.
 	err := s.view(func(tx *bolt.Tx) error {
-		for _, k := range Kinds() {
+		for _, k := range record.Kinds() {
 			rb, xb := tx.Bucket(recBucket(k)), tx.Bucket(runsBucket(k))
 			if rb == nil || xb == nil {
 				add(fmt.Errorf("buckets of kind %s missing", k))
@@ -52,7 +53,7 @@ func (s *Store) check() error {
 						return errStop
 					}
 				}
-				r, err := Decode(k, v)
+				r, err := record.Decode(k, v)
 				if err != nil {
 					if !add(fmt.Errorf("%s record %d: %w", k, seq, err)) {
 						return errStop

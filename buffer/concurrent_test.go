@@ -5,6 +5,8 @@ import (
 	"sync"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // The node appends from its processing goroutine while the publisher, the status page and the
@@ -36,7 +38,7 @@ func TestConcurrentUse(t *testing.T) {
 	go func() { // the publisher
 		defer wg.Done()
 		for {
-			recs, err := s.Pending("mqtt", KindSecond, 100)
+			recs, err := s.Pending("mqtt", record.KindSecond, 100)
 			if err != nil {
 				t.Error(err)
 				return
@@ -45,7 +47,7 @@ func TestConcurrentUse(t *testing.T) {
 				got = append(got, r.Seq())
 			}
 			if len(recs) > 0 {
-				if err := s.Ack("mqtt", KindSecond, recs[len(recs)-1].Seq()); err != nil {
+				if err := s.Ack("mqtt", record.KindSecond, recs[len(recs)-1].Seq()); err != nil {
 					t.Error(err)
 					return
 				}
@@ -72,11 +74,11 @@ func TestConcurrentUse(t *testing.T) {
 			if _, err := s.Stats(); err != nil {
 				t.Error(err)
 			}
-			if _, err := s.Recent(KindSecond, s.LastSeq(KindSecond)-10, 20); err != nil {
+			if _, err := s.Recent(record.KindSecond, s.LastSeq(record.KindSecond)-10, 20); err != nil {
 				t.Error(err)
 			}
 			prev := time.Time{}
-			err := s.Range(KindSecond, t0, t0.Add(time.Hour), func(r Record) error {
+			err := s.Range(record.KindSecond, t0, t0.Add(time.Hour), func(r record.Record) error {
 				if r.Time().Before(prev) {
 					t.Errorf("Range out of order")
 				}

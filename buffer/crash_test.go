@@ -12,6 +12,9 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 )
 
 // The crash test re-executes the test binary as a writer child. The child appends records as
@@ -31,7 +34,7 @@ const crashChildEnv = "LEQNODE_CRASH_CHILD"
 
 // crashSecond is the record with sequence number seq: its content is a function of seq, so the
 // parent can verify every record without knowing what the child wrote.
-func crashSecond(seq uint64) *Second {
+func crashSecond(seq uint64) *record.Second {
 	r := second(t0.Add(time.Duration(seq)*time.Second), 30+float64(seq%7000)/100)
 	r.DroppedSamples = seq
 	return r
@@ -44,7 +47,7 @@ func TestCrashChild(t *testing.T) {
 	}
 	report := os.NewFile(3, "report")
 	s, err := Open(path, &Options{
-		Retention: map[Kind]time.Duration{KindSecond: -1, KindMinute: -1},
+		Retention: map[record.Kind]time.Duration{record.KindSecond: -1, record.KindMinute: -1},
 		Logger:    quietLogger(),
 	})
 	if err != nil {
@@ -53,13 +56,13 @@ func TestCrashChild(t *testing.T) {
 	}
 	// FirstSeq is the restart marker the node puts in its session records: where this opening's
 	// numbers start, above every number an earlier process may have handed out.
-	if s.FirstSeq(KindSecond) != s.LastSeq(KindSecond)+1 {
-		fmt.Fprintln(os.Stderr, "FirstSeq", s.FirstSeq(KindSecond), "is not the next number", s.LastSeq(KindSecond)+1)
+	if s.FirstSeq(record.KindSecond) != s.LastSeq(record.KindSecond)+1 {
+		fmt.Fprintln(os.Stderr, "FirstSeq", s.FirstSeq(record.KindSecond), "is not the next number", s.LastSeq(record.KindSecond)+1)
 		os.Exit(7)
 	}
-	fmt.Fprintf(report, "start %d\n", s.FirstSeq(KindSecond))
+	fmt.Fprintf(report, "start %d\n", s.FirstSeq(record.KindSecond))
 	for n := 0; ; n++ {
-		seq := s.LastSeq(KindSecond) + 1
+		seq := s.LastSeq(record.KindSecond) + 1
 		r := crashSecond(seq)
 		got, err := s.Append(r)
 		if err != nil || got != seq {
@@ -67,7 +70,7 @@ func TestCrashChild(t *testing.T) {
 			os.Exit(4)
 		}
 		if seq%60 == 0 {
-			if _, err := s.Append(&Minute{Start: r.Start.Add(-59 * time.Second), LAeq: r.LAeq}); err != nil {
+			if _, err := s.Append(&record.Minute{Start: r.Start.Add(-59 * time.Second), LAeq: r.LAeq}); err != nil {
 				os.Exit(5)
 			}
 		}
@@ -78,7 +81,7 @@ func TestCrashChild(t *testing.T) {
 			}
 			fmt.Fprintf(report, "%d\n", seq)
 			if seq > 100 && n%32 == 31 {
-				_ = s.Ack("mqtt", KindSecond, seq-100)
+				_ = s.Ack("mqtt", record.KindSecond, seq-100)
 			}
 		}
 	}
@@ -177,7 +180,7 @@ func verifyCrashStore(t *testing.T, path string, reported map[uint64]bool, kill 
 	present := map[uint64]bool{}
 	var last uint64
 	for {
-		recs, err := s.After(KindSecond, last, 4096)
+		recs, err := s.After(record.KindSecond, last, 4096)
 		if err != nil {
 			t.Fatalf("kill %d: %v", kill, err)
 		}
@@ -189,8 +192,8 @@ func verifyCrashStore(t *testing.T, path string, reported map[uint64]bool, kill 
 				t.Fatalf("kill %d: record %d after %d: out of order", kill, r.Seq(), last)
 			}
 			want := crashSecond(r.Seq())
-			want.setSeq(r.Seq())
-			if !sameRecord(r, want) {
+			want.SetSeq(r.Seq())
+			if !recordtest.Same(r, want) {
 				t.Fatalf("kill %d: record %d has the wrong content: %+v", kill, r.Seq(), r)
 			}
 			last = r.Seq()

@@ -3,11 +3,11 @@
 //
 // # Model
 //
-// A store holds records of a few kinds (see Kind): one-second results, one-minute statistics,
-// events, calibration checks, health snapshots, gaps, annotations and session records. The
-// package knows nothing of audio: a record is a plain Go value with a compact, versioned binary
-// encoding (a version byte first). A reader refuses a record written by a newer format version
-// with ErrNewerRecord, and reads every older version.
+// A store holds records of the kinds that package record defines (record.Kind): one-second
+// results, one-minute statistics, events, calibration checks, health snapshots, gaps, annotations
+// and session records. The package knows nothing of audio nor of what a record means: it keeps
+// each record's versioned binary encoding (record.Record.AppendBinary, record.Decode) under its
+// kind, sequence number and time.
 //
 // Every store has a random identity made at creation (Store.ID). Inside a store each kind has its
 // own strictly increasing sequence number, assigned by Append; a committed sequence number is

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // A node appends one second record per second; the store commits them in groups. The demo
@@ -23,9 +24,9 @@ func ExampleStore_Append() {
 		log.Fatal(err)
 	}
 	defer s.Close()
-	s.Append(&buffer.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Europe/London"})
+	s.Append(&record.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Europe/London"})
 	for i := range 3 {
-		seq, err := s.Append(&buffer.Second{
+		seq, err := s.Append(&record.Second{
 			Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second,
 			LAeq: 52.3 + float64(i), LAFmax: 55.1 + float64(i),
 		})
@@ -49,15 +50,15 @@ func ExampleStore_Pending() {
 	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
 	defer s.Close()
 	for i := range 5 {
-		s.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50})
+		s.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50})
 	}
 	s.Flush()
-	recs, _ := s.Pending("mqtt", buffer.KindSecond, 3)
+	recs, _ := s.Pending("mqtt", record.KindSecond, 3)
 	for _, r := range recs {
 		fmt.Println("send", r.Kind(), r.Seq(), r.Time().Format(time.TimeOnly))
 	}
-	s.Ack("mqtt", buffer.KindSecond, recs[len(recs)-1].Seq())
-	recs, _ = s.Pending("mqtt", buffer.KindSecond, 3)
+	s.Ack("mqtt", record.KindSecond, recs[len(recs)-1].Seq())
+	recs, _ = s.Pending("mqtt", record.KindSecond, 3)
 	fmt.Println("still pending:", len(recs))
 	// Output:
 	// send second 1 07:00:00
@@ -74,12 +75,12 @@ func ExampleStore_Range() {
 	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
 	defer s.Close()
 	for i := range 4 {
-		s.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50 + float64(i)})
+		s.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50 + float64(i)})
 	}
-	s.Append(&buffer.Annotation{From: start.Add(2 * time.Second), To: start.Add(time.Hour), Flags: buffer.Excluded,
+	s.Append(&record.Annotation{From: start.Add(2 * time.Second), To: start.Add(time.Hour), Flags: record.Excluded,
 		Reason: "bin lorry parked beside the mast"})
-	err := s.Range(buffer.KindSecond, start.Add(time.Second), start.Add(time.Minute), func(r buffer.Record) error {
-		sec := r.(*buffer.Second)
+	err := s.Range(record.KindSecond, start.Add(time.Second), start.Add(time.Minute), func(r record.Record) error {
+		sec := r.(*record.Second)
 		fmt.Printf("%s LAeq %.1f dB flags=%q\n", sec.Start.Format(time.TimeOnly), sec.LAeq, sec.Flags)
 		return nil
 	})
@@ -107,14 +108,14 @@ func ExampleOpenReadOnly() {
 	}
 	defer r.Close()
 	st, _ := r.Stats()
-	fmt.Println(len(st.ID), st.Kinds[buffer.KindSecond].Count)
+	fmt.Println(len(st.ID), st.Kinds[record.KindSecond].Count)
 	// Output:
 	// true
 	// 16 0
 }
 
 func ExampleFlags_String() {
-	f := buffer.Settling | buffer.ClockUnsynced
+	f := record.Settling | record.ClockUnsynced
 	fmt.Println(f)
 	// Output: settling|clock-unsynced
 }
@@ -128,10 +129,10 @@ func ExampleStore_Recent() {
 	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
 	defer s.Close()
 	for i := range 3 {
-		s.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 48})
+		s.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 48})
 	}
-	durable, _ := s.After(buffer.KindSecond, 0, 10)
-	live, _ := s.Recent(buffer.KindSecond, 0, 10)
+	durable, _ := s.After(record.KindSecond, 0, 10)
+	live, _ := s.Recent(record.KindSecond, 0, 10)
 	fmt.Println(len(durable), "committed,", len(live), "including held")
 	// Output: 1 committed, 3 including held
 }
@@ -143,11 +144,11 @@ func ExampleStore_Check() {
 	start := time.Date(2026, 3, 14, 7, 0, 0, 0, time.UTC)
 	s, _ := buffer.Open(filepath.Join(dir, "mill-lane-3.db"), &buffer.Options{Now: func() time.Time { return start }})
 	defer s.Close()
-	s.Append(&buffer.Gap{From: start, To: start.Add(90 * time.Second), Reason: "audio device lost"})
+	s.Append(&record.Gap{From: start, To: start.Add(90 * time.Second), Reason: "audio device lost"})
 	s.Flush()
 	fmt.Println(s.Check())
 	st, _ := s.Stats()
-	fmt.Println(st.Kinds[buffer.KindGap].Count, st.Kinds[buffer.KindGap].Oldest.Format(time.RFC3339))
+	fmt.Println(st.Kinds[record.KindGap].Count, st.Kinds[record.KindGap].Oldest.Format(time.RFC3339))
 	// Output:
 	// <nil>
 	// 1 2026-03-14T07:00:00Z

@@ -7,6 +7,8 @@ import (
 	"path/filepath"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestFullFileSystemTrims: the store's file system fills up while it holds more than a
@@ -30,7 +32,7 @@ func TestFullFileSystemTrims(t *testing.T) {
 	spec := make([]float64, 33)
 	var last uint64
 	for i := range 40000 {
-		r := &Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50 + float64(i%20), Spectrum: spec, FirstBand: -19}
+		r := &record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50 + float64(i%20), Spectrum: spec, FirstBand: -19}
 		seq, err := s.Append(r)
 		if err != nil && !errors.Is(err, ErrNotCommitted) {
 			t.Fatalf("record %d: %v", i, err)
@@ -46,10 +48,10 @@ func TestFullFileSystemTrims(t *testing.T) {
 	if err := s.Check(); err != nil {
 		t.Fatalf("check: %v", err)
 	}
-	got, err := s.Last(KindSecond)
+	got, err := s.Last(record.KindSecond)
 	if err != nil || got == nil || got.Seq() != last {
 		t.Fatalf("last second %v (%v), want seq %d", got, err, last)
 	}
 	st, _ := s.Stats()
-	t.Logf("%d seconds kept of 40000 within %d bytes of records", st.Kinds[KindSecond].Count, s.SpaceCapped())
+	t.Logf("%d seconds kept of 40000 within %d bytes of records", st.Kinds[record.KindSecond].Count, s.SpaceCapped())
 }

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Range must return exactly the stored records whose time lies in [from, to), in (time, seq)
@@ -20,7 +22,7 @@ func TestRangeMatchesModel(t *testing.T) {
 			clk := &clock{t: t0}
 			path := filepath.Join(t.TempDir(), "node.db")
 			s := openTest(t, path, &Options{Now: clk.Now, CommitInterval: 10 * time.Second, MaxBytes: 1 << 20,
-				Retention: map[Kind]time.Duration{KindSecond: 3 * time.Hour, KindEvent: 2 * time.Hour}})
+				Retention: map[record.Kind]time.Duration{record.KindSecond: 3 * time.Hour, record.KindEvent: 2 * time.Hour}})
 			defer s.Close()
 			wall := t0 // the node's idea of the time, which steps
 			for i := range 20000 {
@@ -37,7 +39,7 @@ func TestRangeMatchesModel(t *testing.T) {
 				}
 				if rng.Float64() < 0.01 {
 					start := wall.Add(-time.Duration(rng.IntN(300)) * time.Second)
-					if _, err := s.Append(&Event{Start: start, End: wall, LAFmax: 80}); err != nil {
+					if _, err := s.Append(&record.Event{Start: start, End: wall, LAFmax: 80}); err != nil {
 						t.Fatal(err)
 					}
 				}
@@ -46,9 +48,9 @@ func TestRangeMatchesModel(t *testing.T) {
 				t.Fatal(err)
 			}
 			st, _ := s.Stats()
-			t.Logf("seconds stored %d, removed by age %d, by size %d", st.Kinds[KindSecond].Count,
-				st.Kinds[KindSecond].RemovedByAge, st.Kinds[KindSecond].RemovedBySize)
-			for _, k := range []Kind{KindSecond, KindEvent} {
+			t.Logf("seconds stored %d, removed by age %d, by size %d", st.Kinds[record.KindSecond].Count,
+				st.Kinds[record.KindSecond].RemovedByAge, st.Kinds[record.KindSecond].RemovedBySize)
+			for _, k := range []record.Kind{record.KindSecond, record.KindEvent} {
 				var truth []keyed
 				var last uint64
 				for {

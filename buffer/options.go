@@ -3,6 +3,8 @@ package buffer
 import (
 	"log/slog"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Defaults. The commit interval and freelist choice come from the write-volume measurements of
@@ -27,16 +29,16 @@ const (
 
 // DefaultRetention returns the default retention per kind: seconds 30 days, health 90 days,
 // everything else 5 years.
-func DefaultRetention() map[Kind]time.Duration {
-	return map[Kind]time.Duration{
-		KindSecond:      30 * day,
-		KindHealth:      90 * day,
-		KindMinute:      5 * year,
-		KindEvent:       5 * year,
-		KindCalibration: 5 * year,
-		KindAnnotation:  5 * year,
-		KindSession:     5 * year,
-		KindGap:         5 * year,
+func DefaultRetention() map[record.Kind]time.Duration {
+	return map[record.Kind]time.Duration{
+		record.KindSecond:      30 * day,
+		record.KindHealth:      90 * day,
+		record.KindMinute:      5 * year,
+		record.KindEvent:       5 * year,
+		record.KindCalibration: 5 * year,
+		record.KindAnnotation:  5 * year,
+		record.KindSession:     5 * year,
+		record.KindGap:         5 * year,
 	}
 }
 
@@ -63,7 +65,7 @@ type Options struct {
 	// Danger: age retention trusts the wall clock. A clock that jumps years ahead deletes the
 	// records it then believes too old; a node should not start writing before its clock is
 	// plausible.
-	Retention map[Kind]time.Duration
+	Retention map[record.Kind]time.Duration
 
 	// MaxBytes caps the space the records use (default DefaultMaxBytes). When the used space
 	// passes 90 % of the cap, the oldest records of the kinds with the shortest retention are

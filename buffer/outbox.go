@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"fmt"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -18,7 +19,7 @@ func checkStream(stream string) error {
 // Pending returns up to limit committed records of kind k that stream has not acknowledged, in
 // sequence order. A stream seen for the first time starts before the oldest stored record. The
 // records are copies; no transaction is held after Pending returns.
-func (s *Store) Pending(stream string, k Kind, limit int) ([]Record, error) {
+func (s *Store) Pending(stream string, k record.Kind, limit int) ([]record.Record, error) {
 	if err := checkStream(stream); err != nil {
 		return nil, err
 	}
@@ -49,7 +50,7 @@ func (s *Store) Pending(stream string, k Kind, limit int) ([]Record, error) {
 
 // After returns up to limit committed records of kind k with sequence numbers greater than seq,
 // in sequence order, as copies. It moves no cursor.
-func (s *Store) After(k Kind, seq uint64, limit int) ([]Record, error) {
+func (s *Store) After(k record.Kind, seq uint64, limit int) ([]record.Record, error) {
 	if !k.Valid() {
 		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
 	}
@@ -73,7 +74,7 @@ func (s *Store) After(k Kind, seq uint64, limit int) ([]Record, error) {
 // Danger: a held record is not durable. A crash before its commit loses it, and its number is
 // then skipped (numbers are never reused), so a consumer may have delivered a record that the
 // store no longer holds. Use After where only durable records may leave the node.
-func (s *Store) Recent(k Kind, seq uint64, limit int) ([]Record, error) {
+func (s *Store) Recent(k record.Kind, seq uint64, limit int) ([]record.Record, error) {
 	if !k.Valid() {
 		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
 	}
@@ -86,17 +87,17 @@ func (s *Store) Recent(k Kind, seq uint64, limit int) ([]Record, error) {
 		return nil, ErrClosed
 	}
 	upto := s.committed[k]
-	var mem []Record
+	var mem []record.Record
 	for _, h := range s.held {
 		if h.kind != k || h.seq <= max(seq, upto) || len(mem) >= limit {
 			continue
 		}
-		r, err := Decode(k, h.value)
+		r, err := record.Decode(k, h.value)
 		if err != nil {
 			s.mu.Unlock()
 			return nil, err
 		}
-		r.setSeq(h.seq)
+		r.SetSeq(h.seq)
 		mem = append(mem, r)
 	}
 	s.mu.Unlock()
@@ -108,8 +109,8 @@ func (s *Store) Recent(k Kind, seq uint64, limit int) ([]Record, error) {
 	return out[:min(len(out), limit)], nil
 }
 
-func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
-	var out []Record
+func (s *Store) after(k record.Kind, after, upto uint64, limit int) ([]record.Record, error) {
+	var out []record.Record
 	err := s.view(func(tx *bolt.Tx) error {
 		cur := tx.Bucket(recBucket(k)).Cursor()
 		for key, v := cur.Seek(seqKey(after + 1)); key != nil && len(out) < limit; key, v = cur.Next() {
@@ -117,11 +118,11 @@ func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
 			if seq > upto {
 				break
 			}
-			r, err := Decode(k, v)
+			r, err := record.Decode(k, v)
 			if err != nil {
 				return fmt.Errorf("store %s: %s record %d: %w", s.path, k, seq, err)
 			}
-			r.setSeq(seq)
+			r.SetSeq(seq)
 			out = append(out, r)
 		}
 		return nil
@@ -134,7 +135,7 @@ func (s *Store) after(k Kind, after, upto uint64, limit int) ([]Record, error) {
 // older seq is ignored. The cursor is persisted with the next commit,
 // so after a crash a stream may see up to one commit interval of records again; consumers
 // de-duplicate by (store id, kind, seq).
-func (s *Store) Ack(stream string, k Kind, seq uint64) error {
+func (s *Store) Ack(stream string, k record.Kind, seq uint64) error {
 	if err := checkStream(stream); err != nil {
 		return err
 	}
@@ -163,7 +164,7 @@ func (s *Store) Ack(stream string, k Kind, seq uint64) error {
 }
 
 // LastSeq returns the last sequence number assigned to kind k (committed or held), 0 if none.
-func (s *Store) LastSeq(k Kind) uint64 {
+func (s *Store) LastSeq(k record.Kind) uint64 {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if !k.Valid() {
@@ -174,7 +175,7 @@ func (s *Store) LastSeq(k Kind) uint64 {
 
 // LastCommitted returns the last committed sequence number of kind k, 0 if none: what a
 // consumer of the outbox can have received.
-func (s *Store) LastCommitted(k Kind) uint64 {
+func (s *Store) LastCommitted(k record.Kind) uint64 {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if !k.Valid() {
@@ -188,7 +189,7 @@ func (s *Store) LastCommitted(k Kind) uint64 {
 // Options.MaxHeld above it, since numbers handed out before the crash are never used again. A
 // consumer that sees the numbers of a kind jump to FirstSeq (the node states it in its session
 // records) knows the skipped numbers were never committed: a restart, not a loss.
-func (s *Store) FirstSeq(k Kind) uint64 {
+func (s *Store) FirstSeq(k record.Kind) uint64 {
 	s.mu.Lock()
 	defer s.mu.Unlock()
 	if !k.Valid() {
@@ -199,7 +200,7 @@ func (s *Store) FirstSeq(k Kind) uint64 {
 
 // Last returns the record of kind k with the highest sequence number (held or committed), or nil
 // when the kind holds none.
-func (s *Store) Last(k Kind) (Record, error) {
+func (s *Store) Last(k record.Kind) (record.Record, error) {
 	if !k.Valid() {
 		return nil, fmt.Errorf("unknown record kind %d", uint8(k))
 	}
@@ -207,25 +208,25 @@ func (s *Store) Last(k Kind) (Record, error) {
 	for i := len(s.held) - 1; i >= 0; i-- {
 		if h := s.held[i]; h.kind == k {
 			s.mu.Unlock()
-			r, err := Decode(k, h.value)
+			r, err := record.Decode(k, h.value)
 			if err == nil {
-				r.setSeq(h.seq)
+				r.SetSeq(h.seq)
 			}
 			return r, err
 		}
 	}
 	s.mu.Unlock()
-	var out Record
+	var out record.Record
 	err := s.view(func(tx *bolt.Tx) error {
 		key, v := tx.Bucket(recBucket(k)).Cursor().Last()
 		if key == nil {
 			return nil
 		}
-		r, err := Decode(k, v)
+		r, err := record.Decode(k, v)
 		if err != nil {
 			return fmt.Errorf("store %s: %s record %d: %w", s.path, k, binary.BigEndian.Uint64(key), err)
 		}
-		r.setSeq(binary.BigEndian.Uint64(key))
+		r.SetSeq(binary.BigEndian.Uint64(key))
 		out = r
 		return nil
 	})

@@ -7,6 +7,7 @@ import (
 	"slices"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -15,7 +16,7 @@ const rangeChunk = 1024
 
 type keyed struct {
 	tkey, seq uint64
-	rec       Record
+	rec       record.Record
 }
 
 func (a keyed) less(b keyed) bool { return a.tkey < b.tkey || a.tkey == b.tkey && a.seq < b.seq }
@@ -35,7 +36,7 @@ type source struct {
 // Range reads in chunks, each in its own short read transaction, and calls fn outside any
 // transaction with a copy; fn may call other methods of the store. An error from fn stops the
 // iteration and is returned.
-func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
+func (s *Store) Range(k record.Kind, from, to time.Time, fn func(record.Record) error) error {
 	if !k.Valid() {
 		return fmt.Errorf("unknown record kind %d", uint8(k))
 	}
@@ -53,11 +54,11 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 	}
 	memFirst := s.nextSeq[k]
 	var mem []keyed
-	var memAnn []*Annotation
-	annotated := k == KindSecond || k == KindMinute || k == KindEvent
+	var memAnn []*record.Annotation
+	annotated := k == record.KindSecond || k == record.KindMinute || k == record.KindEvent
 	for _, h := range s.held {
-		if h.kind == KindAnnotation && annotated {
-			a := new(Annotation)
+		if h.kind == record.KindAnnotation && annotated {
+			a := new(record.Annotation)
 			if err := a.UnmarshalBinary(h.value); err == nil {
 				memAnn = append(memAnn, a)
 			}
@@ -69,12 +70,12 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 		if h.tkey < lo || h.tkey >= hi {
 			continue
 		}
-		r, err := Decode(k, h.value)
+		r, err := record.Decode(k, h.value)
 		if err != nil {
 			s.mu.Unlock()
 			return err
 		}
-		r.setSeq(h.seq)
+		r.SetSeq(h.seq)
 		mem = append(mem, keyed{h.tkey, h.seq, r})
 	}
 	s.mu.Unlock()
@@ -88,7 +89,7 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 		return 0
 	})
 
-	var anns []*Annotation
+	var anns []*record.Annotation
 	if annotated {
 		var err error
 		if anns, err = s.annotations(); err != nil {
@@ -131,11 +132,11 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 				if seq >= src.end {
 					break
 				}
-				r, err := Decode(k, v)
+				r, err := record.Decode(k, v)
 				if err != nil {
 					return fmt.Errorf("store %s: %s record %d: %w", s.path, k, seq, err)
 				}
-				r.setSeq(seq)
+				r.SetSeq(seq)
 				src.buf = append(src.buf, keyed{timeKey(r.Time()), seq, r})
 				src.next = seq + 1
 			}
@@ -158,7 +159,7 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 				best = src
 			}
 		}
-		var rec Record
+		var rec record.Record
 		switch {
 		case len(mem) > 0 && (best == nil || mem[0].less(best.buf[0])):
 			rec, mem = mem[0].rec, mem[1:]
@@ -175,11 +176,11 @@ func (s *Store) Range(k Kind, from, to time.Time, fn func(Record) error) error {
 }
 
 // annotations reads every committed annotation. Annotations are few (a handful a month).
-func (s *Store) annotations() ([]*Annotation, error) {
-	var out []*Annotation
+func (s *Store) annotations() ([]*record.Annotation, error) {
+	var out []*record.Annotation
 	err := s.view(func(tx *bolt.Tx) error {
-		return tx.Bucket(recBucket(KindAnnotation)).ForEach(func(key, v []byte) error {
-			a := new(Annotation)
+		return tx.Bucket(recBucket(record.KindAnnotation)).ForEach(func(key, v []byte) error {
+			a := new(record.Annotation)
 			if err := a.UnmarshalBinary(v); err != nil {
 				return fmt.Errorf("store %s: annotation %d: %w", s.path, binary.BigEndian.Uint64(key), err)
 			}
@@ -191,16 +192,16 @@ func (s *Store) annotations() ([]*Annotation, error) {
 }
 
 // applyAnnotations ORs into r the flags of the annotations whose range overlaps r's interval.
-func applyAnnotations(r Record, anns []*Annotation) {
+func applyAnnotations(r record.Record, anns []*record.Annotation) {
 	if len(anns) == 0 {
 		return
 	}
 	var start, end time.Time
-	var flags *Flags
+	var flags *record.Flags
 	switch v := r.(type) {
-	case *Second:
+	case *record.Second:
 		start, end, flags = v.Start, v.Start.Add(v.Duration), &v.Flags
-	case *Minute:
+	case *record.Minute:
 		// A minute record cannot be split: an annotation that covers only part of it acts on
 		// the second records (the node's own calibration marks are already inside the minute,
 		// which it builds only after they are known), and flags the minute only when it
@@ -211,7 +212,7 @@ func applyAnnotations(r Record, anns []*Annotation) {
 			}
 		}
 		return
-	case *Event:
+	case *record.Event:
 		start, end, flags = v.Start, v.End, &v.Flags
 	default:
 		return
@@ -228,7 +229,7 @@ func applyAnnotations(r Record, anns []*Annotation) {
 
 // timeSpan returns the earliest and latest record time of kind k: the first record of the
 // oldest run and the last record of the newest one.
-func timeSpan(tx *bolt.Tx, k Kind) (oldest, newest time.Time, err error) {
+func timeSpan(tx *bolt.Tx, k record.Kind) (oldest, newest time.Time, err error) {
 	c := tx.Bucket(recBucket(k)).Cursor()
 	var lo, hi uint64
 	found := false

@@ -4,6 +4,7 @@ import (
 	"slices"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -52,7 +53,7 @@ func (s *Store) makeRoom() bool {
 	}
 	// The held records were indexed against runs that the deletions may have removed: the first
 	// held record of each kind starts a run of its own (an extra run entry costs nothing).
-	var started [KindSession + 1]bool
+	var started [record.KindSession + 1]bool
 	for i := range s.held {
 		if k := s.held[i].kind; !started[k] {
 			s.held[i].newRun, started[k] = true, true
@@ -87,18 +88,18 @@ func (s *Store) ResetSpaceCap() {
 
 // dataBytes estimates the bytes the records take, with the allowance for page packing that
 // retainBySize counts when it deletes.
-func dataBytes(kstat *[KindSession + 1]kindStat) int64 {
+func dataBytes(kstat *[record.KindSession + 1]kindStat) int64 {
 	var b int64
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		b += int64(float64(kstat[k].bytes+kstat[k].count*recordOverhead) * 1.1)
 	}
 	return b
 }
 
 // retainByAge deletes the records whose time is older than their kind's retention.
-func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
+func (s *Store) retainByAge(tx *bolt.Tx, now time.Time, kstat *[record.KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
 	budget := maxDeletePerCommit
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		keep := s.opts.Retention[k]
 		if keep < 0 {
 			continue
@@ -138,7 +139,7 @@ func (s *Store) usedBytes(tx *bolt.Tx) int64 {
 
 // retainBySize deletes the oldest records, kinds with the shortest retention first, when the used
 // space passes capHigh of MaxBytes, until the estimate of freed space brings it to capLow.
-func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
+func (s *Store) retainBySize(tx *bolt.Tx, kstat *[record.KindSession + 1]kindStat, cursors map[streamKind]cursor) error {
 	used, limit := s.usedBytes(tx), s.opts.MaxBytes
 	if s.spaceCap > 0 {
 		// After a full file system the records' own bytes are held to spaceCap (the file's
@@ -149,8 +150,8 @@ func (s *Store) retainBySize(tx *bolt.Tx, kstat *[KindSession + 1]kindStat, curs
 		return nil
 	}
 	need := used - int64(capLow*float64(limit))
-	order := Kinds()
-	slices.SortStableFunc(order, func(a, b Kind) int {
+	order := record.Kinds()
+	slices.SortStableFunc(order, func(a, b record.Kind) int {
 		ra, rb := s.opts.Retention[a], s.opts.Retention[b]
 		if ra < 0 {
 			ra = 1<<63 - 1

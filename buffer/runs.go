@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -25,7 +26,7 @@ import (
 // (the index changes only when a run starts or retention trims one) and takes no space per
 // record: one commit rewrites a third fewer pages (see BenchmarkWriteVolume).
 
-func runsBucket(k Kind) []byte { return []byte("runs/" + k.String()) }
+func runsBucket(k record.Kind) []byte { return []byte("runs/" + k.String()) }
 
 // run is one entry of the run index.
 type run struct {
@@ -35,7 +36,7 @@ type run struct {
 }
 
 // loadRuns returns the runs of kind k in sequence order.
-func loadRuns(tx *bolt.Tx, k Kind) []run {
+func loadRuns(tx *bolt.Tx, k record.Kind) []run {
 	var rs []run
 	_ = tx.Bucket(runsBucket(k)).ForEach(func(key, v []byte) error {
 		if len(key) == 8 && len(v) == 8 {
@@ -60,39 +61,12 @@ func putRun(b *bolt.Bucket, seq, tkey uint64) error {
 
 // timeOf returns the time key of an encoded record of kind k, decoding only what precedes its
 // time.
-func timeOf(k Kind, v []byte) (uint64, error) {
-	d := dec{b: v, what: k.String()}
-	var max byte
-	switch k {
-	case KindSecond:
-		max = secondVersion
-	case KindMinute:
-		max = minuteVersion
-	case KindEvent:
-		max = eventVersion
-	case KindCalibration:
-		max = calibrationVersion
-	case KindHealth:
-		max = healthVersion
-	case KindGap:
-		max = gapVersion
-	case KindAnnotation:
-		max = annotationVersion
-	case KindSession:
-		max = sessionVersion
-	default:
-		return 0, fmt.Errorf("unknown record kind %d", uint8(k))
+func timeOf(k record.Kind, v []byte) (uint64, error) {
+	t, err := record.DecodeTime(k, v)
+	if err != nil {
+		return 0, err
 	}
-	d.version(max)
-	switch k {
-	case KindSecond, KindMinute, KindEvent, KindCalibration, KindAnnotation:
-		d.flags()
-	}
-	t := d.varint()
-	if d.err != nil {
-		return 0, d.err
-	}
-	return uint64(t) ^ 1<<63, nil
+	return timeKey(t), nil
 }
 
 // seekIn returns the first stored record of the run r with sequence number ≥ seq, or ok false.
@@ -107,7 +81,7 @@ func seekIn(c *bolt.Cursor, r run, seq uint64) (key, v []byte, ok bool) {
 // lowerBound returns the first sequence number in run r (bounded by limit) whose record's time
 // key is ≥ tkey; the result is min(r.end, limit) when there is none. Records are sorted by
 // time within a run, and missing sequence numbers count as the next stored record's time.
-func lowerBound(c *bolt.Cursor, k Kind, r run, limit, tkey uint64) (uint64, error) {
+func lowerBound(c *bolt.Cursor, k record.Kind, r run, limit, tkey uint64) (uint64, error) {
 	lo, hi := r.start, min(r.end, limit)
 	for lo < hi {
 		mid := lo + (hi-lo)/2
@@ -132,7 +106,7 @@ func lowerBound(c *bolt.Cursor, k Kind, r run, limit, tkey uint64) (uint64, erro
 // trimmer deletes the oldest records of one kind, keeping the run index right.
 type trimmer struct {
 	tx      *bolt.Tx
-	k       Kind
+	k       record.Kind
 	rb, idx *bolt.Bucket
 	runs    []run
 	heads   []uint64 // time key of each run's first record (MaxUint64 when the run is empty)
@@ -140,7 +114,7 @@ type trimmer struct {
 	stat    *kindStat
 }
 
-func newTrimmer(tx *bolt.Tx, k Kind, stat *kindStat, cursors map[streamKind]cursor) *trimmer {
+func newTrimmer(tx *bolt.Tx, k record.Kind, stat *kindStat, cursors map[streamKind]cursor) *trimmer {
 	t := &trimmer{tx: tx, k: k, rb: tx.Bucket(recBucket(k)), idx: tx.Bucket(runsBucket(k)),
 		runs: loadRuns(tx, k), cursors: cursors, stat: stat}
 	t.heads = make([]uint64, len(t.runs))

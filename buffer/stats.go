@@ -6,6 +6,7 @@ import (
 	"os"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -34,8 +35,8 @@ type Stats struct {
 	FileBytes int64 // size of the file
 	UsedBytes int64 // bytes the data occupies (file high-water mark less free pages)
 	MaxBytes  int64 // size cap
-	Kinds     map[Kind]KindStats
-	Streams   map[string]map[Kind]StreamStats
+	Kinds     map[record.Kind]KindStats
+	Streams   map[string]map[record.Kind]StreamStats
 	Held      int    // records held in memory, not yet committed
 	Commits   uint64 // commits since Open
 	// WrittenBytes counts the bytes bbolt wrote to the file since Open: dirty pages plus one meta
@@ -56,12 +57,12 @@ func (s *Store) Stats() (Stats, error) {
 	}
 	st := Stats{
 		ID: s.id, Path: s.path, MaxBytes: s.opts.MaxBytes, Held: len(s.held), Commits: s.commits,
-		Recovered: s.recovered, Kinds: map[Kind]KindStats{}, Streams: map[string]map[Kind]StreamStats{},
+		Recovered: s.recovered, Kinds: map[record.Kind]KindStats{}, Streams: map[string]map[record.Kind]StreamStats{},
 	}
 	if s.commitErr != nil {
 		st.CommitError = s.commitErr.Error()
 	}
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		st.Kinds[k] = KindStats{Count: s.kstat[k].count, Bytes: s.kstat[k].bytes, LastSeq: s.committed[k],
 			RemovedByAge: s.kstat[k].removedAge, RemovedBySize: s.kstat[k].removedSize}
 	}
@@ -75,7 +76,7 @@ func (s *Store) Stats() (Stats, error) {
 	st.WrittenBytes = dbs.TxStats.GetPageAlloc() + int64(st.Commits)*int64(s.pageSize)
 	err := s.view(func(tx *bolt.Tx) error {
 		st.UsedBytes = s.usedBytes(tx)
-		for _, k := range Kinds() {
+		for _, k := range record.Kinds() {
 			ks := st.Kinds[k]
 			if key, _ := tx.Bucket(recBucket(k)).Cursor().First(); key != nil {
 				ks.FirstSeq = binary.BigEndian.Uint64(key)
@@ -103,7 +104,7 @@ func (s *Store) Stats() (Stats, error) {
 			ss.Pending = min(ks.LastSeq-c.acked, ks.Count)
 		}
 		if st.Streams[sk.stream] == nil {
-			st.Streams[sk.stream] = map[Kind]StreamStats{}
+			st.Streams[sk.stream] = map[record.Kind]StreamStats{}
 		}
 		st.Streams[sk.stream][sk.kind] = ss
 	}
@@ -114,9 +115,9 @@ func (s *Store) Stats() (Stats, error) {
 }
 
 // putKindStats writes the per-kind counters that differ from the committed ones.
-func (s *Store) putKindStats(tx *bolt.Tx, kstat *[KindSession + 1]kindStat) error {
+func (s *Store) putKindStats(tx *bolt.Tx, kstat *[record.KindSession + 1]kindStat) error {
 	kb := tx.Bucket(bucketKinds)
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		if kstat[k] == s.kstat[k] {
 			continue
 		}

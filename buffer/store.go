@@ -14,6 +14,7 @@ import (
 	"syscall"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	bolt "go.etcd.io/bbolt"
 	berrors "go.etcd.io/bbolt/errors"
 )
@@ -58,7 +59,7 @@ var (
 	bucketOutbox = []byte("outbox")
 )
 
-func recBucket(k Kind) []byte { return []byte("rec/" + k.String()) }
+func recBucket(k record.Kind) []byte { return []byte("rec/" + k.String()) }
 
 // fillPercent packs pages full: records are appended at the right edge of their B+trees, so
 // half-empty pages would only waste space and writes.
@@ -74,7 +75,7 @@ type kindStat struct {
 
 type streamKind struct {
 	stream string
-	kind   Kind
+	kind   record.Kind
 }
 
 type cursor struct {
@@ -84,7 +85,7 @@ type cursor struct {
 
 // held is a record appended but not yet committed.
 type held struct {
-	kind   Kind
+	kind   record.Kind
 	seq    uint64
 	tkey   uint64
 	newRun bool // the record starts a run of the time index
@@ -103,12 +104,12 @@ type Store struct {
 	pageSize int // bbolt's page size, read once at open (DB.Info races with a remap)
 
 	held        []held
-	nextSeq     [KindSession + 1]uint64 // next sequence number to assign
-	committed   [KindSession + 1]uint64 // last committed sequence number
-	firstSeq    [KindSession + 1]uint64 // the first number this opening assigns
-	kstat       [KindSession + 1]kindStat
-	lastTkey    [KindSession + 1]uint64 // time key of the last record appended
-	runsEmpty   [KindSession + 1]bool   // the kind has no run: the next record starts one
+	nextSeq     [record.KindSession + 1]uint64 // next sequence number to assign
+	committed   [record.KindSession + 1]uint64 // last committed sequence number
+	firstSeq    [record.KindSession + 1]uint64 // the first number this opening assigns
+	kstat       [record.KindSession + 1]kindStat
+	lastTkey    [record.KindSession + 1]uint64 // time key of the last record appended
+	runsEmpty   [record.KindSession + 1]bool   // the kind has no run: the next record starts one
 	cursors     map[streamKind]*cursor
 	lastCommit  time.Time
 	lastRetain  time.Time
@@ -265,7 +266,7 @@ func (s *Store) init(tx *bolt.Tx) error {
 			return err
 		}
 	}
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		if _, err := tx.CreateBucketIfNotExists(recBucket(k)); err != nil {
 			return err
 		}
@@ -283,7 +284,7 @@ func (s *Store) load(tx *bolt.Tx) error {
 		return fmt.Errorf("%s holds a bbolt database that is %w: give the path of a leqnode store", s.path, ErrNotStore)
 	}
 	s.id = string(meta.Get([]byte("id")))
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		b, rb := tx.Bucket(recBucket(k)), tx.Bucket(runsBucket(k))
 		if b == nil || rb == nil {
 			return fmt.Errorf("store %s: %w: buckets of kind %s missing", s.path, ErrDamaged, k)
@@ -303,7 +304,7 @@ func (s *Store) load(tx *bolt.Tx) error {
 	}
 	if b := tx.Bucket(bucketKinds); b != nil {
 		_ = b.ForEach(func(k, v []byte) error {
-			if len(k) == 1 && Kind(k[0]).Valid() && len(v) >= 40 {
+			if len(k) == 1 && record.Kind(k[0]).Valid() && len(v) >= 40 {
 				ks := kindStat{
 					count: binary.BigEndian.Uint64(v), bytes: binary.BigEndian.Uint64(v[8:]),
 					removedAge: binary.BigEndian.Uint64(v[16:]), removedSize: binary.BigEndian.Uint64(v[24:]),
@@ -322,7 +323,7 @@ func (s *Store) load(tx *bolt.Tx) error {
 			if i < 0 || i+2 != len(k) || len(v) != 16 {
 				return nil
 			}
-			s.cursors[streamKind{string(k[:i]), Kind(k[i+1])}] = &cursor{
+			s.cursors[streamKind{string(k[:i]), record.Kind(k[i+1])}] = &cursor{
 				acked: binary.BigEndian.Uint64(v), dropped: binary.BigEndian.Uint64(v[8:]),
 			}
 			return nil
@@ -358,7 +359,7 @@ func timeKey(t time.Time) uint64 { return uint64(t.UnixMicro()) ^ 1<<63 }
 // The record is encoded at once; rec is not retained and may be reused. When a due commit fails
 // the record stays held and the error is returned; the commit is retried on later calls, and
 // once MaxHeld records are held, Append refuses new ones.
-func (s *Store) Append(rec Record) (seq uint64, err error) {
+func (s *Store) Append(rec record.Record) (seq uint64, err error) {
 	k := rec.Kind()
 	value, err := rec.AppendBinary(nil)
 	if err != nil {
@@ -380,7 +381,7 @@ func (s *Store) Append(rec Record) (seq uint64, err error) {
 	}
 	seq = s.nextSeq[k]
 	s.nextSeq[k]++
-	rec.setSeq(seq)
+	rec.SetSeq(seq)
 	tk := timeKey(rec.Time())
 	newRun := s.runsEmpty[k] || tk < s.lastTkey[k]
 	s.runsEmpty[k], s.lastTkey[k] = false, tk
@@ -462,9 +463,9 @@ func (s *Store) commit(final bool) error {
 	retain := now.Sub(s.lastRetain) >= retentionEvery || s.lastRetain.IsZero()
 	// Reserve the sequence numbers Append may hand out before the next commit; the last commit
 	// before Close reserves none, so a clean restart leaves no gap.
-	var reserved [KindSession + 1]uint64
+	var reserved [record.KindSession + 1]uint64
 	reserve := false
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		reserved[k] = s.nextSeq[k] - 1
 		if !final {
 			reserved[k] += uint64(s.opts.MaxHeld)
@@ -477,15 +478,15 @@ func (s *Store) commit(final bool) error {
 	}
 	// Counters are updated on copies so that a failed commit leaves the memory state intact.
 	kstat := s.kstat
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		kstat[k].reserved = reserved[k]
 	}
 	cursors := make(map[streamKind]cursor, len(s.cursors))
 	for sk, c := range s.cursors {
 		cursors[sk] = *c
 	}
-	var last [KindSession + 1]uint64
-	var runsEmpty [KindSession + 1]bool
+	var last [record.KindSession + 1]uint64
+	var runsEmpty [record.KindSession + 1]bool
 	err := s.update(func(tx *bolt.Tx) error {
 		for _, h := range s.held {
 			rb := tx.Bucket(recBucket(h.kind))
@@ -502,7 +503,7 @@ func (s *Store) commit(final bool) error {
 			kstat[h.kind].bytes += uint64(len(h.value))
 			last[h.kind] = h.seq
 		}
-		for _, k := range Kinds() {
+		for _, k := range record.Kinds() {
 			if last[k] != 0 {
 				if err := tx.Bucket(recBucket(k)).SetSequence(last[k]); err != nil {
 					return err
@@ -517,7 +518,7 @@ func (s *Store) commit(final bool) error {
 		if err := s.retainBySize(tx, &kstat, cursors); err != nil {
 			return err
 		}
-		for _, k := range Kinds() {
+		for _, k := range record.Kinds() {
 			key, _ := tx.Bucket(runsBucket(k)).Cursor().First()
 			runsEmpty[k] = key == nil
 		}
@@ -559,7 +560,7 @@ func (s *Store) commit(final bool) error {
 		c.dirty = false
 		s.cursors[sk] = &c
 	}
-	for _, k := range Kinds() {
+	for _, k := range record.Kinds() {
 		if last[k] != 0 {
 			s.committed[k] = last[k]
 		}

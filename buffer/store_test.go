@@ -8,11 +8,14 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"sync"
 	"testing"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 	bolt "go.etcd.io/bbolt"
 )
 
@@ -51,22 +54,22 @@ func openTest(t testing.TB, path string, o *Options) *Store {
 	return s
 }
 
-func second(start time.Time, laeq float64) *Second {
-	return &Second{Start: start, Duration: time.Second, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9,
+func second(start time.Time, laeq float64) *record.Second {
+	return &record.Second{Start: start, Duration: time.Second, LAeq: laeq, LCeq: laeq + 6, LZeq: laeq + 9,
 		LAFmax: laeq + 4, LAFmin: laeq - 4, LASmax: laeq + 2, LASmin: laeq - 2, LAImax: laeq + 5,
-		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: thirdOctave(33, laeq-30), FirstBand: -19}
+		LCpeak: laeq + 25, LZpeak: laeq + 27, LAE: laeq, Spectrum: recordtest.ThirdOctave(33, laeq-30), FirstBand: -19}
 }
 
-func collect(t testing.TB, s *Store, k Kind, from, to time.Time) []Record {
+func collect(t testing.TB, s *Store, k record.Kind, from, to time.Time) []record.Record {
 	t.Helper()
-	var out []Record
-	if err := s.Range(k, from, to, func(r Record) error { out = append(out, r); return nil }); err != nil {
+	var out []record.Record
+	if err := s.Range(k, from, to, func(r record.Record) error { out = append(out, r); return nil }); err != nil {
 		t.Fatal(err)
 	}
 	return out
 }
 
-func seqs(rs []Record) []uint64 {
+func seqs(rs []record.Record) []uint64 {
 	out := make([]uint64, len(rs))
 	for i, r := range rs {
 		out[i] = r.Seq()
@@ -81,10 +84,10 @@ func TestAppendReopen(t *testing.T) {
 	if len(id) != 16 {
 		t.Fatalf("id %q", id)
 	}
-	var want []Record
+	var want []record.Record
 	for i := range 5 {
-		for _, r := range sampleRecords() {
-			if sec, ok := r.(*Second); ok {
+		for _, r := range recordtest.Samples() {
+			if sec, ok := r.(*record.Second); ok {
 				sec.Start = sec.Start.Add(time.Duration(i) * 2 * time.Second)
 			}
 			seq, err := s.Append(r)
@@ -108,8 +111,8 @@ func TestAppendReopen(t *testing.T) {
 	if err := s.Check(); err != nil {
 		t.Fatal(err)
 	}
-	for _, k := range Kinds() {
-		var wk []Record
+	for _, k := range record.Kinds() {
+		var wk []record.Record
 		for _, r := range want {
 			if r.Kind() == k {
 				wk = append(wk, r)
@@ -132,10 +135,10 @@ func TestAppendReopen(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if st.Kinds[KindSecond].Count != 10 || st.Kinds[KindMinute].Count != 10 || st.Kinds[KindGap].Count != 5 {
+	if st.Kinds[record.KindSecond].Count != 10 || st.Kinds[record.KindMinute].Count != 10 || st.Kinds[record.KindGap].Count != 5 {
 		t.Errorf("stats %+v", st.Kinds)
 	}
-	if st.Streams["test"][KindSecond].Pending != 10 {
+	if st.Streams["test"][record.KindSecond].Pending != 10 {
 		t.Errorf("pending %+v", st.Streams["test"])
 	}
 }
@@ -149,7 +152,7 @@ func TestGroupCommit(t *testing.T) {
 		t.Fatal(err)
 	}
 	// The first record after Open is committed at once.
-	if got, _ := s.Pending("mqtt", KindSecond, 10); len(got) != 1 {
+	if got, _ := s.Pending("mqtt", record.KindSecond, 10); len(got) != 1 {
 		t.Fatalf("first record: %d pending, want 1 (committed at once)", len(got))
 	}
 	for i := 1; i < 10; i++ {
@@ -158,18 +161,18 @@ func TestGroupCommit(t *testing.T) {
 			t.Fatal(err)
 		}
 	}
-	if got, _ := s.Pending("mqtt", KindSecond, 100); len(got) != 1 {
+	if got, _ := s.Pending("mqtt", record.KindSecond, 100); len(got) != 1 {
 		t.Fatalf("within the interval: %d pending, want 1 (held in memory)", len(got))
 	}
 	// Held records are visible to Range.
-	if got := collect(t, s, KindSecond, t0, t0.Add(time.Hour)); len(got) != 10 {
+	if got := collect(t, s, record.KindSecond, t0, t0.Add(time.Hour)); len(got) != 10 {
 		t.Fatalf("Range sees %d records, want 10 including held ones", len(got))
 	}
 	clk.Add(time.Second)
 	if _, err := s.Append(second(t0.Add(10*time.Second), 50)); err != nil {
 		t.Fatal(err)
 	}
-	if got, _ := s.Pending("mqtt", KindSecond, 100); len(got) != 11 {
+	if got, _ := s.Pending("mqtt", record.KindSecond, 100); len(got) != 11 {
 		t.Fatalf("after the interval: %d pending, want 11", len(got))
 	}
 	st, _ := s.Stats()
@@ -198,7 +201,7 @@ func TestFlushOnClose(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer r.Close()
-	if got := collect(t, r, KindSecond, t0, t0.Add(time.Hour)); len(got) != 100 {
+	if got := collect(t, r, record.KindSecond, t0, t0.Add(time.Hour)); len(got) != 100 {
 		t.Errorf("%d records after close, want 100", len(got))
 	}
 	if _, err := r.Append(second(t0, 1)); !errors.Is(err, ErrReadOnly) {
@@ -230,13 +233,13 @@ func TestRangeTimeOrder(t *testing.T) {
 		t.Fatal(err)
 	}
 	// A late event, and one held in memory.
-	ev := &Event{Start: t0.Add(5 * time.Second), End: t0.Add(8 * time.Second), LAFmax: 80}
+	ev := &record.Event{Start: t0.Add(5 * time.Second), End: t0.Add(8 * time.Second), LAFmax: 80}
 	s.Append(ev)
 	s.Flush()
-	ev2 := &Event{Start: t0.Add(2 * time.Second), End: t0.Add(3 * time.Second), LAFmax: 70}
+	ev2 := &record.Event{Start: t0.Add(2 * time.Second), End: t0.Add(3 * time.Second), LAFmax: 70}
 	s.Append(ev2)
 
-	got := collect(t, s, KindSecond, t0, t0.Add(time.Hour))
+	got := collect(t, s, record.KindSecond, t0, t0.Add(time.Hour))
 	if len(got) != 3005 {
 		t.Fatalf("%d records, want 3005", len(got))
 	}
@@ -247,16 +250,16 @@ func TestRangeTimeOrder(t *testing.T) {
 		}
 	}
 	// The window around the step holds both the original and the repeated start times.
-	w := collect(t, s, KindSecond, t0.Add(2390*time.Second), t0.Add(2392*time.Second))
+	w := collect(t, s, record.KindSecond, t0.Add(2390*time.Second), t0.Add(2392*time.Second))
 	if fmt.Sprint(seqs(w)) != "[2391 3001 2392 3002]" {
 		t.Errorf("window seqs %v", seqs(w))
 	}
-	evs := collect(t, s, KindEvent, t0, t0.Add(time.Minute))
+	evs := collect(t, s, record.KindEvent, t0, t0.Add(time.Minute))
 	if fmt.Sprint(seqs(evs)) != "[2 1]" {
 		t.Errorf("events in time order: seqs %v, want [2 1]", seqs(evs))
 	}
 	// Half-open: a record starting exactly at `to` is excluded, at `from` included.
-	if n := len(collect(t, s, KindSecond, t0.Add(100*time.Second), t0.Add(101*time.Second))); n != 1 {
+	if n := len(collect(t, s, record.KindSecond, t0.Add(100*time.Second), t0.Add(101*time.Second))); n != 1 {
 		t.Errorf("half-open window holds %d records", n)
 	}
 	_ = want
@@ -269,23 +272,23 @@ func TestAnnotationsAppliedWhenReading(t *testing.T) {
 	for i := range 10 {
 		s.Append(second(t0.Add(time.Duration(i)*time.Second), 50))
 	}
-	s.Append(&Annotation{From: t0.Add(3 * time.Second), To: t0.Add(5 * time.Second), Flags: Excluded, Reason: "road works"})
+	s.Append(&record.Annotation{From: t0.Add(3 * time.Second), To: t0.Add(5 * time.Second), Flags: record.Excluded, Reason: "road works"})
 	s.Flush()
-	s.Append(&Annotation{From: t0.Add(4500 * time.Millisecond), To: t0.Add(6 * time.Second), Flags: Suspect, Reason: "held"})
-	got := collect(t, s, KindSecond, t0, t0.Add(time.Minute))
+	s.Append(&record.Annotation{From: t0.Add(4500 * time.Millisecond), To: t0.Add(6 * time.Second), Flags: record.Suspect, Reason: "held"})
+	got := collect(t, s, record.KindSecond, t0, t0.Add(time.Minute))
 	var flags []string
 	for _, r := range got {
-		flags = append(flags, r.(*Second).Flags.String())
+		flags = append(flags, r.(*record.Second).Flags.String())
 	}
 	want := "[   excluded suspect|excluded suspect    ]"
 	if fmt.Sprint(flags) != want {
 		t.Errorf("flags %q, want %q", fmt.Sprint(flags), want)
 	}
 	// The stored records are untouched: the outbox delivers them as written.
-	p, _ := s.Pending("x", KindSecond, 100)
+	p, _ := s.Pending("x", record.KindSecond, 100)
 	for _, r := range p {
-		if r.(*Second).Flags != 0 {
-			t.Errorf("stored record %d rewritten: %v", r.Seq(), r.(*Second).Flags)
+		if r.(*record.Second).Flags != 0 {
+			t.Errorf("stored record %d rewritten: %v", r.Seq(), r.(*record.Second).Flags)
 		}
 	}
 }
@@ -305,14 +308,14 @@ func TestOutbox(t *testing.T) {
 		s.Append(second(start.Add(time.Duration(i-10)*time.Second), 60))
 	}
 	// A late event that started before everything else.
-	s.Append(&Event{Start: t0.Add(-time.Hour), End: t0.Add(-time.Hour + time.Second), LAFmax: 99})
+	s.Append(&record.Event{Start: t0.Add(-time.Hour), End: t0.Add(-time.Hour + time.Second), LAFmax: 99})
 	if err := s.Flush(); err != nil {
 		t.Fatal(err)
 	}
 
-	delivered := map[Kind][]uint64{}
+	delivered := map[record.Kind][]uint64{}
 	deliver := func(n int) {
-		for _, k := range []Kind{KindSecond, KindEvent} {
+		for _, k := range []record.Kind{record.KindSecond, record.KindEvent} {
 			recs, err := s.Pending("mqtt", k, n)
 			if err != nil {
 				t.Fatal(err)
@@ -329,7 +332,7 @@ func TestOutbox(t *testing.T) {
 	}
 	deliver(12)
 	// Unacknowledged records are offered again.
-	again, _ := s.Pending("mqtt", KindSecond, 3)
+	again, _ := s.Pending("mqtt", record.KindSecond, 3)
 	if fmt.Sprint(seqs(again)) != "[13 14 15]" {
 		t.Errorf("pending after ack of 12: %v", seqs(again))
 	}
@@ -346,23 +349,23 @@ func TestOutbox(t *testing.T) {
 	for i := uint64(1); i <= 30; i++ {
 		want = append(want, i)
 	}
-	if fmt.Sprint(delivered[KindSecond]) != fmt.Sprint(want) {
-		t.Errorf("seconds delivered %v, want %v", delivered[KindSecond], want)
+	if fmt.Sprint(delivered[record.KindSecond]) != fmt.Sprint(want) {
+		t.Errorf("seconds delivered %v, want %v", delivered[record.KindSecond], want)
 	}
-	if fmt.Sprint(delivered[KindEvent]) != "[1]" {
-		t.Errorf("late event delivered %v", delivered[KindEvent])
+	if fmt.Sprint(delivered[record.KindEvent]) != "[1]" {
+		t.Errorf("late event delivered %v", delivered[record.KindEvent])
 	}
-	if err := s.Ack("mqtt", KindSecond, 31); err == nil {
+	if err := s.Ack("mqtt", record.KindSecond, 31); err == nil {
 		t.Error("ack beyond the last committed record accepted")
 	}
-	if err := s.Ack("mqtt", KindSecond, 3); err != nil {
+	if err := s.Ack("mqtt", record.KindSecond, 3); err != nil {
 		t.Errorf("ack of an old seq: %v", err)
 	}
-	if st, _ := s.Stats(); st.Streams["mqtt"][KindSecond].Acked != 30 {
-		t.Errorf("cursor moved back: %+v", st.Streams["mqtt"][KindSecond])
+	if st, _ := s.Stats(); st.Streams["mqtt"][record.KindSecond].Acked != 30 {
+		t.Errorf("cursor moved back: %+v", st.Streams["mqtt"][record.KindSecond])
 	}
 	// Several streams keep separate cursors.
-	other, _ := s.Pending("upload", KindSecond, 100)
+	other, _ := s.Pending("upload", record.KindSecond, 100)
 	if len(other) != 30 {
 		t.Errorf("second stream sees %d records", len(other))
 	}
@@ -373,23 +376,23 @@ func TestOutbox(t *testing.T) {
 func TestRetentionByAge(t *testing.T) {
 	clk := &clock{t: t0}
 	path := filepath.Join(t.TempDir(), "node.db")
-	s := openTest(t, path, &Options{Now: clk.Now, Retention: map[Kind]time.Duration{KindSecond: time.Hour}})
+	s := openTest(t, path, &Options{Now: clk.Now, Retention: map[record.Kind]time.Duration{record.KindSecond: time.Hour}})
 	defer s.Close()
-	s.Pending("mqtt", KindSecond, 1) // register the stream
+	s.Pending("mqtt", record.KindSecond, 1) // register the stream
 	for i := range 7200 {
 		s.Append(second(t0.Add(time.Duration(i)*time.Second), 45))
 		clk.Add(time.Second)
 	}
-	if err := s.Ack("mqtt", KindSecond, 0); err != nil {
+	if err := s.Ack("mqtt", record.KindSecond, 0); err != nil {
 		t.Fatal(err)
 	}
 	clk.Add(retentionEvery)
-	s.Append(&Minute{Start: clk.Now()})
+	s.Append(&record.Minute{Start: clk.Now()})
 	if err := s.Flush(); err != nil {
 		t.Fatal(err)
 	}
 	st, _ := s.Stats()
-	ks := st.Kinds[KindSecond]
+	ks := st.Kinds[record.KindSecond]
 	cut := clk.Now().Add(-time.Hour)
 	if ks.Oldest.Before(cut) {
 		t.Errorf("oldest second %v is older than the retention cut %v", ks.Oldest, cut)
@@ -397,7 +400,7 @@ func TestRetentionByAge(t *testing.T) {
 	if ks.Count+ks.RemovedByAge != 7200 || ks.RemovedByAge == 0 {
 		t.Errorf("count %d + removed %d != 7200", ks.Count, ks.RemovedByAge)
 	}
-	if d := st.Streams["mqtt"][KindSecond].Dropped; d != ks.RemovedByAge {
+	if d := st.Streams["mqtt"][record.KindSecond].Dropped; d != ks.RemovedByAge {
 		t.Errorf("dropped for mqtt %d, want %d", d, ks.RemovedByAge)
 	}
 	if err := s.Check(); err != nil {
@@ -413,7 +416,7 @@ func TestSizeCap(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "node.db")
 	o := &Options{Now: clk.Now, MaxBytes: capBytes, CommitInterval: 30 * time.Second}
 	s := openTest(t, path, o)
-	s.Pending("mqtt", KindSecond, 1)
+	s.Pending("mqtt", record.KindSecond, 1)
 	written := 0
 	var maxFile int64
 	i := 0
@@ -424,7 +427,7 @@ func TestSizeCap(t *testing.T) {
 		written += len(b)
 		s.Append(r)
 		if i%60 == 59 {
-			s.Append(&Minute{Start: start.Add(-59 * time.Second), LAeq: 50})
+			s.Append(&record.Minute{Start: start.Add(-59 * time.Second), LAeq: 50})
 		}
 		clk.Add(time.Second)
 		i++
@@ -451,7 +454,7 @@ func TestSizeCap(t *testing.T) {
 		t.Fatal(err)
 	}
 	st, _ := s.Stats()
-	sec, min := st.Kinds[KindSecond], st.Kinds[KindMinute]
+	sec, min := st.Kinds[record.KindSecond], st.Kinds[record.KindMinute]
 	if sec.RemovedBySize == 0 || min.RemovedBySize != 0 || min.Count != uint64(i/60) {
 		t.Errorf("seconds removed %d, minutes removed %d, minutes kept %d of %d: the shortest retention must go first",
 			sec.RemovedBySize, min.RemovedBySize, min.Count, i/60)
@@ -460,7 +463,7 @@ func TestSizeCap(t *testing.T) {
 	if want := t0.Add(time.Duration(i-int(sec.Count)) * time.Second); !sec.Oldest.Equal(want) {
 		t.Errorf("oldest kept second %v, want %v (a contiguous newest run)", sec.Oldest, want)
 	}
-	if d := st.Streams["mqtt"][KindSecond].Dropped; d != sec.RemovedBySize {
+	if d := st.Streams["mqtt"][record.KindSecond].Dropped; d != sec.RemovedBySize {
 		t.Errorf("dropped for mqtt %d, want %d", d, sec.RemovedBySize)
 	}
 }
@@ -567,13 +570,13 @@ func TestLast(t *testing.T) {
 	path := filepath.Join(t.TempDir(), "node.db")
 	s := openTest(t, path, nil)
 	defer s.Close()
-	if r, err := s.Last(KindSession); r != nil || err != nil {
+	if r, err := s.Last(record.KindSession); r != nil || err != nil {
 		t.Fatalf("empty store: %v %v", r, err)
 	}
-	s.Append(&Session{At: t0, TimeZone: "Europe/Vienna"})
-	s.Append(&Session{At: t0.Add(-time.Hour), TimeZone: "Asia/Kolkata"})
-	r, err := s.Last(KindSession)
-	if err != nil || r.(*Session).TimeZone != "Asia/Kolkata" {
+	s.Append(&record.Session{At: t0, TimeZone: "Europe/Vienna"})
+	s.Append(&record.Session{At: t0.Add(-time.Hour), TimeZone: "Asia/Kolkata"})
+	r, err := s.Last(record.KindSession)
+	if err != nil || r.(*record.Session).TimeZone != "Asia/Kolkata" {
 		t.Errorf("last session %+v %v", r, err)
 	}
 }
@@ -590,21 +593,21 @@ func TestRecentAndNoReuseAfterCrash(t *testing.T) {
 		s.Append(second(t0.Add(time.Duration(i)*time.Second), 50))
 		clk.Add(time.Second)
 	}
-	committed, _ := s.After(KindSecond, 0, 100)
-	recent, _ := s.Recent(KindSecond, 0, 100)
+	committed, _ := s.After(record.KindSecond, 0, 100)
+	recent, _ := s.Recent(record.KindSecond, 0, 100)
 	if len(committed) != 1 || len(recent) != 10 || recent[9].Seq() != 10 {
 		t.Fatalf("committed %d, recent %d records", len(committed), len(recent))
 	}
-	if r, _ := s.Recent(KindSecond, 4, 3); fmt.Sprint(seqs(r)) != "[5 6 7]" {
+	if r, _ := s.Recent(record.KindSecond, 4, 3); fmt.Sprint(seqs(r)) != "[5 6 7]" {
 		t.Errorf("Recent after 4, limit 3: %v", seqs(r))
 	}
-	if err := s.Ack("live", KindSecond, 10); err != nil {
+	if err := s.Ack("live", record.KindSecond, 10); err != nil {
 		t.Fatalf("ack of a held record: %v", err)
 	}
 	// Crash: the held records 2 to 10 never reach the file.
 	s.db.Close()
 	s = openTest(t, path, o)
-	if got, _ := s.After(KindSecond, 0, 100); len(got) != 1 {
+	if got, _ := s.After(record.KindSecond, 0, 100); len(got) != 1 {
 		t.Fatalf("%d records after the crash, want the 1 committed", len(got))
 	}
 	seq, err := s.Append(second(t0.Add(time.Minute), 50))
@@ -688,7 +691,20 @@ func TestCommitFailureHoldsRecords(t *testing.T) {
 	if errs != 8 || st.CommitError == "" || st.Held != 5 {
 		t.Errorf("%d append errors, commit error %q, %d held; want 8, an error, 5", errs, st.CommitError, st.Held)
 	}
-	if n := s.LastSeq(KindSecond); n != 6 { // one committed, five held, three refused
+	if n := s.LastSeq(record.KindSecond); n != 6 { // one committed, five held, three refused
 		t.Errorf("last number handed out %d, want 6", n)
+	}
+}
+
+// bbolt maps the whole file: on 32-bit builds the cap must leave room in a 4 GiB address space.
+// The 512 MiB and 1 GiB defaults are the project's decision (common practice for bbolt on
+// 32-bit boards), not a published value.
+func TestDefaultMaxBytes(t *testing.T) {
+	want := int64(1 << 30)
+	if strconv.IntSize == 32 {
+		want = 512 << 20
+	}
+	if DefaultMaxBytes != want {
+		t.Errorf("DefaultMaxBytes = %d on a %d-bit build, want %d", DefaultMaxBytes, strconv.IntSize, want)
 	}
 }

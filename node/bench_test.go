@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
 )
@@ -82,7 +83,7 @@ func BenchmarkNodeFirstRecord(b *testing.B) {
 		start := time.Now()
 		var first time.Duration
 		n, err := New(Options{Source: src, Store: st, SensitivityDBFS: -26, Bands: dsp.Third,
-			OnSecond: func(*buffer.Second) {
+			OnSecond: func(*record.Second) {
 				// Append commits the first record after start at once (buffer.Options).
 				if first == 0 {
 					first = time.Since(start)

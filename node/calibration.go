@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/calibrate"
 )
@@ -37,7 +38,7 @@ type CalibrationOptions struct {
 // CalibrationResult is the outcome of a requested calibration.
 type CalibrationResult struct {
 	Detection dsp.Detection
-	Check     *buffer.Calibration
+	Check     *record.Calibration
 	Applied   bool
 }
 
@@ -102,13 +103,13 @@ func (p *processor) onTone(d dsp.Detection) {
 		} else if st, err := calibrate.Apply(o.StateDir, rec, o.NominalDBFS, o.AdjustRange); err != nil {
 			applyErr = err
 			if errors.Is(err, calibrate.ErrMicrophoneFault) {
-				p.health.sticky |= buffer.MicFault
+				p.health.sticky |= record.MicFault
 				p.n.log.Error("calibration refused: microphone fault", "err", err)
 			}
 		} else {
 			applied = true
 			newSens = st.SensitivityDBFS
-			p.health.sticky &^= buffer.MicFault
+			p.health.sticky &^= record.MicFault
 		}
 	}
 	dr, err := calibrate.RecordCheck(p.o.Store, rec)
@@ -165,7 +166,7 @@ func (p *processor) calibratorOn() (bool, error) {
 	p.calRun = start
 	p.calFrom = p.clock.Time(start + p.calSkew).Add(-calMargin)
 	p.calUntil = now.Add(calMargin)
-	p.minutes.mark(p.calFrom, p.calUntil, buffer.Calibrating)
+	p.minutes.mark(p.calFrom, p.calUntil, record.Calibrating)
 	if p.secStart.After(p.calFrom) {
 		// Seconds already stored: marked when read, as a calibration check's are.
 		if err := p.append(calibrate.CalibratingAnnotation(p.calFrom, p.secStart, ref)); err != nil {

@@ -5,7 +5,7 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/capture"
 )
 
@@ -57,7 +57,7 @@ func (p *processor) clockStepped(now time.Time) bool {
 		}
 		p.lostWhy = "capture device delivers audio at the wrong rate (not measured)"
 	}
-	p.health.sticky |= buffer.DeviceFault
+	p.health.sticky |= record.DeviceFault
 	p.n.log.Error("the capture device delivers audio faster or slower than its stated rate: not measuring it until it is right again",
 		"source", p.o.Source.Describe())
 	d.lastLog = now
@@ -89,7 +89,7 @@ func (p *processor) faultyBlock(ev handoff) error {
 	p.n.log.Info("the capture device delivers audio at its rate again", "source", p.o.Source.Describe(), "faulty_for", now.Sub(d.since).Round(time.Second))
 	format := d.format
 	*d = deviceState{format: format}
-	p.health.sticky &^= buffer.DeviceFault
+	p.health.sticky &^= record.DeviceFault
 	p.healthNow(now)
 	return p.opened(handoff{kind: evOpened, format: format, arrival: now})
 }

@@ -6,7 +6,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func sine60(i int64) float32 { return float32(ampFor(60) * math.Sin(2*math.Pi*1000*float64(i)/48000)) }
@@ -18,8 +18,8 @@ func TestSourceMissingAtStart(t *testing.T) {
 	src := &fakeSource{fs: 48000, signal: sine60, total: 5 * 48000, t0: t0, openFails: 15}
 	r := newRig(t, src, func(o *Options) { o.RetryMax = time.Millisecond })
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	if len(gaps) != 1 || len(secs) == 0 {
 		t.Fatalf("%d gaps, %d seconds: want one gap for the outage", len(gaps), len(secs))
 	}
@@ -35,7 +35,7 @@ func TestQuickRestartGap(t *testing.T) {
 	src := &fakeSource{fs: 48000, signal: sine60, total: 5 * 48000, t0: t0}
 	r := newRig(t, src, nil)
 	r.run(t)
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	end := secs[len(secs)-1].Start.Add(secs[len(secs)-1].Duration)
 	src2 := &fakeSource{fs: 48000, signal: sine60, total: 5 * 48000, t0: end.Add(800 * time.Millisecond)}
 	ck := &simClock{now: src2.t0}
@@ -47,9 +47,9 @@ func TestQuickRestartGap(t *testing.T) {
 		t.Fatal(err)
 	}
 	(&rig{store: r.store, src: src2, clock: ck, node: n2}).run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
-	var second2 *buffer.Second
-	for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
+	var second2 *record.Second
+	for _, s := range records[*record.Second](t, r.store, record.KindSecond) {
 		if !s.Start.Before(src2.t0) {
 			second2 = s
 			break
@@ -70,11 +70,11 @@ func TestFlappingDeviceOneGap(t *testing.T) {
 	src.flaps = 5
 	r := newRig(t, src, nil)
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
 	if len(gaps) != 1 {
 		t.Fatalf("%d gaps, want 1: %+v", len(gaps), gaps)
 	}
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	for _, s := range secs {
 		if s.Start.Equal(gaps[0].To) {
 			return
@@ -93,9 +93,9 @@ func TestDeviceTooFast(t *testing.T) {
 	src := &fakeSource{fs: fs, signal: sine60, total: 660 * fs, t0: t0, fastUntil: 600 * fs, speed: 20}
 	r := newRig(t, src, func(o *Options) { o.Lossless = true })
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
-	health := records[*buffer.Health](t, r.store, buffer.KindHealth)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
+	health := records[*record.Health](t, r.store, record.KindHealth)
 	var steps, faults int
 	for _, g := range gaps {
 		switch {
@@ -116,7 +116,7 @@ func TestDeviceTooFast(t *testing.T) {
 	}
 	var raised, cleared bool
 	for _, h := range health {
-		if h.Flags.Has(buffer.DeviceFault) {
+		if h.Flags.Has(record.DeviceFault) {
 			raised = true
 		} else if raised {
 			cleared = true

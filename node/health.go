@@ -4,7 +4,7 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -47,8 +47,8 @@ type healthState struct {
 	o HealthOptions
 
 	silentRun, stuckRun    time.Duration
-	flags                  buffer.Flags // the health flags now raised
-	sticky                 buffer.Flags // flags raised until cleared by their cause (microphone fault)
+	flags                  record.Flags // the health flags now raised
+	sticky                 record.Flags // flags raised until cleared by their cause (microphone fault)
 	selfChecks, selfFailed uint64       // a self-verification to report in the next snapshot
 
 	// Since the last snapshot.
@@ -64,7 +64,7 @@ type healthState struct {
 }
 
 // second takes one closed second into account and returns the health flags now raised.
-func (h *healthState) second(r *dsp.Result, secFlags buffer.Flags, dropped uint64) buffer.Flags {
+func (h *healthState) second(r *dsp.Result, secFlags record.Flags, dropped uint64) record.Flags {
 	d := time.Duration(r.Duration * float64(time.Second))
 	if r.Silent {
 		h.silentRun += d
@@ -82,35 +82,35 @@ func (h *healthState) second(r *dsp.Result, secFlags buffer.Flags, dropped uint6
 		h.dcTime += r.Duration
 		h.lastDC = r.DC
 	}
-	if secFlags.Has(buffer.UnderRange) {
+	if secFlags.Has(record.UnderRange) {
 		h.underRange++
 	}
 	h.dropped += dropped
-	f := buffer.Flags(0)
+	f := record.Flags(0)
 	if h.silentRun >= h.o.SilenceLimit {
-		f |= buffer.DigitalSilence
+		f |= record.DigitalSilence
 	}
 	if h.stuckRun >= h.o.SilenceLimit {
-		f |= buffer.StuckInput
+		f |= record.StuckInput
 	}
 	if math.Abs(h.lastDC) > h.o.DCLimit {
-		f |= buffer.DCOffset
+		f |= record.DCOffset
 	}
 	if r.Clipped > 0 {
-		f |= buffer.Clipped
+		f |= record.Clipped
 	}
 	return f | h.sticky
 }
 
 // snapshot builds a health record and starts a new snapshot period.
-func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
+func (p *processor) healthSnapshot(now time.Time) *record.Health {
 	h := &p.health
-	rec := &buffer.Health{
+	rec := &record.Health{
 		At:                now.UTC(),
 		Flags:             h.flags,
 		Clipped:           h.clipped,
-		Silent:            h.flags.Has(buffer.DigitalSilence),
-		Stuck:             h.flags.Has(buffer.StuckInput),
+		Silent:            h.flags.Has(record.DigitalSilence),
+		Stuck:             h.flags.Has(record.StuckInput),
 		UnderRangeSeconds: h.underRange,
 		DroppedSamples:    h.dropped,
 		MemoryMB:          residentMB(),
@@ -122,7 +122,7 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 		rec.DCOffset = h.dcSum / h.dcTime
 	}
 	if !p.synced {
-		rec.Flags |= buffer.ClockUnsynced
+		rec.Flags |= record.ClockUnsynced
 	}
 	ov := p.n.Counters.QueueOverflows.Load()
 	rec.QueueOverflows = uint64(ov - h.overflowsSeen)
@@ -152,7 +152,7 @@ func (p *processor) healthSnapshot(now time.Time) *buffer.Health {
 
 // healthAfter runs after every second with the health flags that second raised: it stores a
 // snapshot when a health flag changed or the snapshot interval has passed.
-func (p *processor) healthAfter(f buffer.Flags, now time.Time) error {
+func (p *processor) healthAfter(f record.Flags, now time.Time) error {
 	h := &p.health
 	changed := f != h.flags
 	if changed {
@@ -182,11 +182,11 @@ func (p *processor) selfTest(checks, failed int) error {
 	h := &p.health
 	h.selfChecks, h.selfFailed = uint64(checks), uint64(failed)
 	if failed > 0 {
-		h.sticky |= buffer.ChainFault
+		h.sticky |= record.ChainFault
 	} else {
-		h.sticky &^= buffer.ChainFault
+		h.sticky &^= record.ChainFault
 	}
-	h.flags = h.flags&^buffer.ChainFault | h.sticky&buffer.ChainFault
+	h.flags = h.flags&^record.ChainFault | h.sticky&record.ChainFault
 	now := p.o.Now()
 	if p.anchored {
 		now = p.lastEnd

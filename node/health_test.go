@@ -5,7 +5,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func TestHealthFlags(t *testing.T) {
@@ -15,13 +15,13 @@ func TestHealthFlags(t *testing.T) {
 	const fs = 48000
 	tests := []struct {
 		name string
-		flag buffer.Flags
+		flag record.Flags
 		bad  func(i int64) float32 // the signal during seconds 4 to 9
 	}{
-		{"digital silence", buffer.DigitalSilence, func(int64) float32 { return 0 }},
-		{"stuck input", buffer.StuckInput, func(int64) float32 { return 0.125 }},
-		{"DC offset", buffer.DCOffset, func(i int64) float32 { return tone(i) + 0.05 }},
-		{"clipping", buffer.Clipped, func(i int64) float32 {
+		{"digital silence", record.DigitalSilence, func(int64) float32 { return 0 }},
+		{"stuck input", record.StuckInput, func(int64) float32 { return 0.125 }},
+		{"DC offset", record.DCOffset, func(i int64) float32 { return tone(i) + 0.05 }},
+		{"clipping", record.Clipped, func(i int64) float32 {
 			if i%4800 == 0 {
 				return 1
 			}
@@ -43,7 +43,7 @@ func TestHealthFlags(t *testing.T) {
 			})
 			r.run(t)
 			var raised, cleared time.Time
-			for _, h := range records[*buffer.Health](t, r.store, buffer.KindHealth) {
+			for _, h := range records[*record.Health](t, r.store, record.KindHealth) {
 				if h.Flags.Has(tc.flag) && raised.IsZero() {
 					raised = h.At
 				}
@@ -56,7 +56,7 @@ func TestHealthFlags(t *testing.T) {
 			}
 			start := t0.Add(4 * time.Second)
 			limit := time.Second // clipping and DC show in the first second
-			if tc.flag == buffer.DigitalSilence || tc.flag == buffer.StuckInput {
+			if tc.flag == record.DigitalSilence || tc.flag == record.StuckInput {
 				limit = 3 * time.Second
 			}
 			if d := raised.Sub(start); d < limit || d > limit+time.Second {
@@ -80,13 +80,13 @@ func TestHealthSelfTest(t *testing.T) {
 		r.node.ReportSelfTest(65, 2)
 	}()
 	r.run(t)
-	var found *buffer.Health
-	for _, h := range records[*buffer.Health](t, r.store, buffer.KindHealth) {
+	var found *record.Health
+	for _, h := range records[*record.Health](t, r.store, record.KindHealth) {
 		if h.SelfTestChecks > 0 {
 			found = h
 		}
 	}
-	if found == nil || found.SelfTestChecks != 65 || found.SelfTestFailed != 2 || !found.Flags.Has(buffer.ChainFault) {
+	if found == nil || found.SelfTestChecks != 65 || found.SelfTestFailed != 2 || !found.Flags.Has(record.ChainFault) {
 		t.Fatalf("self-test snapshot: %+v", found)
 	}
 }

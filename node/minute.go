@@ -3,7 +3,6 @@ package node
 import (
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
@@ -24,7 +23,7 @@ const calMargin = 2 * time.Second
 type pendingSecond struct {
 	start       time.Time
 	dur         time.Duration
-	flags       buffer.Flags
+	flags       record.Flags
 	res         dsp.Result
 	bands       []float64 // storage for res.Bands
 	bandSeconds []float64 // storage for res.BandSeconds
@@ -41,7 +40,7 @@ type minuteBuilder struct {
 	start   time.Time // start of the minute being built; zero before the first second
 	acc     dsp.Accumulator
 	seconds int // second records of the minute, counted or not
-	rec     buffer.Minute
+	rec     record.Minute
 }
 
 func newMinuteBuilder() *minuteBuilder {
@@ -51,7 +50,7 @@ func newMinuteBuilder() *minuteBuilder {
 
 // push queues a closed second; emit receives each minute record that completes as seconds
 // leave the queue.
-func (m *minuteBuilder) push(start time.Time, dur time.Duration, f buffer.Flags, r *dsp.Result, emit func(*buffer.Minute) error) error {
+func (m *minuteBuilder) push(start time.Time, dur time.Duration, f record.Flags, r *dsp.Result, emit func(*record.Minute) error) error {
 	if m.n == len(m.queue) {
 		if err := m.release(emit); err != nil {
 			return err
@@ -74,7 +73,7 @@ func (m *minuteBuilder) push(start time.Time, dur time.Duration, f buffer.Flags,
 }
 
 // mark ORs f into the flags of the waiting seconds that overlap [from, to).
-func (m *minuteBuilder) mark(from, to time.Time, f buffer.Flags) {
+func (m *minuteBuilder) mark(from, to time.Time, f record.Flags) {
 	for i := range m.n {
 		q := &m.queue[(m.head+i)%len(m.queue)]
 		if q.start.Before(to) && from.Before(q.start.Add(q.dur)) {
@@ -84,7 +83,7 @@ func (m *minuteBuilder) mark(from, to time.Time, f buffer.Flags) {
 }
 
 // release moves the oldest waiting second into its minute.
-func (m *minuteBuilder) release(emit func(*buffer.Minute) error) error {
+func (m *minuteBuilder) release(emit func(*record.Minute) error) error {
 	q := &m.queue[m.head]
 	m.head = (m.head + 1) % len(m.queue)
 	m.n--
@@ -102,23 +101,23 @@ func (m *minuteBuilder) release(emit func(*buffer.Minute) error) error {
 		m.acc.Add(&q.res)
 		m.rec.ValidSeconds++
 		m.rec.ValidDuration += q.dur
-		if q.flags&buffer.Overload != 0 {
+		if q.flags&record.Overload != 0 {
 			m.rec.OverloadSeconds++
 		}
-		if q.flags&buffer.UnderRange != 0 {
+		if q.flags&record.UnderRange != 0 {
 			m.rec.UnderRangeSeconds++
 		}
-		m.rec.Flags |= q.flags & (record.BoundFlags | buffer.Clipped)
+		m.rec.Flags |= q.flags & (record.BoundFlags | record.Clipped)
 	default:
 		m.rec.LeftOut[why]++
 	}
-	m.rec.Flags |= q.flags & buffer.ClockUnsynced
+	m.rec.Flags |= q.flags & record.ClockUnsynced
 	return nil
 }
 
 // flush moves every waiting second into its minute and closes the minute: the stream ended,
 // or the clock stepped.
-func (m *minuteBuilder) flush(emit func(*buffer.Minute) error) error {
+func (m *minuteBuilder) flush(emit func(*record.Minute) error) error {
 	for m.n > 0 {
 		if err := m.release(emit); err != nil {
 			return err
@@ -128,7 +127,7 @@ func (m *minuteBuilder) flush(emit func(*buffer.Minute) error) error {
 }
 
 // close emits the minute being built, if it holds any second.
-func (m *minuteBuilder) close(emit func(*buffer.Minute) error) error {
+func (m *minuteBuilder) close(emit func(*record.Minute) error) error {
 	if m.seconds == 0 {
 		m.start = time.Time{}
 		return nil
@@ -142,12 +141,12 @@ func (m *minuteBuilder) close(emit func(*buffer.Minute) error) error {
 	rec.LAF1, rec.LAF5, rec.LAF10 = r.Histogram.Exceeded(1), r.Histogram.Exceeded(5), r.Histogram.Exceeded(10)
 	rec.LAF50, rec.LAF90, rec.LAF95, rec.LAF99 = r.Histogram.Exceeded(50), r.Histogram.Exceeded(90), r.Histogram.Exceeded(95), r.Histogram.Exceeded(99)
 	first, counts := r.Histogram.Span()
-	rec.Histogram = buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}
+	rec.Histogram = record.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}
 	if len(r.Bands) > 0 {
 		rec.Spectrum = append([]float64(nil), r.Bands...)
 	}
 	m.acc.Reset()
-	m.rec = buffer.Minute{}
+	m.rec = record.Minute{}
 	m.seconds = 0
 	m.start = time.Time{}
 	return emit(&rec)

@@ -4,7 +4,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestMinuteSpectrumAtStreamEnd: a minute closed by the end of the stream, holding a loud
@@ -24,8 +24,8 @@ func TestMinuteSpectrumAtStreamEnd(t *testing.T) {
 	src := &fakeSource{fs: fs, signal: sig, total: 60 * fs, t0: t0}
 	r := newRig(t, src, nil)
 	r.run(t)
-	mins := records[*buffer.Minute](t, r.store, buffer.KindMinute)
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	mins := records[*record.Minute](t, r.store, record.KindMinute)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	if len(mins) != 1 || len(secs) != 60 {
 		t.Fatalf("%d minutes and %d seconds, want 1 and 60", len(mins), len(secs))
 	}
@@ -34,7 +34,7 @@ func TestMinuteSpectrumAtStreamEnd(t *testing.T) {
 	for k, got := range m.Spectrum {
 		var levels []float64
 		for _, s := range secs {
-			if s.Flags&buffer.Settling != 0 {
+			if s.Flags&record.Settling != 0 {
 				continue
 			}
 			if j := m.FirstBand + k - s.FirstBand; j >= 0 && j < len(s.Spectrum) && !math.IsNaN(s.Spectrum[j]) {

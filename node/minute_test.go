@@ -33,17 +33,17 @@ func energyMean(levels []float64) float64 {
 // from the store (annotations applied), and the seconds left out by flag.
 func minuteFromSeconds(t *testing.T, st *buffer.Store, m time.Time) (counted []float64, overload, leftOut int) {
 	t.Helper()
-	for _, s := range records[*buffer.Second](t, st, buffer.KindSecond) {
+	for _, s := range records[*record.Second](t, st, record.KindSecond) {
 		if s.Start.Before(m) || !s.Start.Before(m.Add(time.Minute)) {
 			continue
 		}
 		// The rule, written out (README, "Which seconds count"): calibrating, settling,
 		// excluded, suspect, dropped and silent seconds are left out; overloaded seconds stay.
-		if s.Flags&(buffer.Calibrating|buffer.Settling|buffer.Excluded|buffer.Suspect|buffer.Dropped|buffer.DigitalSilence) != 0 || math.IsNaN(s.LAeq) {
+		if s.Flags&(record.Calibrating|record.Settling|record.Excluded|record.Suspect|record.Dropped|record.DigitalSilence) != 0 || math.IsNaN(s.LAeq) {
 			leftOut++
 			continue
 		}
-		if s.Flags.Has(buffer.Overload) {
+		if s.Flags.Has(record.Overload) {
 			overload++
 		}
 		counted = append(counted, s.LAeq)
@@ -80,7 +80,7 @@ func TestMinuteFromValidSeconds(t *testing.T) {
 	})
 	r.run(t)
 
-	mins := records[*buffer.Minute](t, r.store, buffer.KindMinute)
+	mins := records[*record.Minute](t, r.store, record.KindMinute)
 	if len(mins) != 1 {
 		t.Fatalf("%d minute records, want 1", len(mins))
 	}
@@ -97,8 +97,8 @@ func TestMinuteFromValidSeconds(t *testing.T) {
 	// The minute's spectrum is the energy mean of its counted seconds' spectra, band by band
 	// (ISO 1996-1:2016, 3.1.7, per band).
 	var specSecs [][]float64
-	for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
-		if s.Flags&(buffer.Calibrating|buffer.Settling|buffer.Excluded|buffer.Suspect|buffer.Dropped) == 0 && len(s.Spectrum) > 0 && s.Duration == time.Second {
+	for _, s := range records[*record.Second](t, r.store, record.KindSecond) {
+		if s.Flags&(record.Calibrating|record.Settling|record.Excluded|record.Suspect|record.Dropped) == 0 && len(s.Spectrum) > 0 && s.Duration == time.Second {
 			specSecs = append(specSecs, s.Spectrum)
 		}
 	}
@@ -113,26 +113,26 @@ func TestMinuteFromValidSeconds(t *testing.T) {
 		}
 	}
 	// 12 s of tone plus 2 s margins: at least 14 s calibrating; 2 s settling at the start.
-	if c := m.LeftOut[record.Calibration]; c < 14 || c > 17 {
+	if c := m.LeftOut[record.ReasonCalibrating]; c < 14 || c > 17 {
 		t.Errorf("%d seconds left out as calibrating, want 14 to 17", c)
 	}
-	if m.LeftOut[record.Settle] != 2 {
-		t.Errorf("%d seconds left out as settling, want 2", m.LeftOut[record.Settle])
+	if m.LeftOut[record.ReasonSettling] != 2 {
+		t.Errorf("%d seconds left out as settling, want 2", m.LeftOut[record.ReasonSettling])
 	}
-	if !m.Flags.Has(buffer.Overload) || m.OverloadSeconds < 5 {
+	if !m.Flags.Has(record.Overload) || m.OverloadSeconds < 5 {
 		t.Errorf("minute flags %v, overload seconds %d: want overload kept (a lower bound)", m.Flags, m.OverloadSeconds)
 	}
 	if m.Flags&record.LeftOutFlags != 0 {
 		t.Errorf("minute carries left-out flags %v: they would leave the whole minute out", m.Flags)
 	}
 	// The machine tone is sound: its seconds are not calibrating and it makes an event.
-	for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
-		if sec := s.Start.Sub(t0); sec >= 41*time.Second && sec < 51*time.Second && s.Flags.Has(buffer.Calibrating) {
+	for _, s := range records[*record.Second](t, r.store, record.KindSecond) {
+		if sec := s.Start.Sub(t0); sec >= 41*time.Second && sec < 51*time.Second && s.Flags.Has(record.Calibrating) {
 			t.Errorf("second %v of the 80 dB machine tone flagged calibrating", sec)
 		}
 	}
 	var machine bool
-	for _, e := range records[*buffer.Event](t, r.store, buffer.KindEvent) {
+	for _, e := range records[*record.Event](t, r.store, record.KindEvent) {
 		if e.Start.Sub(t0) >= 39*time.Second && e.Start.Sub(t0) < 42*time.Second && math.Abs(e.LAFmax-80) < 1 {
 			machine = true
 		}
@@ -165,13 +165,13 @@ func TestMachineToneIsNotCalibrator(t *testing.T) {
 		src := &fakeSource{fs: 48000, signal: sig, total: 15 * 48000, t0: t0}
 		r := newRig(t, src, func(o *Options) { o.Calibration = &CalibrationOptions{NominalDBFS: -26} })
 		r.run(t)
-		for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
-			if s.Flags.Has(buffer.Calibrating) {
+		for _, s := range records[*record.Second](t, r.store, record.KindSecond) {
+			if s.Flags.Has(record.Calibrating) {
 				t.Errorf("%.0f dB tone: second %v flagged calibrating", level, s.Start.Sub(t0))
 				break
 			}
 		}
-		if a := records[*buffer.Annotation](t, r.store, buffer.KindAnnotation); len(a) != 0 {
+		if a := records[*record.Annotation](t, r.store, record.KindAnnotation); len(a) != 0 {
 			t.Errorf("%.0f dB tone: annotations %+v", level, a)
 		}
 	}

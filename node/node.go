@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/internal/when"
@@ -94,7 +95,7 @@ type Options struct {
 
 	// Session holds what the node writes in its session records besides the sample rate and
 	// device, which it fills in: software version, config hash, time zone.
-	Session buffer.Session
+	Session record.Session
 
 	// Now is the system clock (default time.Now); tests inject their own.
 	Now func() time.Time
@@ -105,8 +106,8 @@ type Options struct {
 	// OnSecond and OnMinute, when set, receive each record after it is appended (the live
 	// display of `leqnode demo`, the status page). They run on the processing goroutine and
 	// must return quickly.
-	OnSecond func(*buffer.Second)
-	OnMinute func(*buffer.Minute)
+	OnSecond func(*record.Second)
+	OnMinute func(*record.Minute)
 	// Notify, when set, is called after records were appended (the publisher's wake-up).
 	Notify func()
 
@@ -163,7 +164,7 @@ type Node struct {
 	o           Options
 	log         *slog.Logger
 	Counters    Counters
-	lastHealth  atomic.Pointer[buffer.Health]
+	lastHealth  atomic.Pointer[record.Health]
 	sampleRate  atomic.Int64
 	openGen     atomic.Int64  // counts successful opens of the source (the watchdog's guard)
 	sensitivity atomic.Uint64 // math.Float64bits of the sensitivity in use
@@ -203,7 +204,7 @@ func (n *Node) Reconfigure(s Settings) bool {
 }
 
 // Health returns the latest health snapshot, or nil before the first.
-func (n *Node) Health() *buffer.Health { return n.lastHealth.Load() }
+func (n *Node) Health() *record.Health { return n.lastHealth.Load() }
 
 // New checks the options and returns a node ready to Run.
 func New(o Options) (*Node, error) {
@@ -414,8 +415,8 @@ func (n *Node) sampleOrigin() time.Time {
 		return o.SampleOrigin
 	}
 	now := o.Now()
-	if last, err := o.Store.Last(buffer.KindSecond); err == nil && last != nil {
-		if end := last.(*buffer.Second).Start.Add(last.(*buffer.Second).Duration); end.After(now) {
+	if last, err := o.Store.Last(record.KindSecond); err == nil && last != nil {
+		if end := last.(*record.Second).Start.Add(last.(*record.Second).Duration); end.After(now) {
 			n.log.Info("accelerated run: its records continue after the store's last second, which lies ahead of the clock", "from", end.UTC())
 			return end
 		}

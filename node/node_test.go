@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/internal/when"
@@ -196,10 +197,10 @@ func (r *rig) run(t *testing.T) {
 	}
 }
 
-func records[T buffer.Record](t *testing.T, st *buffer.Store, k buffer.Kind) []T {
+func records[T record.Record](t *testing.T, st *buffer.Store, k record.Kind) []T {
 	t.Helper()
 	var out []T
-	err := st.Range(k, time.Unix(0, 0), time.Date(2100, 1, 1, 0, 0, 0, 0, time.UTC), func(r buffer.Record) error {
+	err := st.Range(k, time.Unix(0, 0), time.Date(2100, 1, 1, 0, 0, 0, 0, time.UTC), func(r record.Record) error {
 		out = append(out, r.(T))
 		return nil
 	})
@@ -242,7 +243,7 @@ func TestNodeMatchesMeter(t *testing.T) {
 		m.Take(&res)
 		want = append(want, res)
 	}
-	got := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	got := records[*record.Second](t, r.store, record.KindSecond)
 	if len(got) != secs {
 		t.Fatalf("%d second records, want %d", len(got), secs)
 	}
@@ -259,11 +260,11 @@ func TestNodeMatchesMeter(t *testing.T) {
 				t.Errorf("second %d: %s stored %.3f, chain %.3f", k, c.name, c.a, c.b)
 			}
 		}
-		if settling := s.Flags.Has(buffer.Settling); settling != (k < 2) {
+		if settling := s.Flags.Has(record.Settling); settling != (k < 2) {
 			t.Errorf("second %d: settling flag %v", k, settling)
 		}
 	}
-	mins := records[*buffer.Minute](t, r.store, buffer.KindMinute)
+	mins := records[*record.Minute](t, r.store, record.KindMinute)
 	if len(mins) != 3 || mins[0].ValidSeconds != 58 || mins[1].ValidSeconds != 60 || mins[2].ValidSeconds != 5 {
 		t.Fatalf("minutes: %d records, valid seconds %v", len(mins), func() (v []int) {
 			for _, m := range mins {
@@ -285,7 +286,7 @@ func TestNodeMatchesMeter(t *testing.T) {
 	if math.Abs(mins[1].LAF10-80) > 0.2 || math.Abs(mins[1].LAF90-60) > 0.2 {
 		t.Errorf("minute LAF10 %.2f, LAF90 %.2f", mins[1].LAF10, mins[1].LAF90)
 	}
-	sess := records[*buffer.Session](t, r.store, buffer.KindSession)
+	sess := records[*record.Session](t, r.store, record.KindSession)
 	if len(sess) != 1 || sess[0].SampleRate != 48000 || sess[0].SensitivityDBFS != -26 {
 		t.Errorf("sessions: %+v", sess)
 	}
@@ -296,14 +297,14 @@ func TestNodeDeviceLossGivesGap(t *testing.T) {
 		failAt: 5 * 48000, failFor: 4 * time.Second}
 	r := newRig(t, src, nil)
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
 	if len(gaps) != 1 || !strings.Contains(gaps[0].Reason, "device lost") {
 		t.Fatalf("gaps: %+v", gaps)
 	}
 	if d := gaps[0].To.Sub(gaps[0].From); d < 3*time.Second || d > 5*time.Second {
 		t.Errorf("gap of %v, want about 4 s", d)
 	}
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	if len(secs) < 19 {
 		t.Errorf("%d seconds after a recovered device loss, want the whole stream resumed", len(secs))
 	}
@@ -313,7 +314,7 @@ func TestNodeDeviceLossGivesGap(t *testing.T) {
 	// After the re-open the seconds are flagged settling again.
 	last := secs[len(secs)-1]
 	after := secs[6] // the first second after the outage
-	if !after.Flags.Has(buffer.Settling) || last.Flags.Has(buffer.Settling) {
+	if !after.Flags.Has(record.Settling) || last.Flags.Has(record.Settling) {
 		t.Errorf("settling after re-open: first %v, last %v", after.Flags, last.Flags)
 	}
 }
@@ -324,7 +325,7 @@ func TestNodeWatchdog(t *testing.T) {
 	src := &fakeSource{fs: 48000, signal: testSignal, total: 8 * 48000, t0: t0, stallAt: 3 * 48000}
 	r := newRig(t, src, func(o *Options) { o.Watchdog = 300 * time.Millisecond })
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
 	if len(gaps) != 1 || !strings.Contains(gaps[0].Reason, "watchdog") {
 		t.Fatalf("gaps: %+v", gaps)
 	}
@@ -338,11 +339,11 @@ func TestNodeClockStepGivesGap(t *testing.T) {
 		stepAt: 4 * 48000, step: 30 * time.Second}
 	r := newRig(t, src, nil)
 	r.run(t)
-	gaps := records[*buffer.Gap](t, r.store, buffer.KindGap)
+	gaps := records[*record.Gap](t, r.store, record.KindGap)
 	if len(gaps) != 1 || !strings.Contains(gaps[0].Reason, "clock stepped") {
 		t.Fatalf("gaps: %+v", gaps)
 	}
-	secs := records[*buffer.Second](t, r.store, buffer.KindSecond)
+	secs := records[*record.Second](t, r.store, record.KindSecond)
 	lastStart := secs[len(secs)-1].Start
 	if lastStart.Sub(t0) < 35*time.Second {
 		t.Errorf("after a 30 s step the last second starts at %v", lastStart)
@@ -371,13 +372,13 @@ func TestNodeFlags(t *testing.T) {
 	src := &fakeSource{fs: 48000, signal: sig, total: 10 * 48000, t0: t0}
 	r := newRig(t, src, func(o *Options) { o.UnderRangeLevel = 34; o.OverloadLevel = 120; o.Settling = 0 })
 	r.run(t)
-	for k, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
-		if got := s.Flags.Has(buffer.Overload | buffer.Clipped); got != (k == 3) {
+	for k, s := range records[*record.Second](t, r.store, record.KindSecond) {
+		if got := s.Flags.Has(record.Overload | record.Clipped); got != (k == 3) {
 			t.Errorf("second %d: overload %v (%v)", k, got, s.Flags)
 		}
 		// Second 8 still reads under-range while the Fast detector has gone, but LAeq of second
 		// 8 is back at 60 dB: only 6 and 7.
-		if got := s.Flags.Has(buffer.UnderRange); got != (k == 6 || k == 7) {
+		if got := s.Flags.Has(record.UnderRange); got != (k == 6 || k == 7) {
 			t.Errorf("second %d: under-range %v (LAeq %.1f)", k, got, s.LAeq)
 		}
 	}
@@ -390,7 +391,7 @@ func TestNodeQueueOverflowCounted(t *testing.T) {
 	r := newRig(t, src, func(o *Options) {
 		o.Lossless = false
 		o.QueueBlocks = 2
-		o.OnSecond = func(*buffer.Second) { time.Sleep(50 * time.Millisecond) }
+		o.OnSecond = func(*record.Second) { time.Sleep(50 * time.Millisecond) }
 	})
 	r.run(t)
 	if r.node.Counters.QueueOverflows.Load() == 0 {
@@ -398,8 +399,8 @@ func TestNodeQueueOverflowCounted(t *testing.T) {
 	}
 	flagged := 0
 	var dropped uint64
-	for _, s := range records[*buffer.Second](t, r.store, buffer.KindSecond) {
-		if s.Flags.Has(buffer.Dropped) {
+	for _, s := range records[*record.Second](t, r.store, record.KindSecond) {
+		if s.Flags.Has(record.Dropped) {
 			flagged++
 			dropped += s.DroppedSamples
 		}
@@ -424,15 +425,15 @@ func TestNodeStartupGap(t *testing.T) {
 		if err := n.Run(context.Background()); err != nil {
 			t.Fatal(err)
 		}
-		gaps := records[*buffer.Gap](t, st, buffer.KindGap)
+		gaps := records[*record.Gap](t, st, record.KindGap)
 		if want := i; len(gaps) != want {
 			t.Errorf("run %d: %d gaps, want %d", i, len(gaps), want)
 		}
 		if i == 1 && (len(gaps) != 1 || gaps[0].To.Sub(gaps[0].From) < 59*time.Minute) {
 			t.Errorf("restart gap: %+v", gaps)
 		}
-		secs := records[*buffer.Second](t, st, buffer.KindSecond)
-		if !secs[0].Flags.Has(buffer.ClockUnsynced) {
+		secs := records[*record.Second](t, st, record.KindSecond)
+		if !secs[0].Flags.Has(record.ClockUnsynced) {
 			t.Error("clock not synchronised: seconds should carry the flag")
 		}
 		st.Close()
@@ -457,7 +458,7 @@ func TestNodeEvents(t *testing.T) {
 	cfg := dsp.DefaultEventConfig(-26)
 	r := newRig(t, src, func(o *Options) { o.Events = &cfg })
 	r.run(t)
-	evs := records[*buffer.Event](t, r.store, buffer.KindEvent)
+	evs := records[*record.Event](t, r.store, record.KindEvent)
 	if len(evs) != 1 {
 		t.Fatalf("%d events, want 1: %+v", len(evs), evs)
 	}
@@ -519,9 +520,9 @@ func TestNodeCalibration(t *testing.T) {
 	if math.Abs(res.Check.Deviation-(-1)) > 0.1 {
 		t.Errorf("deviation %.3f dB, want -1 (the microphone reads 1 dB low)", res.Check.Deviation)
 	}
-	checks := records[*buffer.Calibration](t, r.store, buffer.KindCalibration)
-	anns := records[*buffer.Annotation](t, r.store, buffer.KindAnnotation)
-	sess := records[*buffer.Session](t, r.store, buffer.KindSession)
+	checks := records[*record.Calibration](t, r.store, record.KindCalibration)
+	anns := records[*record.Annotation](t, r.store, record.KindAnnotation)
+	sess := records[*record.Session](t, r.store, record.KindSession)
 	if len(checks) != 1 || len(sess) != 2 || math.Abs(sess[1].SensitivityDBFS-actual) > 0.1 {
 		t.Errorf("checks %d, sessions %+v", len(checks), sess)
 	}
@@ -529,7 +530,7 @@ func TestNodeCalibration(t *testing.T) {
 	// with the check) mark calibrating at least the tone and 2 s before it.
 	from, to := t0.Add(20*time.Second), t0
 	for _, a := range anns {
-		if !a.Flags.Has(buffer.Calibrating) {
+		if !a.Flags.Has(record.Calibrating) {
 			t.Errorf("annotation %+v does not mark calibrating", a)
 		}
 		from, to = when.Earlier(from, a.From), when.Later(to, a.To)
@@ -537,7 +538,7 @@ func TestNodeCalibration(t *testing.T) {
 	if len(anns) == 0 || from.After(t0.Add(time.Second)) || to.Before(t0.Add(13*time.Second)) {
 		t.Errorf("annotations %+v do not cover the tone with its margins", anns)
 	}
-	if evs := records[*buffer.Event](t, r.store, buffer.KindEvent); len(evs) != 0 {
+	if evs := records[*record.Event](t, r.store, record.KindEvent); len(evs) != 0 {
 		t.Errorf("events during the calibrator tone: %+v", evs)
 	}
 	if _, err := os.Stat(filepath.Join(state, "sensitivity.json")); err != nil {

@@ -3,7 +3,7 @@ package node
 import (
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // startupGap starts the outage that explains the time the node was not running: from the end
@@ -11,11 +11,11 @@ import (
 // store the outage starts now, so that a source missing at start leaves no hole either.
 func (p *processor) startupGap() error {
 	p.lostAt, p.lostWhy = p.o.Now(), ""
-	last, err := p.o.Store.Last(buffer.KindSecond)
+	last, err := p.o.Store.Last(record.KindSecond)
 	if err != nil || last == nil {
 		return nil
 	}
-	if s, ok := last.(*buffer.Second); ok {
+	if s, ok := last.(*record.Second); ok {
 		p.lostAt = s.Start.Add(s.Duration)
 		p.lostWhy = "node was not running (stopped, restarting, crashed or powered off)"
 	}
@@ -49,7 +49,7 @@ func (p *processor) gap(from, to time.Time, why string) error {
 	}
 	p.n.Counters.Gaps.Add(1)
 	p.n.log.Info("gap in the data", "from", from.UTC(), "to", to.UTC(), "reason", why)
-	return p.append(&buffer.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
+	return p.append(&record.Gap{From: from.UTC(), To: to.UTC(), Reason: why})
 }
 
 // lost closes the partial second and remembers when the source went away.
@@ -81,7 +81,7 @@ func (p *processor) skip(k int64) {
 		take := min(k, end-p.pos)
 		p.pos += take
 		k -= take
-		p.secFlags |= buffer.Dropped
+		p.secFlags |= record.Dropped
 		p.secDropped += uint64(take)
 		if p.pos == end {
 			p.closeSecond()

@@ -7,7 +7,7 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -29,7 +29,7 @@ type processor struct {
 	pos         int64     // samples fed to the meter since the source was opened
 	secStart    time.Time // start of the interval being measured
 	nextSecond  time.Time // the UTC second boundary that ends it
-	secFlags    buffer.Flags
+	secFlags    record.Flags
 	secDropped  uint64
 	settleUntil time.Time
 	synced      bool
@@ -58,7 +58,7 @@ type processor struct {
 	lastEnd  time.Time // wall time of the end of the last sample measured
 	lostAt   time.Time // when the source was lost (zero while it runs)
 	lostWhy  string
-	lastSess *buffer.Session
+	lastSess *record.Session
 }
 
 // loop handles events until the capture goroutine ends or a store error stops the node.
@@ -214,7 +214,7 @@ func (p *processor) opened(ev handoff) error {
 	p.device = o.Source.Describe()
 	sess := o.Session
 	sess.At = now.UTC()
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		sess.FirstSeq[k] = o.Store.FirstSeq(k)
 	}
 	sess.SensitivityDBFS = o.SensitivityDBFS
@@ -228,7 +228,7 @@ func (p *processor) opened(ev handoff) error {
 	return nil
 }
 
-func sameSession(a, b *buffer.Session) bool {
+func sameSession(a, b *record.Session) bool {
 	return a.SoftwareVersion == b.SoftwareVersion && a.ConfigHash == b.ConfigHash &&
 		a.SensitivityDBFS == b.SensitivityDBFS && a.SampleRate == b.SampleRate &&
 		a.Device == b.Device && a.TimeZone == b.TimeZone && a.NodeID == b.NodeID && a.Site == b.Site &&
@@ -358,12 +358,12 @@ func (p *processor) storeEvents() error {
 	for p.events.Next(&p.event) {
 		e := &p.event
 		from := p.clock.Time(e.Start + p.evSkew)
-		rec := &buffer.Event{
+		rec := &record.Event{
 			Start: from.UTC(), End: from.Add(time.Duration(e.Duration * 1e9)).UTC(),
 			LAFmax: e.LAFmax, LAeq: e.LAeq, LAE: e.LAE, LCpeak: e.LCpeak,
 		}
 		if !p.synced {
-			rec.Flags |= buffer.ClockUnsynced
+			rec.Flags |= record.ClockUnsynced
 		}
 		if p.o.Events.Bands != 0 {
 			if sp := p.spectra.over(rec.Start, rec.End); sp != nil {
@@ -398,26 +398,26 @@ func (p *processor) closeSecond() error {
 	if r.Samples > 0 {
 		f := p.secFlags
 		if start.Before(p.settleUntil) {
-			f |= buffer.Settling
+			f |= record.Settling
 		}
 		if !p.synced {
-			f |= buffer.ClockUnsynced
+			f |= record.ClockUnsynced
 		}
 		if start.Before(p.calUntil) && p.calFrom.Before(start.Add(time.Duration(r.Duration*1e9))) {
-			f |= buffer.Calibrating
+			f |= record.Calibrating
 		}
 		if r.Clipped > 0 {
-			f |= buffer.Clipped | buffer.Overload
+			f |= record.Clipped | record.Overload
 		}
 		if o.OverloadLevel > 0 && r.LZpeak >= o.OverloadLevel {
-			f |= buffer.Overload
+			f |= record.Overload
 		}
 		if o.UnderRangeLevel > 0 && r.LAeq < o.UnderRangeLevel {
-			f |= buffer.UnderRange
+			f |= record.UnderRange
 		}
 		hf := p.health.second(r, f, p.secDropped)
-		f |= hf & (buffer.DigitalSilence | buffer.StuckInput | buffer.DCOffset)
-		rec := &buffer.Second{
+		f |= hf & (record.DigitalSilence | record.StuckInput | record.DCOffset)
+		rec := &record.Second{
 			Start: start.UTC(), Duration: time.Duration(math.Round(r.Duration * 1e9)),
 			LAeq: r.LAeq, LCeq: r.LCeq, LZeq: r.LZeq, LAFmax: r.LAFmax, LAFmin: r.LAFmin,
 			LASmax: r.LASmax, LASmin: r.LASmin, LAImax: r.LAImax, LCpeak: r.LCpeak, LZpeak: r.LZpeak,
@@ -447,7 +447,7 @@ func (p *processor) closeSecond() error {
 }
 
 // storeMinute stores a minute record the minute builder completed.
-func (p *processor) storeMinute(rec *buffer.Minute) error {
+func (p *processor) storeMinute(rec *record.Minute) error {
 	if len(rec.Spectrum) > 0 {
 		rec.FirstBand = p.firstBand
 	}

@@ -4,7 +4,7 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Status is a snapshot of a running node, for the control socket and the status page. Levels
@@ -45,9 +45,9 @@ func (n *Node) Status() Status {
 }
 
 // HealthJSON returns a health snapshot as a JSON-ready map: its fields as the record model
-// names them (buffer.Fields, NaN readings as null) and "at", the time it was taken.
-func HealthJSON(h *buffer.Health) map[string]any {
-	m := buffer.FieldMap(h)
+// names them (record.Fields, NaN readings as null) and "at", the time it was taken.
+func HealthJSON(h *record.Health) map[string]any {
+	m := record.FieldMap(h)
 	m["at"] = h.At
 	return m
 }

@@ -6,6 +6,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // storeState follows a store that cannot write: since when, what it refused, and when the
@@ -24,16 +25,16 @@ type storeState struct {
 const storeLogEvery = time.Minute
 
 // lose accounts for a record the store refused.
-func (s *storeState) lose(r buffer.Record) {
+func (s *storeState) lose(r record.Record) {
 	from, to := r.Time(), r.Time()
 	switch v := r.(type) {
-	case *buffer.Second:
+	case *record.Second:
 		to = v.Start.Add(v.Duration)
-	case *buffer.Minute:
+	case *record.Minute:
 		to = v.Start.Add(time.Minute)
-	case *buffer.Event:
+	case *record.Event:
 		to = v.End
-	case *buffer.Gap:
+	case *record.Gap:
 		to = v.To
 	}
 	if s.lost == 0 || from.Before(s.lostFrom) {
@@ -51,7 +52,7 @@ func (p *processor) storeFailing(err error) {
 	now := p.o.Now()
 	if !s.failing {
 		s.failing, s.since = true, now
-		p.health.sticky |= buffer.StoreFault
+		p.health.sticky |= record.StoreFault
 		p.n.log.Error("the store cannot write: measuring on, records held in memory; free space on its file system",
 			"store", p.o.Store.Path(), "err", err)
 		s.lastLog = now
@@ -69,7 +70,7 @@ func (p *processor) storeRecovered() error {
 	lost, from, to := s.lost, s.lostFrom, s.lostTo
 	p.n.log.Info("the store writes again", "store", p.o.Store.Path(), "failed_for", p.o.Now().Sub(s.since).Round(time.Second), "refused", lost)
 	*s = storeState{}
-	p.health.sticky &^= buffer.StoreFault
+	p.health.sticky &^= record.StoreFault
 	p.healthNow(p.o.Now())
 	if lost > 0 {
 		return p.gap(from, to, fmt.Sprintf("the store could not write (full disk or I/O error): %d records could not be kept", lost))
@@ -82,7 +83,7 @@ func (p *processor) storeRecovered() error {
 // next second.
 func (p *processor) healthNow(now time.Time) {
 	h := &p.health
-	const faults = buffer.StoreFault | buffer.DeviceFault
+	const faults = record.StoreFault | record.DeviceFault
 	h.flags = h.flags&^faults | h.sticky&faults
 	rec := p.healthSnapshot(now)
 	p.n.lastHealth.Store(rec)
@@ -98,7 +99,7 @@ const spaceRoom = 64
 // checkSpaceCap keeps store-fault raised while a full file system holds the store within its
 // file (it gives up its oldest records to take new ones), and lifts the cap once the file
 // system has room again.
-func (p *processor) checkSpaceCap(rec *buffer.Health) {
+func (p *processor) checkSpaceCap(rec *record.Health) {
 	capped := p.o.Store.SpaceCapped() > 0
 	if capped && rec.DiskFreeMB >= spaceRoom {
 		p.o.Store.ResetSpaceCap()
@@ -106,10 +107,10 @@ func (p *processor) checkSpaceCap(rec *buffer.Health) {
 	}
 	switch {
 	case capped:
-		p.health.sticky |= buffer.StoreFault
-		rec.Flags |= buffer.StoreFault
+		p.health.sticky |= record.StoreFault
+		rec.Flags |= record.StoreFault
 	case !p.store.failing:
-		p.health.sticky &^= buffer.StoreFault
+		p.health.sticky &^= record.StoreFault
 	}
 }
 
@@ -117,7 +118,7 @@ func (p *processor) checkSpaceCap(rec *buffer.Health) {
 // node: records it holds in memory are written when it can again (buffer.ErrNotCommitted);
 // what it refuses is covered by a gap record once it accepts records again
 // (buffer.ErrRefused). Meanwhile the store-fault health flag is raised.
-func (p *processor) append(r buffer.Record) error {
+func (p *processor) append(r record.Record) error {
 	if p.o.Synthetic {
 		markSynthetic(r)
 	}
@@ -144,17 +145,17 @@ func (p *processor) append(r buffer.Record) error {
 
 // markSynthetic flags a record made from the synthetic scene, so that no reader takes it for a
 // measurement.
-func markSynthetic(r buffer.Record) {
+func markSynthetic(r record.Record) {
 	switch v := r.(type) {
-	case *buffer.Second:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Minute:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Event:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Calibration:
-		v.Flags |= buffer.Synthetic
-	case *buffer.Health:
-		v.Flags |= buffer.Synthetic
+	case *record.Second:
+		v.Flags |= record.Synthetic
+	case *record.Minute:
+		v.Flags |= record.Synthetic
+	case *record.Event:
+		v.Flags |= record.Synthetic
+	case *record.Calibration:
+		v.Flags |= record.Synthetic
+	case *record.Health:
+		v.Flags |= record.Synthetic
 	}
 }

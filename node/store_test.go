@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -91,12 +92,12 @@ func TestNodeSurvivesFullDisk(t *testing.T) {
 	if err := st.Check(); err != nil {
 		t.Fatalf("store check: %v", err)
 	}
-	secs := records[*buffer.Second](t, st, buffer.KindSecond)
-	gaps := records[*buffer.Gap](t, st, buffer.KindGap)
-	health := records[*buffer.Health](t, st, buffer.KindHealth)
+	secs := records[*record.Second](t, st, record.KindSecond)
+	gaps := records[*record.Gap](t, st, record.KindGap)
+	health := records[*record.Health](t, st, record.KindHealth)
 	var raised, cleared bool
 	for _, h := range health {
-		if h.Flags.Has(buffer.StoreFault) {
+		if h.Flags.Has(record.StoreFault) {
 			raised = true
 		} else if raised {
 			cleared = true

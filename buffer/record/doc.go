@@ -1,7 +1,21 @@
-// Package record holds what every output of leqnode agrees on about a measurement record,
-// without the store: the flags that qualify a record and the validity rule that decides which
-// seconds count in an aggregate. The store (package buffer), the minute builder (package node),
-// the indicators and reports, the MQTT payloads, the status page and the metrics all take their
+// Package record is leqnode's record model, without the store: the kinds of record (Kind) and
+// their Go types (Second, Minute, Event, Calibration, Health, Gap, Annotation, Session), their
+// compact versioned binary encodings, the one field table per kind (Fields: name, unit, rounding)
+// that every output writes, the flags that qualify a record and the validity rule that decides
+// which seconds count in an aggregate. Pure code (indicators, payloads) imports it without
+// linking the bbolt store (package buffer).
+//
+// # Encodings
+//
+// Each record encodes to a version byte followed by its fields (AppendBinary); Decode reads every
+// older version and refuses a newer one with ErrNewerRecord, a damaged one with
+// ErrCorruptRecord. Levels are kept as signed 16-bit hundredths of a decibel, so a level
+// survives within 0.005 dB; NaN is "no level".
+//
+// # Who uses it
+//
+// The store (package buffer), the minute builder (package node), the indicators and reports,
+// the MQTT payloads, export, the status page and the metrics all take their names, rounding and
 // rule from here, so that an hour read from second records, from minute records, from a report,
 // from MQTT or from the page shows one number.
 //

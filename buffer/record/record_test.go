@@ -20,14 +20,14 @@ func TestJudge(t *testing.T) {
 		{Overload | Clipped, 112, Counted}, // kept: a lower bound
 		{UnderRange, 21, Counted},          // kept: an upper bound
 		{ClockUnsynced, 55, Counted},
-		{Calibrating, 94, Calibration},
-		{Calibrating | Overload, 114, Calibration},
-		{Settling, 40, Settle},
-		{Excluded, 70, ByUser},
-		{Suspect, 60, Doubtful},
-		{Dropped, 55, NoData},
-		{0, nan, Silence},
-		{DigitalSilence, nan, Silence},
+		{Calibrating, 94, ReasonCalibrating},
+		{Calibrating | Overload, 114, ReasonCalibrating},
+		{Settling, 40, ReasonSettling},
+		{Excluded, 70, ReasonExcluded},
+		{Suspect, 60, ReasonSuspect},
+		{Dropped, 55, ReasonNoData},
+		{0, nan, ReasonSilence},
+		{DigitalSilence, nan, ReasonSilence},
 	} {
 		if got := Judge(tc.flags, tc.level); got != tc.want {
 			t.Errorf("Judge(%v, %v) = %v, want %v", tc.flags, tc.level, got, tc.want)
@@ -93,7 +93,7 @@ func TestREADMEListsEveryFlag(t *testing.T) {
 			t.Errorf("flag %q has no meaning", n)
 		}
 	}
-	for r := Calibration; r < NumReasons; r++ {
+	for r := ReasonCalibrating; r < NumReasons; r++ {
 		if !strings.Contains(sec, "`"+r.String()+"`") {
 			t.Errorf("README's rule does not name the reason %q", r)
 		}
@@ -112,6 +112,6 @@ func ExampleTally() {
 	for range 2 {
 		t.Add(Overload|Clipped, 121, 1)
 	}
-	fmt.Println(t.Counted, t.LeftOut[Calibration], t.Bound(), t.Bound().Sign())
+	fmt.Println(t.Counted, t.LeftOut[ReasonCalibrating], t.Bound(), t.Bound().Sign())
 	// Output: 52 8 lower ≥
 }

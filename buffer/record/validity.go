@@ -11,14 +11,14 @@ type Reason uint8
 // The reasons, in the order Judge tests them: a second with several of these flags is left out
 // for the first.
 const (
-	Counted     Reason = iota // not left out
-	Calibration               // a calibrator was on the microphone (flag calibrating)
-	Settle                    // filters still settling after a start (flag settling)
-	ByUser                    // excluded by an annotation (flag excluded)
-	Doubtful                  // suspect, e.g. calibration drift (flag suspect)
-	NoData                    // samples dropped (flag dropped); gaps count here too
-	Silence                   // digital silence: no level
-	NumReasons                // the number of reasons, Counted included
+	Counted           Reason = iota // not left out
+	ReasonCalibrating               // a calibrator was on the microphone (flag calibrating)
+	ReasonSettling                  // filters still settling after a start (flag settling)
+	ReasonExcluded                  // excluded by an annotation (flag excluded)
+	ReasonSuspect                   // suspect, e.g. calibration drift (flag suspect)
+	ReasonNoData                    // samples dropped (flag dropped); gaps count here too
+	ReasonSilence                   // digital silence: no level
+	NumReasons                      // the number of reasons, Counted included
 )
 
 var reasonNames = [NumReasons]string{"counted", "calibrating", "settling", "excluded", "suspect", "no_data", "digital_silence"}
@@ -43,17 +43,17 @@ const BoundFlags = Overload | UnderRange
 func Judge(f Flags, level float64) Reason {
 	switch {
 	case f&Calibrating != 0:
-		return Calibration
+		return ReasonCalibrating
 	case f&Settling != 0:
-		return Settle
+		return ReasonSettling
 	case f&Excluded != 0:
-		return ByUser
+		return ReasonExcluded
 	case f&Suspect != 0:
-		return Doubtful
+		return ReasonSuspect
 	case f&Dropped != 0:
-		return NoData
+		return ReasonNoData
 	case f&DigitalSilence != 0 || math.IsNaN(level) || math.IsInf(level, 0):
-		return Silence
+		return ReasonSilence
 	}
 	return Counted
 }
@@ -128,7 +128,7 @@ func (t *Tally) Merge(o Tally) {
 // LeftOutTotal returns the seconds left out for any reason.
 func (t Tally) LeftOutTotal() float64 {
 	var s float64
-	for _, v := range t.LeftOut[Calibration:] {
+	for _, v := range t.LeftOut[ReasonCalibrating:] {
 		s += v
 	}
 	return s
@@ -163,7 +163,7 @@ func (t Tally) Flags() Flags {
 // included) so that every output carries the same keys.
 func (t Tally) LeftOutMap() map[string]float64 {
 	m := make(map[string]float64, NumReasons-1)
-	for r := Calibration; r < NumReasons; r++ {
+	for r := ReasonCalibrating; r < NumReasons; r++ {
 		m[r.String()] = t.LeftOut[r]
 	}
 	return m

@@ -18,6 +18,7 @@ import (
 	mqtt "github.com/eclipse/paho.mqtt.golang"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/report"
@@ -109,18 +110,18 @@ references = [94.0, 114.0]
 		t.Fatal(err)
 	}
 	defer st.Close()
-	var secs []*buffer.Second
-	var mins []*buffer.Minute
-	all := func(k buffer.Kind, fn func(buffer.Record)) {
-		if err := st.Range(k, time.Unix(0, 0), time.Now().Add(time.Hour), func(r buffer.Record) error { fn(r); return nil }); err != nil {
+	var secs []*record.Second
+	var mins []*record.Minute
+	all := func(k record.Kind, fn func(record.Record)) {
+		if err := st.Range(k, time.Unix(0, 0), time.Now().Add(time.Hour), func(r record.Record) error { fn(r); return nil }); err != nil {
 			t.Fatal(err)
 		}
 	}
-	all(buffer.KindSecond, func(r buffer.Record) { secs = append(secs, r.(*buffer.Second)) })
-	all(buffer.KindMinute, func(r buffer.Record) { mins = append(mins, r.(*buffer.Minute)) })
+	all(record.KindSecond, func(r record.Record) { secs = append(secs, r.(*record.Second)) })
+	all(record.KindMinute, func(r record.Record) { mins = append(mins, r.(*record.Minute)) })
 	// The session record names the node, its site and its position rounded as configured.
-	var sessions []*buffer.Session
-	all(buffer.KindSession, func(r buffer.Record) { sessions = append(sessions, r.(*buffer.Session)) })
+	var sessions []*record.Session
+	all(record.KindSession, func(r record.Record) { sessions = append(sessions, r.(*record.Session)) })
 	if len(sessions) == 0 || sessions[0].NodeID != "wc-harrowby-04" || sessions[0].Site != "Harrowby Lane, Wendle Cross (invented)" ||
 		sessions[0].Latitude != 47.001 || sessions[0].Longitude != -30.005 {
 		t.Errorf("session records %+v do not name the configured node", sessions)
@@ -144,9 +145,9 @@ references = [94.0, 114.0]
 		}
 		tl := byMinute[m]
 		switch {
-		case s.Flags.Has(buffer.Calibrating):
+		case s.Flags.Has(record.Calibrating):
 			tl.calib++
-		case s.Flags.Has(buffer.Settling):
+		case s.Flags.Has(record.Settling):
 			tl.settle++
 		case math.IsNaN(s.LAeq):
 			tl.silent++
@@ -154,10 +155,10 @@ references = [94.0, 114.0]
 			tl.valid++
 			tl.e += math.Pow(10, s.LAeq/10) * s.Duration.Seconds()
 			tl.d += s.Duration.Seconds()
-			if s.Flags.Has(buffer.Overload) {
+			if s.Flags.Has(record.Overload) {
 				tl.over++
 			}
-			if s.Flags.Has(buffer.UnderRange) {
+			if s.Flags.Has(record.UnderRange) {
 				tl.under++
 			}
 		}
@@ -165,16 +166,16 @@ references = [94.0, 114.0]
 	var calibrating, machineCal, overload, under int
 	for _, s := range secs {
 		at := s.Start.Sub(t0)
-		if s.Flags.Has(buffer.Calibrating) {
+		if s.Flags.Has(record.Calibrating) {
 			calibrating++
 			if at >= 51*time.Second && at < 61*time.Second {
 				machineCal++
 			}
 		}
-		if s.Flags.Has(buffer.Overload) {
+		if s.Flags.Has(record.Overload) {
 			overload++
 		}
-		if s.Flags.Has(buffer.UnderRange) {
+		if s.Flags.Has(record.UnderRange) {
 			under++
 		}
 	}
@@ -213,7 +214,7 @@ references = [94.0, 114.0]
 		}
 		m := mins[i]
 		i++
-		for _, f := range buffer.Fields(buffer.KindMinute) {
+		for _, f := range record.Fields(record.KindMinute) {
 			got, ok := row[f.Name]
 			if !ok {
 				t.Errorf("export minute lacks %q", f.Name)
@@ -315,11 +316,11 @@ references = [94.0, 114.0]
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, k := range buffer.Kinds() {
-		if k == buffer.KindSecond {
+	for _, k := range record.Kinds() {
+		if k == record.KindSecond {
 			continue
 		}
-		all(k, func(r buffer.Record) {
+		all(k, func(r record.Record) {
 			if _, err := ex.Append(r); err != nil {
 				t.Fatal(err)
 			}
@@ -363,8 +364,8 @@ func TestOneTruthMQTT(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer st.Close()
-	var mins []*buffer.Minute
-	st.Range(buffer.KindMinute, time.Unix(0, 0), time.Now().Add(time.Hour), func(r buffer.Record) error { mins = append(mins, r.(*buffer.Minute)); return nil })
+	var mins []*record.Minute
+	st.Range(record.KindMinute, time.Unix(0, 0), time.Now().Add(time.Hour), func(r record.Record) error { mins = append(mins, r.(*record.Minute)); return nil })
 
 	got := make(chan map[string]any, 16)
 	opts := mqtt.NewClientOptions().AddBroker(m.URL("tcp")).SetClientID("one-truth-reader")
@@ -401,7 +402,7 @@ func TestOneTruthMQTT(t *testing.T) {
 	}
 	for _, mr := range mins {
 		v := bySeq[mr.Seq()]
-		for _, f := range buffer.Fields(buffer.KindMinute) {
+		for _, f := range record.Fields(record.KindMinute) {
 			x, ok := v[f.Name]
 			if !ok {
 				t.Errorf("minute %d over MQTT lacks %q", mr.Seq(), f.Name)

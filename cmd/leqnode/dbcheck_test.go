@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func TestDBCheck(t *testing.T) {
@@ -16,8 +17,8 @@ func TestDBCheck(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	recs, _ := st.Pending("mqtt", buffer.KindSecond, 40)
-	st.Ack("mqtt", buffer.KindSecond, recs[len(recs)-1].Seq())
+	recs, _ := st.Pending("mqtt", record.KindSecond, 40)
+	st.Ack("mqtt", record.KindSecond, recs[len(recs)-1].Seq())
 	id := st.ID()
 	st.Close()
 

@@ -102,8 +102,8 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Hooks: func(o *node.Options) {
 		o.SampleOrigin = origin
 		// Called on the node's processing goroutine while this one waits in runDaemon.
-		o.OnSecond = func(s *buffer.Second) { out.println(liveLine(s)) }
-		o.OnMinute = func(m *buffer.Minute) { out.println(minuteLine(m)) }
+		o.OnSecond = func(s *record.Second) { out.println(liveLine(s)) }
+		o.OnMinute = func(m *record.Minute) { out.println(minuteLine(m)) }
 	}})
 	if err != nil {
 		return err
@@ -122,7 +122,7 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 		return err
 	}
 	out.printf("\nstored in %s (store %s):", cfg.Store.Path, st.ID())
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		if ks := stats.Kinds[k]; ks.Count > 0 {
 			out.printf(" %d %s", ks.Count, k)
 		}
@@ -144,7 +144,7 @@ func prog() string {
 
 // liveLine is one second of the demo's live display: time, LAeq, LAFmax and a level bar
 // (one mark per 2 dB from 20 dB).
-func liveLine(s *buffer.Second) string {
+func liveLine(s *record.Second) string {
 	bar := ""
 	if !math.IsNaN(s.LAeq) {
 		n := int(math.Max(0, math.Min(40, (s.LAeq-20)/2)))
@@ -160,9 +160,9 @@ func liveLine(s *buffer.Second) string {
 // minuteLine is the demo's summary of a minute.
 // It says which seconds the validity rule left out and marks a bound (≥ with overloaded
 // seconds in it, ≤ with seconds under the measuring range).
-func minuteLine(m *buffer.Minute) string {
+func minuteLine(m *record.Minute) string {
 	var out []string
-	for why := record.Calibration; why < record.NumReasons; why++ {
+	for why := record.ReasonCalibrating; why < record.NumReasons; why++ {
 		if n := m.LeftOut[why]; n > 0 {
 			out = append(out, fmt.Sprintf("%s %d", strings.ReplaceAll(why.String(), "_", " "), n))
 		}

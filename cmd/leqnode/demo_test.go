@@ -8,7 +8,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func TestDemo(t *testing.T) {
@@ -51,7 +51,7 @@ func TestDemoFast(t *testing.T) {
 		t.Errorf("%d second records for 10 minutes of audio", len(secs))
 	}
 	for _, s := range secs {
-		if !s.Flags.Has(buffer.Synthetic) {
+		if !s.Flags.Has(record.Synthetic) {
 			t.Fatalf("a second of the synthetic scene without the synthetic flag: %v", s.Flags)
 		}
 	}

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // exportStore writes a small store for the invented node "ferry-row-2": a session in the zone
@@ -25,9 +26,9 @@ func exportStore(t *testing.T) (path string, start time.Time) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	st.Append(&buffer.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Asia/Kolkata"})
+	st.Append(&record.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Asia/Kolkata"})
 	for i := range 90 {
-		s := &buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second,
+		s := &record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second,
 			LAeq: 50 + float64(i)/10, LCeq: 60, LZeq: 62, LAFmax: 55, LAFmin: 45, LASmax: 53, LASmin: 47,
 			LAImax: 57, LCpeak: 80, LZpeak: 81, LAE: 50 + float64(i)/10,
 			Spectrum: make([]float64, 33), FirstBand: -19}
@@ -42,9 +43,9 @@ func exportStore(t *testing.T) (path string, start time.Time) {
 			t.Fatal(err)
 		}
 	}
-	st.Append(&buffer.Minute{Start: start, LAeq: 52.5, LAF90: 46.05, ValidSeconds: 60,
-		Histogram: buffer.LevelHistogram{First: 450, Counts: []uint32{10, 0, 5}}})
-	st.Append(&buffer.Annotation{From: start.Add(10 * time.Second), To: start.Add(12 * time.Second), Flags: buffer.Excluded,
+	st.Append(&record.Minute{Start: start, LAeq: 52.5, LAF90: 46.05, ValidSeconds: 60,
+		Histogram: record.LevelHistogram{First: 450, Counts: []uint32{10, 0, 5}}})
+	st.Append(&record.Annotation{From: start.Add(10 * time.Second), To: start.Add(12 * time.Second), Flags: record.Excluded,
 		Reason: "street market, stalls beside the mast"})
 	if err := st.Close(); err != nil {
 		t.Fatal(err)
@@ -174,13 +175,13 @@ func TestExportEveryKind(t *testing.T) {
 		t.Fatal(err)
 	}
 	nan := math.NaN()
-	recs := []buffer.Record{
-		&buffer.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 81.5, LAeq: 75, LAE: 81, LCpeak: 99, Flags: buffer.Overload},
-		&buffer.Calibration{At: at, Reference: 94, Measured: 94.00000007166739, Deviation: 7.166739e-8, Frequency: 1000.0000000000001, Stability: 0.02,
+	recs := []record.Record{
+		&record.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 81.5, LAeq: 75, LAE: 81, LCpeak: 99, Flags: record.Overload},
+		&record.Calibration{At: at, Reference: 94, Measured: 94.00000007166739, Deviation: 7.166739e-8, Frequency: 1000.0000000000001, Stability: 0.02,
 			SensitivityBefore: -26.1, SensitivityAfter: -26, Applied: true, OK: true},
-		&buffer.Health{At: at, CPU: 4, MemoryMB: 30, DiskFreeMB: 900, TemperatureC: nan, DCOffset: 0.001, ClockErrorMs: nan, ClockSynced: true},
-		&buffer.Gap{From: at, To: at.Add(time.Minute), Reason: "audio device lost"},
-		&buffer.Session{At: at, SoftwareVersion: "0.1.0", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "default", TimeZone: "UTC"},
+		&record.Health{At: at, CPU: 4, MemoryMB: 30, DiskFreeMB: 900, TemperatureC: nan, DCOffset: 0.001, ClockErrorMs: nan, ClockSynced: true},
+		&record.Gap{From: at, To: at.Add(time.Minute), Reason: "audio device lost"},
+		&record.Session{At: at, SoftwareVersion: "0.1.0", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "default", TimeZone: "UTC"},
 	}
 	for _, r := range recs {
 		if _, err := st.Append(r); err != nil {

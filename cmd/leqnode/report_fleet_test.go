@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // fleetStore writes two hours of minute records (with spectra) for an invented node of Wendle
@@ -21,7 +22,7 @@ func fleetStore(t *testing.T, dir, id string, gain float64) string {
 	if err != nil {
 		t.Fatal(err)
 	}
-	st.Append(&buffer.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "UTC",
+	st.Append(&record.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "UTC",
 		NodeID: id, Site: "Harrowby Lane", Latitude: 47.0001 + gain/1000, Longitude: -30})
 	for i := range 120 {
 		l := 56 + gain
@@ -29,7 +30,7 @@ func fleetStore(t *testing.T, dir, id string, gain float64) string {
 		for k := range spec {
 			spec[k] = l - 10 - 0.05*float64((k-14)*(k-14))
 		}
-		st.Append(&buffer.Minute{Start: start.Add(time.Duration(i) * time.Minute), LAeq: l, LCeq: l + 4, LAFmax: l + 6,
+		st.Append(&record.Minute{Start: start.Add(time.Duration(i) * time.Minute), LAeq: l, LCeq: l + 4, LAFmax: l + 6,
 			Spectrum: spec, FirstBand: -17, ValidSeconds: 60, ValidDuration: time.Minute})
 	}
 	if err := st.Close(); err != nil {

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // reportStore writes two hours of second records at 56 dB for the invented node
@@ -24,9 +25,9 @@ func reportStore(t *testing.T) string {
 	if err != nil {
 		t.Fatal(err)
 	}
-	st.Append(&buffer.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Asia/Kolkata"})
+	st.Append(&record.Session{At: start, SoftwareVersion: "0.1.0", SensitivityDBFS: -26, SampleRate: 48000, TimeZone: "Asia/Kolkata"})
 	for i := range 7200 {
-		st.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 56, LCeq: 60})
+		st.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 56, LCeq: 60})
 	}
 	if err := st.Close(); err != nil {
 		t.Fatal(err)

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/testrig"
@@ -81,16 +82,16 @@ func e2eSignal() []float32 {
 }
 
 // storedSeconds reads the second records of a store, in time order.
-func storedSeconds(t *testing.T, path string) []*buffer.Second {
+func storedSeconds(t *testing.T, path string) []*record.Second {
 	t.Helper()
 	st, err := buffer.OpenReadOnly(path, 5*time.Second)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer st.Close()
-	var out []*buffer.Second
-	err = st.Range(buffer.KindSecond, time.Unix(0, 0), time.Date(2200, 1, 1, 0, 0, 0, 0, time.UTC), func(r buffer.Record) error {
-		out = append(out, r.(*buffer.Second))
+	var out []*record.Second
+	err = st.Range(record.KindSecond, time.Unix(0, 0), time.Date(2200, 1, 1, 0, 0, 0, 0, time.UTC), func(r record.Record) error {
+		out = append(out, r.(*record.Second))
 		return nil
 	})
 	if err != nil {
@@ -102,7 +103,7 @@ func storedSeconds(t *testing.T, path string) []*buffer.Second {
 // compareWithChain measures x with the dsp chain cut exactly where the stored seconds were cut
 // (their sample counts in order, starting at sample skip) and checks each complete second
 // within 0.1 dB (issue: stored seconds match `leqnode analyze` on the same signal).
-func compareWithChain(t *testing.T, x []float32, skip int, secs []*buffer.Second) {
+func compareWithChain(t *testing.T, x []float32, skip int, secs []*record.Second) {
 	t.Helper()
 	m, err := dsp.NewMeter(dsp.MeterConfig{SampleRate: 48000, SensitivityDBFS: -26, Bands: dsp.Third})
 	if err != nil {
@@ -368,7 +369,7 @@ func TestRunArecordMissingDevice(t *testing.T) {
 	}
 	defer st.Close()
 	var gaps int
-	st.Range(buffer.KindGap, time.Unix(0, 0), time.Now().Add(time.Hour), func(buffer.Record) error { gaps++; return nil })
+	st.Range(record.KindGap, time.Unix(0, 0), time.Now().Add(time.Hour), func(record.Record) error { gaps++; return nil })
 	warnings := strings.Count(errb.String(), "audio source")
 	t.Logf("8 s without a device: %d gap records, %d warnings about the source, %d log lines", gaps, warnings, strings.Count(errb.String(), "\n"))
 	if gaps > 1 || warnings > 2 {

@@ -13,10 +13,10 @@
 // whatever sensitivity was in use at the time; the level the node reported with the
 // sensitivity S0 in use is Lmeas = LdBFS - S0 + 94, and the check's deviation is Lmeas - Lref.
 //
-// Every check is stored as a buffer.Calibration record. Drift is judged on the implied
+// Every check is stored as a record.Calibration record. Drift is judged on the implied
 // sensitivities of consecutive checks: when they differ by more than DriftLimit (0.5 dB), the
 // data between the two checks cannot say which sensitivity held when, and RecordCheck marks
-// [previous check, this check) Suspect with a buffer.Annotation. The rule follows the field
+// [previous check, this check) Suspect with a record.Annotation. The rule follows the field
 // practice of checking before and after a measurement and rejecting the series when the two
 // readings differ by more than 0.5 dB; it is recalled from ISO 1996-2:2017 (calibration
 // clause) but could not be confirmed from a source, so it stands here as common practice.
@@ -50,6 +50,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/wav"
 )
@@ -259,27 +260,27 @@ const CheckTolerance = DriftLimit
 // a calibration record ending at at: the level the node read (LdBFS - inUse + 94), its
 // deviation from the calibrator's stated level reference, the tone's frequency and stability.
 // OK is set when the deviation is within CheckTolerance, the frequency is plausible for a
-// calibrator of class c and no sample clipped (a clipped check also carries buffer.Clipped). The record's sensitivities are both inUse; a caller that applies a
+// calibrator of class c and no sample clipped (a clipped check also carries record.Clipped). The record's sensitivities are both inUse; a caller that applies a
 // new sensitivity sets SensitivityAfter and Applied.
-func NewCheck(at time.Time, d dsp.Detection, reference, inUse float64, c dsp.CalibratorClass) *buffer.Calibration {
+func NewCheck(at time.Time, d dsp.Detection, reference, inUse float64, c dsp.CalibratorClass) *record.Calibration {
 	measured := d.LevelDBFS - inUse + dsp.ReferenceLevel
 	dev := measured - reference
 	plausible := dsp.CalibratorTolerances(c).FrequencyPlausible(d.FrequencyHz, dsp.CalibratorFrequency)
-	rec := &buffer.Calibration{
+	rec := &record.Calibration{
 		At: at.UTC(), Reference: reference, Measured: measured, Deviation: dev,
 		Frequency: d.FrequencyHz, Stability: d.StabilityDB,
 		SensitivityBefore: inUse, SensitivityAfter: inUse,
 		OK: math.Abs(dev) <= CheckTolerance && plausible && d.Clipped == 0,
 	}
 	if d.Clipped > 0 {
-		rec.Flags |= buffer.Clipped
+		rec.Flags |= record.Clipped
 	}
 	return rec
 }
 
 // Implied returns the microphone sensitivity a stored check implies: the dBFS the tone
 // produced, Measured + SensitivityBefore - 94, plus 94 - Reference.
-func Implied(c *buffer.Calibration) float64 {
+func Implied(c *record.Calibration) float64 {
 	return c.Measured + c.SensitivityBefore - c.Reference
 }
 
@@ -293,33 +294,33 @@ func Drifted(before, after float64) bool {
 // Drift is what RecordCheck found.
 type Drift struct {
 	// Previous is the check before this one, nil for the first check in the store.
-	Previous *buffer.Calibration
+	Previous *record.Calibration
 	// DeltaDB is Implied(this) - Implied(previous), 0 without a previous check.
 	DeltaDB float64
 	// Flagged reports that DeltaDB exceeded DriftLimit and an annotation was written.
 	Flagged bool
 	// Annotation is the Suspect annotation written, when Flagged.
-	Annotation *buffer.Annotation
+	Annotation *record.Annotation
 }
 
 // RecordCheck stores the check c and compares it with the previous stored check: when their
 // implied sensitivities differ by more than DriftLimit it appends an annotation marking
-// [previous check, this check) buffer.Suspect. It returns what it found. The store's group
+// [previous check, this check) record.Suspect. It returns what it found. The store's group
 // commit decides when both records reach the disk; call Flush to force it.
-func RecordCheck(s *buffer.Store, c *buffer.Calibration) (Drift, error) {
+func RecordCheck(s *buffer.Store, c *record.Calibration) (Drift, error) {
 	var dr Drift
-	last, err := s.Last(buffer.KindCalibration)
+	last, err := s.Last(record.KindCalibration)
 	if err != nil {
 		return dr, fmt.Errorf("reading the previous calibration check: %w", err)
 	}
-	if p, ok := last.(*buffer.Calibration); ok && p != nil {
+	if p, ok := last.(*record.Calibration); ok && p != nil {
 		dr.Previous = p
 		dr.DeltaDB = Implied(c) - Implied(p)
 		if Drifted(Implied(p), Implied(c)) && c.At.After(p.At) {
-			c.Flags |= buffer.Suspect
+			c.Flags |= record.Suspect
 			dr.Flagged = true
-			dr.Annotation = &buffer.Annotation{
-				From: p.At.UTC(), To: c.At.UTC(), Flags: buffer.Suspect,
+			dr.Annotation = &record.Annotation{
+				From: p.At.UTC(), To: c.At.UTC(), Flags: record.Suspect,
 				Reason: fmt.Sprintf("calibration drift of %+.2f dB between the checks of %s and %s exceeds %.1f dB (common practice)",
 					dr.DeltaDB, p.At.UTC().Format(time.RFC3339), c.At.UTC().Format(time.RFC3339), DriftLimit),
 			}
@@ -336,13 +337,13 @@ func RecordCheck(s *buffer.Store, c *buffer.Calibration) (Drift, error) {
 	return dr, nil
 }
 
-// CalibratingAnnotation returns the annotation that marks [from, to) buffer.Calibrating, so
+// CalibratingAnnotation returns the annotation that marks [from, to) record.Calibrating, so
 // that statistics, events and reports leave out the seconds a calibrator was on the
 // microphone. Widen the range by a margin of a second or two on each side: the tone fades in
 // and out around the stable window the detector reports.
-func CalibratingAnnotation(from, to time.Time, reference float64) *buffer.Annotation {
-	return &buffer.Annotation{
-		From: from.UTC(), To: to.UTC(), Flags: buffer.Calibrating,
+func CalibratingAnnotation(from, to time.Time, reference float64) *record.Annotation {
+	return &record.Annotation{
+		From: from.UTC(), To: to.UTC(), Flags: record.Calibrating,
 		Reason: fmt.Sprintf("sound calibrator (%g dB, 1 kHz) on the microphone", reference),
 	}
 }

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/wav"
 )
@@ -208,7 +209,7 @@ func TestDriftScenario(t *testing.T) {
 	t0 := time.Date(2026, 6, 1, 8, 0, 0, 0, time.UTC)
 	s := openStore(t, t0.Add(time.Hour))
 	for i := range 60 {
-		if _, err := s.Append(&buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 55}); err != nil {
+		if _, err := s.Append(&record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 55}); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -234,9 +235,9 @@ func TestDriftScenario(t *testing.T) {
 		t.Fatal(err)
 	}
 	var suspect []int
-	err := s.Range(buffer.KindSecond, t0, t0.Add(time.Minute), func(r buffer.Record) error {
-		sec := r.(*buffer.Second)
-		if sec.Flags.Has(buffer.Suspect) {
+	err := s.Range(record.KindSecond, t0, t0.Add(time.Minute), func(r record.Record) error {
+		sec := r.(*record.Second)
+		if sec.Flags.Has(record.Suspect) {
 			suspect = append(suspect, int(sec.Start.Sub(t0)/time.Second))
 		}
 		return nil
@@ -247,9 +248,9 @@ func TestDriftScenario(t *testing.T) {
 	if len(suspect) != 25 || suspect[0] != 20 || suspect[len(suspect)-1] != 44 {
 		t.Errorf("suspect seconds %v, want 20 to 44", suspect)
 	}
-	var cals []*buffer.Calibration
-	s.Range(buffer.KindCalibration, t0, t0.Add(time.Minute), func(r buffer.Record) error {
-		cals = append(cals, r.(*buffer.Calibration))
+	var cals []*record.Calibration
+	s.Range(record.KindCalibration, t0, t0.Add(time.Minute), func(r record.Record) error {
+		cals = append(cals, r.(*record.Calibration))
 		return nil
 	})
 	if len(cals) != 3 || !cals[0].OK || !cals[1].OK || cals[2].OK {
@@ -290,7 +291,7 @@ func TestCalibratingAnnotation(t *testing.T) {
 	t0 := time.Date(2026, 6, 3, 9, 0, 0, 0, time.UTC)
 	s := openStore(t, t0.Add(time.Hour))
 	for i := range 20 {
-		s.Append(&buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 94})
+		s.Append(&record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 94})
 	}
 	// A tone starting at sample 48000·3.25 = 3.25 s, stable to 11 s, at 48 kHz; 1 s margin.
 	det := dsp.Detection{ToneStart: 156000, Start: 252000, End: 528000}
@@ -302,8 +303,8 @@ func TestCalibratingAnnotation(t *testing.T) {
 		t.Fatal(err)
 	}
 	var marked []int
-	s.Range(buffer.KindSecond, t0, t0.Add(time.Minute), func(r buffer.Record) error {
-		if sec := r.(*buffer.Second); sec.Flags.Has(buffer.Calibrating) {
+	s.Range(record.KindSecond, t0, t0.Add(time.Minute), func(r record.Record) error {
+		if sec := r.(*record.Second); sec.Flags.Has(record.Calibrating) {
 			marked = append(marked, int(sec.Start.Sub(t0)/time.Second))
 		}
 		return nil
@@ -400,7 +401,7 @@ func TestNewCheckOK(t *testing.T) {
 		d := detection(tc.reading, -26)
 		d.FrequencyHz, d.Clipped = tc.freq, tc.clipped
 		rec := NewCheck(at, d, 94, -26, dsp.CalibratorClass1)
-		if rec.OK != tc.ok || rec.Flags.Has(buffer.Clipped) != (tc.clipped > 0) {
+		if rec.OK != tc.ok || rec.Flags.Has(record.Clipped) != (tc.clipped > 0) {
 			t.Errorf("%s: OK %v flags %v, want OK %v", tc.name, rec.OK, rec.Flags, tc.ok)
 		}
 	}

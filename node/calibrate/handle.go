@@ -6,6 +6,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -56,12 +57,12 @@ type HandleOptions struct {
 }
 
 // Handle stores what a calibrator tone detected while the node ran means: an annotation
-// marking the tone's seconds (widened by the margin) buffer.Calibrating, and the check,
+// marking the tone's seconds (widened by the margin) record.Calibrating, and the check,
 // compared with the previous one by RecordCheck (which marks drift Suspect). It returns nil
 // and no error when the tone's level matches no calibrator (not a check: nothing is stored).
 // The sensitivity is not changed here: a node applies a new one only when asked (Adjust,
 // SaveState and a new session record).
-func Handle(s *buffer.Store, obs Observed, inUse float64, o HandleOptions) (*buffer.Calibration, Drift, error) {
+func Handle(s *buffer.Store, obs Observed, inUse float64, o HandleOptions) (*record.Calibration, Drift, error) {
 	ref, ok := MatchReference(obs.Detection.LevelDBFS, inUse, o.References, o.MatchWindow)
 	if !ok {
 		return nil, Drift{}, nil

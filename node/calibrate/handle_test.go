@@ -5,7 +5,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func TestMatchReference(t *testing.T) {
@@ -30,7 +30,7 @@ func TestHandle(t *testing.T) {
 	t0 := time.Date(2026, 6, 5, 10, 0, 0, 0, time.UTC)
 	s := openStore(t, t0.Add(time.Hour))
 	for i := range 30 {
-		s.Append(&buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 60})
+		s.Append(&record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 60})
 	}
 	det := detection(114.2, -26)
 	rec, dr, err := Handle(s, Observed{Detection: det, ToneFrom: t0.Add(10 * time.Second), End: t0.Add(18 * time.Second)}, -26, HandleOptions{})
@@ -45,8 +45,8 @@ func TestHandle(t *testing.T) {
 		t.Errorf("70 dB tone: %+v, %v", rec, err)
 	}
 	var marked []int
-	s.Range(buffer.KindSecond, t0, t0.Add(time.Minute), func(r buffer.Record) error {
-		if sec := r.(*buffer.Second); sec.Flags.Has(buffer.Calibrating) {
+	s.Range(record.KindSecond, t0, t0.Add(time.Minute), func(r record.Record) error {
+		if sec := r.(*record.Second); sec.Flags.Has(record.Calibrating) {
 			marked = append(marked, int(sec.Start.Sub(t0)/time.Second))
 		}
 		return nil
@@ -54,7 +54,7 @@ func TestHandle(t *testing.T) {
 	if len(marked) != 12 || marked[0] != 8 || marked[11] != 19 {
 		t.Errorf("calibrating seconds %v, want 8 to 19", marked)
 	}
-	if n := s.LastSeq(buffer.KindCalibration); n != 1 {
+	if n := s.LastSeq(record.KindCalibration); n != 1 {
 		t.Errorf("%d checks stored, want 1", n)
 	}
 }

@@ -10,7 +10,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/strict"
 )
 
@@ -119,8 +119,8 @@ func SaveState(dir string, s State) error {
 // and marks the check Applied with its SensitivityAfter. Call it before RecordCheck so that the
 // stored check says what was applied. The caller then measures with State.SensitivityDBFS and
 // writes a new session record.
-func Apply(dir string, c *buffer.Calibration, nominal, rangeDB float64) (*State, error) {
-	if c.Flags.Has(buffer.Clipped) {
+func Apply(dir string, c *record.Calibration, nominal, rangeDB float64) (*State, error) {
+	if c.Flags.Has(record.Clipped) {
 		return nil, fmt.Errorf("%w: the calibrator's tone clipped: use its 94 dB setting or lower the input gain", ErrMicrophoneFault)
 	}
 	s, err := Adjust(nominal, Implied(c), rangeDB)

@@ -8,7 +8,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestExactlyOnce: three nodes publish records of every kind to two collectors that share
@@ -62,8 +62,8 @@ func TestExactlyOnce(t *testing.T) {
 			inDB[uint64(seq)] = [2]float64{laeq, float64(at.UnixMilli())}
 		}
 		rows.Close()
-		err = n.store.Range(buffer.KindSecond, time.Time{}, t0.Add(1000*time.Hour), func(rec buffer.Record) error {
-			s := rec.(*buffer.Second)
+		err = n.store.Range(record.KindSecond, time.Time{}, t0.Add(1000*time.Hour), func(rec record.Record) error {
+			s := rec.(*record.Second)
 			got, ok := inDB[s.Seq()]
 			if !ok || math.Abs(got[0]-s.LAeq) > 0.005 || got[1] != float64(s.Start.UnixMilli()) {
 				t.Errorf("%s second %d: database %v, store LAeq %.2f at %s", n.id, s.Seq(), got, s.LAeq, s.Start)

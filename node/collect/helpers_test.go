@@ -17,6 +17,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/fleetdb"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/testrig"
@@ -221,20 +222,20 @@ func (n *fleetNode) add(t testing.TB, count int) {
 	for range count {
 		i := n.n
 		at := t0.Add(time.Duration(i) * time.Second)
-		n.append(t, &buffer.Second{Start: at, Duration: time.Second, LAeq: 48 + float64(i%13), LCeq: 60, LZeq: 64,
+		n.append(t, &record.Second{Start: at, Duration: time.Second, LAeq: 48 + float64(i%13), LCeq: 60, LZeq: 64,
 			LAFmax: 58.2, LAFmin: 44.1, LASmax: 56.3, LASmin: 45.9, LAImax: 60.4, LCpeak: 84.6, LZpeak: 86.1, LAE: 48 + float64(i%13)})
 		if i%60 == 59 {
 			m := at.Add(-59 * time.Second)
-			for _, r := range []buffer.Record{
-				&buffer.Minute{Start: m, LAeq: 53.4, LCeq: 61, LZeq: 65, LAFmax: 68.1, LAFmin: 44.2, LAF1: 66, LAF5: 62,
+			for _, r := range []record.Record{
+				&record.Minute{Start: m, LAeq: 53.4, LCeq: 61, LZeq: 65, LAFmax: 68.1, LAFmin: 44.2, LAF1: 66, LAF5: 62,
 					LAF10: 59, LAF50: 52, LAF90: 46, LAF95: 45, LAF99: 44.5, LAE: 71.2, LCpeak: 90.3, LAImax: 70.2, ValidSeconds: 60},
-				&buffer.Event{Start: m.Add(12 * time.Second), End: m.Add(17 * time.Second), LAFmax: 79.5, LAeq: 74.2, LAE: 81.2, LCpeak: 98.4},
-				&buffer.Health{At: m, CPU: 9.5, MemoryMB: 28, DiskFreeMB: 4100, DCOffset: math.NaN(), ClockErrorMs: 1.5, TemperatureC: 41, ClockSynced: true},
-				&buffer.Calibration{At: m, Reference: 94, Measured: 94.08, Deviation: 0.08, Frequency: 1000.1, Stability: 0.02,
+				&record.Event{Start: m.Add(12 * time.Second), End: m.Add(17 * time.Second), LAFmax: 79.5, LAeq: 74.2, LAE: 81.2, LCpeak: 98.4},
+				&record.Health{At: m, CPU: 9.5, MemoryMB: 28, DiskFreeMB: 4100, DCOffset: math.NaN(), ClockErrorMs: 1.5, TemperatureC: 41, ClockSynced: true},
+				&record.Calibration{At: m, Reference: 94, Measured: 94.08, Deviation: 0.08, Frequency: 1000.1, Stability: 0.02,
 					SensitivityBefore: -26.1, SensitivityAfter: -26.02, Applied: true, OK: true},
-				&buffer.Gap{From: m.Add(30 * time.Second), To: m.Add(30 * time.Second), Reason: "test gap of no length"},
-				&buffer.Annotation{From: m, To: m.Add(20 * time.Second), Flags: buffer.Excluded, Reason: "bin lorry on Harrowby Lane"},
-				&buffer.Session{At: m, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "synthetic", TimeZone: "UTC"},
+				&record.Gap{From: m.Add(30 * time.Second), To: m.Add(30 * time.Second), Reason: "test gap of no length"},
+				&record.Annotation{From: m, To: m.Add(20 * time.Second), Flags: record.Excluded, Reason: "bin lorry on Harrowby Lane"},
+				&record.Session{At: m, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "synthetic", TimeZone: "UTC"},
 			} {
 				n.append(t, r)
 			}
@@ -247,7 +248,7 @@ func (n *fleetNode) add(t testing.TB, count int) {
 	n.pub.Notify()
 }
 
-func (n *fleetNode) append(t testing.TB, r buffer.Record) {
+func (n *fleetNode) append(t testing.TB, r record.Record) {
 	t.Helper()
 	if _, err := n.store.Append(r); err != nil {
 		t.Fatal(err)
@@ -258,8 +259,8 @@ func (n *fleetNode) append(t testing.TB, r buffer.Record) {
 func (n *fleetNode) storeCounts(t testing.TB) map[string]int64 {
 	t.Helper()
 	out := map[string]int64{}
-	for _, k := range buffer.Kinds() {
-		err := n.store.Range(k, time.Time{}, t0.Add(1000*time.Hour), func(buffer.Record) error {
+	for _, k := range record.Kinds() {
+		err := n.store.Range(k, time.Time{}, t0.Add(1000*time.Hour), func(record.Record) error {
 			out[k.String()]++
 			return nil
 		})
@@ -305,7 +306,7 @@ func waitUntil(t testing.TB, timeout time.Duration, what string, cond func() (bo
 }
 
 func equalCounts(a, b map[string]int64) bool {
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		if a[k.String()] != b[k.String()] {
 			return false
 		}

@@ -6,6 +6,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/calibrate"
@@ -27,7 +28,7 @@ func (d *daemon) nodeOptions(src capture.Source, st *buffer.Store) node.Options 
 		Lossless:        cfg.Capture.Kind == capture.KindStdin || cfg.SampleTimed(),
 		SampleTimed:     cfg.SampleTimed(),
 		Synthetic:       cfg.Capture.Kind == capture.KindSynthetic,
-		Session: buffer.Session{
+		Session: record.Session{
 			SoftwareVersion: d.o.Version,
 			ConfigHash:      cfg.Hash(),
 			TimeZone:        cfg.Node.TimeZone,

@@ -29,6 +29,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp/reference"
 )
 
@@ -42,7 +43,7 @@ const (
 // JSONL), oldest first. It stops with ctx's error when ctx ends, and with the first error of st
 // or w. What it wrote before an error stays written: a caller that needs all or nothing writes
 // to a file and renames it.
-func Write(ctx context.Context, w io.Writer, st *buffer.Store, kind buffer.Kind, from, to time.Time, format string) error {
+func Write(ctx context.Context, w io.Writer, st *buffer.Store, kind record.Kind, from, to time.Time, format string) error {
 	if format != CSV && format != JSONL {
 		return fmt.Errorf("export format %q: use %s or %s", format, CSV, JSONL)
 	}
@@ -51,7 +52,7 @@ func Write(ctx context.Context, w io.Writer, st *buffer.Store, kind buffer.Kind,
 	if format == CSV && hasSpectrum(kind) {
 		// The CSV header needs the span of bands over the whole range: a first pass finds it.
 		ex.lowBand, ex.highBand = math.MaxInt, math.MinInt
-		err := st.Range(kind, from, to, func(r buffer.Record) error {
+		err := st.Range(kind, from, to, func(r record.Record) error {
 			if first, s := spectrumOf(r); len(s) > 0 {
 				ex.lowBand, ex.highBand = min(ex.lowBand, first), max(ex.highBand, first+len(s)-1)
 			}
@@ -62,7 +63,7 @@ func Write(ctx context.Context, w io.Writer, st *buffer.Store, kind buffer.Kind,
 		}
 	}
 	ex.header()
-	err := st.Range(kind, from, to, func(r buffer.Record) error {
+	err := st.Range(kind, from, to, func(r record.Record) error {
 		ex.record(r)
 		if ex.err != nil {
 			return ex.err
@@ -78,17 +79,17 @@ func Write(ctx context.Context, w io.Writer, st *buffer.Store, kind buffer.Kind,
 	return bw.Flush()
 }
 
-func hasSpectrum(k buffer.Kind) bool {
-	return k == buffer.KindSecond || k == buffer.KindMinute || k == buffer.KindEvent
+func hasSpectrum(k record.Kind) bool {
+	return k == record.KindSecond || k == record.KindMinute || k == record.KindEvent
 }
 
-func spectrumOf(r buffer.Record) (int, []float64) {
+func spectrumOf(r record.Record) (int, []float64) {
 	switch v := r.(type) {
-	case *buffer.Second:
+	case *record.Second:
 		return v.FirstBand, v.Spectrum
-	case *buffer.Minute:
+	case *record.Minute:
 		return v.FirstBand, v.Spectrum
-	case *buffer.Event:
+	case *record.Event:
 		return v.FirstBand, v.Spectrum
 	}
 	return 0, nil
@@ -99,7 +100,7 @@ func spectrumOf(r buffer.Record) (int, []float64) {
 type writer struct {
 	w                 io.Writer
 	format            string
-	kind              buffer.Kind
+	kind              record.Kind
 	store             string
 	lowBand, highBand int // band span of the CSV spectrum columns (low > high: none)
 	err               error
@@ -142,7 +143,7 @@ func text(key, v string) field { return field{key, csvQuote(v), strconv.Quote(v)
 func stamp(key string, t time.Time) field { return text(key, t.UTC().Format(time.RFC3339Nano)) }
 
 // flagList is the flags as "a|b" in CSV and as an array of names in JSON, as in the MQTT payloads.
-func flagList(f buffer.Flags) field {
+func flagList(f record.Flags) field {
 	names := f.Names()
 	q := make([]string, len(names))
 	for i, n := range names {
@@ -171,10 +172,10 @@ const spectrumKey = "third_octave_LZeq"
 func bandName(x int) string { return reference.NominalMidband(3, x) }
 
 // fields returns the record's fields as the record model names and rounds them
-// (buffer.Fields), after the store, the sequence number and the record's time.
-func (e *writer) fields(r buffer.Record) []field {
+// (record.Fields), after the store, the sequence number and the record's time.
+func (e *writer) fields(r record.Record) []field {
 	f := []field{text("store", e.store), integer("seq", r.Seq()), stamp("start", r.Time())}
-	for _, m := range buffer.Fields(r.Kind()) {
+	for _, m := range record.Fields(r.Kind()) {
 		switch v := m.Value(r).(type) {
 		case float64:
 			f = append(f, rounded(m.Name, v))
@@ -186,7 +187,7 @@ func (e *writer) fields(r buffer.Record) []field {
 			f = append(f, text(m.Name, v))
 		case time.Time:
 			f = append(f, stamp(m.Name, v))
-		case buffer.Flags:
+		case record.Flags:
 			f = append(f, flagList(v))
 		}
 	}
@@ -198,7 +199,7 @@ func (e *writer) header() {
 	if e.format != CSV {
 		return
 	}
-	r, err := buffer.NewRecord(e.kind)
+	r, err := record.NewRecord(e.kind)
 	if err != nil {
 		e.err = fmt.Errorf("export: %w", err)
 		return
@@ -219,7 +220,7 @@ func (e *writer) write(s string) {
 	}
 }
 
-func (e *writer) record(r buffer.Record) {
+func (e *writer) record(r record.Record) {
 	fs := e.fields(r)
 	first, spec := spectrumOf(r)
 	var b strings.Builder
@@ -257,7 +258,7 @@ func (e *writer) record(r buffer.Record) {
 		}
 		b.WriteByte('}')
 	}
-	if m, ok := r.(*buffer.Minute); ok && len(m.Histogram.Counts) > 0 {
+	if m, ok := r.(*record.Minute); ok && len(m.Histogram.Counts) > 0 {
 		// Fast level histogram: counts[i] is the number of 10 ms samples in
 		// [first_dB + i/10, first_dB + (i+1)/10) dB.
 		fmt.Fprintf(&b, `,"LAF_histogram":{"first_dB":%s,"bin_dB":0.1,"counts":[`, strconv.FormatFloat(float64(m.Histogram.First)/10, 'f', 1, 64))

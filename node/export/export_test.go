@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/export"
 )
 
@@ -35,11 +36,11 @@ func store(t *testing.T) *buffer.Store {
 		}
 	})
 	nan := math.NaN()
-	for _, r := range []buffer.Record{
-		&buffer.Second{Start: t0, Duration: time.Second, LAeq: 52.41, FirstBand: -19, Spectrum: []float64{30, 31, 32}},
-		&buffer.Second{Start: t0.Add(time.Second), Duration: time.Second, LAeq: 53, FirstBand: -18, Spectrum: []float64{41, 42, nan}},
-		&buffer.Second{Start: t0.Add(2 * time.Second), Duration: time.Second, LAeq: nan},
-		&buffer.Annotation{From: t0, To: t0.Add(time.Minute), Flags: buffer.Excluded, Reason: `market day, "stalls" by the mast`},
+	for _, r := range []record.Record{
+		&record.Second{Start: t0, Duration: time.Second, LAeq: 52.41, FirstBand: -19, Spectrum: []float64{30, 31, 32}},
+		&record.Second{Start: t0.Add(time.Second), Duration: time.Second, LAeq: 53, FirstBand: -18, Spectrum: []float64{41, 42, nan}},
+		&record.Second{Start: t0.Add(2 * time.Second), Duration: time.Second, LAeq: nan},
+		&record.Annotation{From: t0, To: t0.Add(time.Minute), Flags: record.Excluded, Reason: `market day, "stalls" by the mast`},
 	} {
 		if _, err := st.Append(r); err != nil {
 			t.Fatal(err)
@@ -51,7 +52,7 @@ func store(t *testing.T) *buffer.Store {
 func TestCSVColumns(t *testing.T) {
 	st := store(t)
 	var out bytes.Buffer
-	if err := export.Write(context.Background(), &out, st, buffer.KindSecond, t0, t0.Add(time.Hour), export.CSV); err != nil {
+	if err := export.Write(context.Background(), &out, st, record.KindSecond, t0, t0.Add(time.Hour), export.CSV); err != nil {
 		t.Fatal(err)
 	}
 	rows, err := csv.NewReader(&out).ReadAll() // RFC 4180: every row has the header's fields
@@ -85,15 +86,15 @@ func TestCSVColumns(t *testing.T) {
 func TestJSONLines(t *testing.T) {
 	st := store(t)
 	for _, tc := range []struct {
-		kind     buffer.Kind
+		kind     record.Kind
 		from, to time.Time
 		lines    int
 		check    func(m map[string]any) bool
 	}{
 		// The range is half-open: the record at `to` is left out.
-		{buffer.KindSecond, t0, t0.Add(2 * time.Second), 2, func(m map[string]any) bool { return m["third_octave_LZeq"] != nil }},
-		{buffer.KindSecond, t0.Add(2 * time.Second), t0.Add(time.Hour), 1, func(m map[string]any) bool { return m["LAeq"] == nil && m["third_octave_LZeq"] == nil }},
-		{buffer.KindAnnotation, t0, t0.Add(time.Hour), 1, func(m map[string]any) bool {
+		{record.KindSecond, t0, t0.Add(2 * time.Second), 2, func(m map[string]any) bool { return m["third_octave_LZeq"] != nil }},
+		{record.KindSecond, t0.Add(2 * time.Second), t0.Add(time.Hour), 1, func(m map[string]any) bool { return m["LAeq"] == nil && m["third_octave_LZeq"] == nil }},
+		{record.KindAnnotation, t0, t0.Add(time.Hour), 1, func(m map[string]any) bool {
 			return m["reason"] == `market day, "stalls" by the mast` && fmt.Sprint(m["flags"]) == "[excluded]"
 		}},
 	} {
@@ -115,15 +116,15 @@ func TestJSONLines(t *testing.T) {
 
 func TestWriteErrors(t *testing.T) {
 	st := store(t)
-	if err := export.Write(context.Background(), new(bytes.Buffer), st, buffer.KindSecond, t0, t0.Add(time.Hour), "xml"); err == nil || !strings.Contains(err.Error(), "csv or jsonl") {
+	if err := export.Write(context.Background(), new(bytes.Buffer), st, record.KindSecond, t0, t0.Add(time.Hour), "xml"); err == nil || !strings.Contains(err.Error(), "csv or jsonl") {
 		t.Errorf("format xml: %v", err)
 	}
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	if err := export.Write(ctx, new(bytes.Buffer), st, buffer.KindSecond, t0, t0.Add(time.Hour), export.JSONL); !errors.Is(err, context.Canceled) {
+	if err := export.Write(ctx, new(bytes.Buffer), st, record.KindSecond, t0, t0.Add(time.Hour), export.JSONL); !errors.Is(err, context.Canceled) {
 		t.Errorf("cancelled: %v", err)
 	}
-	if err := export.Write(context.Background(), failingWriter{}, st, buffer.KindSecond, t0, t0.Add(time.Hour), export.JSONL); err == nil {
+	if err := export.Write(context.Background(), failingWriter{}, st, record.KindSecond, t0, t0.Add(time.Hour), export.JSONL); err == nil {
 		t.Error("a writer that fails: no error")
 	}
 }
@@ -146,12 +147,12 @@ func ExampleWrite() {
 	}
 	defer st.Close()
 	start := time.Now().UTC().Truncate(time.Second)
-	if _, err := st.Append(&buffer.Gap{From: start, To: start.Add(3 * time.Second), Reason: "source reopened"}); err != nil {
+	if _, err := st.Append(&record.Gap{From: start, To: start.Add(3 * time.Second), Reason: "source reopened"}); err != nil {
 		fmt.Println(err)
 		return
 	}
 	var out strings.Builder
-	if err := export.Write(context.Background(), &out, st, buffer.KindGap, start.Add(-time.Minute), start.Add(time.Minute), export.CSV); err != nil {
+	if err := export.Write(context.Background(), &out, st, record.KindGap, start.Add(-time.Minute), start.Add(time.Minute), export.CSV); err != nil {
 		fmt.Println(err)
 		return
 	}

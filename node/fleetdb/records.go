@@ -9,7 +9,6 @@ import (
 
 	"github.com/jackc/pgx/v5"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 )
 
@@ -67,25 +66,25 @@ func (db *DB) Records(ctx context.Context, node string) *NodeRecords {
 
 // Range calls fn for each record of kind k of the node with its time in [from, to), in time
 // order.
-func (r *NodeRecords) Range(k buffer.Kind, from, to time.Time, fn func(buffer.Record) error) error {
+func (r *NodeRecords) Range(k record.Kind, from, to time.Time, fn func(record.Record) error) error {
 	var q string
-	var scan func(pgx.Rows) (buffer.Record, error)
+	var scan func(pgx.Rows) (record.Record, error)
 	switch k {
-	case buffer.KindMinute:
+	case record.KindMinute:
 		q = `SELECT start_time, LAeq, LCeq, LZeq, LAFmax, LAFmin, LAF1, LAF5, LAF10, LAF50, LAF90, LAF95, LAF99, LAE, LCpeak,
 			LAImax, valid_seconds, flags, third_octave_first, third_octave_LZeq FROM leqnode.minutes`
 		scan = scanMinute
-	case buffer.KindEvent:
+	case record.KindEvent:
 		q = `SELECT start_time, end_time, LAFmax, LAeq, LAE, LCpeak, flags FROM leqnode.events`
 		scan = scanEvent
-	case buffer.KindCalibration:
+	case record.KindCalibration:
 		q = `SELECT start_time, reference_dB, measured_dB, deviation_dB, frequency_hz, stability_dB, sensitivity_before_dBFS,
 			sensitivity_after_dBFS, coalesce(applied, false), coalesce(passed, false), flags FROM leqnode.calibrations`
 		scan = scanCalibration
-	case buffer.KindGap:
+	case record.KindGap:
 		q = `SELECT start_time, coalesce(end_time, start_time), coalesce(reason, '') FROM leqnode.gaps`
 		scan = scanGap
-	case buffer.KindHealth:
+	case record.KindHealth:
 		q = `SELECT start_time, flags FROM leqnode.health`
 		scan = scanHealth
 	default:
@@ -116,12 +115,12 @@ func nan(p *float64) float64 {
 	return *p
 }
 
-func flagsOf(names []string) (buffer.Flags, error) {
+func flagsOf(names []string) (record.Flags, error) {
 	return record.ParseFlags(strings.Join(names, "|"))
 }
 
-func scanMinute(rows pgx.Rows) (buffer.Record, error) {
-	var m buffer.Minute
+func scanMinute(rows pgx.Rows) (record.Record, error) {
+	var m record.Minute
 	var lv [15]*float64
 	var valid *int64
 	var flags []string
@@ -154,8 +153,8 @@ func scanMinute(rows pgx.Rows) (buffer.Record, error) {
 	return &m, nil
 }
 
-func scanEvent(rows pgx.Rows) (buffer.Record, error) {
-	var e buffer.Event
+func scanEvent(rows pgx.Rows) (record.Record, error) {
+	var e record.Event
 	var end *time.Time
 	var lafmax, laeq, lae, lcpeak *float64
 	var flags []string
@@ -172,8 +171,8 @@ func scanEvent(rows pgx.Rows) (buffer.Record, error) {
 	return &e, err
 }
 
-func scanCalibration(rows pgx.Rows) (buffer.Record, error) {
-	var c buffer.Calibration
+func scanCalibration(rows pgx.Rows) (record.Record, error) {
+	var c record.Calibration
 	var v [7]*float64
 	var flags []string
 	if err := rows.Scan(&c.At, &v[0], &v[1], &v[2], &v[3], &v[4], &v[5], &v[6], &c.Applied, &c.OK, &flags); err != nil {
@@ -186,14 +185,14 @@ func scanCalibration(rows pgx.Rows) (buffer.Record, error) {
 	return &c, err
 }
 
-func scanGap(rows pgx.Rows) (buffer.Record, error) {
-	var g buffer.Gap
+func scanGap(rows pgx.Rows) (record.Record, error) {
+	var g record.Gap
 	err := rows.Scan(&g.From, &g.To, &g.Reason)
 	return &g, err
 }
 
-func scanHealth(rows pgx.Rows) (buffer.Record, error) {
-	var h buffer.Health
+func scanHealth(rows pgx.Rows) (record.Record, error) {
+	var h record.Health
 	var flags []string
 	if err := rows.Scan(&h.At, &flags); err != nil {
 		return nil, err

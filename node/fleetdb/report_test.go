@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/report"
 )
@@ -52,19 +53,19 @@ func TestFleetReportFromDatabase(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		st.Append(&buffer.Session{At: t0, TimeZone: "UTC", NodeID: id, Site: "Harrowby Lane"})
+		st.Append(&record.Session{At: t0, TimeZone: "UTC", NodeID: id, Site: "Harrowby Lane"})
 		var rows []Row
 		for k := range reportMinutes {
 			at, l := t0.Add(time.Duration(k)*time.Minute), reportLevel(node, k)
 			rows = append(rows, decode(t, minutePayload(id, store, k+1, at, l))...)
-			st.Append(&buffer.Minute{Start: at, LAeq: l, LCeq: l + 5, LZeq: l + 7, LAFmax: l + 6, LAFmin: l - 4, LAE: l + 17.78, LAImax: l + 7,
+			st.Append(&record.Minute{Start: at, LAeq: l, LCeq: l + 5, LZeq: l + 7, LAFmax: l + 6, LAFmin: l - 4, LAE: l + 17.78, LAImax: l + 7,
 				LAF1: math.NaN(), LAF5: math.NaN(), LAF10: math.NaN(), LAF50: math.NaN(), LAF90: math.NaN(), LAF95: math.NaN(), LAF99: math.NaN(),
 				LCpeak: math.NaN(), ValidSeconds: 60, Spectrum: []float64{l - 6, math.NaN(), math.NaN(), l - 5}, FirstBand: -3})
 		}
 		// A lorry heard by all three, 1.5 s apart.
 		at := t0.Add(42*time.Minute + time.Duration(node)*1500*time.Millisecond)
 		rows = append(rows, decode(t, eventPayload(id, store, 1, at, 88-float64(node)))...)
-		st.Append(&buffer.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 84 - float64(node), LAeq: 82 - float64(node), LAE: 88 - float64(node), LCpeak: math.NaN()})
+		st.Append(&record.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: 84 - float64(node), LAeq: 82 - float64(node), LAE: 88 - float64(node), LCpeak: math.NaN()})
 		if err := st.Close(); err != nil {
 			t.Fatal(err)
 		}

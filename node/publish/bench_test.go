@@ -8,7 +8,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // benchHours is the backlog size of BenchmarkBacklog in hours of records: 1 by default (cheap
@@ -68,7 +68,7 @@ func BenchmarkBacklog(b *testing.B) {
 						b.Fatal(err)
 					}
 					s := st.Streams[DefaultStream]
-					if s[buffer.KindSecond].Acked == uint64(hours*3600) && s[buffer.KindMinute].Acked == uint64(hours*60) {
+					if s[record.KindSecond].Acked == uint64(hours*3600) && s[record.KindMinute].Acked == uint64(hours*60) {
 						break
 					}
 					time.Sleep(2 * time.Millisecond)

@@ -10,7 +10,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/strict"
 )
 
@@ -37,8 +37,8 @@ var commandIDRe = regexp.MustCompile(`^[A-Za-z0-9._:-]{1,64}$`)
 var commandActions = []string{ActionCalibrationCheck, ActionPublishStatus, ActionResend}
 
 // resendKinds are the kinds a resend covers by default: all of them but health.
-var resendKinds = []buffer.Kind{buffer.KindSecond, buffer.KindMinute, buffer.KindEvent, buffer.KindCalibration,
-	buffer.KindGap, buffer.KindAnnotation, buffer.KindSession}
+var resendKinds = []record.Kind{record.KindSecond, record.KindMinute, record.KindEvent, record.KindCalibration,
+	record.KindGap, record.KindAnnotation, record.KindSession}
 
 // decodeCommand decodes a payload and checks it against the command schema
 // (configs/schema/command.schema.json): exact key names, no other keys, schema_version equal
@@ -78,11 +78,11 @@ func decodeCommand(b []byte) (c command, from, to time.Time, err error) {
 		return c, from, to, fmt.Errorf("to: %w", err)
 	}
 	if c.Kinds != nil {
-		if len(c.Kinds) == 0 || len(c.Kinds) > len(buffer.Kinds()) {
-			return c, from, to, fmt.Errorf("kinds must list 1 to %d record kinds", len(buffer.Kinds()))
+		if len(c.Kinds) == 0 || len(c.Kinds) > len(record.Kinds()) {
+			return c, from, to, fmt.Errorf("kinds must list 1 to %d record kinds", len(record.Kinds()))
 		}
 		for _, s := range c.Kinds {
-			if _, err := buffer.ParseKind(s); err != nil {
+			if _, err := record.ParseKind(s); err != nil {
 				return c, from, to, fmt.Errorf("kinds: unknown kind %.20q", s)
 			}
 		}
@@ -125,7 +125,7 @@ func numberIs(num string, want int64) bool {
 // the schema cannot say: an action this node allows and, for resend, a range with to after
 // from and at most maxRange long. It returns the command and, for resend, the range and kinds
 // (duplicates dropped).
-func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration) (c command, from, to time.Time, kinds []buffer.Kind, err error) {
+func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration) (c command, from, to time.Time, kinds []record.Kind, err error) {
 	if len(b) > maxBytes {
 		return c, from, to, nil, fmt.Errorf("payload of %d bytes exceeds the cap of %d", len(b), maxBytes)
 	}
@@ -145,7 +145,7 @@ func parseCommand(b []byte, maxBytes int, allow []string, maxRange time.Duration
 		return c, from, to, resendKinds, nil
 	}
 	for _, s := range c.Kinds {
-		k, _ := buffer.ParseKind(s) // checked by decodeCommand
+		k, _ := record.ParseKind(s) // checked by decodeCommand
 		if !slices.Contains(kinds, k) {
 			kinds = append(kinds, k)
 		}
@@ -181,7 +181,7 @@ func (p *Publisher) command(s *session, b []byte) {
 			p.reply(s, c, "busy", "four resends are already queued; try again later")
 			return
 		}
-		kinds = slices.DeleteFunc(kinds, func(k buffer.Kind) bool { return p.lanes[int(k)-1].off })
+		kinds = slices.DeleteFunc(kinds, func(k record.Kind) bool { return p.lanes[int(k)-1].off })
 		if len(kinds) == 0 {
 			p.reply(s, c, "failed", "none of the kinds asked for is published (publish.kinds)")
 			return
@@ -221,12 +221,12 @@ func (p *Publisher) reply(s *session, c command, result, msg string) {
 // resendJob is a resend command being carried out: kinds in turn, each in time order.
 type resendJob struct {
 	cmd      command
-	kinds    []buffer.Kind
+	kinds    []record.Kind
 	from, to time.Time
 	ki       int       // index of the kind being sent
 	pos      time.Time // time of the last record read (or from)
 	posSeq   uint64    // its sequence number (0 before the first)
-	buf      []buffer.Record
+	buf      []record.Record
 	drained  bool // every record of the current kind has been read
 	inflight int
 	sent     int
@@ -253,7 +253,7 @@ func (p *Publisher) nextResend(s *session) (message, []byte) {
 			continue
 		}
 		k := j.kinds[j.ki]
-		var recs []buffer.Record
+		var recs []record.Record
 		recs, j.buf = take(j.buf, p.batch(k))
 		j.sent += len(recs)
 		e := p.envelope(DeliveryResend)
@@ -267,7 +267,7 @@ func (p *Publisher) nextResend(s *session) (message, []byte) {
 func (p *Publisher) fillResend(j *resendJob) {
 	k := j.kinds[j.ki]
 	n := 0
-	err := p.store.Range(k, j.pos, j.to, func(r buffer.Record) error {
+	err := p.store.Range(k, j.pos, j.to, func(r record.Record) error {
 		if r.Time().Equal(j.pos) && r.Seq() <= j.posSeq {
 			return nil
 		}

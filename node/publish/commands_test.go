@@ -15,9 +15,8 @@ import (
 	"unicode/utf8"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/santhosh-tekuri/jsonschema/v6"
-
-	"github.com/leqnode/leqnode/buffer"
 )
 
 var allActions = []string{ActionCalibrationCheck, ActionPublishStatus, ActionResend}
@@ -386,8 +385,8 @@ func TestRemoteCommands(t *testing.T) {
 		t.Errorf("%d log lines about ignored commands within a minute, want 1", n)
 	}
 	// Resends move no cursor.
-	if st, _ := store.Stats(); st.Streams[DefaultStream][buffer.KindSecond].Acked != 120 {
-		t.Errorf("cursor %d after the resend, want 120", st.Streams[DefaultStream][buffer.KindSecond].Acked)
+	if st, _ := store.Stats(); st.Streams[DefaultStream][record.KindSecond].Acked != 120 {
+		t.Errorf("cursor %d after the resend, want 120", st.Streams[DefaultStream][record.KindSecond].Acked)
 	}
 }
 

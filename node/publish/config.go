@@ -12,7 +12,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Defaults for Config. A zero field of Config means its default.
@@ -238,7 +238,7 @@ func (c Config) WithDefaults(nodeID string) Config {
 		}
 	}
 	if c.Kinds == nil {
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			c.Kinds = append(c.Kinds, k.String())
 		}
 	}
@@ -338,7 +338,7 @@ func (c Config) Validate() []error {
 		bad("second_quantities is empty: list at least one quantity, or leave out \"second\" from publish.kinds")
 	}
 	for _, k := range d.Kinds {
-		if _, err := buffer.ParseKind(k); err != nil {
+		if _, err := record.ParseKind(k); err != nil {
 			bad("kinds has %q: use second, minute, event, calibration, health, gap, annotation or session", k)
 		}
 	}

@@ -8,9 +8,8 @@ import (
 	"testing"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/pelletier/go-toml/v2"
-
-	"github.com/leqnode/leqnode/buffer"
 )
 
 func TestConfigValidate(t *testing.T) {
@@ -161,14 +160,14 @@ func TestBucket(t *testing.T) {
 }
 
 func TestTakeBatch(t *testing.T) {
-	recs := stored(t, 0, func() []buffer.Record {
-		var out []buffer.Record
+	recs := stored(t, 0, func() []record.Record {
+		var out []record.Record
 		for i := range 25 {
 			out = append(out, second(i, false))
 		}
 		return out
 	}())
-	seqs := func(rs []buffer.Record) []uint64 {
+	seqs := func(rs []record.Record) []uint64 {
 		var out []uint64
 		for _, r := range rs {
 			out = append(out, r.Seq())

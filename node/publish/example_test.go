@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/demobroker"
 	"github.com/leqnode/leqnode/node/publish"
 )
@@ -47,7 +48,7 @@ func Example() {
 
 	start := time.Date(2031, 5, 4, 8, 0, 0, 0, time.UTC)
 	for i := range 10 {
-		_, _ = store.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 52.4})
+		_, _ = store.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 52.4})
 	}
 	_ = store.Flush()
 	p.Notify()

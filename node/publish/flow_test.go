@@ -11,7 +11,7 @@ import (
 
 	"github.com/santhosh-tekuri/jsonschema/v6"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/schema"
 )
 
@@ -138,7 +138,7 @@ func TestNormalFlow(t *testing.T) {
 			}
 			// The cursor moved on PUBACK and was persisted.
 			ss, _ := store.Stats()
-			if got := ss.Streams[DefaultStream][buffer.KindSecond].Acked; got != nSec {
+			if got := ss.Streams[DefaultStream][record.KindSecond].Acked; got != nSec {
 				t.Errorf("second cursor %d, want %d", got, nSec)
 			}
 		})
@@ -218,15 +218,15 @@ func TestBrokerFailover(t *testing.T) {
 // TestAbsorb: sequence numbers with no stored record (removed by retention) and numbers already
 // delivered are passed over, and the cursor moves across them.
 func TestAbsorb(t *testing.T) {
-	var in []buffer.Record
+	var in []record.Record
 	for i := range 8 {
 		in = append(in, second(i, false))
 	}
 	recs := stored(t, 0, in) // 1..8
-	l := &lane{kind: buffer.KindSecond}
+	l := &lane{kind: record.KindSecond}
 	l.done = l.done.add(6, 6) // delivered live in an earlier connection
 	// 2, 3 and 5 were removed by retention; 8 lies past the boundary 7.
-	pos, buf, past := l.absorb(0, 7, []buffer.Record{recs[0], recs[3], recs[5], recs[6], recs[7]}, nil)
+	pos, buf, past := l.absorb(0, 7, []record.Record{recs[0], recs[3], recs[5], recs[6], recs[7]}, nil)
 	var got []uint64
 	for _, r := range buf {
 		got = append(got, r.Seq())

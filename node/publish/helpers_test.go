@@ -20,6 +20,7 @@ import (
 	mqtt "github.com/eclipse/paho.mqtt.golang"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/testrig"
 )
 
@@ -182,21 +183,21 @@ func spectrum(i int) []float64 {
 	return s
 }
 
-func second(i int, spectra bool) *buffer.Second {
-	r := &buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second,
+func second(i int, spectra bool) *record.Second {
+	r := &record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second,
 		LAeq: 55 + float64(i%7), LCeq: 62, LZeq: 66, LAFmax: 61.3, LAFmin: 50.2, LASmax: 58.9, LASmin: 52.1,
 		LAImax: 63.4, LCpeak: 88.1, LZpeak: 90.5, LAE: 55 + float64(i%7)}
 	if spectra {
 		r.Spectrum, r.FirstBand = spectrum(i), -19
 	}
 	if i == 0 {
-		r.Flags = buffer.Settling
+		r.Flags = record.Settling
 	}
 	return r
 }
 
-func minute(i int, spectra bool) *buffer.Minute {
-	r := &buffer.Minute{Start: t0.Add(time.Duration(i) * time.Minute), LAeq: 57.2, LCeq: 63, LZeq: 67.5,
+func minute(i int, spectra bool) *record.Minute {
+	r := &record.Minute{Start: t0.Add(time.Duration(i) * time.Minute), LAeq: 57.2, LCeq: 63, LZeq: 67.5,
 		LAFmax: 71.2, LAFmin: 48.3, LAF1: 69, LAF5: 65, LAF10: 62, LAF50: 56, LAF90: 51, LAF95: 50, LAF99: 49,
 		LAE: 75, LCpeak: 95.1, LAImax: 73, ValidSeconds: 60}
 	if spectra {
@@ -206,19 +207,19 @@ func minute(i int, spectra bool) *buffer.Minute {
 }
 
 // appendAll appends one record of every kind but second and minute, at minute i.
-func otherRecords(i int) []buffer.Record {
+func otherRecords(i int) []record.Record {
 	at := t0.Add(time.Duration(i) * time.Minute)
-	return []buffer.Record{
-		&buffer.Event{Start: at.Add(5 * time.Second), End: at.Add(9 * time.Second), LAFmax: 82.5, LAeq: 76.1, LAE: 82.1, LCpeak: 101.2, Spectrum: spectrum(i), FirstBand: -19},
-		&buffer.Calibration{At: at, Reference: 94, Measured: 94.12, Deviation: 0.12, Frequency: 1000.2, Stability: 0.03, SensitivityBefore: -26.1, SensitivityAfter: -26.0, Applied: true, OK: true},
-		&buffer.Health{At: at, CPU: 12.5, MemoryMB: 31, DiskFreeMB: 5120, DCOffset: math.NaN(), ClockErrorMs: math.NaN(), TemperatureC: 44, StoreBytes: 1 << 20, ClockSynced: true},
-		&buffer.Gap{From: at, To: at.Add(2 * time.Second), Reason: "device lost"},
-		&buffer.Annotation{From: at, To: at.Add(30 * time.Second), Flags: buffer.Excluded, Reason: "road works on Harrowby Lane"},
-		&buffer.Session{At: at, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "testsig", TimeZone: "UTC"},
+	return []record.Record{
+		&record.Event{Start: at.Add(5 * time.Second), End: at.Add(9 * time.Second), LAFmax: 82.5, LAeq: 76.1, LAE: 82.1, LCpeak: 101.2, Spectrum: spectrum(i), FirstBand: -19},
+		&record.Calibration{At: at, Reference: 94, Measured: 94.12, Deviation: 0.12, Frequency: 1000.2, Stability: 0.03, SensitivityBefore: -26.1, SensitivityAfter: -26.0, Applied: true, OK: true},
+		&record.Health{At: at, CPU: 12.5, MemoryMB: 31, DiskFreeMB: 5120, DCOffset: math.NaN(), ClockErrorMs: math.NaN(), TemperatureC: 44, StoreBytes: 1 << 20, ClockSynced: true},
+		&record.Gap{From: at, To: at.Add(2 * time.Second), Reason: "device lost"},
+		&record.Annotation{From: at, To: at.Add(30 * time.Second), Flags: record.Excluded, Reason: "road works on Harrowby Lane"},
+		&record.Session{At: at, SoftwareVersion: "0.1.0-test", ConfigHash: "c0ffee", SensitivityDBFS: -26, SampleRate: 48000, Device: "testsig", TimeZone: "UTC"},
 	}
 }
 
-func mustAppend(t testing.TB, s *buffer.Store, r buffer.Record) uint64 {
+func mustAppend(t testing.TB, s *buffer.Store, r record.Record) uint64 {
 	t.Helper()
 	seq, err := s.Append(r)
 	if err != nil {

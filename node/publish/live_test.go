@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestLiveBeforeCommit: with the store committing once an hour, a second record reaches the
@@ -26,14 +27,14 @@ func TestLiveBeforeCommit(t *testing.T) {
 	defer st.Close()
 	// The first record after Open is committed at once: append one and let it go.
 	at := time.Date(2031, 5, 4, 8, 0, 0, 0, time.UTC)
-	st.Append(&buffer.Second{Start: at, Duration: time.Second, LAeq: 50})
+	st.Append(&record.Second{Start: at, Duration: time.Second, LAeq: 50})
 	p, err := New(Config{Brokers: []string{url}}.WithDefaults("wendle-cross-05"), st, Identity{NodeID: "wendle-cross-05"}, newLogger(new(logBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
 	runPublisher(t, p)
 	waitConnected(t, p)
-	if _, err := st.Append(&buffer.Second{Start: at.Add(time.Second), Duration: time.Second, LAeq: 61.25}); err != nil {
+	if _, err := st.Append(&record.Second{Start: at.Add(time.Second), Duration: time.Second, LAeq: 61.25}); err != nil {
 		t.Fatal(err)
 	}
 	p.Notify()
@@ -45,7 +46,7 @@ func TestLiveBeforeCommit(t *testing.T) {
 		}
 		return false
 	})
-	if s, _ := st.Stats(); s.Kinds[buffer.KindSecond].LastSeq != 1 {
-		t.Errorf("the store committed the second record (last committed %d): the test shows nothing", s.Kinds[buffer.KindSecond].LastSeq)
+	if s, _ := st.Stats(); s.Kinds[record.KindSecond].LastSeq != 1 {
+		t.Errorf("the store committed the second record (last committed %d): the test shows nothing", s.Kinds[record.KindSecond].LastSeq)
 	}
 }

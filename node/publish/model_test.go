@@ -9,7 +9,6 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 )
 
@@ -31,14 +30,14 @@ func TestSchemasFollowTheRecordModel(t *testing.T) {
 	}
 	common := read("common")
 	envelope := common["$defs"].(map[string]any)["envelope"].(map[string]any)["properties"].(map[string]any)
-	for _, k := range buffer.Kinds() {
-		if k == buffer.KindSecond {
+	for _, k := range record.Kinds() {
+		if k == record.KindSecond {
 			continue
 		}
 		var want []string
-		for _, f := range buffer.Fields(k) {
+		for _, f := range record.Fields(k) {
 			want = append(want, f.Name)
-			if f.Type == buffer.TimeField {
+			if f.Type == record.TimeField {
 				want = append(want, f.Name+"_ms")
 			}
 		}

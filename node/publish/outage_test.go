@@ -13,7 +13,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestOutage: the broker is stopped while the node keeps storing records, then restarted.
@@ -186,7 +186,7 @@ func TestPublisherChild(t *testing.T) {
 		t.Fatal(err)
 	}
 	fmt.Fprintln(os.Stderr, "child publisher stopped")
-	_ = buffer.KindSecond
+	_ = record.KindSecond
 }
 
 func signalContext() (context.Context, context.CancelFunc) {

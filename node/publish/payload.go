@@ -3,7 +3,7 @@ package publish
 import (
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp/reference"
 )
 
@@ -47,7 +47,7 @@ func (e envelope) head(w *jw, kind string, seq uint64, start time.Time) {
 }
 
 // flags writes a record's flag names as an array.
-func (w *jw) flags(f buffer.Flags) {
+func (w *jw) flags(f record.Flags) {
 	w.arr()
 	for _, n := range f.Names() {
 		w.str(n)
@@ -70,7 +70,7 @@ func (w *jw) spectrumObject(first int, levels []float64) {
 // appendSeconds appends one message holding recs (at least one, in sequence order) in columns:
 // each quantity is an array with one value per record.
 // quantities selects the level columns (nil: all of secondLevels).
-func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool, quantities []secondLevel) []byte {
+func appendSeconds(b []byte, e envelope, recs []*record.Second, spectra bool, quantities []secondLevel) []byte {
 	if quantities == nil {
 		quantities = secondLevels
 	}
@@ -158,7 +158,7 @@ func appendSeconds(b []byte, e envelope, recs []*buffer.Second, spectra bool, qu
 }
 
 // bandSpan returns the band numbers [lo, hi) covering every spectrum of recs.
-func bandSpan(recs []*buffer.Second) (lo, hi int) {
+func bandSpan(recs []*record.Second) (lo, hi int) {
 	set := false
 	for _, r := range recs {
 		if len(r.Spectrum) == 0 {
@@ -179,38 +179,38 @@ func bandSpan(recs []*buffer.Second) (lo, hi int) {
 // secondLevel is one level column of second messages.
 type secondLevel struct {
 	name string
-	get  func(*buffer.Second) float64
+	get  func(*record.Second) float64
 }
 
 // secondLevels are the quantities of a second record, named as leqnode analyze names them.
 var secondLevels = []secondLevel{
-	{"LAeq", func(r *buffer.Second) float64 { return r.LAeq }},
-	{"LCeq", func(r *buffer.Second) float64 { return r.LCeq }},
-	{"LZeq", func(r *buffer.Second) float64 { return r.LZeq }},
-	{"LAFmax", func(r *buffer.Second) float64 { return r.LAFmax }},
-	{"LAFmin", func(r *buffer.Second) float64 { return r.LAFmin }},
-	{"LASmax", func(r *buffer.Second) float64 { return r.LASmax }},
-	{"LASmin", func(r *buffer.Second) float64 { return r.LASmin }},
-	{"LAImax", func(r *buffer.Second) float64 { return r.LAImax }},
-	{"LCpeak", func(r *buffer.Second) float64 { return r.LCpeak }},
-	{"LZpeak", func(r *buffer.Second) float64 { return r.LZpeak }},
-	{"LAE", func(r *buffer.Second) float64 { return r.LAE }},
+	{"LAeq", func(r *record.Second) float64 { return r.LAeq }},
+	{"LCeq", func(r *record.Second) float64 { return r.LCeq }},
+	{"LZeq", func(r *record.Second) float64 { return r.LZeq }},
+	{"LAFmax", func(r *record.Second) float64 { return r.LAFmax }},
+	{"LAFmin", func(r *record.Second) float64 { return r.LAFmin }},
+	{"LASmax", func(r *record.Second) float64 { return r.LASmax }},
+	{"LASmin", func(r *record.Second) float64 { return r.LASmin }},
+	{"LAImax", func(r *record.Second) float64 { return r.LAImax }},
+	{"LCpeak", func(r *record.Second) float64 { return r.LCpeak }},
+	{"LZpeak", func(r *record.Second) float64 { return r.LZpeak }},
+	{"LAE", func(r *record.Second) float64 { return r.LAE }},
 }
 
 // appendRecord appends the message for one record of any kind but second: its fields as the
-// record model names and rounds them (buffer.Fields), then its spectrum.
-func appendRecord(b []byte, e envelope, rec buffer.Record, spectra bool) []byte {
+// record model names and rounds them (record.Fields), then its spectrum.
+func appendRecord(b []byte, e envelope, rec record.Record, spectra bool) []byte {
 	w := jw{b}
 	e.head(&w, rec.Kind().String(), rec.Seq(), rec.Time())
-	for _, f := range buffer.Fields(rec.Kind()) {
+	for _, f := range record.Fields(rec.Kind()) {
 		v := f.Value(rec)
 		switch f.Type {
-		case buffer.TimeField:
+		case record.TimeField:
 			w.times(f.Name, v.(time.Time))
 			continue
-		case buffer.FlagsField:
+		case record.FlagsField:
 			w.key(f.Name)
-			w.flags(v.(buffer.Flags))
+			w.flags(v.(record.Flags))
 			continue
 		}
 		w.key(f.Name)
@@ -228,9 +228,9 @@ func appendRecord(b []byte, e envelope, rec buffer.Record, spectra bool) []byte 
 	var first int
 	var spec []float64
 	switch r := rec.(type) {
-	case *buffer.Minute:
+	case *record.Minute:
 		first, spec = r.FirstBand, r.Spectrum
-	case *buffer.Event:
+	case *record.Event:
 		first, spec = r.FirstBand, r.Spectrum
 	}
 	if spectra && len(spec) > 0 {

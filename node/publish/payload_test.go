@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Nominal midband frequencies of the one-third-octave bands 12.5 Hz to 20 kHz (IEC 61260-1:2014
@@ -20,10 +20,10 @@ var nominalThirds = []string{"12.5", "16", "20", "25", "31.5", "40", "50", "63",
 
 func TestSecondPayload(t *testing.T) {
 	sch := schemas(t)
-	raw := []*buffer.Second{second(0, true), second(1, true), second(2, false)}
+	raw := []*record.Second{second(0, true), second(1, true), second(2, false)}
 	raw[1].LAFmin = math.NaN() // digital silence has no level
 	raw[1].LAeq = 61.23456
-	raw[1].Flags = buffer.Dropped | buffer.Clipped
+	raw[1].Flags = record.Dropped | record.Clipped
 	raw[1].DroppedSamples = 480
 	recs := storedSeconds(t, 40, raw) // sequence numbers 41, 42, 43
 	b := appendSeconds(nil, envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryBacklog}, recs, true, nil)
@@ -69,7 +69,7 @@ func TestSecondPayload(t *testing.T) {
 
 func TestRecordPayloads(t *testing.T) {
 	sch := schemas(t)
-	recs := stored(t, 0, append([]buffer.Record{minute(3, true)}, otherRecords(3)...))
+	recs := stored(t, 0, append([]record.Record{minute(3, true)}, otherRecords(3)...))
 	for _, r := range recs {
 		for _, spectra := range []bool{true, false} {
 			b := appendRecord(nil, envelope{node: "wendle-cross-03", store: "0123456789abcdef", delivery: DeliveryLive}, r, spectra)
@@ -94,21 +94,21 @@ func TestRecordPayloads(t *testing.T) {
 
 // stored appends recs to a new store after skip filler records of each kind and returns them
 // read back, with their sequence numbers, as a consumer sees them.
-func stored(t testing.TB, skip int, recs []buffer.Record) []buffer.Record {
+func stored(t testing.TB, skip int, recs []record.Record) []record.Record {
 	t.Helper()
 	s := openStore(t, filepath.Join(t.TempDir(), "payload.db"))
 	defer s.Close()
-	kinds := map[buffer.Kind]bool{}
+	kinds := map[record.Kind]bool{}
 	for _, r := range recs {
 		kinds[r.Kind()] = true
 	}
 	for k := range kinds {
 		for range skip {
-			f, _ := buffer.NewRecord(k)
+			f, _ := record.NewRecord(k)
 			switch f := f.(type) {
-			case *buffer.Second:
+			case *record.Second:
 				f.Start = t0
-			case *buffer.Minute:
+			case *record.Minute:
 				f.Start = t0
 			}
 			mustAppend(t, s, f)
@@ -120,7 +120,7 @@ func stored(t testing.TB, skip int, recs []buffer.Record) []buffer.Record {
 	if err := s.Flush(); err != nil {
 		t.Fatal(err)
 	}
-	var out []buffer.Record
+	var out []record.Record
 	for _, r := range recs {
 		got, err := s.After(r.Kind(), r.Seq()-1, 1)
 		if err != nil || len(got) != 1 {
@@ -131,15 +131,15 @@ func stored(t testing.TB, skip int, recs []buffer.Record) []buffer.Record {
 	return out
 }
 
-func storedSeconds(t testing.TB, skip int, recs []*buffer.Second) []*buffer.Second {
+func storedSeconds(t testing.TB, skip int, recs []*record.Second) []*record.Second {
 	t.Helper()
-	in := make([]buffer.Record, len(recs))
+	in := make([]record.Record, len(recs))
 	for i, r := range recs {
 		in[i] = r
 	}
-	var out []*buffer.Second
+	var out []*record.Second
 	for _, r := range stored(t, skip, in) {
-		out = append(out, r.(*buffer.Second))
+		out = append(out, r.(*record.Second))
 	}
 	return out
 }
@@ -158,10 +158,10 @@ func monthlyBytes(payload, topic, perMonth int) float64 {
 
 // realistic returns stored records with levels that vary in the last digit, as measured ones
 // do, and sequence numbers of seven digits (seconds) and five digits (minutes), as after a month.
-func realistic(t testing.TB, n int) ([]*buffer.Second, []*buffer.Minute) {
+func realistic(t testing.TB, n int) ([]*record.Second, []*record.Minute) {
 	rng := rand.New(rand.NewPCG(7, 11))
 	lvl := func() float64 { return 35 + 50*rng.Float64() }
-	var secs []*buffer.Second
+	var secs []*record.Second
 	for i := range n {
 		r := second(i, true)
 		r.LAeq, r.LCeq, r.LZeq, r.LAFmax, r.LAFmin, r.LASmax, r.LASmin, r.LAImax, r.LCpeak, r.LZpeak, r.LAE =
@@ -172,7 +172,7 @@ func realistic(t testing.TB, n int) ([]*buffer.Second, []*buffer.Minute) {
 		r.Flags = 0
 		secs = append(secs, r)
 	}
-	var mins []*buffer.Minute
+	var mins []*record.Minute
 	for i := range n / 60 {
 		m := minute(i, true)
 		for _, p := range []*float64{&m.LAeq, &m.LCeq, &m.LZeq, &m.LAFmax, &m.LAFmin, &m.LAF1, &m.LAF5, &m.LAF10, &m.LAF50, &m.LAF90, &m.LAF95, &m.LAF99, &m.LAE, &m.LCpeak, &m.LAImax} {
@@ -183,20 +183,20 @@ func realistic(t testing.TB, n int) ([]*buffer.Second, []*buffer.Minute) {
 		}
 		mins = append(mins, m)
 	}
-	all := make([]buffer.Record, 0, len(secs)+len(mins))
+	all := make([]record.Record, 0, len(secs)+len(mins))
 	for _, r := range secs {
 		all = append(all, r)
 	}
 	for _, r := range mins {
 		all = append(all, r)
 	}
-	var ss []*buffer.Second
-	var ms []*buffer.Minute
+	var ss []*record.Second
+	var ms []*record.Minute
 	for _, r := range stored(t, 0, all) {
 		switch r := r.(type) {
-		case *buffer.Second:
+		case *record.Second:
 			ss = append(ss, r)
-		case *buffer.Minute:
+		case *record.Minute:
 			ms = append(ms, r)
 		}
 	}
@@ -241,11 +241,11 @@ func measureVolume(t testing.TB) []volume {
 		v.minuteMsg = mb / len(mins)
 		p := &Publisher{id: Identity{NodeID: "wendle-cross-03", SoftwareVersion: "0.1.0"}, cfg: Config{Spectra: SpectraMinute, SecondsPerMessage: 10}}
 		v.stat = len(p.appendStatusFields(nil, "online", true, Status{Pending: map[string]uint64{}}, "0123456789abcdef", map[string]uint64{}))
-		v.month = monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, buffer.KindSecond)), month/DefaultSecondsPerMessage) +
-			monthlyBytes(v.minuteMsg, len(top.data(DeliveryLive, buffer.KindMinute)), month/60) +
+		v.month = monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, record.KindSecond)), month/DefaultSecondsPerMessage) +
+			monthlyBytes(v.minuteMsg, len(top.data(DeliveryLive, record.KindMinute)), month/60) +
 			monthlyBytes(v.stat, len(top.status), month/60)
-		v.monthLive = v.month - monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, buffer.KindSecond)), month/DefaultSecondsPerMessage) +
-			monthlyBytes(v.secondMsg1, len(top.data(DeliveryLive, buffer.KindSecond)), month/2)
+		v.monthLive = v.month - monthlyBytes(v.secondMsg, len(top.data(DeliveryLive, record.KindSecond)), month/DefaultSecondsPerMessage) +
+			monthlyBytes(v.secondMsg1, len(top.data(DeliveryLive, record.KindSecond)), month/2)
 		out = append(out, v)
 	}
 	return out

@@ -104,8 +104,8 @@ func (p *Publisher) PeriodPayload(m PeriodMessage) []byte {
 	secs := func(v float64) int64 { return int64(math.Round(v)) }
 	t := m.Seconds
 	pl.ValidSeconds, pl.Overload, pl.UnderRange = secs(t.Counted), secs(t.Overload), secs(t.UnderRange)
-	pl.Calibrating, pl.Settling, pl.Excluded = secs(t.LeftOut[record.Calibration]), secs(t.LeftOut[record.Settle]), secs(t.LeftOut[record.ByUser])
-	pl.Suspect, pl.NoData, pl.Silence = secs(t.LeftOut[record.Doubtful]), secs(t.LeftOut[record.NoData]), secs(t.LeftOut[record.Silence])
+	pl.Calibrating, pl.Settling, pl.Excluded = secs(t.LeftOut[record.ReasonCalibrating]), secs(t.LeftOut[record.ReasonSettling]), secs(t.LeftOut[record.ReasonExcluded])
+	pl.Suspect, pl.NoData, pl.Silence = secs(t.LeftOut[record.ReasonSuspect]), secs(t.LeftOut[record.ReasonNoData]), secs(t.LeftOut[record.ReasonSilence])
 	if l := level(m.Limit); l != nil {
 		pl.Limit, pl.Exceeds = l, &m.Exceeds
 	}

@@ -26,7 +26,7 @@ func TestPeriodMessage(t *testing.T) {
 		From: from, To: from.Add(8 * time.Hour), Hours: 8, Penalty: 10, LAeq: 47.123, LCeq: 55.2, LAF10: 49.05,
 		LAF90: 38.95, LAFmax: math.NaN(), Events: 3, Limit: math.NaN(), Coverage: 0.98}
 	msg.Seconds.Counted, msg.Seconds.Overload = 28224, 12
-	msg.Seconds.LeftOut[record.Calibration] = 30
+	msg.Seconds.LeftOut[record.ReasonCalibrating] = 30
 	payload := p.PeriodPayload(msg)
 	if !p.PublishPeriod(payload) {
 		t.Fatal("the period queue refused the first message")

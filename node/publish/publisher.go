@@ -19,6 +19,7 @@ import (
 	"github.com/eclipse/paho.mqtt.golang/packets"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Identity describes the node in the status message and in every payload.
@@ -135,7 +136,7 @@ func New(cfg Config, store *buffer.Store, ident Identity, logger *slog.Logger) (
 		cmdIn:    make(chan []byte, 16),
 		rng:      rand.New(rand.NewPCG(rand.Uint64(), rand.Uint64())),
 	}
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		p.lanes = append(p.lanes, &lane{kind: k, off: !slices.Contains(cfg.Kinds, k.String())})
 	}
 	for _, q := range cfg.SecondQuantities {
@@ -173,7 +174,7 @@ func (p *Publisher) Status() Status {
 	p.mu.Unlock()
 	st.Pending = map[string]uint64{}
 	if s, err := p.store.Stats(); err == nil {
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			if ss, ok := s.Streams[p.cfg.Stream][k]; ok {
 				st.Pending[k.String()] = ss.Pending
 			} else {

@@ -8,8 +8,7 @@ import (
 	"time"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
-
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // fetchChunk is the number of records read from the store per read transaction.
@@ -18,22 +17,22 @@ const fetchChunk = 256
 // lane is the delivery state of one record kind. Messages cover contiguous sequence ranges;
 // the store's cursor (acked) moves only over ranges the broker acknowledged.
 type lane struct {
-	kind  buffer.Kind
+	kind  record.Kind
 	off   bool   // the kind is not published (Config.Kinds)
 	acked uint64 // the store's cursor for this kind, as last acknowledged
 	done  spans  // ranges above acked that were delivered (or hold no record), in memory only
 
 	boundary uint64          // sequence numbers up to this one are backlog in this connection
 	bpos     uint64          // last backlog sequence number examined
-	bbuf     []buffer.Record // backlog records read and not yet sent
+	bbuf     []record.Record // backlog records read and not yet sent
 	lpos     uint64          // last live sequence number examined
-	lbuf     []buffer.Record // live records read and not yet sent
+	lbuf     []record.Record // live records read and not yet sent
 	lwait    time.Time       // when a partial batch of live seconds was first held back
 }
 
 // message is one published data message: the records of one kind with sequence numbers in [lo, hi].
 type message struct {
-	kind   buffer.Kind
+	kind   record.Kind
 	lo, hi uint64
 	bytes  int
 	job    *resendJob // non-nil for resend messages, which move no cursor
@@ -221,8 +220,8 @@ wait:
 }
 
 // batch returns the number of records per message for kind k.
-func (p *Publisher) batch(k buffer.Kind) int {
-	if k == buffer.KindSecond {
+func (p *Publisher) batch(k record.Kind) int {
+	if k == record.KindSecond {
 		return p.cfg.SecondsPerMessage
 	}
 	return 1
@@ -231,7 +230,7 @@ func (p *Publisher) batch(k buffer.Kind) int {
 // absorb moves records with sequence numbers up to upto from recs into buf, skipping those
 // already delivered and marking numbers with no stored record (removed by retention) as done.
 // It returns the last sequence number examined.
-func (l *lane) absorb(pos, upto uint64, recs []buffer.Record, buf []buffer.Record) (uint64, []buffer.Record, bool) {
+func (l *lane) absorb(pos, upto uint64, recs []record.Record, buf []record.Record) (uint64, []record.Record, bool) {
 	for _, r := range recs {
 		s := r.Seq()
 		if s > upto {
@@ -306,7 +305,7 @@ func (p *Publisher) fillBacklog(l *lane) {
 }
 
 // take removes up to n records from buf.
-func take(buf []buffer.Record, n int) ([]buffer.Record, []buffer.Record) {
+func take(buf []record.Record, n int) ([]record.Record, []record.Record) {
 	n = min(n, len(buf))
 	out := buf[:n:n]
 	return out, buf[n:]
@@ -316,7 +315,7 @@ func take(buf []buffer.Record, n int) ([]buffer.Record, []buffer.Record) {
 // n > 1 records are aligned to sequence numbers: a message holds the records with sequence
 // numbers in (k·n − n, k·n], so consumers see the same grouping whatever the outages were.
 // complete reports whether the batch reaches its last sequence number k·n.
-func takeBatch(buf []buffer.Record, n int) (recs, rest []buffer.Record, complete bool) {
+func takeBatch(buf []record.Record, n int) (recs, rest []record.Record, complete bool) {
 	if n <= 1 {
 		recs, rest = take(buf, 1)
 		return recs, rest, true
@@ -330,11 +329,11 @@ func takeBatch(buf []buffer.Record, n int) (recs, rest []buffer.Record, complete
 }
 
 // encode builds the payload for recs (one kind, sequence order).
-func (p *Publisher) encode(e envelope, recs []buffer.Record) []byte {
-	if recs[0].Kind() == buffer.KindSecond {
-		secs := make([]*buffer.Second, len(recs))
+func (p *Publisher) encode(e envelope, recs []record.Record) []byte {
+	if recs[0].Kind() == record.KindSecond {
+		secs := make([]*record.Second, len(recs))
 		for i, r := range recs {
-			secs[i] = r.(*buffer.Second)
+			secs[i] = r.(*record.Second)
 		}
 		return appendSeconds(nil, e, secs, p.cfg.Spectra == SpectraSecond, p.quantities)
 	}
@@ -406,7 +405,7 @@ func (p *Publisher) pump(s *session, wake *time.Timer) error {
 		var m message
 		delivery := DeliveryBacklog
 		if oldest != nil {
-			var recs []buffer.Record
+			var recs []record.Record
 			recs, oldest.bbuf, _ = takeBatch(oldest.bbuf, p.batch(oldest.kind))
 			m = message{kind: oldest.kind, lo: recs[0].Seq(), hi: recs[len(recs)-1].Seq()}
 			payload = p.encode(p.envelope(DeliveryBacklog), recs)
@@ -487,7 +486,7 @@ func (p *Publisher) appendStatus(b []byte, state string, stamped bool) []byte {
 	lastSeq := map[string]uint64{}
 	if state == "online" {
 		st = p.Status()
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			lastSeq[k.String()] = p.store.LastCommitted(k) // what the broker can have: pending counts committed records too
 		}
 	}
@@ -538,14 +537,14 @@ func (p *Publisher) appendStatusFields(b []byte, state string, stamped bool, st 
 		w.bool(st.Backlog)
 		w.key("pending")
 		w.open()
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			w.key(k.String())
 			w.uint(st.Pending[k.String()])
 		}
 		w.close()
 		w.key("last_seq")
 		w.open()
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			w.key(k.String())
 			w.uint(lastSeq[k.String()])
 		}

@@ -1,6 +1,6 @@
 package publish
 
-import "github.com/leqnode/leqnode/buffer"
+import "github.com/leqnode/leqnode/buffer/record"
 
 // topics is the node's topic tree:
 //
@@ -21,6 +21,6 @@ func newTopics(prefix, node string) topics {
 }
 
 // data returns the topic for records of kind k sent as delivery.
-func (t topics) data(delivery string, k buffer.Kind) string {
+func (t topics) data(delivery string, k record.Kind) string {
 	return t.base + "/" + delivery + "/" + k.String()
 }

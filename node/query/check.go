@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Check verifies a store (bbolt's page check, every record decodes, the time index and the
@@ -63,7 +64,7 @@ func checkSummary(s buffer.Stats, checkErr error) string {
 	fmt.Fprintf(&b, "store %s %s:", s.ID, state)
 	var kinds []string
 	var oldest, newest time.Time
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		ks := s.Kinds[k]
 		kinds = append(kinds, fmt.Sprintf("%d %s", ks.Count, k))
 		if ks.Count > 0 {
@@ -92,7 +93,7 @@ func checkSummary(s buffer.Stats, checkErr error) string {
 	}
 	for i, name := range streams {
 		var parts []string
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			ss, ok := s.Streams[name][k]
 			if !ok || ss.Pending == 0 && ss.Dropped == 0 {
 				continue

@@ -7,6 +7,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/export"
 )
 
@@ -22,11 +23,11 @@ type Export struct {
 }
 
 // Check parses the fields that need no store; Do checks them again.
-func (e Export) Check() (buffer.Kind, string, error) {
+func (e Export) Check() (record.Kind, string, error) {
 	if e.Kind == "" {
 		return 0, "", BadRequest("give the record kind with --kind (second, minute, event, calibration, health, gap, annotation or session)")
 	}
-	kind, err := buffer.ParseKind(e.Kind)
+	kind, err := record.ParseKind(e.Kind)
 	if err != nil {
 		return 0, "", BadRequest("--kind: %v", err)
 	}

@@ -24,6 +24,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/strict"
 )
 
@@ -90,8 +91,8 @@ func Do(ctx context.Context, st *buffer.Store, req Request, w io.Writer) error {
 // as none.
 func Zone(st *buffer.Store, name string) *time.Location {
 	if name == "" {
-		if r, err := st.Last(buffer.KindSession); err == nil && r != nil {
-			name = r.(*buffer.Session).TimeZone
+		if r, err := st.Last(record.KindSession); err == nil && r != nil {
+			name = r.(*record.Session).TimeZone
 		}
 	}
 	if name != "" {

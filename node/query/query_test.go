@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/query"
 )
 
@@ -28,11 +29,11 @@ func store(t *testing.T) *buffer.Store {
 			t.Error(err)
 		}
 	})
-	if _, err := st.Append(&buffer.Session{At: t0, TimeZone: "Asia/Kolkata", NodeID: "ferry-row-3"}); err != nil {
+	if _, err := st.Append(&record.Session{At: t0, TimeZone: "Asia/Kolkata", NodeID: "ferry-row-3"}); err != nil {
 		t.Fatal(err)
 	}
 	for i := range 10 {
-		if _, err := st.Append(&buffer.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50}); err != nil {
+		if _, err := st.Append(&record.Second{Start: t0.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50}); err != nil {
 			t.Fatal(err)
 		}
 	}

@@ -209,8 +209,8 @@ func readWholeMinutes(ctx context.Context, path string, from, to time.Time) (Ide
 		return id, nil, err
 	}
 	out := map[int64]colocMinute{}
-	err = st.Range(buffer.KindMinute, from, to, func(r buffer.Record) error {
-		m := r.(*buffer.Minute)
+	err = st.Range(record.KindMinute, from, to, func(r record.Record) error {
+		m := r.(*record.Minute)
 		t := m.Tally()
 		if record.Judge(m.Flags, m.LAeq) != record.Counted || t.Counted < 60 || t.LeftOutTotal() > 0 || len(m.Spectrum) == 0 {
 			return ctx.Err()

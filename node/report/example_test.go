@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/report"
 )
@@ -32,7 +33,7 @@ func ExampleCompute() {
 		if i >= 3600 {
 			l = 70
 		}
-		st.Append(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l + 4})
+		st.Append(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l + 4})
 	}
 	prof, _ := profiles.Load("eu-lden")
 	r, err := report.Compute(context.Background(), st, report.Config{Profile: prof, From: start, To: start.Add(2 * time.Hour)})

@@ -32,17 +32,17 @@ type Identity struct {
 // before to (or its latest at all when none is before to).
 func ReadIdentity(st *buffer.Store, to time.Time) (Identity, error) {
 	id := Identity{StoreID: st.ID(), Path: st.Path()}
-	var sess *buffer.Session
-	err := st.Range(buffer.KindSession, time.Unix(0, 0), to, func(r buffer.Record) error {
-		sess = r.(*buffer.Session)
+	var sess *record.Session
+	err := st.Range(record.KindSession, time.Unix(0, 0), to, func(r record.Record) error {
+		sess = r.(*record.Session)
 		return nil
 	})
 	if err != nil {
 		return id, fmt.Errorf("report: reading session records of %s: %w", st.Path(), err)
 	}
 	if sess == nil {
-		if r, err := st.Last(buffer.KindSession); err == nil && r != nil {
-			sess = r.(*buffer.Session)
+		if r, err := st.Last(record.KindSession); err == nil && r != nil {
+			sess = r.(*record.Session)
 		}
 	}
 	if sess != nil {
@@ -188,7 +188,7 @@ func (f *Fleet) add(ctx context.Context, id Identity, recs Records) error {
 // finish sorts the nodes and groups their simultaneous events.
 func (f *Fleet) finish() *Fleet {
 	sort.Slice(f.Nodes, func(i, j int) bool { return f.Nodes[i].NodeID < f.Nodes[j].NodeID })
-	evs := make([][]*buffer.Event, len(f.Nodes))
+	evs := make([][]*record.Event, len(f.Nodes))
 	for i, n := range f.Nodes {
 		evs[i] = n.Result.Events
 	}
@@ -213,9 +213,9 @@ func computeNode(ctx context.Context, id Identity, recs Records, cfg FleetConfig
 		}
 	}
 	counts := map[string]int{}
-	err = recs.Range(buffer.KindHealth, cfg.From, cfg.To, func(r buffer.Record) error {
+	err = recs.Range(record.KindHealth, cfg.From, cfg.To, func(r record.Record) error {
 		n.Snapshots++
-		for _, name := range r.(*buffer.Health).Flags.Names() {
+		for _, name := range r.(*record.Health).Flags.Names() {
 			counts[name]++
 		}
 		return nil

@@ -10,7 +10,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 )
 
@@ -22,7 +22,7 @@ func minuteStore(tb testing.TB, path string, node int, start time.Time, days int
 	end := start.Add(time.Duration(days) * 24 * time.Hour)
 	st, add := fillStore(tb, path, end)
 	id := fmt.Sprintf("wendle-cross-%02d", node+1)
-	add(&buffer.Session{At: start, SoftwareVersion: "bench", SensitivityDBFS: -26, SampleRate: 48000, Device: "bench", TimeZone: "UTC",
+	add(&record.Session{At: start, SoftwareVersion: "bench", SensitivityDBFS: -26, SampleRate: 48000, Device: "bench", TimeZone: "UTC",
 		NodeID: id, Site: "Harrowby Lane " + strconv.Itoa(node+1), Latitude: 47 + 0.001*float64(node%7), Longitude: -30 + 0.0015*float64(node/7)})
 	offset := 0.5 * float64(node%9)
 	spec := make([]float64, 31)
@@ -38,12 +38,12 @@ func minuteStore(tb testing.TB, path string, node int, start time.Time, days int
 			spec[i] = l - 8 - 0.1*float64((i-17)*(i-17))/4
 		}
 		first, counts := h.Span()
-		add(&buffer.Minute{Start: m, LAeq: l, LCeq: l + 6, LZeq: l + 8, LAFmax: l + 4, LAFmin: l - 3, LAF10: h.Exceeded(10), LAF90: h.Exceeded(90),
+		add(&record.Minute{Start: m, LAeq: l, LCeq: l + 6, LZeq: l + 8, LAFmax: l + 4, LAFmin: l - 3, LAF10: h.Exceeded(10), LAF90: h.Exceeded(90),
 			LAImax: l + 5.5, LAE: l + 17.8, LCpeak: l + 20, Spectrum: append([]float64(nil), spec...), FirstBand: -17,
-			Histogram: buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}, ValidSeconds: 60, ValidDuration: time.Minute})
+			Histogram: record.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}, ValidSeconds: 60, ValidDuration: time.Minute})
 		if m.Minute() == 17 && m.Hour()%2 == 0 { // twelve happenings a day
 			s := m.Add(time.Duration(node%5) * time.Second)
-			add(&buffer.Event{Start: s, End: s.Add(4 * time.Second), LAFmax: 82 - float64(node%5), LAeq: 76, LAE: 76 + 10*math.Log10(4), LCpeak: 99})
+			add(&record.Event{Start: s, End: s.Add(4 * time.Second), LAFmax: 82 - float64(node%5), LAeq: 76, LAE: 76 + 10*math.Log10(4), LCpeak: 99})
 		}
 	}
 	if err := st.Close(); err != nil {

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/report"
 )
@@ -16,12 +17,12 @@ import (
 // happening; the third hears it too late to be counted with them.
 func ExampleSimultaneous() {
 	t0 := time.Date(2026, 6, 1, 8, 0, 0, 0, time.UTC)
-	ev := func(s float64, lae float64) *buffer.Event {
+	ev := func(s float64, lae float64) *record.Event {
 		at := t0.Add(time.Duration(s * float64(time.Second)))
-		return &buffer.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: lae - 6, LAE: lae}
+		return &record.Event{Start: at, End: at.Add(4 * time.Second), LAFmax: lae - 6, LAE: lae}
 	}
 	nodes := []string{"wendle-cross-01", "wendle-cross-02", "wendle-cross-03"}
-	hs := report.Simultaneous([][]*buffer.Event{{ev(2.5, 84)}, {ev(0, 88)}, {ev(9, 79)}}, report.DefaultWindow)
+	hs := report.Simultaneous([][]*record.Event{{ev(2.5, 84)}, {ev(0, 88)}, {ev(9, 79)}}, report.DefaultWindow)
 	for _, h := range hs {
 		for i, s := range h.Sightings {
 			fmt.Printf("%d. %s +%.1f s LAE %.0f\n", i+1, nodes[s.Node], s.Delay.Seconds(), s.Event.LAE)
@@ -49,9 +50,9 @@ func ExampleComputeFleet() {
 	for i, level := range []float64{58, 64} {
 		path := filepath.Join(dir, fmt.Sprintf("n%d.db", i))
 		st, _ := buffer.Open(path, &buffer.Options{NoSync: true, Now: func() time.Time { return start.Add(2 * time.Hour) }})
-		st.Append(&buffer.Session{At: start, TimeZone: "UTC", NodeID: fmt.Sprintf("wendle-cross-%02d", i+1), Site: "Harrowby Lane"})
+		st.Append(&record.Session{At: start, TimeZone: "UTC", NodeID: fmt.Sprintf("wendle-cross-%02d", i+1), Site: "Harrowby Lane"})
 		for m := range 60 {
-			st.Append(&buffer.Minute{Start: start.Add(time.Duration(m) * time.Minute), LAeq: level, ValidSeconds: 60, ValidDuration: time.Minute})
+			st.Append(&record.Minute{Start: start.Add(time.Duration(m) * time.Minute), LAeq: level, ValidSeconds: 60, ValidDuration: time.Minute})
 		}
 		st.Close()
 		stores = append(stores, path)

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node"
@@ -105,7 +106,7 @@ func runFleetNode(t *testing.T, dir string, s fleetSpec) string {
 	n, err := node.New(node.Options{
 		Source: src, Store: st, SensitivityDBFS: -26, Bands: dsp.Third, SecondSpectra: true, Lossless: true, SampleTimed: true, SampleOrigin: fleetStart,
 		Settling: 2 * time.Second, Events: &dsp.EventConfig{Threshold: 70, Hysteresis: 3, MaxDuration: 60},
-		Session: buffer.Session{SoftwareVersion: "test", TimeZone: "UTC", NodeID: s.id, Site: s.site, Latitude: s.lat, Longitude: s.lon},
+		Session: record.Session{SoftwareVersion: "test", TimeZone: "UTC", NodeID: s.id, Site: s.site, Latitude: s.lat, Longitude: s.lon},
 		Logger:  slog.New(slog.DiscardHandler),
 	})
 	if err != nil {
@@ -136,17 +137,17 @@ func fleetStores(t *testing.T) []string {
 // countedSeconds returns a store's second records that the validity rule counts, the rule
 // applied by hand (README, "Which seconds count"): flagged calibrating, settling, excluded,
 // suspect or dropped, or without a level, are left out.
-func countedSeconds(t *testing.T, path string, from, to time.Time) []*buffer.Second {
+func countedSeconds(t *testing.T, path string, from, to time.Time) []*record.Second {
 	t.Helper()
 	st, err := buffer.OpenReadOnly(path, time.Second)
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer st.Close()
-	var out []*buffer.Second
-	leftOut := buffer.Calibrating | buffer.Settling | buffer.Excluded | buffer.Suspect | buffer.Dropped | buffer.DigitalSilence
-	err = st.Range(buffer.KindSecond, from, to, func(r buffer.Record) error {
-		s := r.(*buffer.Second)
+	var out []*record.Second
+	leftOut := record.Calibrating | record.Settling | record.Excluded | record.Suspect | record.Dropped | record.DigitalSilence
+	err = st.Range(record.KindSecond, from, to, func(r record.Record) error {
+		s := r.(*record.Second)
 		if s.Flags&leftOut == 0 && !math.IsNaN(s.LAeq) {
 			out = append(out, s)
 		}

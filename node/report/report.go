@@ -30,7 +30,7 @@ import (
 	"fmt"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/report/indicator"
 )
@@ -50,7 +50,7 @@ type Config struct {
 // records (the collector's database, package fleetdb). Range calls fn for each record of kind k
 // whose time lies in [from, to), in time order.
 type Records interface {
-	Range(k buffer.Kind, from, to time.Time, fn func(buffer.Record) error) error
+	Range(k record.Kind, from, to time.Time, fn func(record.Record) error) error
 }
 
 // Compute reads the records of [cfg.From, cfg.To) from st and computes the indicators.
@@ -75,22 +75,22 @@ func Compute(ctx context.Context, st Records, cfg Config) (*indicator.Result, er
 		return nil
 	}
 	steps := []struct {
-		kind     buffer.Kind
+		kind     record.Kind
 		from, to time.Time
-		add      func(buffer.Record)
+		add      func(record.Record)
 	}{
-		{buffer.KindSecond, cfg.From, cfg.To, func(r buffer.Record) { b.AddSecond(r.(*buffer.Second)) }},
-		{buffer.KindMinute, cfg.From, cfg.To, func(r buffer.Record) { b.AddMinute(r.(*buffer.Minute)) }},
-		{buffer.KindEvent, cfg.From, cfg.To, func(r buffer.Record) { b.AddEvent(r.(*buffer.Event)) }},
+		{record.KindSecond, cfg.From, cfg.To, func(r record.Record) { b.AddSecond(r.(*record.Second)) }},
+		{record.KindMinute, cfg.From, cfg.To, func(r record.Record) { b.AddMinute(r.(*record.Minute)) }},
+		{record.KindEvent, cfg.From, cfg.To, func(r record.Record) { b.AddEvent(r.(*record.Event)) }},
 		// A gap that began before the range may reach into it: read gaps from the start.
-		{buffer.KindGap, time.Unix(0, 0), cfg.To, func(r buffer.Record) { b.AddGap(r.(*buffer.Gap)) }},
-		{buffer.KindCalibration, cfg.From, cfg.To, func(r buffer.Record) { b.AddCalibration(r.(*buffer.Calibration)) }},
+		{record.KindGap, time.Unix(0, 0), cfg.To, func(r record.Record) { b.AddGap(r.(*record.Gap)) }},
+		{record.KindCalibration, cfg.From, cfg.To, func(r record.Record) { b.AddCalibration(r.(*record.Calibration)) }},
 	}
 	for _, s := range steps {
-		if s.kind == buffer.KindSecond && cfg.skipSeconds {
+		if s.kind == record.KindSecond && cfg.skipSeconds {
 			continue
 		}
-		err := st.Range(s.kind, s.from, s.to, func(r buffer.Record) error {
+		err := st.Range(s.kind, s.from, s.to, func(r record.Record) error {
 			s.add(r)
 			return check()
 		})

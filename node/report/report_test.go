@@ -46,12 +46,12 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 	tb.Helper()
 	end := start.Add(time.Duration(days) * 24 * time.Hour)
 	st, add := fillStore(tb, path, end)
-	add(&buffer.Session{At: start, SoftwareVersion: "test", SensitivityDBFS: -26, SampleRate: 48000, Device: "test", TimeZone: "UTC"})
+	add(&record.Session{At: start, SoftwareVersion: "test", SensitivityDBFS: -26, SampleRate: 48000, Device: "test", TimeZone: "UTC"})
 	// A gap on the first day from 03:00 to 04:00 and a calibration check at 10:00-10:02.
 	gapFrom, gapTo := start.Add(3*time.Hour), start.Add(4*time.Hour)
 	calFrom, calTo := start.Add(10*time.Hour), start.Add(10*time.Hour+2*time.Minute)
-	add(&buffer.Gap{From: gapFrom, To: gapTo, Reason: "power cut"})
-	add(&buffer.Calibration{At: calTo, Reference: 94, Measured: 94.1, Deviation: 0.1, Frequency: 1000, Stability: 0.02,
+	add(&record.Gap{From: gapFrom, To: gapTo, Reason: "power cut"})
+	add(&record.Calibration{At: calTo, Reference: 94, Measured: 94.1, Deviation: 0.1, Frequency: 1000, Stability: 0.02,
 		SensitivityBefore: -26, SensitivityAfter: -26.1, Applied: true, OK: true})
 	offsets := [10]float64{-3, -2, -1.5, -1, -0.5, 0, 0.5, 1, 2, 4}
 	spec := make([]float64, 31) // bands -17 (20 Hz) to 13 (20 kHz)
@@ -61,16 +61,16 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 		}
 		l := hourLevel(m.Hour())
 		var h dsp.Histogram
-		var flags buffer.Flags
+		var flags record.Flags
 		for s := range 60 {
 			t := m.Add(time.Duration(s) * time.Second)
-			f := buffer.Flags(0)
+			f := record.Flags(0)
 			ls := l
 			if !t.Before(calFrom) && t.Before(calTo) {
-				f, ls = buffer.Calibrating, 94
+				f, ls = record.Calibrating, 94
 			}
 			flags |= f
-			add(&buffer.Second{Start: t, Duration: time.Second, LAeq: ls, LCeq: ls + 6, LZeq: ls + 8, LAFmax: ls + 4, LAFmin: ls - 3,
+			add(&record.Second{Start: t, Duration: time.Second, LAeq: ls, LCeq: ls + 6, LZeq: ls + 8, LAFmax: ls + 4, LAFmin: ls - 3,
 				LASmax: ls + 2, LASmin: ls - 2, LAImax: ls + 5, LCpeak: ls + 20, LZpeak: ls + 21, LAE: ls, Flags: f})
 			for _, o := range offsets {
 				h.Add(ls + o)
@@ -85,14 +85,14 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 		if flags != 0 {
 			valid = 0
 		}
-		add(&buffer.Minute{Start: m, LAeq: l, LCeq: l + 6, LZeq: l + 8, LAFmax: l + 4, LAFmin: l - 3, LAF10: h.Exceeded(10), LAF90: h.Exceeded(90),
+		add(&record.Minute{Start: m, LAeq: l, LCeq: l + 6, LZeq: l + 8, LAFmax: l + 4, LAFmin: l - 3, LAF10: h.Exceeded(10), LAF90: h.Exceeded(90),
 			LAImax: l + 5.5, LAE: l + 17.8, LCpeak: l + 20, Spectrum: append([]float64(nil), spec...), FirstBand: -17,
-			Histogram: buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}, ValidSeconds: valid, Flags: flags})
+			Histogram: record.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}, ValidSeconds: valid, Flags: flags})
 	}
 	for d := range days {
 		for _, hh := range []float64{8.5, 17.25, 23.5} {
 			s := start.Add(time.Duration(d)*24*time.Hour + time.Duration(hh*float64(time.Hour)))
-			add(&buffer.Event{Start: s, End: s.Add(6 * time.Second), LAFmax: 80, LAeq: 75, LAE: 75 + 10*math.Log10(6), LCpeak: 98})
+			add(&record.Event{Start: s, End: s.Add(6 * time.Second), LAFmax: 80, LAeq: 75, LAE: 75 + 10*math.Log10(6), LCpeak: 98})
 		}
 	}
 	if err := st.Close(); err != nil {
@@ -102,13 +102,13 @@ func testStore(tb testing.TB, path string, start time.Time, days int) {
 
 // fillStore opens a new store for filling fast (one commit an hour, no sync) whose clock reads
 // end, and returns it with a function that appends a record or fails tb.
-func fillStore(tb testing.TB, path string, end time.Time) (*buffer.Store, func(buffer.Record)) {
+func fillStore(tb testing.TB, path string, end time.Time) (*buffer.Store, func(record.Record)) {
 	tb.Helper()
 	st, err := buffer.Open(path, &buffer.Options{Now: func() time.Time { return end }, NoSync: true, CommitInterval: time.Hour, MaxHeld: 1 << 16})
 	if err != nil {
 		tb.Fatal(err)
 	}
-	return st, func(r buffer.Record) {
+	return st, func(r record.Record) {
 		if _, err := st.Append(r); err != nil {
 			tb.Fatal(err)
 		}
@@ -156,7 +156,7 @@ func TestReportFromStore(t *testing.T) {
 		t.Errorf("day: LAeq %.3f, %d events", day.LAeq, day.Events)
 	}
 	// The calibrating two minutes are left out and counted; they are no missing data.
-	if day.Coverage.LeftOut[record.Calibration] != 120 || day.Coverage.Valid != 12*3600-120 {
+	if day.Coverage.LeftOut[record.ReasonCalibrating] != 120 || day.Coverage.Valid != 12*3600-120 {
 		t.Errorf("day coverage %+v", day.Coverage)
 	}
 	// The first reporting day's night (May 31 23:00 - June 1 07:00, inside the range from 00:00)

@@ -4,13 +4,13 @@ import (
 	"sort"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Sighting is one node's event within a happening.
 type Sighting struct {
 	Node  int           // index of the node (into the slices given to Simultaneous)
-	Event *buffer.Event // the node's event
+	Event *record.Event // the node's event
 	Delay time.Duration // its start after the happening's first start
 }
 
@@ -27,10 +27,10 @@ type Happening struct {
 // The window is measured from the happening's first start, not chained from event to event, so
 // a busy street does not merge into one endless happening. Only happenings that two or more
 // nodes saw are returned, ordered by start.
-func Simultaneous(events [][]*buffer.Event, window time.Duration) []Happening {
+func Simultaneous(events [][]*record.Event, window time.Duration) []Happening {
 	type ev struct {
 		node int
-		e    *buffer.Event
+		e    *record.Event
 	}
 	var all []ev
 	for i, es := range events {

@@ -5,14 +5,14 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 func TestSimultaneous(t *testing.T) {
 	t0 := time.Date(2026, 6, 1, 8, 0, 0, 0, time.UTC)
-	ev := func(s float64) *buffer.Event {
+	ev := func(s float64) *record.Event {
 		at := t0.Add(time.Duration(s * float64(time.Second)))
-		return &buffer.Event{Start: at, End: at.Add(3 * time.Second), LAFmax: 80, LAE: 85}
+		return &record.Event{Start: at, End: at.Add(3 * time.Second), LAFmax: 80, LAE: 85}
 	}
 	type seen struct {
 		node  int
@@ -20,19 +20,19 @@ func TestSimultaneous(t *testing.T) {
 	}
 	tests := []struct {
 		name   string
-		events [][]*buffer.Event
+		events [][]*record.Event
 		want   [][]seen
 	}{
-		{"one node only", [][]*buffer.Event{{ev(0), ev(1)}, {}}, nil},
-		{"order by start, not by node", [][]*buffer.Event{{ev(4)}, {ev(0)}, {ev(2.5)}}, [][]seen{{{1, 0}, {2, 2.5}, {0, 4}}}},
-		{"the window's edge belongs in", [][]*buffer.Event{{ev(0)}, {ev(5)}}, [][]seen{{{0, 0}, {1, 5}}}},
-		{"just outside stays apart", [][]*buffer.Event{{ev(0)}, {ev(5.001)}}, nil},
+		{"one node only", [][]*record.Event{{ev(0), ev(1)}, {}}, nil},
+		{"order by start, not by node", [][]*record.Event{{ev(4)}, {ev(0)}, {ev(2.5)}}, [][]seen{{{1, 0}, {2, 2.5}, {0, 4}}}},
+		{"the window's edge belongs in", [][]*record.Event{{ev(0)}, {ev(5)}}, [][]seen{{{0, 0}, {1, 5}}}},
+		{"just outside stays apart", [][]*record.Event{{ev(0)}, {ev(5.001)}}, nil},
 		// The window runs from the first start, not from event to event: 0, 4 and 8 s make one
 		// happening of two nodes; the third node's event is left alone.
-		{"no chaining", [][]*buffer.Event{{ev(0)}, {ev(4)}, {ev(8)}}, [][]seen{{{0, 0}, {1, 4}}}},
+		{"no chaining", [][]*record.Event{{ev(0)}, {ev(4)}, {ev(8)}}, [][]seen{{{0, 0}, {1, 4}}}},
 		// A node's second event in the window is not a second sighting: it may open the next.
-		{"one sighting per node", [][]*buffer.Event{{ev(0), ev(1)}, {ev(2)}, {ev(3)}}, [][]seen{{{0, 0}, {1, 2}, {2, 3}}}},
-		{"two happenings", [][]*buffer.Event{{ev(0), ev(60)}, {ev(1), ev(62)}}, [][]seen{{{0, 0}, {1, 1}}, {{0, 0}, {1, 2}}}},
+		{"one sighting per node", [][]*record.Event{{ev(0), ev(1)}, {ev(2)}, {ev(3)}}, [][]seen{{{0, 0}, {1, 2}, {2, 3}}}},
+		{"two happenings", [][]*record.Event{{ev(0), ev(60)}, {ev(1), ev(62)}}, [][]seen{{{0, 0}, {1, 1}}, {{0, 0}, {1, 2}}}},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {

@@ -14,7 +14,6 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/report/indicator"
@@ -158,7 +157,7 @@ func HourlyCSV(r *indicator.Result) []byte {
 	var buf bytes.Buffer
 	w := csv.NewWriter(&buf)
 	head := []string{"from", "LAeq", "LAeq_bound", "valid_s", "overload_s", "under_range_s"}
-	for why := record.Calibration; why < record.NumReasons; why++ {
+	for why := record.ReasonCalibrating; why < record.NumReasons; why++ {
 		head = append(head, why.String()+"_s")
 	}
 	w.Write(append(head, "gap_s", "missing_s", "coverage_pct", "low_coverage"))
@@ -166,7 +165,7 @@ func HourlyCSV(r *indicator.Result) []byte {
 	for _, h := range r.Hours {
 		c := h.Coverage
 		row := []string{h.From.In(r.Location).Format(time.RFC3339), num(h.LAeq), c.Bound().String(), f(c.Valid), f(c.Overload), f(c.UnderRange)}
-		for why := record.Calibration; why < record.NumReasons; why++ {
+		for why := record.ReasonCalibrating; why < record.NumReasons; why++ {
 			row = append(row, f(c.LeftOut[why]))
 		}
 		w.Write(append(row, f(c.Gap), f(c.Missing), pct(c.Share), strconv.FormatBool(c.Low)))
@@ -259,7 +258,7 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 	lt := func(t time.Time) string { return t.In(loc).Format("2006-01-02 15:04") }
 	pg := page{R: r, Meta: meta, From: lt(r.From), To: lt(r.To), Cov: r.Coverage, Comp: r.Profile.Composite,
 		Step: fmt.Sprintf("%g ms", dsp.PercentileStep*1000), Adjust: r.Options.Adjust, CompAll: num(r.Composite)}
-	for why := record.Calibration; why < record.NumReasons; why++ {
+	for why := record.ReasonCalibrating; why < record.NumReasons; why++ {
 		pg.LeftOut = append(pg.LeftOut, strings.ReplaceAll(why.String(), "_", " ")+" "+(time.Duration(r.Coverage.LeftOut[why])*time.Second).String())
 	}
 	if r.Zone != nil {
@@ -329,7 +328,7 @@ func HTML(r *indicator.Result, meta Meta) ([]byte, error) {
 	for _, g := range r.Gaps {
 		pg.Gaps = append(pg.Gaps, gapRow{From: lt(g.From), To: lt(g.To), Length: g.To.Sub(g.From).Round(time.Second).String(), Reason: g.Reason})
 	}
-	evs := append([]*buffer.Event(nil), r.Events...)
+	evs := append([]*record.Event(nil), r.Events...)
 	sort.SliceStable(evs, func(i, j int) bool { return evs[i].LAE > evs[j].LAE })
 	pg.NEvents = len(evs)
 	for _, e := range evs[:min(len(evs), loudestEvents)] {

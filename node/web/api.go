@@ -13,7 +13,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp/reference"
 	"github.com/leqnode/leqnode/node/strict"
 )
@@ -107,7 +107,7 @@ func (s *Server) status() Status {
 		if stats, err := s.o.Store.Stats(); err == nil {
 			ss := &StoreStatus{Path: stats.Path, FileBytes: stats.FileBytes, UsedBytes: stats.UsedBytes,
 				MaxBytes: stats.MaxBytes, Held: stats.Held, Records: map[string]uint64{}, Recovered: stats.Recovered,
-				OldestSecond: stats.Kinds[buffer.KindSecond].Oldest}
+				OldestSecond: stats.Kinds[record.KindSecond].Oldest}
 			for k, ks := range stats.Kinds {
 				ss.Records[k.String()] = ks.Count
 			}
@@ -117,8 +117,8 @@ func (s *Server) status() Status {
 		}
 	}
 	if st.SampleRate == 0 || st.Version == "" || st.TimeZone == "" || st.Source == "" || st.Calibration == nil {
-		if r, err := s.o.Store.Last(buffer.KindSession); err == nil && r != nil {
-			sess := r.(*buffer.Session)
+		if r, err := s.o.Store.Last(record.KindSession); err == nil && r != nil {
+			sess := r.(*record.Session)
 			st.SampleRate = cmp.Or(st.SampleRate, sess.SampleRate)
 			st.Version = cmp.Or(st.Version, sess.SoftwareVersion)
 			st.TimeZone = cmp.Or(st.TimeZone, sess.TimeZone)
@@ -138,16 +138,16 @@ func (s *Server) status() Status {
 }
 
 // lastHealth returns the latest health snapshot, or nil.
-func (s *Server) lastHealth() *buffer.Health {
+func (s *Server) lastHealth() *record.Health {
 	if s.o.Store == nil {
 		return nil
 	}
-	r, err := s.o.Store.Last(buffer.KindHealth)
+	r, err := s.o.Store.Last(record.KindHealth)
 	if err != nil {
 		s.log.Warn("status page: reading the latest health record", "err", err)
 		return nil
 	}
-	h, _ := r.(*buffer.Health)
+	h, _ := r.(*record.Health)
 	return h
 }
 
@@ -165,7 +165,7 @@ type secondJSON struct {
 	Flags  []string `json:"flags"`
 }
 
-func secondOf(r *buffer.Second) secondJSON {
+func secondOf(r *record.Second) secondJSON {
 	return secondJSON{Start: stamp(r.Start), LAeq: level(r.LAeq), LAFmax: level(r.LAFmax),
 		LAFmin: level(r.LAFmin), LCpeak: level(r.LCpeak), Flags: r.Flags.Names()}
 }
@@ -205,8 +205,8 @@ func (s *Server) apiSeconds(w http.ResponseWriter, r *http.Request) {
 	}{From: stamp(from), To: stamp(now), Seconds: []secondJSON{}}
 	if s.o.Store != nil {
 		// Store.Range copies each record out of a short read transaction before calling back.
-		err = s.o.Store.Range(buffer.KindSecond, from, now.Add(time.Minute), func(rec buffer.Record) error {
-			out.Seconds = append(out.Seconds, secondOf(rec.(*buffer.Second)))
+		err = s.o.Store.Range(record.KindSecond, from, now.Add(time.Minute), func(rec record.Record) error {
+			out.Seconds = append(out.Seconds, secondOf(rec.(*record.Second)))
 			return nil
 		})
 		if err != nil {
@@ -247,20 +247,20 @@ func (s *Server) latestSpectrum() (spectrumJSON, error) {
 		}
 		return b
 	}
-	rs, err := s.o.Store.Last(buffer.KindSecond)
+	rs, err := s.o.Store.Last(record.KindSecond)
 	if err != nil {
 		return out, err
 	}
-	if sec, ok := rs.(*buffer.Second); ok && len(sec.Spectrum) > 0 {
+	if sec, ok := rs.(*record.Second); ok && len(sec.Spectrum) > 0 {
 		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "second", stamp(sec.Start), level(sec.LAeq), level(sec.LZeq), sec.Flags.Names()
 		out.Bands = bands(sec.FirstBand, sec.Spectrum)
 		return out, nil
 	}
-	rm, err := s.o.Store.Last(buffer.KindMinute)
+	rm, err := s.o.Store.Last(record.KindMinute)
 	if err != nil {
 		return out, err
 	}
-	if m, ok := rm.(*buffer.Minute); ok && len(m.Spectrum) > 0 {
+	if m, ok := rm.(*record.Minute); ok && len(m.Spectrum) > 0 {
 		out.Record, out.Start, out.LAeq, out.LZeq, out.Flags = "minute", stamp(m.Start), level(m.LAeq), level(m.LZeq), m.Flags.Names()
 		out.Bands = bands(m.FirstBand, m.Spectrum)
 	}
@@ -295,14 +295,14 @@ type calibrationJSON struct {
 const maxCalibrations = 100
 
 // calibrations returns the stored checks of the last five years, newest first.
-func (s *Server) calibrations() ([]*buffer.Calibration, error) {
-	var out []*buffer.Calibration
+func (s *Server) calibrations() ([]*record.Calibration, error) {
+	var out []*record.Calibration
 	if s.o.Store == nil {
 		return out, nil
 	}
 	now := s.o.Now()
-	err := s.o.Store.Range(buffer.KindCalibration, now.AddDate(-5, 0, 0), now.Add(24*time.Hour), func(rec buffer.Record) error {
-		out = append(out, rec.(*buffer.Calibration))
+	err := s.o.Store.Range(record.KindCalibration, now.AddDate(-5, 0, 0), now.Add(24*time.Hour), func(rec record.Record) error {
+		out = append(out, rec.(*record.Calibration))
 		return nil
 	})
 	slices.Reverse(out)
@@ -355,13 +355,13 @@ type hourSummary struct {
 func (s *Server) summarizeHour(now time.Time, started time.Time) (hourSummary, error) {
 	h := hourSummary{Flagged: map[string]int{}}
 	from := now.Add(-time.Hour)
-	for f := buffer.Flags(1); f != 0 && f <= buffer.Excluded; f <<= 1 {
+	for f := record.Flags(1); f != 0 && f <= record.Excluded; f <<= 1 {
 		h.Flagged[f.String()] = 0
 	}
 	var first time.Time
 	if s.o.Store != nil {
-		err := s.o.Store.Range(buffer.KindSecond, from, now, func(rec buffer.Record) error {
-			sec := rec.(*buffer.Second)
+		err := s.o.Store.Range(record.KindSecond, from, now, func(rec record.Record) error {
+			sec := rec.(*record.Second)
 			if h.Seconds == 0 {
 				first = sec.Start
 			}
@@ -370,7 +370,7 @@ func (s *Server) summarizeHour(now time.Time, started time.Time) (hourSummary, e
 			if math.IsNaN(sec.LAeq) {
 				h.Silent++
 			}
-			for f := buffer.Flags(1); f != 0 && f <= buffer.Excluded; f <<= 1 {
+			for f := record.Flags(1); f != 0 && f <= record.Excluded; f <<= 1 {
 				if sec.Flags.Has(f) {
 					h.Flagged[f.String()]++
 				}
@@ -449,8 +449,8 @@ func (s *Server) apiHealth(w http.ResponseWriter, r *http.Request) {
 		}
 	}
 	if s.o.Store != nil {
-		err := s.o.Store.Range(buffer.KindGap, st.Now.Add(-24*time.Hour), st.Now.Add(time.Minute), func(rec buffer.Record) error {
-			g := rec.(*buffer.Gap)
+		err := s.o.Store.Range(record.KindGap, st.Now.Add(-24*time.Hour), st.Now.Add(time.Minute), func(rec record.Record) error {
+			g := rec.(*record.Gap)
 			out.Gaps = append(out.Gaps, gapJSON{From: stamp(g.From), To: stamp(g.To),
 				Length: math.Round(g.To.Sub(g.From).Seconds()*1000) / 1000, Reason: g.Reason})
 			return nil

@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/dsp/selftest"
 	"github.com/leqnode/leqnode/node"
@@ -34,7 +35,7 @@ func ExampleNew() {
 	}
 	defer st.Close()
 	now := time.Now().Truncate(time.Second)
-	st.Append(&buffer.Second{Start: now.Add(-time.Second), Duration: time.Second, LAeq: 58.37, LAFmax: 61.2, LAFmin: 55.9})
+	st.Append(&record.Second{Start: now.Add(-time.Second), Duration: time.Second, LAeq: 58.37, LAFmax: 61.2, LAFmin: 55.9})
 
 	srv, err := web.New(web.Options{
 		Store: st,

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // testNow is the fixed "now" of the history tests: an invented evening on Harrowby Lane.
@@ -23,8 +24,8 @@ func testNow() time.Time { return time.Date(2026, 3, 14, 18, 30, 0, 0, time.UTC)
 // history tests store records of a fixed date in the past.
 func openStore(t testing.TB) *buffer.Store {
 	t.Helper()
-	keep := map[buffer.Kind]time.Duration{}
-	for _, k := range buffer.Kinds() {
+	keep := map[record.Kind]time.Duration{}
+	for _, k := range record.Kinds() {
 		keep[k] = -1
 	}
 	st, err := buffer.Open(filepath.Join(t.TempDir(), "node.db"), &buffer.Options{CommitInterval: time.Hour, Retention: keep})
@@ -58,15 +59,15 @@ func fillHistory(t testing.TB, st *buffer.Store, now time.Time, spectra bool) hi
 	for i := 0; i < 50*60; i++ {
 		ts := start.Add(time.Duration(i) * time.Second)
 		leq := 56 + 7*math.Sin(float64(i)/90) + 3*math.Sin(float64(i)/7)
-		sec := &buffer.Second{Start: ts, Duration: time.Second, LAeq: leq, LCeq: leq + 4, LZeq: leq + 7,
+		sec := &record.Second{Start: ts, Duration: time.Second, LAeq: leq, LCeq: leq + 4, LZeq: leq + 7,
 			LAFmax: leq + 4, LAFmin: leq - 3, LASmax: leq + 2, LASmin: leq - 2, LAImax: leq + 5,
 			LCpeak: leq + 20, LZpeak: leq + 22, LAE: leq}
 		if i%500 == 7 {
-			sec.Flags |= buffer.Clipped | buffer.Overload
+			sec.Flags |= record.Clipped | record.Overload
 			h.clipped++
 		}
 		if i%700 == 11 {
-			sec.Flags |= buffer.Dropped
+			sec.Flags |= record.Dropped
 			sec.DroppedSamples = 4800
 			h.dropped++
 		}
@@ -83,7 +84,7 @@ func fillHistory(t testing.TB, st *buffer.Store, now time.Time, spectra bool) hi
 		h.last, h.lastLAeq = ts, math.Round(leq*100)/100
 	}
 	for m := 0; m < 50; m++ {
-		mr := &buffer.Minute{Start: start.Add(time.Duration(m) * time.Minute), LAeq: 57, LCeq: 61, LZeq: 64,
+		mr := &record.Minute{Start: start.Add(time.Duration(m) * time.Minute), LAeq: 57, LCeq: 61, LZeq: 64,
 			LAFmax: 70, LAFmin: 48, LAF1: 68, LAF5: 65, LAF10: 63, LAF50: 56, LAF90: 50, LAF95: 49, LAF99: 48,
 			LAE: 74.8, LCpeak: 90, LAImax: 72, ValidSeconds: 60, FirstBand: h.firstBand}
 		for b := 0; b < h.bands; b++ {
@@ -95,19 +96,19 @@ func fillHistory(t testing.TB, st *buffer.Store, now time.Time, spectra bool) hi
 	}
 	for i, dev := range []float64{0.12, -0.05, 0.31} {
 		at := now.AddDate(0, 0, -60+25*i)
-		c := &buffer.Calibration{At: at, Reference: 94, Measured: 94 + dev, Deviation: dev, Frequency: 1000,
+		c := &record.Calibration{At: at, Reference: 94, Measured: 94 + dev, Deviation: dev, Frequency: 1000,
 			Stability: 0.02, SensitivityBefore: -38, SensitivityAfter: -38 - dev, Applied: true, OK: true}
 		if _, err := st.Append(c); err != nil {
 			t.Fatal(err)
 		}
 		h.calibration = append(h.calibration, dev)
 	}
-	health := &buffer.Health{At: now.Add(-30 * time.Second), Clipped: 12, DCOffset: 0.001, CPU: 9, MemoryMB: 31,
+	health := &record.Health{At: now.Add(-30 * time.Second), Clipped: 12, DCOffset: 0.001, CPU: 9, MemoryMB: 31,
 		DiskFreeMB: 5200, StoreBytes: 1 << 20, ClockSynced: true, ClockErrorMs: 2.5, TemperatureC: 47}
 	if _, err := st.Append(health); err != nil {
 		t.Fatal(err)
 	}
-	gap := &buffer.Gap{From: now.Add(-55 * time.Minute), To: now.Add(-50 * time.Minute), Reason: "device lost"}
+	gap := &record.Gap{From: now.Add(-55 * time.Minute), To: now.Add(-50 * time.Minute), Reason: "device lost"}
 	if _, err := st.Append(gap); err != nil {
 		t.Fatal(err)
 	}

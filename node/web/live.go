@@ -8,7 +8,7 @@ import (
 	"strconv"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // liveJSON is the data of a "level" event.
@@ -71,7 +71,7 @@ func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
 	buf.WriteString("retry: 2000\n\n")
 	var lastSeq uint64
 	if s.o.Store != nil {
-		lastSeq = s.o.Store.LastSeq(buffer.KindSecond)
+		lastSeq = s.o.Store.LastSeq(record.KindSecond)
 	}
 	tick := time.NewTicker(s.o.LiveInterval)
 	defer tick.Stop()
@@ -81,15 +81,15 @@ func (s *Server) apiLive(w http.ResponseWriter, r *http.Request) {
 			event("level", liveJSON{Time: stamp(l.At), LAF: level(l.LAF)})
 		}
 		if s.o.Store != nil {
-			if seq := s.o.Store.LastSeq(buffer.KindSecond); seq > lastSeq {
+			if seq := s.o.Store.LastSeq(record.KindSecond); seq > lastSeq {
 				// Every second stored since the last tick, in order (held ones included), so
 				// the page's chart misses none; after a long stall only the latest 64.
-				recs, err := s.o.Store.Recent(buffer.KindSecond, max(lastSeq, seq-64), 64)
+				recs, err := s.o.Store.Recent(record.KindSecond, max(lastSeq, seq-64), 64)
 				if err != nil {
 					s.log.Warn("live stream: reading new second records", "err", err)
 				}
 				for _, rec := range recs {
-					event("second", secondOf(rec.(*buffer.Second)))
+					event("second", secondOf(rec.(*record.Second)))
 				}
 				lastSeq = seq
 			} else if seq < lastSeq {

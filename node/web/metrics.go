@@ -9,7 +9,6 @@ import (
 	"github.com/prometheus/client_golang/prometheus/collectors"
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 )
 
@@ -211,13 +210,13 @@ func (c *nodeCollector) Collect(ch chan<- prometheus.Metric) {
 		gauge(d.descStoreFile, float64(ss.FileBytes))
 		gauge(d.descStoreUsed, float64(ss.UsedBytes))
 		gauge(d.descStoreMax, float64(ss.MaxBytes))
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			gauge(d.descStoreRecords, float64(ss.Records[k.String()]), k.String())
 		}
 	}
 	if m := st.MQTT; m != nil {
 		gauge(d.descMQTTConnected, boolValue(m.Connected))
-		for _, k := range buffer.Kinds() {
+		for _, k := range record.Kinds() {
 			gauge(d.descMQTTBacklog, float64(m.PendingKind[k.String()]), k.String())
 		}
 		if !m.LastPublish.IsZero() {
@@ -239,28 +238,28 @@ func (c *nodeCollector) Collect(ch chan<- prometheus.Metric) {
 	// the record (package record): "counted" or the reason it is left out of every aggregate,
 	// and which way it may be off, so that a calibrator tone never reads as a street level.
 	for _, k := range []struct {
-		kind     buffer.Kind
+		kind     record.Kind
 		interval string
-	}{{buffer.KindSecond, "1s"}, {buffer.KindMinute, "1min"}} {
+	}{{record.KindSecond, "1s"}, {record.KindMinute, "1min"}} {
 		r, err := s.o.Store.Last(k.kind)
 		if err != nil || r == nil {
 			continue
 		}
 		validity, bound := record.Counted.String(), record.Exact.String()
 		switch v := r.(type) {
-		case *buffer.Second:
+		case *record.Second:
 			validity = record.Judge(v.Flags, v.LAeq).String()
 			t := record.Tally{}
 			t.Add(v.Flags, v.LAeq, 1)
 			bound = t.Bound().String()
-		case *buffer.Minute:
+		case *record.Minute:
 			if v.ValidSeconds == 0 {
 				validity = "no_valid_seconds"
 			}
 			bound = v.Tally().Bound().String()
 		}
-		for _, f := range buffer.Fields(k.kind) {
-			if f.Type == buffer.LevelField {
+		for _, f := range record.Fields(k.kind) {
+			if f.Type == record.LevelField {
 				gauge(d.descLevel, f.Value(r).(float64), f.Name, k.interval, validity, bound)
 			}
 		}
@@ -274,8 +273,8 @@ func (c *nodeCollector) Collect(ch chan<- prometheus.Metric) {
 	} else {
 		s.log.Warn("metrics: reading the last hour", "err", err)
 	}
-	if r, err := s.o.Store.Last(buffer.KindCalibration); err == nil && r != nil {
-		cal := r.(*buffer.Calibration)
+	if r, err := s.o.Store.Last(record.KindCalibration); err == nil && r != nil {
+		cal := r.(*record.Calibration)
 		gauge(d.descCalDeviation, cal.Deviation)
 		gauge(d.descCalTime, unix(cal.At))
 		gauge(d.descCalOK, boolValue(cal.OK))

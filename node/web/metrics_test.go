@@ -14,7 +14,7 @@ import (
 	"github.com/prometheus/common/expfmt"
 	"github.com/prometheus/common/model"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/web"
 )
 
@@ -90,7 +90,7 @@ func TestMetrics(t *testing.T) {
 		labels map[string]string
 		want   float64
 	}{
-		// Levels are stored with 0.01 dB resolution (buffer.Second).
+		// Levels are stored with 0.01 dB resolution (record.Second).
 		{"leqnode_level_db", map[string]string{"quantity": "LAeq", "interval": "1s"}, hist.lastLAeq},
 		{"leqnode_level_db", map[string]string{"quantity": "LAFmax", "interval": "1s"}, math.Round((hist.lastLAeq+4)*100) / 100},
 		{"leqnode_level_db", map[string]string{"quantity": "LAF90", "interval": "1min"}, 50},
@@ -193,10 +193,10 @@ func TestMetricsPrivateRegistry(t *testing.T) {
 func TestMetricsLevelValidity(t *testing.T) {
 	st := openStore(t)
 	at := testNow().Add(-2 * time.Minute).Truncate(time.Minute)
-	if _, err := st.Append(&buffer.Minute{Start: at, LAeq: 77.4, ValidSeconds: 60, OverloadSeconds: 1, Flags: buffer.Overload}); err != nil {
+	if _, err := st.Append(&record.Minute{Start: at, LAeq: 77.4, ValidSeconds: 60, OverloadSeconds: 1, Flags: record.Overload}); err != nil {
 		t.Fatal(err)
 	}
-	if _, err := st.Append(&buffer.Second{Start: at.Add(time.Minute), Duration: time.Second, LAeq: 94, Flags: buffer.Calibrating}); err != nil {
+	if _, err := st.Append(&record.Second{Start: at.Add(time.Minute), Duration: time.Second, LAeq: 94, Flags: record.Calibrating}); err != nil {
 		t.Fatal(err)
 	}
 	s := newServer(t, web.Options{Store: st, Status: func() web.Status { return web.Status{NodeID: "wc-harrowby-02"} }})

@@ -15,7 +15,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/web"
 )
 
@@ -69,7 +69,7 @@ func TestReadOnly(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, k := range buffer.Kinds() {
+	for _, k := range record.Kinds() {
 		if before.Kinds[k].Count != after.Kinds[k].Count || before.Kinds[k].LastSeq != after.Kinds[k].LastSeq {
 			t.Errorf("kind %s changed: %+v -> %+v", k, before.Kinds[k], after.Kinds[k])
 		}
@@ -514,7 +514,7 @@ func TestLive(t *testing.T) {
 		if levels == 3 && !appended {
 			appended = true
 			for i := range 3 { // three at once: each gets its own event
-				if _, err := st.Append(&buffer.Second{Start: time.Now().Truncate(time.Second).Add(time.Duration(i) * time.Second),
+				if _, err := st.Append(&record.Second{Start: time.Now().Truncate(time.Second).Add(time.Duration(i) * time.Second),
 					Duration: time.Second, LAeq: 70.5}); err != nil {
 					t.Fatal(err)
 				}
@@ -634,7 +634,7 @@ func TestCoverage(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			st := openStore(t)
 			for i := tc.stored; i > 0; i-- {
-				if _, err := st.Append(&buffer.Second{Start: now.Add(-time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50}); err != nil {
+				if _, err := st.Append(&record.Second{Start: now.Add(-time.Duration(i) * time.Second), Duration: time.Second, LAeq: 50}); err != nil {
 					t.Fatal(err)
 				}
 			}
@@ -661,7 +661,7 @@ func TestCoverage(t *testing.T) {
 // What the caller leaves out of Status comes from the latest session record where it can.
 func TestStatusFromSession(t *testing.T) {
 	st := openStore(t)
-	sess := &buffer.Session{At: testNow().Add(-time.Hour), SoftwareVersion: "leqnode v0.9.0", SensitivityDBFS: -37.5,
+	sess := &record.Session{At: testNow().Add(-time.Hour), SoftwareVersion: "leqnode v0.9.0", SensitivityDBFS: -37.5,
 		SampleRate: 48000, Device: "hw:CARD=Mic,DEV=0", TimeZone: "Europe/Berlin"}
 	if _, err := st.Append(sess); err != nil {
 		t.Fatal(err)

@@ -33,7 +33,6 @@ import (
 	"math"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
@@ -80,7 +79,7 @@ func (o Options) resolved() Options {
 
 // wholeMinute are the flags that, on a minute record, leave the whole minute out: they come
 // from an annotation covering the whole minute (or from a minute record of format 1).
-const wholeMinute = buffer.Calibrating | buffer.Suspect | buffer.Excluded
+const wholeMinute = record.Calibrating | record.Suspect | record.Excluded
 
 // Band numbers kept in spectra: one-third octaves -20 (10 Hz) to 13 (20 kHz).
 const (
@@ -129,9 +128,9 @@ type Builder struct {
 	bins    []minuteBin
 	hours   []time.Time // local hour starts
 	per     []*periodAcc
-	gaps    []*buffer.Gap
-	cals    []*buffer.Calibration
-	events  []*buffer.Event
+	gaps    []*record.Gap
+	cals    []*record.Calibration
+	events  []*record.Event
 	etab    []float64 // energies of centi-decibel levels, made on first use
 }
 
@@ -207,7 +206,7 @@ func (b *Builder) energy(l float64) float64 {
 }
 
 // AddSecond adds a second record.
-func (b *Builder) AddSecond(s *buffer.Second) {
+func (b *Builder) AddSecond(s *record.Second) {
 	m := b.bin(s.Start)
 	if m == nil {
 		return
@@ -223,7 +222,7 @@ func (b *Builder) AddSecond(s *buffer.Second) {
 }
 
 // AddMinute adds a minute record.
-func (b *Builder) AddMinute(r *buffer.Minute) {
+func (b *Builder) AddMinute(r *record.Minute) {
 	m := b.bin(r.Start)
 	if m == nil {
 		return
@@ -265,7 +264,7 @@ func (b *Builder) AddMinute(r *buffer.Minute) {
 }
 
 // AddEvent adds an event record; it counts in the period holding its start.
-func (b *Builder) AddEvent(e *buffer.Event) {
+func (b *Builder) AddEvent(e *record.Event) {
 	m := b.bin(e.Start)
 	if m == nil || m.period < 0 {
 		return
@@ -283,7 +282,7 @@ func (b *Builder) AddEvent(e *buffer.Event) {
 }
 
 // AddGap adds a gap record.
-func (b *Builder) AddGap(g *buffer.Gap) {
+func (b *Builder) AddGap(g *record.Gap) {
 	if g.To.After(b.from) && g.From.Before(b.to) {
 		cp := *g
 		b.gaps = append(b.gaps, &cp)
@@ -291,7 +290,7 @@ func (b *Builder) AddGap(g *buffer.Gap) {
 }
 
 // AddCalibration adds a calibration record.
-func (b *Builder) AddCalibration(c *buffer.Calibration) {
+func (b *Builder) AddCalibration(c *record.Calibration) {
 	cp := *c
 	b.cals = append(b.cals, &cp)
 }

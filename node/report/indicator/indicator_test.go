@@ -7,7 +7,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
@@ -66,10 +65,10 @@ func TestCompositeCheckValues(t *testing.T) {
 }
 
 // seconds adds second records from start for n seconds at the level lv(i) (LCeq = LAeq + 3).
-func seconds(b *Builder, start time.Time, n int, flags buffer.Flags, lv func(i int) float64) {
+func seconds(b *Builder, start time.Time, n int, flags record.Flags, lv func(i int) float64) {
 	for i := range n {
 		l := lv(i)
-		b.AddSecond(&buffer.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l + 3, Flags: flags})
+		b.AddSecond(&record.Second{Start: start.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l + 3, Flags: flags})
 	}
 }
 
@@ -218,8 +217,8 @@ func TestPercentilesFromMergedHistograms(t *testing.T) {
 			h.Add(l)
 		}
 		first, counts := h.Span()
-		b.AddMinute(&buffer.Minute{Start: day.Add(time.Duration(m) * time.Minute), LAeq: base, LAFmax: base + 20, LAImax: base + 21,
-			ValidSeconds: 60, Histogram: buffer.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}})
+		b.AddMinute(&record.Minute{Start: day.Add(time.Duration(m) * time.Minute), LAeq: base, LAFmax: base + 20, LAImax: base + 21,
+			ValidSeconds: 60, Histogram: record.LevelHistogram{First: first, Counts: append([]uint32(nil), counts...)}})
 	}
 	r := b.Result()
 	for per, lv := range raw {
@@ -245,7 +244,7 @@ func TestPercentilesFromMergedHistograms(t *testing.T) {
 	}
 	first, counts := h.Span()
 	b2 := NewBuilder(prof, nil, time.UTC, day, day.Add(time.Hour), Options{})
-	b2.AddMinute(&buffer.Minute{Start: day, LAeq: 60, ValidSeconds: 60, Histogram: buffer.LevelHistogram{First: first, Counts: counts}})
+	b2.AddMinute(&record.Minute{Start: day, LAeq: 60, ValidSeconds: 60, Histogram: record.LevelHistogram{First: first, Counts: counts}})
 	p2 := b2.Result().Periods[0]
 	near(t, "L10 check value", p2.LAF10, 70, 1e-9)
 	near(t, "L90 check value", p2.LAF90, 50, 1e-9)
@@ -258,14 +257,14 @@ func TestCoverage(t *testing.T) {
 	prof := profile(t, "ldn")
 	h := time.Date(2026, 6, 10, 12, 0, 0, 0, time.UTC)
 	b := NewBuilder(prof, nil, time.UTC, h, h.Add(time.Hour), Options{})
-	b.AddGap(&buffer.Gap{From: h, To: h.Add(10 * time.Minute), Reason: "power cut"})
-	seconds(b, h.Add(10*time.Minute), 300, buffer.Calibrating, func(int) float64 { return 94 })
-	seconds(b, h.Add(15*time.Minute), 300, buffer.Suspect, func(int) float64 { return 90 })
+	b.AddGap(&record.Gap{From: h, To: h.Add(10 * time.Minute), Reason: "power cut"})
+	seconds(b, h.Add(10*time.Minute), 300, record.Calibrating, func(int) float64 { return 94 })
+	seconds(b, h.Add(15*time.Minute), 300, record.Suspect, func(int) float64 { return 90 })
 	seconds(b, h.Add(20*time.Minute), 2400, 0, func(int) float64 { return 55 })
 	r := b.Result()
 	c := r.Hours[0].Coverage
 	want := Coverage{Length: 3600, Valid: 2400, Gap: 600, Missing: 600, Share: 2400.0 / 3600, Low: true}
-	want.LeftOut[record.Calibration], want.LeftOut[record.Doubtful] = 300, 300
+	want.LeftOut[record.ReasonCalibrating], want.LeftOut[record.ReasonSuspect] = 300, 300
 	if c != want {
 		t.Errorf("coverage %+v, want %+v", c, want)
 	}
@@ -285,11 +284,11 @@ func TestCoverage(t *testing.T) {
 	// Annotated minute records are left out of percentiles; a minute without seconds falls
 	// back to its minute record.
 	b3 := NewBuilder(prof, nil, time.UTC, h, h.Add(2*time.Minute), Options{})
-	b3.AddMinute(&buffer.Minute{Start: h, LAeq: 60, ValidSeconds: 45})
-	b3.AddMinute(&buffer.Minute{Start: h.Add(time.Minute), LAeq: 80, ValidSeconds: 60, Flags: buffer.Excluded})
+	b3.AddMinute(&record.Minute{Start: h, LAeq: 60, ValidSeconds: 45})
+	b3.AddMinute(&record.Minute{Start: h.Add(time.Minute), LAeq: 80, ValidSeconds: 60, Flags: record.Excluded})
 	r3 := b3.Result()
 	c3 := r3.Hours[0].Coverage
-	if c3.Valid != 45 || c3.LeftOut[record.ByUser] != 60 || c3.Missing != 3600-105 {
+	if c3.Valid != 45 || c3.LeftOut[record.ReasonExcluded] != 60 || c3.Missing != 3600-105 {
 		t.Errorf("fallback coverage %+v", c3)
 	}
 	near(t, "fallback LAeq", r3.Periods[0].LAeq, 60, 1e-9)
@@ -389,10 +388,10 @@ func TestEventsPerPeriod(t *testing.T) {
 	for _, ev := range []struct {
 		at    float64 // hours after midnight
 		lae   float64
-		flags buffer.Flags
-	}{{8, 80, 0}, {12, 85, 0}, {20, 78, 0}, {23.5, 90, 0}, {26, 70, buffer.Calibrating}} {
+		flags record.Flags
+	}{{8, 80, 0}, {12, 85, 0}, {20, 78, 0}, {23.5, 90, 0}, {26, 70, record.Calibrating}} {
 		s := day.Add(time.Duration(ev.at * float64(time.Hour)))
-		b.AddEvent(&buffer.Event{Start: s, End: s.Add(5 * time.Second), LAE: ev.lae, LAFmax: ev.lae - 5, Flags: ev.flags})
+		b.AddEvent(&record.Event{Start: s, End: s.Add(5 * time.Second), LAE: ev.lae, LAFmax: ev.lae - 5, Flags: ev.flags})
 	}
 	r := b.Result()
 	got := []int{r.Periods[0].Events, r.Periods[1].Events, r.Periods[2].Events}

@@ -6,7 +6,6 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/dsp"
@@ -172,9 +171,9 @@ type Result struct {
 	Tones     []TonalBand
 
 	Coverage     Coverage
-	Gaps         []*buffer.Gap
-	Calibrations []*buffer.Calibration
-	Events       []*buffer.Event
+	Gaps         []*record.Gap
+	Calibrations []*record.Calibration
+	Events       []*record.Event
 }
 
 // limit returns the zone's limit for key, or NaN.

@@ -5,7 +5,6 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 )
 
@@ -17,7 +16,7 @@ import (
 func TestOverloadKeptAsLowerBound(t *testing.T) {
 	h := time.Date(2026, 6, 10, 12, 0, 0, 0, time.UTC)
 	b := NewBuilder(profile(t, "ldn"), nil, time.UTC, h, h.Add(time.Hour), Options{})
-	seconds(b, h, 60, buffer.Overload, func(int) float64 { return 95 })
+	seconds(b, h, 60, record.Overload, func(int) float64 { return 95 })
 	seconds(b, h.Add(time.Minute), 3540, 0, func(int) float64 { return 63.3 })
 	r := b.Result()
 	want := 10 * math.Log10((60*math.Pow(10, 9.5)+3540*math.Pow(10, 6.33))/3600)
@@ -34,7 +33,7 @@ func TestOverloadKeptAsLowerBound(t *testing.T) {
 	}
 	// Under the measuring range: kept, an upper bound.
 	b2 := NewBuilder(profile(t, "ldn"), nil, time.UTC, h, h.Add(time.Hour), Options{})
-	seconds(b2, h, 3600, buffer.UnderRange, func(int) float64 { return 25 })
+	seconds(b2, h, 3600, record.UnderRange, func(int) float64 { return 25 })
 	if r2 := b2.Result(); r2.Periods[0].Bound != record.Upper || math.Abs(r2.Hours[0].LAeq-25) > 1e-9 {
 		t.Errorf("under-range hour: LAeq %.2f bound %v", r2.Hours[0].LAeq, r2.Periods[0].Bound)
 	}
@@ -129,14 +128,14 @@ func TestPartialPeriod(t *testing.T) {
 func TestMinutesEqualSeconds(t *testing.T) {
 	h := time.Date(2026, 6, 10, 12, 0, 0, 0, time.UTC)
 	level := func(i int) float64 { return 50 + float64(i%7) }
-	flags := func(i int) buffer.Flags {
+	flags := func(i int) record.Flags {
 		switch {
 		case i < 3:
-			return buffer.Settling
+			return record.Settling
 		case i >= 600 && i < 620:
-			return buffer.Calibrating
+			return record.Calibrating
 		case i >= 1000 && i < 1005:
-			return buffer.Overload
+			return record.Overload
 		}
 		return 0
 	}
@@ -144,20 +143,20 @@ func TestMinutesEqualSeconds(t *testing.T) {
 	fromMinutes := NewBuilder(profile(t, "ldn"), nil, time.UTC, h, h.Add(time.Hour), Options{})
 	for m := range 60 {
 		var e float64
-		mr := &buffer.Minute{Start: h.Add(time.Duration(m) * time.Minute)}
+		mr := &record.Minute{Start: h.Add(time.Duration(m) * time.Minute)}
 		for s := range 60 {
 			i := m*60 + s
 			l := level(i)
-			fromSeconds.AddSecond(&buffer.Second{Start: h.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l, Flags: flags(i)})
+			fromSeconds.AddSecond(&record.Second{Start: h.Add(time.Duration(i) * time.Second), Duration: time.Second, LAeq: l, LCeq: l, Flags: flags(i)})
 			switch f := flags(i); {
-			case f&(buffer.Settling|buffer.Calibrating) != 0:
-				mr.LeftOut[map[bool]record.Reason{true: record.Settle, false: record.Calibration}[f == buffer.Settling]]++
+			case f&(record.Settling|record.Calibrating) != 0:
+				mr.LeftOut[map[bool]record.Reason{true: record.ReasonSettling, false: record.ReasonCalibrating}[f == record.Settling]]++
 			default:
 				e += math.Pow(10, l/10)
 				mr.ValidSeconds++
-				if f == buffer.Overload {
+				if f == record.Overload {
 					mr.OverloadSeconds++
-					mr.Flags |= buffer.Overload
+					mr.Flags |= record.Overload
 				}
 			}
 		}

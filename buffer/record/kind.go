@@ -1,10 +1,8 @@
-package buffer
+package record
 
 import (
 	"fmt"
 	"strings"
-
-	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // Kind identifies a record type. Its numeric value is part of the file format and never changes.
@@ -52,31 +50,3 @@ func ParseKind(s string) (Kind, error) {
 	}
 	return 0, fmt.Errorf("unknown record kind %q: use one of %s", s, strings.Join(kindNames[1:], ", "))
 }
-
-// Flags is a set of conditions that qualify a record: record.Flags, named here so that the
-// store's callers need not import package record for it.
-type Flags = record.Flags
-
-// The flags shared by all records (see package record).
-const (
-	Overload       = record.Overload
-	UnderRange     = record.UnderRange
-	Clipped        = record.Clipped
-	Dropped        = record.Dropped
-	Calibrating    = record.Calibrating
-	Settling       = record.Settling
-	ClockUnsynced  = record.ClockUnsynced
-	Suspect        = record.Suspect
-	Excluded       = record.Excluded
-	DigitalSilence = record.DigitalSilence
-	StuckInput     = record.StuckInput
-	DCOffset       = record.DCOffset
-	MicFault       = record.MicFault
-	ChainFault     = record.ChainFault
-	StoreFault     = record.StoreFault
-	DeviceFault    = record.DeviceFault
-	Synthetic      = record.Synthetic
-)
-
-// ParseFlags parses names separated by "|" or "," as printed by Flags.String.
-func ParseFlags(s string) (Flags, error) { return record.ParseFlags(s) }

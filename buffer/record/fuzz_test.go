@@ -1,9 +1,12 @@
-package buffer
+package record_test
 
 import (
 	"bytes"
 	"errors"
 	"testing"
+
+	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/buffer/record/recordtest"
 )
 
 // FuzzDecode feeds arbitrary bytes to every record decoder: a truncated or garbled value must
@@ -12,7 +15,7 @@ import (
 //
 // `go test` runs the seed corpus only; `go test -fuzz=FuzzDecode ./buffer/` explores.
 func FuzzDecode(f *testing.F) {
-	for _, r := range sampleRecords() {
+	for _, r := range recordtest.Samples() {
 		b, err := r.AppendBinary(nil)
 		if err != nil {
 			f.Fatal(err)
@@ -23,14 +26,14 @@ func FuzzDecode(f *testing.F) {
 		g[len(g)/3] ^= 0xff
 		f.Add(byte(r.Kind()), g)
 	}
-	f.Add(byte(KindMinute), []byte{1, 0, 0, 0, 0xff, 0xff, 0xff, 0xff, 0x0f})
-	f.Add(byte(KindHealth), []byte{1, 0, 0xff, 0xff, 0xff, 0xff, 0x0f})
+	f.Add(byte(record.KindMinute), []byte{1, 0, 0, 0, 0xff, 0xff, 0xff, 0xff, 0x0f})
+	f.Add(byte(record.KindHealth), []byte{1, 0, 0xff, 0xff, 0xff, 0xff, 0x0f})
 	f.Add(byte(0), []byte{1})
 	f.Fuzz(func(t *testing.T, kind byte, data []byte) {
-		r, err := Decode(Kind(kind), data)
+		r, err := record.Decode(record.Kind(kind), data)
 		if err != nil {
-			if Kind(kind).Valid() && !errors.Is(err, ErrCorruptRecord) && !errors.Is(err, ErrNewerRecord) {
-				t.Fatalf("error %v wraps neither ErrCorruptRecord nor ErrNewerRecord", err)
+			if record.Kind(kind).Valid() && !errors.Is(err, record.ErrCorruptRecord) && !errors.Is(err, record.ErrNewerRecord) {
+				t.Fatalf("error %v wraps neither record.ErrCorruptRecord nor record.ErrNewerRecord", err)
 			}
 			return
 		}
@@ -38,7 +41,7 @@ func FuzzDecode(f *testing.F) {
 		if err != nil {
 			return // decodable but outside what the encoder accepts (e.g. a year 1 time)
 		}
-		r2, err := Decode(Kind(kind), b)
+		r2, err := record.Decode(record.Kind(kind), b)
 		if err != nil {
 			t.Fatalf("re-encoded record does not decode: %v", err)
 		}

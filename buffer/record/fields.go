@@ -1,10 +1,8 @@
-package buffer
+package record
 
 import (
 	"math"
 	"time"
-
-	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // FieldType says how a field's value is written.
@@ -39,7 +37,7 @@ type Field struct {
 func (f Field) Value(r Record) any {
 	v := f.get(r)
 	if x, ok := v.(float64); ok {
-		return record.Round(x, f.Decimals)
+		return Round(x, f.Decimals)
 	}
 	return v
 }
@@ -145,7 +143,7 @@ var minuteFields = func() []Field {
 		count("overload_seconds", "s", "valid seconds flagged overload: the levels are lower bounds", func(r Record) uint64 { return uint64(mnt(r).OverloadSeconds) }),
 		count("under_range_seconds", "s", "valid seconds under the measuring range: the levels are upper bounds", func(r Record) uint64 { return uint64(mnt(r).UnderRangeSeconds) }),
 	}
-	for why := record.Calibration; why < record.NumReasons; why++ {
+	for why := ReasonCalibrating; why < NumReasons; why++ {
 		f = append(f, count(why.String()+"_seconds", "s", "seconds left out: "+why.String(), func(r Record) uint64 { return uint64(mnt(r).LeftOut[why]) }))
 	}
 	f = append(f, text("bound", "which way the levels may be off: exact, lower (overload) or upper (under range)", func(r Record) string { return mnt(r).Tally().Bound().String() }),

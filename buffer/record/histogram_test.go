@@ -1,10 +1,8 @@
-package buffer
+package record
 
 import (
 	"slices"
 	"testing"
-
-	"github.com/leqnode/leqnode/buffer/record"
 )
 
 // TestMinuteV1HistogramConverted: a minute record of version 1 stored its level histogram in
@@ -29,7 +27,7 @@ func TestMinuteV1HistogramConverted(t *testing.T) {
 	}
 	// The same bytes as version 1 wrote them: the bins' meaning differs, and version 1 ends
 	// before the left-out and bound counts and the valid duration (1+6+2+1 one-byte uvarints here).
-	b = append([]byte{1}, b[1:len(b)-(1+int(record.NumReasons)-1+2+1)]...)
+	b = append([]byte{1}, b[1:len(b)-(1+int(NumReasons)-1+2+1)]...)
 	var old Minute
 	if err := old.UnmarshalBinary(b); err != nil {
 		t.Fatal(err)
