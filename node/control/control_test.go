@@ -33,7 +33,7 @@ func TestMain(m *testing.M) {
 	os.Exit(m.Run())
 }
 
-func startServer(t *testing.T, dir string, gid int, h Handlers) *Server {
+func startServer(t testing.TB, dir string, gid int, h Handlers) *Server {
 	t.Helper()
 	s, err := Listen(filepath.Join(dir, "control.sock"), gid, h, nil)
 	if err != nil {
