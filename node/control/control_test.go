@@ -40,9 +40,14 @@ func startServer(t testing.TB, dir string, gid int, h Handlers) *Server {
 		t.Fatal(err)
 	}
 	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan struct{})
-	go func() { s.Serve(ctx); close(done) }()
-	t.Cleanup(func() { cancel(); <-done })
+	done := make(chan error, 1)
+	go func() { done <- s.Serve(ctx) }()
+	t.Cleanup(func() {
+		cancel()
+		if err := <-done; err != nil {
+			t.Errorf("Serve: %v", err)
+		}
+	})
 	return s
 }
 
@@ -57,11 +62,15 @@ func handlers() Handlers {
 				return errors.New("Wendle Cross — café\n\"quay\" 🎧")
 			}
 			if req.Export.Kind == "fail" {
-				fmt.Fprintln(w, "partial")
+				if _, err := fmt.Fprintln(w, "partial"); err != nil {
+					return err
+				}
 				return query.BadRequest("--kind: %q is not a kind", req.Export.Kind)
 			}
 			for i := range 3 {
-				fmt.Fprintf(w, "line %d of %s %s\n", i, req.Name(), req.Export.Kind)
+				if _, err := fmt.Fprintf(w, "line %d of %s %s\n", i, req.Name(), req.Export.Kind); err != nil {
+					return err
+				}
 			}
 			return nil
 		},
@@ -141,7 +150,9 @@ func TestStaleSocket(t *testing.T) {
 	}
 	// A regular file in the way is never removed.
 	p := filepath.Join(dir, "file.sock")
-	os.WriteFile(p, []byte("keep"), 0o644)
+	if err := os.WriteFile(p, []byte("keep"), 0o644); err != nil {
+		t.Fatal(err)
+	}
 	if _, err := Listen(p, -1, handlers(), nil); err == nil {
 		t.Error("listened over a regular file")
 	}
@@ -161,7 +172,9 @@ func TestOtherUsersRefused(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer os.RemoveAll(dir)
-	os.Chmod(dir, 0o755) // the socket's own mode must be what refuses
+	if err := os.Chmod(dir, 0o755); err != nil { // the socket's own mode must be what refuses
+		t.Fatal(err)
+	}
 	const group = 47123
 	s := startServer(t, dir, group, handlers())
 	// The test binary lives in a directory only root may enter: copy it where nobody can run it.
