@@ -15,7 +15,6 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/config"
-	"github.com/leqnode/leqnode/node/control"
 )
 
 // optFloat is a float flag that remembers whether it was given.
@@ -118,7 +117,9 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	res, err := calibrate.FromReader(ctx, in, calibrate.Options{Reference: *ref, Class: cls, Channel: *channel})
 	if errors.Is(err, calibrate.ErrNoTone) {
 		if *format == "json" {
-			writeCalibrateJSON(std.out, calibrate.Summary{Reason: err.Error()})
+			if werr := writeCalibrateJSON(std.out, calibrate.Summary{Reason: err.Error()}); werr != nil {
+				return werr
+			}
 		}
 		return badInput("%s: %v", name, err)
 	}
@@ -137,13 +138,14 @@ func runCalibrate(ctx context.Context, std stdio, args []string) error {
 	if nom != nil {
 		sum.NominalDBFS = &nom.DBFS
 	}
-	switch *format {
-	case "json":
-		if err := writeCalibrateJSON(std.out, sum); err != nil {
-			return err
-		}
-	default:
-		writeCalibrateTable(std.out, res, dsp.CalibratorTolerances(cls), j)
+	var werr error
+	if *format == "json" {
+		werr = writeCalibrateJSON(std.out, sum)
+	} else {
+		werr = writeCalibrateTable(std.out, res, dsp.CalibratorTolerances(cls), j)
+	}
+	if werr != nil {
+		return werr
 	}
 	if !j.OK {
 		return fmt.Errorf("%s: %s", name, j.Reason)
@@ -178,72 +180,25 @@ func writeCalibrateJSON(w io.Writer, s calibrate.Summary) error {
 	return err
 }
 
-func writeCalibrateTable(w io.Writer, r *calibrate.Result, tol dsp.CalibratorTolerance, j calibrate.Judgement) {
+func writeCalibrateTable(w io.Writer, r *calibrate.Result, tol dsp.CalibratorTolerance, j calibrate.Judgement) error {
 	d := r.Detection
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	p := &printer{w: tw}
 	plaus := "within"
 	if !r.FrequencyPlausible {
 		plaus = "OUTSIDE"
 	}
-	fmt.Fprintf(tw, "tone\t%.2f Hz\t%s the ±%.1f %% of a class %s calibrator (IEC 60942:2017 Table 4)\n", d.FrequencyHz, plaus, 100*tol.Frequency, tol.Class)
-	fmt.Fprintf(tw, "measured\t%.2f dBFS\tLeq over %.2f s, spread %.3f dB, band %.0f dB above the rest\n", d.LevelDBFS, d.Stable, d.StabilityDB, d.DominanceDB)
-	fmt.Fprintf(tw, "reference\t%.1f dB\tthe calibrator's stated level\n", r.Reference)
-	fmt.Fprintf(tw, "sensitivity\t%.2f dBFS\t\n", r.SensitivityDBFS)
+	p.printf("tone\t%.2f Hz\t%s the ±%.1f %% of a class %s calibrator (IEC 60942:2017 Table 4)\n", d.FrequencyHz, plaus, 100*tol.Frequency, tol.Class)
+	p.printf("measured\t%.2f dBFS\tLeq over %.2f s, spread %.3f dB, band %.0f dB above the rest\n", d.LevelDBFS, d.Stable, d.StabilityDB, d.DominanceDB)
+	p.printf("reference\t%.1f dB\tthe calibrator's stated level\n", r.Reference)
+	p.printf("sensitivity\t%.2f dBFS\t\n", r.SensitivityDBFS)
 	okText := "yes"
 	if !j.OK {
 		okText = "no"
 	}
-	fmt.Fprintf(tw, "ok\t%s\t%s\n", okText, j.Reason)
-	tw.Flush()
-}
-
-// calibrateDaemon asks the running node to take the next stable calibrator tone through its
-// control socket.
-func calibrateDaemon(ctx context.Context, std stdio, cfgPath string, req calibrate.Request, format string) error {
-	d, err := connectDaemon(ctx, cfgPath)
-	if err != nil {
-		return err
+	p.printf("ok\t%s\t%s\n", okText, j.Reason)
+	if p.err != nil {
+		return p.err
 	}
-	sum, err := d.RequestCheck(ctx, req)
-	if err != nil {
-		return err
-	}
-	if format == "json" {
-		return writeCalibrateJSON(std.out, sum)
-	}
-	fmt.Fprintf(std.out, "tone %.2f Hz, measured %.2f dBFS, sensitivity %.2f dBFS over %.2f s, ok %v\n",
-		deref(sum.FrequencyHz), deref(sum.MeasuredDBFS), deref(sum.SensitivityDBFS), deref(sum.StableS), sum.OK)
-	return nil
-}
-
-func deref(p *float64) float64 {
-	if p == nil {
-		return math.NaN()
-	}
-	return *p
-}
-
-// connectDaemon returns the running node's calibration service, reached through its control
-// socket (the configured one, LEQNODE_CONTROL, or the default under systemd).
-func connectDaemon(ctx context.Context, cfgPath string) (calibrate.Requester, error) {
-	sf := storeFlags{db: new(string), config: &cfgPath}
-	c := control.NewClient(sf.socket())
-	if !c.Available() {
-		return nil, fmt.Errorf("%w at %s: start the node, give --config with its [control] socket, or give a recording of the calibrator instead, e.g. leqnode calibrate --reference 94 check.wav", calibrate.ErrNoControlSocket, sf.socket())
-	}
-	return daemonCalibrator{c}, nil
-}
-
-// daemonCalibrator asks a running node, through its control socket, to take the next tone.
-type daemonCalibrator struct{ c *control.Client }
-
-func (d daemonCalibrator) RequestCheck(ctx context.Context, req calibrate.Request) (calibrate.Summary, error) {
-	if req.Timeout > 0 {
-		var cancel context.CancelFunc
-		ctx, cancel = context.WithTimeout(ctx, req.Timeout)
-		defer cancel()
-	}
-	var sum calibrate.Summary
-	err := d.c.Calibrate(ctx, req.Reference, &sum)
-	return sum, err
+	return tw.Flush()
 }

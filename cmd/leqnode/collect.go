@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"fmt"
+	"io"
 	"log/slog"
 	"strings"
 
@@ -37,12 +38,12 @@ func runCollect(ctx context.Context, std stdio, args []string) error {
 		if err != nil {
 			return err
 		}
-		if len(applied) == 0 {
-			fmt.Fprintln(std.out, "database schema up to date")
-		} else {
-			fmt.Fprintf(std.out, "applied %s\n", strings.Join(applied, ", "))
+		msg := "database schema up to date\n"
+		if len(applied) > 0 {
+			msg = fmt.Sprintf("applied %s\n", strings.Join(applied, ", "))
 		}
-		return nil
+		_, err = io.WriteString(std.out, msg)
+		return err
 	}
 	c, err := collect.New(cfg, collect.Options{Logger: log})
 	if err != nil {

@@ -2,15 +2,12 @@ package main
 
 import (
 	"bufio"
-	"bytes"
 	"context"
 	"encoding/csv"
 	"encoding/json"
 	"fmt"
-	"os"
 	"path/filepath"
 	"strings"
-	"sync"
 	"testing"
 	"time"
 
@@ -196,65 +193,4 @@ backlog_messages_per_second = -1
 		t.Errorf("LAeq %s over the database, %s over the store (%d minutes in both)", dbRows[1][5], stRows[1][5], stored)
 	}
 	t.Logf("fleet report: LAeq %s over the database (%d minutes), %s over the store (%d minutes)", dbRows[1][5], arrived, stRows[1][5], stored)
-}
-
-func readCSVRows(t *testing.T, path string) [][]string {
-	t.Helper()
-	data, err := os.ReadFile(path)
-	if err == nil {
-		var rows [][]string
-		if rows, err = csv.NewReader(bytes.NewReader(data)).ReadAll(); err == nil {
-			return rows
-		}
-	}
-	t.Fatalf("%s: %v", path, err)
-	return nil
-}
-
-func writeFile(t *testing.T, p, s string) {
-	t.Helper()
-	if err := os.WriteFile(p, []byte(s), 0o600); err != nil {
-		t.Fatal(err)
-	}
-}
-
-func mustCollectorConfig(t *testing.T, p string) *collect.Config {
-	t.Helper()
-	c, err := collect.LoadConfig(p)
-	if err != nil {
-		t.Fatal(err)
-	}
-	return c
-}
-
-func absDiff(a, b float64) float64 {
-	if a > b {
-		return a - b
-	}
-	return b - a
-}
-
-func orNull(p *float64) any {
-	if p == nil {
-		return nil
-	}
-	return *p
-}
-
-// lockedBuffer is a bytes.Buffer safe for one writer and one reader at once.
-type lockedBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *lockedBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *lockedBuffer) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
 }

@@ -19,7 +19,7 @@ func runConfig(ctx context.Context, std stdio, args []string) error {
 	if len(args) > 0 {
 		switch args[0] {
 		case "-h", "-help", "--help", "help":
-			fmt.Fprintln(std.err, configUsage) // help goes where every command's -h goes
+			say(std.err, "%s\n", configUsage) // help goes where every command's -h goes
 			return errHelpShown
 		}
 	}
@@ -37,17 +37,16 @@ func runConfig(ctx context.Context, std stdio, args []string) error {
 	cfg, err := config.Load(pos[0])
 	if err != nil {
 		// One line per problem, each naming the key; exit status 2.
-		fmt.Fprintln(std.err, err)
+		say(std.err, "%v\n", err)
 		return usageError{fmt.Errorf("%s: the configuration has problems (listed above)", pos[0])}
 	}
 	for _, w := range cfg.Warnings() {
-		fmt.Fprintf(std.err, "warning: %s: %s\n", pos[0], w)
+		say(std.err, "warning: %s: %s\n", pos[0], w)
 	}
 	b, err := cfg.Encode()
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(std.out, "# %s: resolved configuration (defaults filled in)\n", pos[0])
-	_, err = std.out.Write(b)
+	_, err = fmt.Fprintf(std.out, "# %s: resolved configuration (defaults filled in)\n%s", pos[0], b)
 	return err
 }

@@ -16,10 +16,10 @@ import (
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
-	"github.com/leqnode/leqnode/node/publish"
+	"github.com/leqnode/leqnode/node/demobroker"
 )
 
-func runDemo(ctx context.Context, std stdio, args []string) error {
+func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	fl := newFlags("demo", "[--duration D] [--fast] [--dir DIR] [--no-broker]", std.err)
 	dur := fl.Duration("duration", 65*time.Second, "how long a scene to play (0: until interrupted); in real time, or with --fast that much audio as fast as the processor allows")
 	fast := fl.Bool("fast", false, "play --duration of the scene as fast as the processor allows (not in real time), its records dated to end now")
@@ -29,6 +29,7 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
+	out := &printer{w: std.out}
 	if len(pos) != 0 || *dur < 0 {
 		return badInput("demo takes no arguments; --duration must be 0 or more")
 	}
@@ -73,29 +74,36 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 		defer cancel()
 	}
 	if !*noBroker {
-		url, stop, err := publish.StartLocalBroker(ctx, "127.0.0.1:0")
+		url, stop, err := demobroker.Start(ctx, "127.0.0.1:0")
 		if err != nil {
 			return err
 		}
-		defer stop()
+		defer func() {
+			if serr := stop(); serr != nil && rerr == nil {
+				rerr = fmt.Errorf("the demo's MQTT broker: %w", serr)
+			}
+		}()
 		cfg.Publish.Brokers = []string{url}
 		host, port, _ := strings.Cut(strings.TrimPrefix(url, "tcp://"), ":")
-		fmt.Fprintf(std.out, "MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
+		out.printf("MQTT: an in-process broker at %s; watch it with\n  mosquitto_sub -h %s -p %s -t 'leqnode/#' -v\n", url, host, port)
 	}
 	if ln, err := net.Listen("tcp", "127.0.0.1:0"); err == nil {
 		cfg.Web.Enabled, cfg.Web.Addr = true, ln.Addr().String()
-		ln.Close()
-		fmt.Fprintf(std.out, "status page: http://%s/ (this computer only, while the demo runs)\n", cfg.Web.Addr)
+		if err := ln.Close(); err != nil {
+			return fmt.Errorf("the status page's port: %w", err)
+		}
+		out.printf("status page: http://%s/ (this computer only, while the demo runs)\n", cfg.Web.Addr)
 	}
-	fmt.Fprintf(std.out, "leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
-	fmt.Fprintf(std.out, "synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
-	fmt.Fprintf(std.out, "while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
-	fmt.Fprintf(std.out, "levels are indicative: see the README's cautions\n\n")
+	out.printf("leqnode demo: node %s at %s\n", cfg.Node.ID, cfg.Node.Site)
+	out.printf("synthetic street scene (a 94 dB calibrator tone first), store %s\n", cfg.Store.Path)
+	out.printf("while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
+	out.printf("levels are indicative: see the README's cautions\n\n")
 	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
 	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Hooks: func(o *node.Options) {
 		o.SampleOrigin = origin
-		o.OnSecond = func(s *record.Second) { fmt.Fprintln(std.out, liveLine(s)) }
-		o.OnMinute = func(m *record.Minute) { fmt.Fprintln(std.out, minuteLine(m)) }
+		// Called on the node's processing goroutine while this one waits in runDaemon.
+		o.OnSecond = func(s *record.Second) { out.println(liveLine(s)) }
+		o.OnMinute = func(m *record.Minute) { out.println(minuteLine(m)) }
 	}})
 	if err != nil {
 		return err
@@ -104,22 +112,26 @@ func runDemo(ctx context.Context, std stdio, args []string) error {
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	defer func() {
+		if cerr := st.Close(); cerr != nil && rerr == nil {
+			rerr = fmt.Errorf("closing the store %s: %w", cfg.Store.Path, cerr)
+		}
+	}()
 	stats, err := st.Stats()
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(std.out, "\nstored in %s (store %s):", cfg.Store.Path, st.ID())
+	out.printf("\nstored in %s (store %s):", cfg.Store.Path, st.ID())
 	for _, k := range record.Kinds() {
 		if ks := stats.Kinds[k]; ks.Count > 0 {
-			fmt.Fprintf(std.out, " %d %s", ks.Count, k)
+			out.printf(" %d %s", ks.Count, k)
 		}
 	}
-	fmt.Fprintf(std.out, "\nexport them with: %s export --config %s --kind second --format csv\n", prog(), cfgPath)
+	out.printf("\nexport them with: %s export --config %s --kind second --format csv\n", prog(), cfgPath)
 	if cfg.Web.Enabled {
-		fmt.Fprintf(std.out, "the status page stopped with the demo; `%s demo --duration 0` keeps it until you press Ctrl-C\n", prog())
+		out.printf("the status page stopped with the demo; `%s demo --duration 0` keeps it until you press Ctrl-C\n", prog())
 	}
-	return nil
+	return out.err
 }
 
 // prog is the command as the user typed it (bin/leqnode from make demo), or "leqnode".

@@ -54,7 +54,8 @@ func writeDevices(w io.Writer, devs []capture.DeviceInfo, format string) error {
 		_, err := fmt.Fprintln(w, noDevicesHint)
 		return err
 	}
-	fmt.Fprintf(w, "%5s  %-40s %-6s %3s  %-7s %s\n", "index", "name", "api", "ch", "native", "usable rates (Hz)")
+	p := &printer{w: w}
+	p.printf("%5s  %-40s %-6s %3s  %-7s %s\n", "index", "name", "api", "ch", "native", "usable rates (Hz)")
 	for _, d := range devs {
 		rates := make([]string, len(d.Rates))
 		for i, r := range d.Rates {
@@ -67,7 +68,7 @@ func writeDevices(w io.Writer, devs []capture.DeviceInfo, format string) error {
 		if d.Converts {
 			note += " [converts: may resample; prefer a hw: device]"
 		}
-		fmt.Fprintf(w, "%5d  %-40s %-6s %3d  %-7d %s%s\n", d.Index, d.Name, d.HostAPI, d.InputChannels, d.DefaultRate, strings.Join(rates, " "), note)
+		p.printf("%5d  %-40s %-6s %3d  %-7d %s%s\n", d.Index, d.Name, d.HostAPI, d.InputChannels, d.DefaultRate, strings.Join(rates, " "), note)
 	}
-	return nil
+	return p.err
 }

@@ -3,7 +3,6 @@ package main
 import (
 	"errors"
 	"flag"
-	"fmt"
 	"io"
 	"os"
 	"strings"
@@ -14,7 +13,7 @@ func newFlags(name, usage string, w io.Writer) *flag.FlagSet {
 	fs := flag.NewFlagSet(name, flag.ContinueOnError)
 	fs.SetOutput(w)
 	fs.Usage = func() {
-		fmt.Fprintf(w, "usage: leqnode %s %s\n", name, usage)
+		say(w, "usage: leqnode %s %s\n", name, usage)
 		fs.PrintDefaults()
 	}
 	return fs
@@ -63,5 +62,15 @@ func openRecording(std stdio, name string) (r io.Reader, display string, done fu
 	if err != nil {
 		return nil, name, nil, badInput("%s: cannot open: %v", name, unwrapPath(err))
 	}
-	return f, name, func() { f.Close() }, nil
+	// Read-only: once the recording is read, closing it can lose nothing.
+	return f, name, func() { _ = f.Close() }, nil
+}
+
+// unwrapPath drops the *PathError prefix (the file name is already in the message).
+func unwrapPath(err error) error {
+	var pe *os.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
 }

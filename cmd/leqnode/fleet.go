@@ -13,12 +13,13 @@ import (
 
 	"github.com/leqnode/leqnode/node/collect"
 	"github.com/leqnode/leqnode/node/fleetdb"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // runFleet dispatches the fleet subcommands.
 func runFleet(ctx context.Context, std stdio, args []string) error {
 	if len(args) == 0 || args[0] == "-h" || args[0] == "--help" || args[0] == "help" {
-		fmt.Fprintln(std.err, "usage: leqnode fleet status --config FILE [--from T] [--to T] [--format table|csv|json]")
+		say(std.err, "usage: leqnode fleet status --config FILE [--from T] [--to T] [--format table|csv|json]\n")
 		if len(args) == 0 {
 			return badInput("give a fleet subcommand: status")
 		}
@@ -49,13 +50,13 @@ func runFleetStatus(ctx context.Context, std stdio, args []string) error {
 	}
 	hi, lo := time.Now(), time.Time{}
 	if *to != "" {
-		if hi, err = parseWhen("to", *to, time.UTC); err != nil {
+		if hi, err = query.ParseWhen("to", *to, time.UTC); err != nil {
 			return err
 		}
 	}
 	lo = hi.Add(-24 * time.Hour)
 	if *from != "" {
-		if lo, err = parseWhen("from", *from, time.UTC); err != nil {
+		if lo, err = query.ParseWhen("from", *from, time.UTC); err != nil {
 			return err
 		}
 	}
@@ -122,13 +123,17 @@ func writeFleet(w io.Writer, format string, nodes []fleetdb.NodeSummary) error {
 		return cw.Error()
 	}
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	p := &printer{w: tw}
 	for _, r := range rows {
 		for i := range r {
 			if r[i] == "" {
 				r[i] = "-"
 			}
 		}
-		fmt.Fprintln(tw, strings.Join(r, "\t"))
+		p.println(strings.Join(r, "\t"))
+	}
+	if p.err != nil {
+		return p.err
 	}
 	return tw.Flush()
 }

@@ -20,9 +20,10 @@ import (
 	"os"
 	"os/signal"
 	"sort"
+	"strings"
 	"syscall"
 
-	"github.com/leqnode/leqnode/buffer"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // stdio is what a command reads and writes; tests swap it.
@@ -32,12 +33,6 @@ type stdio struct {
 	err      io.Writer
 	outIsTTY bool
 	errIsTTY bool
-	// args is the whole command line after the program's name, for read-through: a reading
-	// command that finds the store held by the daemon sends it to the daemon's control socket.
-	args []string
-	// daemon, when set, is the store of the daemon this command runs inside (a request on the
-	// control socket): reading commands use it instead of opening the file.
-	daemon *buffer.Store
 }
 
 // command is one subcommand: a thin function over the packages.
@@ -91,31 +86,36 @@ func main() {
 func run(ctx context.Context, io stdio, args []string) int {
 	cmds := commands()
 	if len(args) == 0 || args[0] == "help" || args[0] == "-h" || args[0] == "--help" {
-		printHelp(io.out, cmds)
-		if len(args) == 0 {
+		err := printHelp(io.out, cmds)
+		switch {
+		case len(args) == 0:
 			return 2
+		case err != nil:
+			say(io.err, "leqnode help: %v\n", err)
+			return 1
 		}
 		return 0
 	}
 	if args[0] == "--version" || args[0] == "-version" {
 		args = append([]string{"version"}, args[1:]...)
 	}
-	io.args = args
 	c, ok := cmds[args[0]]
 	if !ok {
-		fmt.Fprintf(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
+		say(io.err, "leqnode: unknown command %q: run 'leqnode help' for the list\n", args[0])
 		return 2
 	}
 	err := c.run(ctx, io, args[1:])
 	switch {
 	case err == nil:
 		return 0
-	case errors.Is(err, errHelpShown), errors.Is(err, errDoneByDaemon):
+	case errors.Is(err, errHelpShown):
 		return 0
 	default:
-		fmt.Fprintf(io.err, "leqnode %s: %v\n", args[0], err)
+		say(io.err, "leqnode %s: %v\n", args[0], err)
+		// Bad input: a usage error here, or a reading request refused as given (whether the
+		// store was read here or by the daemon through its control socket).
 		var u usageError
-		if errors.As(err, &u) {
+		if errors.As(err, &u) || errors.Is(err, query.ErrBadRequest) {
 			return 2
 		}
 		return 1
@@ -125,20 +125,20 @@ func run(ctx context.Context, io stdio, args []string) int {
 // errHelpShown reports that a command printed its help on request (-h); the exit status is 0.
 var errHelpShown = errors.New("help shown")
 
-func printHelp(w io.Writer, cmds map[string]command) {
+func printHelp(w io.Writer, cmds map[string]command) error {
 	names := make([]string, 0, len(cmds))
 	for n := range cmds {
 		names = append(names, n)
 	}
 	sort.Strings(names)
-	fmt.Fprintln(w, "usage: leqnode <command> [flags] [args]")
-	fmt.Fprintln(w)
-	fmt.Fprintln(w, "commands:")
+	var b strings.Builder
+	b.WriteString("usage: leqnode <command> [flags] [args]\n\ncommands:\n")
 	for _, n := range names {
-		fmt.Fprintf(w, "  %-10s %s\n", n, cmds[n].summary)
+		fmt.Fprintf(&b, "  %-10s %s\n", n, cmds[n].summary)
 	}
-	fmt.Fprintln(w)
-	fmt.Fprintln(w, "Run 'leqnode <command> -h' for a command's flags.")
+	b.WriteString("\nRun 'leqnode <command> -h' for a command's flags.\n")
+	_, err := io.WriteString(w, b.String())
+	return err
 }
 
 // isTerminal reports whether f is a character device (a terminal).

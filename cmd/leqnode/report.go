@@ -2,14 +2,14 @@ package main
 
 import (
 	"context"
-	"fmt"
+	"os"
 	"path/filepath"
 	"slices"
 	"strings"
 	"time"
 
 	"github.com/leqnode/leqnode/configs/profiles"
-	"github.com/leqnode/leqnode/node/report"
+	"github.com/leqnode/leqnode/node/query"
 	"github.com/leqnode/leqnode/node/report/indicator"
 )
 
@@ -27,34 +27,35 @@ func runReport(ctx context.Context, std stdio, args []string) error {
 	if len(pos) != 0 {
 		return badInput("unexpected argument %q: the store is given with --db FILE", pos[0])
 	}
-	p, z, err := rf.check()
+	if _, _, err := rf.check(); err != nil {
+		return err
+	}
+	path, zone, err := sf.target()
 	if err != nil {
 		return err
 	}
-	st, loc, done, err := sf.open(ctx, std)
-	if err != nil {
-		return err
+	req := rf.request()
+	req.TimeZone = zone
+	// The request may be answered by the daemon's process: it gets the directory as an
+	// absolute path, and the profile file's text rather than a path it may not read.
+	req.OutName = req.Out
+	if abs, err := filepath.Abs(req.Out); err == nil {
+		req.Out = abs
 	}
-	defer done()
-	lo, hi, err := rf.timeRange(loc)
-	if err != nil {
-		return err
+	if isProfileFile(req.Profile) {
+		b, err := os.ReadFile(req.Profile)
+		if err != nil {
+			return badInput("--profile: profile %s: %v", req.Profile, err)
+		}
+		req.ProfileText = string(b)
 	}
-	r, err := report.Compute(ctx, st, report.Config{Profile: p, Zone: z, Location: loc, From: lo, To: hi, Options: rf.options()})
-	if err != nil {
-		return err
-	}
-	id, err := report.ReadIdentity(st, hi)
-	if err != nil {
-		return err
-	}
-	meta := report.Meta{Node: filepath.Base(st.Path()), NodeID: id.NodeID, Site: id.Site, StoreID: st.ID(), Created: time.Now().In(loc)}
-	if err := report.Write(*rf.out, r, meta); err != nil {
-		return err
-	}
-	fmt.Fprintf(std.out, "wrote %s, %s and %s in %s for node %s: %d days, %d periods, %.1f %% valid data\n",
-		report.HTMLFile, report.DailyFile, report.HourlyFile, *rf.out, id.NodeID, len(r.Days), len(r.Periods), 100*r.Coverage.Share)
-	return nil
+	return sf.read(ctx, std, path, query.Request{Report: &req})
+}
+
+// isProfileFile reports whether a --profile value names a file rather than a built-in profile
+// (as profiles.Load tells them apart).
+func isProfileFile(name string) bool {
+	return strings.HasSuffix(name, ".toml") || strings.ContainsRune(name, filepath.Separator)
 }
 
 // reportFlags are the flags every report (single node or fleet) takes.
@@ -80,48 +81,19 @@ func addReportFlags(fl interface {
 	}
 }
 
+// request is the report the flags ask for.
+func (f reportFlags) request() query.Report {
+	return query.Report{From: *f.from, To: *f.to, Profile: *f.prof, LimitZone: *f.zone, Out: *f.out, MinCoverage: *f.minCov, Adjust: *f.adjust}
+}
+
 // check checks the flags that need no store and loads the profile and zone.
 func (f reportFlags) check() (*profiles.Profile, *profiles.Zone, error) {
-	switch {
-	case *f.from == "" || *f.to == "":
-		return nil, nil, badInput("give the range with --from DATE --to DATE (YYYY-MM-DD or RFC 3339; --to is excluded)")
-	case *f.prof == "":
-		return nil, nil, badInput("give the period profile with --profile (%s, or a .toml file)", strings.Join(profiles.Names(), ", "))
-	case *f.out == "":
-		return nil, nil, badInput("give the output directory with --out DIR")
-	case !(*f.minCov > 0 && *f.minCov <= 100):
-		return nil, nil, badInput("--min-coverage %g: give a percentage above 0 and at most 100", *f.minCov)
-	}
-	p, err := profiles.Load(*f.prof)
-	if err != nil {
-		return nil, nil, badInput("--profile: %v", err)
-	}
-	var z *profiles.Zone
-	if *f.zone != "" {
-		if z, err = p.Zone(*f.zone); err != nil {
-			return nil, nil, badInput("--zone: %v", err)
-		}
-	}
-	return p, z, nil
+	return f.request().Check()
 }
 
 // timeRange parses --from and --to, dates in loc.
 func (f reportFlags) timeRange(loc *time.Location) (lo, hi time.Time, err error) {
-	if lo, err = parseWhen("from", *f.from, loc); err != nil {
-		return lo, hi, err
-	}
-	if hi, err = parseWhen("to", *f.to, loc); err != nil {
-		return lo, hi, err
-	}
-	if !lo.Before(hi) {
-		return lo, hi, badInput("--from %s is not before --to %s: the range is half-open [from, to)", lo.Format(time.RFC3339), hi.Format(time.RFC3339))
-	}
-	if hi.Sub(lo) > 400*24*time.Hour {
-		return lo, hi, badInput("the range of %.0f days is too long for one report: give at most 400 days", hi.Sub(lo).Hours()/24)
-	}
-	return lo, hi, nil
+	return query.ReportRange(*f.from, *f.to, loc)
 }
 
-func (f reportFlags) options() indicator.Options {
-	return indicator.Options{MinCoverage: *f.minCov / 100, Adjust: *f.adjust}
-}
+func (f reportFlags) options() indicator.Options { return f.request().Options() }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"os"
 	"path/filepath"
@@ -104,10 +105,10 @@ func runFleetReport(ctx context.Context, std stdio, args []string) error {
 	if err := report.WriteFleet(*rf.out, f, report.FleetMeta{Created: time.Now().In(loc), MapIndicator: *mapInd}); err != nil {
 		return err
 	}
-	fmt.Fprintf(std.out, "wrote %s and %s, %s, %s, %s, %s in %s: %d nodes, %d simultaneous happenings\n", report.FleetHTMLFile,
+	_, err = fmt.Fprintf(std.out, "wrote %s and %s, %s, %s, %s, %s in %s: %d nodes, %d simultaneous happenings\n", report.FleetHTMLFile,
 		report.FleetNodesFile, report.FleetDailyFile, report.FleetHourlyFile, report.FleetCoverageFile, report.SimultaneousFile,
 		*rf.out, len(f.Nodes), len(f.Happenings))
-	return nil
+	return err
 }
 
 // runColocation writes the co-location check and fails (exit 1) when a node is outside the
@@ -133,7 +134,9 @@ func runColocation(ctx context.Context, std stdio, rf reportFlags, stores []stri
 	if err := report.WriteColocation(*rf.out, c, time.Now().In(loc)); err != nil {
 		return err
 	}
-	fmt.Fprint(std.out, report.ColocationText(c))
+	if _, err := io.WriteString(std.out, report.ColocationText(c)); err != nil {
+		return err
+	}
 	if !c.Pass {
 		var off []string
 		for _, n := range c.Nodes {
@@ -204,7 +207,7 @@ func fleetZone(tz, first string) (*time.Location, error) {
 	if err != nil {
 		return nil, fmt.Errorf("store %s: %w: is it a leqnode store, and is no node writing it?", first, err)
 	}
-	defer st.Close()
+	defer func() { _ = st.Close() }() // read-only, and only its identity was read: closing loses nothing
 	id, err := report.ReadIdentity(st, time.Now())
 	if err != nil {
 		return nil, err

@@ -8,10 +8,8 @@ import (
 	"os"
 	"os/signal"
 	"runtime/debug"
-	"strings"
 	"syscall"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
 )
@@ -75,23 +73,10 @@ func runRun(ctx context.Context, std stdio, args []string) error {
 	return runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Reload: hup, ConfigPath: *cfgPath})
 }
 
-// runDaemon runs node/daemon with what every caller shares: standard input, the software
-// version, and the reading commands the control socket runs against the daemon's store.
+// runDaemon runs node/daemon with what every caller shares: standard input and the software
+// version.
 func runDaemon(ctx context.Context, std stdio, o daemon.Options) error {
 	o.Stdin, o.Version = std.in, softwareVersion()
-	o.Exec = func(ctx context.Context, args []string, st *buffer.Store, stdout io.Writer) (bool, error) {
-		var errb strings.Builder
-		code := run(ctx, stdio{in: strings.NewReader(""), out: stdout, err: &errb, daemon: st}, args)
-		if code == 0 {
-			return false, nil
-		}
-		msg := strings.TrimSpace(errb.String())
-		if i := strings.LastIndex(msg, "\n"); i >= 0 {
-			msg = msg[i+1:]
-		}
-		msg = strings.TrimPrefix(msg, "leqnode "+args[0]+": ")
-		return code == 2, errors.New(msg)
-	}
 	err := daemon.Run(ctx, o)
 	if errors.Is(err, daemon.ErrConfig) {
 		return usageError{err}

@@ -8,10 +8,9 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
-	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // storeFlags are the flags every reading command uses to find its store.
@@ -46,65 +45,32 @@ func (f storeFlags) target() (path, zone string, err error) {
 	return path, "", nil
 }
 
-// zoneOf returns the zone for dates: the configured one, else that of the store's latest
-// session record, else UTC.
-func zoneOf(st *buffer.Store, zone string) *time.Location {
-	if zone == "" {
-		if r, err := st.Last(record.KindSession); err == nil && r != nil {
-			zone = r.(*record.Session).TimeZone
-		}
-	}
-	if zone != "" {
-		if l, err := time.LoadLocation(zone); err == nil {
-			return l
-		}
-	}
-	return time.UTC
-}
-
-// errDoneByDaemon reports that the running daemon carried out the command through its control
-// socket; the command has nothing left to do and succeeded.
-var errDoneByDaemon = errors.New("carried out by the daemon")
-
-// open opens the store named by --db or --config read-only for a reading command, with the 1 s
-// lock timeout, and returns the zone for dates (zoneOf). It reads through: inside the daemon (a request
-// on its control socket) it lends the daemon's own store; when the daemon holds the file, it
-// sends the whole command to the daemon's control socket, copies the answer to standard output
-// and returns errDoneByDaemon. done releases the store (it never closes the daemon's).
-func (f storeFlags) open(ctx context.Context, std stdio) (st *buffer.Store, loc *time.Location, done func(), err error) {
-	path, zone, err := f.target()
-	if err != nil {
-		return nil, nil, nil, err
-	}
-	if std.daemon != nil {
-		return std.daemon, zoneOf(std.daemon, zone), func() {}, nil
-	}
-	st, err = buffer.OpenReadOnly(path, time.Second)
+// read answers a reading command against the store at path (from target): it opens the file
+// read-only, with the 1 s lock timeout, and calls query.Do. When the daemon holds the file, it
+// sends the request to the daemon's control socket instead, where the same query.Do answers it
+// against the daemon's open store; the output is copied to standard output as it comes, and a
+// failure comes back as an error value (errors.Is query.ErrBadRequest for bad input).
+func (f storeFlags) read(ctx context.Context, std stdio, path string, req query.Request) (err error) {
+	st, err := buffer.OpenReadOnly(path, time.Second)
 	switch {
 	case err == nil:
-		return st, zoneOf(st, zone), func() { st.Close() }, nil
+		defer func() {
+			if cerr := st.Close(); cerr != nil && err == nil {
+				err = fmt.Errorf("closing the store %s: %w", path, cerr)
+			}
+		}()
+		return query.Do(ctx, st, req, std.out)
 	case errors.Is(err, buffer.ErrNoStore):
-		return nil, nil, nil, badInput("%v", err)
+		return badInput("%v", err)
 	case !errors.Is(err, buffer.ErrLocked):
-		return nil, nil, nil, err
+		return err
 	}
 	sock := f.socket()
 	c := control.NewClient(sock)
 	if !c.Available() {
-		return nil, nil, nil, fmt.Errorf("%w (no daemon answers on the control socket %s: give --config with the node's [control] socket, or set LEQNODE_CONTROL)", err, sock)
+		return fmt.Errorf("%w (no daemon answers on the control socket %s: give --config with the node's [control] socket, or set LEQNODE_CONTROL)", err, sock)
 	}
-	rerr := c.Exec(ctx, std.args, std.out)
-	var ee *control.ExecError
-	if errors.As(rerr, &ee) {
-		if ee.Code == 2 {
-			return nil, nil, nil, usageError{errors.New(ee.Message)}
-		}
-		return nil, nil, nil, errors.New(ee.Message)
-	}
-	if rerr != nil {
-		return nil, nil, nil, rerr
-	}
-	return nil, nil, nil, errDoneByDaemon
+	return c.Read(ctx, req, std.out)
 }
 
 // socket returns the control socket to try: LEQNODE_CONTROL, the configured one, or the
@@ -121,16 +87,4 @@ func (f storeFlags) socket() string {
 		}
 	}
 	return control.DefaultPath
-}
-
-// parseWhen parses the value of a time flag: RFC 3339, or a date YYYY-MM-DD meaning its
-// midnight in loc.
-func parseWhen(flag, v string, loc *time.Location) (time.Time, error) {
-	if t, err := strict.ParseTime(v); err == nil {
-		return t, nil
-	}
-	if t, err := time.ParseInLocation(time.DateOnly, v, loc); err == nil {
-		return t, nil
-	}
-	return time.Time{}, badInput("--%s %q is not a time: write RFC 3339 (2026-05-04T07:00:00Z) or a date (2026-05-04, in zone %s)", flag, v, loc)
 }

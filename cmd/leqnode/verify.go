@@ -53,7 +53,9 @@ func verifyCommand(_ context.Context, std stdio, args []string, o selftest.Optio
 			return err
 		}
 	default:
-		writeVerifyTable(std.out, rep)
+		if err := writeVerifyTable(std.out, rep); err != nil {
+			return err
+		}
 	}
 	if rep.Error != "" {
 		return fmt.Errorf("the measurement chain could not be built at %g Hz: %s", *rate, rep.Error)
@@ -109,26 +111,34 @@ func verifySummary(rep selftest.Report) string {
 	return fmt.Sprintf("%d of %d tests FAILED at %g Hz.", f, n, rep.SampleRate)
 }
 
-func writeVerifyTable(w io.Writer, rep selftest.Report) {
+func writeVerifyTable(w io.Writer, rep selftest.Report) error {
 	tw := tabwriter.NewWriter(w, 0, 0, 2, ' ', 0)
+	p := &printer{w: tw}
 	group := ""
 	for _, c := range rep.Checks {
 		if c.Group != group {
 			if group != "" {
-				fmt.Fprintln(tw, "\t\t\t\t\t")
+				p.println("\t\t\t\t\t")
 			}
 			group = c.Group
-			fmt.Fprintf(tw, "%s\t%11s\t%11s\t%12s\t\n", strings.ToUpper(group[:1])+group[1:], "expected dB", "measured dB", "tolerance dB")
+			p.printf("%s\t%11s\t%11s\t%12s\t\n", strings.ToUpper(group[:1])+group[1:], "expected dB", "measured dB", "tolerance dB")
 		}
-		fmt.Fprintf(tw, "  %s\t%11.2f\t%11s\t%12s\t%s\n", c.Test, c.Expected, fmtMeasured(c.Measured), fmtLimits(c.Tolerance.Lower, c.Tolerance.Upper), passText(c.Pass))
+		p.printf("  %s\t%11.2f\t%11s\t%12s\t%s\n", c.Test, c.Expected, fmtMeasured(c.Measured), fmtLimits(c.Tolerance.Lower, c.Tolerance.Upper), passText(c.Pass))
 	}
-	tw.Flush()
-	fmt.Fprintln(w)
+	if p.err != nil {
+		return p.err
+	}
+	if err := tw.Flush(); err != nil {
+		return err
+	}
+	p = &printer{w: w}
+	p.println()
 	if len(rep.Skipped) > 0 {
-		fmt.Fprintf(w, "Not tested at %g Hz (at or above 0.45 fs): %s.\n", rep.SampleRate, strings.Join(rep.Skipped, "; "))
+		p.printf("Not tested at %g Hz (at or above 0.45 fs): %s.\n", rep.SampleRate, strings.Join(rep.Skipped, "; "))
 	}
-	fmt.Fprintln(w, verifySummary(rep))
-	fmt.Fprintln(w, verifyScope)
+	p.println(verifySummary(rep))
+	p.println(verifyScope)
+	return p.err
 }
 
 var verifyPage = template.Must(template.New("verify").Funcs(template.FuncMap{

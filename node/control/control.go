@@ -5,9 +5,15 @@
 //
 // The protocol is HTTP/1.1 over the socket, so that any HTTP client can talk to it (curl
 // --unix-socket). GET /status, /live and /health answer JSON; POST /calibrate asks for a
-// calibration check; POST /exec runs a reading command (export, db check, report) inside the
-// daemon against its open store and streams the command's standard output back, with its
-// outcome in the trailers Leqnode-Exit and Leqnode-Error.
+// calibration check; POST /read carries one reading command (export, db check, report) as a
+// typed request (a query.Request in JSON), which the daemon answers by calling package query
+// against its open store, streaming the output back as the body.
+//
+// Errors are values on both sides. The outcome of a read travels in the trailer
+// Leqnode-Outcome as a small JSON object {"kind": ..., "message": ...}: kind "ok", or
+// "bad_request" for a request that cannot be answered as given, or "failed" for a failure at run
+// time; message is the error's one line. The client turns it back into an *Error that
+// errors.Is matches with ErrBadRequest or ErrFailed; no text is parsed.
 //
 // Access: the socket file is made readable and writable by its owner and group only (0660), and
 // every connection's peer credentials (SO_PEERCRED) are checked again: root, the daemon's own
@@ -31,6 +37,7 @@ import (
 
 	"golang.org/x/sys/unix"
 
+	"github.com/leqnode/leqnode/node/query"
 	"github.com/leqnode/leqnode/node/strict"
 )
 
@@ -41,10 +48,10 @@ type Handlers struct {
 	Health func() any
 	// Calibrate asks the node to take the next stable calibrator tone; it returns the check.
 	Calibrate func(ctx context.Context, reference float64) (any, error)
-	// Exec runs a reading command (its arguments, without "leqnode") against the daemon's store,
-	// writing its standard output to stdout. An error ends it; usage says whether it was bad
-	// input (exit status 2) rather than a run-time failure (1).
-	Exec func(ctx context.Context, args []string, stdout io.Writer) (usage bool, err error)
+	// Read answers a reading command against the daemon's store, writing the command's output
+	// to w as it goes. An error that wraps ErrBadRequest is the request's fault; any other is a
+	// failure at run time.
+	Read func(ctx context.Context, req query.Request, w io.Writer) error
 }
 
 // Server serves the control socket.
@@ -71,10 +78,12 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			return nil, fmt.Errorf("control socket %s: a file that is not a socket is in the way: move it or set another path", path)
 		}
 		if c, err := net.DialTimeout("unix", path, 200*time.Millisecond); err == nil {
-			c.Close()
+			_ = c.Close() // a probe: nothing was sent on it
 			return nil, fmt.Errorf("control socket %s: another leqnode daemon is listening there: stop it or set another path", path)
 		}
-		os.Remove(path)
+		if err := os.Remove(path); err != nil && !errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("control socket %s: a stale socket is in the way and cannot be removed: %w", path, err)
+		}
 	}
 	if gid < 0 {
 		gid = os.Getgid()
@@ -87,12 +96,10 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 		return nil, fmt.Errorf("control socket %s: %w", path, err)
 	}
 	if err := os.Chown(path, -1, gid); err != nil && !errors.Is(err, os.ErrPermission) {
-		ln.Close()
-		return nil, fmt.Errorf("control socket %s: %w", path, err)
+		return nil, errors.Join(fmt.Errorf("control socket %s: %w", path, err), ln.Close())
 	}
 	if err := os.Chmod(path, 0o660); err != nil {
-		ln.Close()
-		return nil, fmt.Errorf("control socket %s: %w", path, err)
+		return nil, errors.Join(fmt.Errorf("control socket %s: %w", path, err), ln.Close())
 	}
 	s := &Server{path: path, ln: ln, log: log, gid: gid}
 	mux := http.NewServeMux()
@@ -102,7 +109,7 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 				http.Error(w, name+" is not available", http.StatusNotFound)
 				return
 			}
-			writeJSON(w, f())
+			s.writeJSON(w, f())
 		})
 	}
 	getJSON("status", h.Status)
@@ -132,44 +139,9 @@ func Listen(path string, gid int, h Handlers, log *slog.Logger) (*Server, error)
 			http.Error(w, err.Error(), http.StatusConflict)
 			return
 		}
-		writeJSON(w, res)
+		s.writeJSON(w, res)
 	})
-	mux.HandleFunc("POST /exec", func(w http.ResponseWriter, r *http.Request) {
-		if h.Exec == nil {
-			http.Error(w, "this daemon runs no commands", http.StatusNotFound)
-			return
-		}
-		var args []string
-		body, err := io.ReadAll(io.LimitReader(r.Body, 64<<10+1))
-		if err == nil && len(body) > 64<<10 {
-			err = errors.New("longer than 64 KiB")
-		}
-		if err == nil {
-			err = strict.JSON(body, &args)
-		}
-		if err != nil || len(args) == 0 {
-			http.Error(w, "the body must be a JSON array of command arguments", http.StatusBadRequest)
-			return
-		}
-		switch args[0] {
-		case "export", "db", "report":
-		default:
-			http.Error(w, fmt.Sprintf("command %q cannot run through the control socket: only export, db and report", args[0]), http.StatusBadRequest)
-			return
-		}
-		w.Header().Set("Trailer", "Leqnode-Exit, Leqnode-Error")
-		w.Header().Set("Content-Type", "application/octet-stream")
-		usage, err := h.Exec(r.Context(), args, w)
-		code := 0
-		if err != nil {
-			code = 1
-			if usage {
-				code = 2
-			}
-			w.Header().Set("Leqnode-Error", strings.ReplaceAll(err.Error(), "\n", " "))
-		}
-		w.Header().Set("Leqnode-Exit", strconv.Itoa(code))
-	})
+	mux.HandleFunc("POST /read", func(w http.ResponseWriter, r *http.Request) { s.read(w, r, h.Read) })
 	s.srv = &http.Server{
 		Handler:           s.authorise(mux),
 		ReadHeaderTimeout: 5 * time.Second,
@@ -191,10 +163,14 @@ func (s *Server) Serve(ctx context.Context) error {
 		<-ctx.Done()
 		sctx, cancel := context.WithTimeout(context.Background(), 2*time.Second)
 		defer cancel()
-		s.srv.Shutdown(sctx)
+		if err := s.srv.Shutdown(sctx); err != nil {
+			s.log.Warn("control socket: requests still running at shutdown were cut off", "err", err)
+		}
 	}()
 	err := s.srv.Serve(s.ln)
-	os.Remove(s.path)
+	if rerr := os.Remove(s.path); rerr != nil && !errors.Is(rerr, os.ErrNotExist) {
+		s.log.Warn("control socket: the socket file was left behind", "path", s.path, "err", rerr)
+	}
 	if errors.Is(err, http.ErrServerClosed) {
 		return nil
 	}
@@ -251,11 +227,14 @@ func inGroup(pid, gid int) bool {
 	return false
 }
 
-func writeJSON(w http.ResponseWriter, v any) {
+// writeJSON answers v as indented JSON. A failure is the client's (it went away): logged.
+func (s *Server) writeJSON(w http.ResponseWriter, v any) {
 	w.Header().Set("Content-Type", "application/json")
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
-	enc.Encode(v)
+	if err := enc.Encode(v); err != nil {
+		s.log.Debug("control socket: an answer was not delivered", "err", err)
+	}
 }
 
 // Client talks to a daemon's control socket.
@@ -280,19 +259,25 @@ func (c *Client) Available() bool {
 	if err != nil {
 		return false
 	}
-	conn.Close()
+	_ = conn.Close() // a probe: nothing was sent on it
 	return true
 }
 
 // Get fetches a JSON answer (status, live, health) into v.
 func (c *Client) Get(ctx context.Context, name string, v any) error {
-	req, _ := http.NewRequestWithContext(ctx, http.MethodGet, "http://leqnode/"+name, nil)
+	req, err := http.NewRequestWithContext(ctx, http.MethodGet, "http://leqnode/"+name, nil)
+	if err != nil {
+		return fmt.Errorf("control socket %s: %w", c.path, err)
+	}
 	return c.do(req, v)
 }
 
 // Calibrate asks the daemon to take the next stable calibrator tone of the given level.
 func (c *Client) Calibrate(ctx context.Context, reference float64, v any) error {
-	req, _ := http.NewRequestWithContext(ctx, http.MethodPost, "http://leqnode/calibrate?reference="+strconv.FormatFloat(reference, 'f', -1, 64), nil)
+	req, err := http.NewRequestWithContext(ctx, http.MethodPost, "http://leqnode/calibrate?reference="+strconv.FormatFloat(reference, 'f', -1, 64), nil)
+	if err != nil {
+		return fmt.Errorf("control socket %s: %w", c.path, err)
+	}
 	return c.do(req, v)
 }
 
@@ -301,45 +286,13 @@ func (c *Client) do(req *http.Request, v any) error {
 	if err != nil {
 		return fmt.Errorf("control socket %s: %w", c.path, err)
 	}
-	defer resp.Body.Close()
+	defer closeBody(resp.Body)
 	if resp.StatusCode != http.StatusOK {
-		b, _ := io.ReadAll(io.LimitReader(resp.Body, 4096))
+		b, err := io.ReadAll(io.LimitReader(resp.Body, 4096))
+		if err != nil {
+			return fmt.Errorf("control socket %s: %s, and the answer was cut off: %w", c.path, resp.Status, err)
+		}
 		return fmt.Errorf("control socket %s: %s", c.path, strings.TrimSpace(string(b)))
 	}
 	return json.NewDecoder(resp.Body).Decode(v)
-}
-
-// ExecError is the outcome of a command that failed inside the daemon.
-type ExecError struct {
-	Code    int // the exit status the command would have had: 2 bad input, 1 run-time failure
-	Message string
-}
-
-func (e *ExecError) Error() string { return e.Message }
-
-// Exec runs a reading command inside the daemon and copies its standard output to stdout.
-// A failure of the command is an *ExecError.
-func (c *Client) Exec(ctx context.Context, args []string, stdout io.Writer) error {
-	body, _ := json.Marshal(args)
-	req, _ := http.NewRequestWithContext(ctx, http.MethodPost, "http://leqnode/exec", strings.NewReader(string(body)))
-	resp, err := c.hc.Do(req)
-	if err != nil {
-		return fmt.Errorf("control socket %s: %w", c.path, err)
-	}
-	defer resp.Body.Close()
-	if resp.StatusCode != http.StatusOK {
-		b, _ := io.ReadAll(io.LimitReader(resp.Body, 4096))
-		return &ExecError{Code: 2, Message: strings.TrimSpace(string(b))}
-	}
-	if _, err := io.Copy(stdout, resp.Body); err != nil {
-		return fmt.Errorf("control socket %s: %w", c.path, err)
-	}
-	code, _ := strconv.Atoi(resp.Trailer.Get("Leqnode-Exit"))
-	if code != 0 {
-		return &ExecError{Code: code, Message: resp.Trailer.Get("Leqnode-Error")}
-	}
-	if resp.Trailer.Get("Leqnode-Exit") == "" {
-		return fmt.Errorf("control socket %s: the daemon ended the answer early", c.path)
-	}
-	return nil
 }

@@ -13,6 +13,8 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // TestMain lets the tests run this binary as a client under another user (a child process
@@ -31,39 +33,51 @@ func TestMain(m *testing.M) {
 	os.Exit(m.Run())
 }
 
-func startServer(t *testing.T, dir string, gid int, h Handlers) *Server {
+func startServer(t testing.TB, dir string, gid int, h Handlers) *Server {
 	t.Helper()
 	s, err := Listen(filepath.Join(dir, "control.sock"), gid, h, nil)
 	if err != nil {
 		t.Fatal(err)
 	}
 	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan struct{})
-	go func() { s.Serve(ctx); close(done) }()
-	t.Cleanup(func() { cancel(); <-done })
+	done := make(chan error, 1)
+	go func() { done <- s.Serve(ctx) }()
+	t.Cleanup(func() {
+		cancel()
+		if err := <-done; err != nil {
+			t.Errorf("Serve: %v", err)
+		}
+	})
 	return s
 }
 
 func handlers() Handlers {
 	return Handlers{
 		Status: func() any { return map[string]any{"node": "wendle-cross-01"} },
-		Exec: func(ctx context.Context, args []string, w io.Writer) (bool, error) {
-			switch args[len(args)-1] {
-			case "fail":
-				fmt.Fprintln(w, "partial")
-				return true, errors.New("--kind fail is not a kind")
-			case "crash":
-				return false, errors.New("store read failed")
+		Read: func(ctx context.Context, req query.Request, w io.Writer) error {
+			if req.Check != nil {
+				return errors.New("store read failed")
+			}
+			if req.Export.Kind == "wide" {
+				return errors.New("Wendle Cross — café\n\"quay\" 🎧")
+			}
+			if req.Export.Kind == "fail" {
+				if _, err := fmt.Fprintln(w, "partial"); err != nil {
+					return err
+				}
+				return query.BadRequest("--kind: %q is not a kind", req.Export.Kind)
 			}
 			for i := range 3 {
-				fmt.Fprintf(w, "line %d of %s\n", i, strings.Join(args, " "))
+				if _, err := fmt.Fprintf(w, "line %d of %s %s\n", i, req.Name(), req.Export.Kind); err != nil {
+					return err
+				}
 			}
-			return false, nil
+			return nil
 		},
 	}
 }
 
-func TestStatusAndExec(t *testing.T) {
+func TestStatusAndRead(t *testing.T) {
 	s := startServer(t, t.TempDir(), -1, handlers())
 	fi, err := os.Stat(s.Path())
 	if err != nil {
@@ -78,34 +92,48 @@ func TestStatusAndExec(t *testing.T) {
 		t.Fatalf("status: %v %v", st, err)
 	}
 	var out strings.Builder
-	if err := c.Exec(context.Background(), []string{"export", "--kind", "second"}, &out); err != nil {
+	if err := c.Read(context.Background(), query.Request{Export: &query.Export{Kind: "second"}}, &out); err != nil {
 		t.Fatal(err)
 	}
-	if want := "line 0 of export --kind second\nline 1 of export --kind second\nline 2 of export --kind second\n"; out.String() != want {
-		t.Errorf("exec output %q", out.String())
+	if want := "line 0 of export second\nline 1 of export second\nline 2 of export second\n"; out.String() != want {
+		t.Errorf("read output %q", out.String())
 	}
-	var ee *ExecError
-	err = c.Exec(context.Background(), []string{"export", "fail"}, io.Discard)
-	if !errors.As(err, &ee) || ee.Code != 2 || !strings.Contains(ee.Message, "not a kind") {
-		t.Errorf("bad input through the socket: %v", err)
+	// Errors come back as values: the kind decides errors.Is, the message is the daemon's line,
+	// and what was written before the error is delivered.
+	out.Reset()
+	err = c.Read(context.Background(), query.Request{Export: &query.Export{Kind: "fail"}}, &out)
+	var ce *Error
+	if !errors.Is(err, ErrBadRequest) || !errors.Is(err, query.ErrBadRequest) || errors.Is(err, ErrFailed) ||
+		!errors.As(err, &ce) || err.Error() != `--kind: "fail" is not a kind` || out.String() != "partial\n" {
+		t.Errorf("bad request through the socket: %v (output %q)", err, out.String())
 	}
-	err = c.Exec(context.Background(), []string{"db", "crash"}, io.Discard)
-	if !errors.As(err, &ee) || ee.Code != 1 {
+	err = c.Read(context.Background(), query.Request{Check: &query.Check{}}, io.Discard)
+	if !errors.Is(err, ErrFailed) || errors.Is(err, ErrBadRequest) || err.Error() != "store read failed" {
 		t.Errorf("run-time failure through the socket: %v", err)
 	}
-	if err := c.Exec(context.Background(), []string{"run"}, io.Discard); err == nil || !strings.Contains(err.Error(), "cannot run through") {
-		t.Errorf("run through the socket: %v", err)
+	// Any message survives the trailer: non-ASCII, quotes; a line break becomes a space.
+	err = c.Read(context.Background(), query.Request{Export: &query.Export{Kind: "wide"}}, io.Discard)
+	if want := "Wendle Cross — café \"quay\" 🎧"; err == nil || err.Error() != want {
+		t.Errorf("message through the trailer: %v, want %s", err, want)
 	}
-	// The body is exactly one JSON array of strings (issue 20): the old decoder read the
-	// first of two values and took null for "".
-	for _, body := range []string{`["export","--kind","second"] ["db"]`, `["export",null]`, `{"0":"export"}`, `["export",1]`, "[\"export\",\"\xff\"]"} {
-		resp, err := c.hc.Post("http://leqnode/exec", "application/json", strings.NewReader(body))
+	// A request that holds no command, or two, is refused as a bad request.
+	for _, req := range []query.Request{{}, {Export: &query.Export{Kind: "second"}, Check: &query.Check{}}} {
+		if err := c.Read(context.Background(), req, io.Discard); !errors.Is(err, ErrBadRequest) {
+			t.Errorf("request %+v: %v, want a bad request", req, err)
+		}
+	}
+	// The body is exactly one JSON request (issue 20): a second value, null for a string, an
+	// unknown command, a number for a string and invalid UTF-8 are refused.
+	for _, body := range []string{`{"export":{"kind":"second"}} {"check":{}}`, `{"export":{"kind":null}}`, `{"run":{}}`,
+		`{"export":{"kind":1}}`, "{\"export\":{\"kind\":\"\xff\"}}", `["export","--kind","second"]`} {
+		resp, err := c.hc.Post("http://leqnode/read", "application/json", strings.NewReader(body))
 		if err != nil {
 			t.Fatal(err)
 		}
+		b, _ := io.ReadAll(resp.Body)
 		resp.Body.Close()
-		if resp.StatusCode != http.StatusBadRequest {
-			t.Errorf("exec body %q: status %d, want 400", body, resp.StatusCode)
+		if resp.StatusCode != http.StatusBadRequest || !strings.Contains(string(b), `"kind":"bad_request"`) {
+			t.Errorf("read body %q: status %d %s, want 400 with a bad_request outcome", body, resp.StatusCode, b)
 		}
 	}
 	if err := c.Get(context.Background(), "health", &st); err == nil {
@@ -122,7 +150,9 @@ func TestStaleSocket(t *testing.T) {
 	}
 	// A regular file in the way is never removed.
 	p := filepath.Join(dir, "file.sock")
-	os.WriteFile(p, []byte("keep"), 0o644)
+	if err := os.WriteFile(p, []byte("keep"), 0o644); err != nil {
+		t.Fatal(err)
+	}
 	if _, err := Listen(p, -1, handlers(), nil); err == nil {
 		t.Error("listened over a regular file")
 	}
@@ -142,7 +172,9 @@ func TestOtherUsersRefused(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer os.RemoveAll(dir)
-	os.Chmod(dir, 0o755) // the socket's own mode must be what refuses
+	if err := os.Chmod(dir, 0o755); err != nil { // the socket's own mode must be what refuses
+		t.Fatal(err)
+	}
 	const group = 47123
 	s := startServer(t, dir, group, handlers())
 	// The test binary lives in a directory only root may enter: copy it where nobody can run it.

@@ -2,7 +2,6 @@ package daemon
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"io"
 	"os/user"
@@ -16,6 +15,7 @@ import (
 	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
+	"github.com/leqnode/leqnode/node/query"
 )
 
 // startControl opens the control socket of a running node.
@@ -60,12 +60,9 @@ func (d *daemon) startControl(path string, n *node.Node, st *buffer.Store) (*con
 			}
 			return sum, nil
 		},
-		// Reading commands run here, against the store this daemon holds.
-		Exec: func(ctx context.Context, args []string, stdout io.Writer) (bool, error) {
-			if d.o.Exec == nil {
-				return true, errors.New("this daemon runs no reading commands")
-			}
-			return d.o.Exec(ctx, args, st, stdout)
+		// Reading commands are answered here, against the store this daemon holds.
+		Read: func(ctx context.Context, req query.Request, w io.Writer) error {
+			return query.Do(ctx, st, req, w)
 		},
 	}
 	return control.Listen(path, gid, h, log)

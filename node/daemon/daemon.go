@@ -25,7 +25,6 @@ import (
 	"sync/atomic"
 	"time"
 
-	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/config"
@@ -49,9 +48,6 @@ type Options struct {
 	// the microphone settings apply at once; other changes are named as needing a restart.
 	Reload     <-chan os.Signal
 	ConfigPath string
-	// Exec runs a reading command (export, report, db) against the store this daemon holds,
-	// for the control socket: it returns whether a failure was bad input, and the error.
-	Exec func(ctx context.Context, args []string, st *buffer.Store, stdout io.Writer) (badInput bool, err error)
 }
 
 // ErrConfig marks an error in the configuration or the environment it names (a token file, a
@@ -73,14 +69,20 @@ type daemon struct{ o Options }
 // Run runs a node with o until ctx ends (or a finite source ends), with every part its
 // configuration enables, and returns when all have stopped and the store is closed. An error
 // wrapping ErrConfig names a problem of the configuration.
-func Run(ctx context.Context, o Options) error {
+func Run(ctx context.Context, o Options) (err error) {
 	d := &daemon{o: o}
 	cfg, stdin, log, hooks := o.Config, o.Stdin, o.Logger, o.Hooks
 	st, err := d.openStore()
 	if err != nil {
 		return err
 	}
-	defer st.Close()
+	// Closed at the end of a run, and here on the way out of a start that failed (closing
+	// twice is harmless); it commits what the store still holds.
+	defer func() {
+		if cerr := st.Close(); cerr != nil && err == nil {
+			err = fmt.Errorf("closing the store: %w", cerr)
+		}
+	}()
 	src, err := capture.NewReader(cfg.Capture, stdin, log)
 	if err != nil {
 		return configError(fmt.Errorf("capture: %w", err))

@@ -31,13 +31,13 @@ func (d *daemon) startWeb(n *node.Node, st *buffer.Store, pub *publish.Publisher
 	version := d.o.Version
 	return web.New(web.Options{
 		Addr: cfg.Web.Addr, Token: token, Store: st, Logger: log,
-		Live: web.LiveFrom(&n.Counters),
+		Live: liveFrom(&n.Counters),
 		Status: func() web.Status {
 			ns := n.Status()
 			s := web.Status{
 				NodeID: cfg.Node.ID, Site: cfg.Node.Site, Version: version, TimeZone: cfg.Node.TimeZone,
 				Started: ns.Started, Source: ns.Source, SampleRate: ns.SampleRate,
-				Counters: web.CountersFrom(&n.Counters),
+				Counters: countersFrom(&n.Counters),
 				Calibration: &web.CalibrationStatus{
 					SensitivityDBFS: n.Sensitivity(), NominalDBFS: cfg.Microphone.SensitivityDBFS,
 				},
@@ -47,7 +47,7 @@ func (d *daemon) startWeb(n *node.Node, st *buffer.Store, pub *publish.Publisher
 				s.ClockSynced = &synced
 			}
 			if pub != nil {
-				s.MQTT = web.MQTTFrom(pub.Status())
+				s.MQTT = mqttFrom(pub.Status())
 			}
 			s.SelfCheck = selfCheck.Load()
 			return s
@@ -70,7 +70,7 @@ func (d *daemon) verifyDaily(ctx context.Context, n *node.Node, last *atomic.Poi
 		}
 		at := time.Now()
 		rep := selftest.Run(float64(fs), false)
-		last.Store(web.SelfCheckFrom(at, rep))
+		last.Store(selfCheckFrom(at, rep))
 		// Stored and published with a health snapshot (self_test_checks, self_test_failed,
 		// the chain-fault flag).
 		failed := len(rep.Failed())

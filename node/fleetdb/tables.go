@@ -59,7 +59,7 @@ func cols(groups ...[]column) []column {
 }
 
 // countedSeconds are the columns of minutes and periods that say which seconds count (see
-// the README's "which seconds count").
+// docs/measuring.md, "Which seconds count").
 var countedSeconds = []column{{"bound", "bound", cText}, {"overload_seconds", "overload_seconds", cInt},
 	{"calibrating_seconds", "calibrating_seconds", cInt}, {"settling_seconds", "settling_seconds", cInt},
 	{"excluded_seconds", "excluded_seconds", cInt}, {"suspect_seconds", "suspect_seconds", cInt},

@@ -95,8 +95,8 @@ type Config struct {
 	TopicPrefix string `toml:"topic_prefix"`
 
 	// Spectra chooses which records carry one-third-octave spectra: "second", "minute" (the
-	// default) or "none". Trade-off: per-second spectra cost about 1 GB a month (see the
-	// README); per-minute spectra about 50 MB.
+	// default) or "none". Trade-off: per-second spectra cost about 1 GB a month (see
+	// docs/mqtt.md); per-minute spectra about 50 MB.
 	Spectra string `toml:"spectra"`
 
 	// SecondsPerMessage is how many second records one message carries (default 10, 1 to 60):
@@ -107,10 +107,10 @@ type Config struct {
 	// 1.5 s, 0.1 to 60 s). Live records leave as soon as they are measured, before the store
 	// commits them, so a dashboard sees a second at most about LiveWait after it ends.
 	// Trade-off: the default sends live seconds two to a message, about twice the traffic of
-	// full messages of 10 (see the README); a wait of SecondsPerMessage seconds sends full
+	// full messages of 10 (see docs/mqtt.md); a wait of SecondsPerMessage seconds sends full
 	// messages, and delays the newest second by as much. Danger: a
 	// live record that a crash keeps out of the store has left the node all the same (its
-	// number is never used again; see the README's collector rules).
+	// number is never used again; see the rules for consumers in docs/mqtt.md).
 	LiveWait Duration `toml:"live_wait"`
 
 	// SecondQuantities lists the quantities second messages carry (default all of LAeq, LCeq,

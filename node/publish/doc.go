@@ -32,7 +32,7 @@
 //	PREFIX/NODE/reply              replies to commands
 //
 // KIND is second, minute, event, calibration, health, gap, annotation or session. The payloads
-// are described by the JSON Schema files in configs/schema and by README.md in this directory.
+// are described by the JSON Schema files in configs/schema and by docs/mqtt.md at the top of the source tree.
 //
 // # Remote commands
 //

@@ -10,19 +10,21 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/demobroker"
 	"github.com/leqnode/leqnode/node/publish"
 )
 
-// Example publishes a store's records to the in-process broker that leqnode demo uses.
+// Example publishes a store's records to the in-process broker that leqnode demo uses
+// (node/demobroker; a node publishes to the operator's broker).
 func Example() {
 	ctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 	defer cancel()
-	url, stop, err := publish.StartLocalBroker(ctx, "127.0.0.1:0")
+	url, stop, err := demobroker.Start(ctx, "127.0.0.1:0")
 	if err != nil {
 		fmt.Println(err)
 		return
 	}
-	defer stop()
+	defer func() { _ = stop() }()
 
 	dir, _ := os.MkdirTemp("", "leqnode-example")
 	defer os.RemoveAll(dir)

@@ -71,7 +71,7 @@ type FleetConfig struct {
 	Window time.Duration
 	// Seconds reads second records as well as minute records. By default a fleet report reads
 	// minute records only: the node builds each minute from the seconds the validity rule
-	// counts (README, "Which seconds count"), so levels agree with a report from second records
+	// counts (docs/measuring.md, "Which seconds count"), so levels agree with a report from second records
 	// to the minute record's 0.01 dB, at about a sixtieth of the reading. Set it for an exact
 	// match with single-node reports; it costs some 4 s per node and month.
 	Seconds bool

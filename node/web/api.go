@@ -38,16 +38,31 @@ func writeJSON(w http.ResponseWriter, r *http.Request, code int, v any) {
 	h.Set("Cache-Control", "no-store")
 	h.Add("Vary", "Accept-Encoding")
 	if len(body) > 2048 && r != nil && acceptsGzip(r) {
-		var buf bytes.Buffer
-		zw, _ := gzip.NewWriterLevel(&buf, gzip.BestSpeed)
-		zw.Write(body)
-		zw.Close()
-		body = buf.Bytes()
-		h.Set("Content-Encoding", "gzip")
+		if z, err := gzipped(body); err == nil { // else: sent as it is
+			body = z
+			h.Set("Content-Encoding", "gzip")
+		}
 	}
 	h.Set("Content-Length", strconv.Itoa(len(body)))
 	w.WriteHeader(code)
-	w.Write(body)
+	// A failed write is the client's: it went away, and the server has nobody to tell.
+	_, _ = w.Write(body)
+}
+
+// gzipped compresses b at gzip's fastest level.
+func gzipped(b []byte) ([]byte, error) {
+	var buf bytes.Buffer
+	zw, err := gzip.NewWriterLevel(&buf, gzip.BestSpeed)
+	if err != nil {
+		return nil, err
+	}
+	if _, err := zw.Write(b); err != nil {
+		return nil, err
+	}
+	if err := zw.Close(); err != nil {
+		return nil, err
+	}
+	return buf.Bytes(), nil
 }
 
 func acceptsGzip(r *http.Request) bool {
@@ -66,8 +81,12 @@ func writeError(w http.ResponseWriter, code int, msg string) {
 	h.Set("Content-Type", "application/json; charset=utf-8")
 	h.Set("Cache-Control", "no-store")
 	w.WriteHeader(code)
-	b, _ := json.Marshal(map[string]string{"error": msg})
-	w.Write(append(b, '\n'))
+	b, err := json.Marshal(map[string]string{"error": msg})
+	if err != nil { // a map of strings always encodes
+		b = []byte(`{"error":"the error could not be encoded"}`)
+	}
+	// A failed write is the client's: it went away, and the server has nobody to tell.
+	_, _ = w.Write(append(b, '\n'))
 }
 
 // status returns the caller's Status completed with what the store knows.

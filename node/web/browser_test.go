@@ -115,12 +115,12 @@ func TestBrowser(t *testing.T) {
 	status := func() web.Status {
 		return web.Status{NodeID: "wc-harrowby-02", Site: "Harrowby Lane, Wendle Cross (invented)",
 			Version: "leqnode browser test", TimeZone: "Europe/London", Started: started, Source: src.Describe(),
-			SampleRate: 48000, Counters: web.CountersFrom(&n.Counters),
+			SampleRate: 48000, Counters: &web.Counters{Seconds: n.Counters.Seconds.Load(), Minutes: n.Counters.Minutes.Load(), Gaps: n.Counters.Gaps.Load()},
 			Calibration: &web.CalibrationStatus{SensitivityDBFS: sensitivityDBFS, NominalDBFS: -30},
 			SelfCheck:   &web.SelfCheckStatus{At: started, Pass: true, Checks: 96, SampleRate: 48000}}
 	}
 	const token = "harrowby-field-9c1e"
-	srv, err := web.New(web.Options{Store: st, Live: web.LiveFrom(&n.Counters), Status: status, Logger: log, Token: token})
+	srv, err := web.New(web.Options{Store: st, Live: func() web.Live { return web.Live{LAF: n.Counters.Level(), At: time.Now()} }, Status: status, Logger: log, Token: token})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -21,8 +21,8 @@ import (
 	"github.com/leqnode/leqnode/node/web"
 )
 
-// A status server over a store, with the node's own knowledge passed in as Status. The lead
-// program passes web.LiveFrom(&n.Counters) as Live and calls Run with the daemon's context.
+// A status server over a store, with the node's own knowledge passed in as Status. The daemon
+// passes a Live function reading the node's counters and calls Run with its context.
 func ExampleNew() {
 	dir, err := os.MkdirTemp("", "leqnode-web")
 	if err != nil {
@@ -81,23 +81,29 @@ func Example_daemon() {
 	}
 	started := time.Now()
 	check := selftest.Run(48000, false) // the self-verification run at start
-	checkedAt := time.Now()
+	selfCheck := &web.SelfCheckStatus{At: time.Now(), Pass: check.Pass, Checks: len(check.Checks), SampleRate: check.SampleRate}
+	for _, c := range check.Failed() {
+		selfCheck.Failed = append(selfCheck.Failed, c.Test)
+	}
 	var mqtt func() publish.Status // the publisher's Status method, when MQTT is configured
 
+	// Package web knows only its own types: the program copies the node's state into them.
 	srv, err := web.New(web.Options{
 		Addr:  web.DefaultAddr,
 		Store: st,
-		Live:  web.LiveFrom(&n.Counters),
+		Live:  func() web.Live { return web.Live{LAF: n.Counters.Level(), At: time.Now()} },
 		Status: func() web.Status {
 			synced := node.KernelClockSynced()
 			s := web.Status{
 				NodeID: "wc-harrowby-02", Site: "Harrowby Lane, Wendle Cross (invented)", TimeZone: "Europe/London",
-				Started: started, Source: src.Describe(), Counters: web.CountersFrom(&n.Counters),
-				ClockSynced: &synced, SelfCheck: web.SelfCheckFrom(checkedAt, check),
+				Started: started, Source: src.Describe(),
+				Counters:    &web.Counters{Seconds: n.Counters.Seconds.Load(), Minutes: n.Counters.Minutes.Load(), Gaps: n.Counters.Gaps.Load()},
+				ClockSynced: &synced, SelfCheck: selfCheck,
 				Calibration: &web.CalibrationStatus{SensitivityDBFS: -38, NominalDBFS: -38},
 			}
 			if mqtt != nil {
-				s.MQTT = web.MQTTFrom(mqtt())
+				p := mqtt()
+				s.MQTT = &web.MQTTStatus{Connected: p.Connected, Broker: p.Broker, LastPublish: p.LastPublish}
 			}
 			return s
 		},

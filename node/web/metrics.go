@@ -42,7 +42,7 @@ type promErrorLog struct{ s *Server }
 
 func (l promErrorLog) Println(v ...any) { l.s.log.Warn("metrics", "err", v) }
 
-// metricDescs are the series. README-section.md documents each; keep the two in step.
+// metricDescs are the series. docs/page-and-metrics.md documents each; keep the two in step.
 type metricDescs struct {
 	descLevel         *prometheus.Desc
 	descLevelTime     *prometheus.Desc

@@ -16,7 +16,6 @@ import (
 	"github.com/prometheus/common/model"
 
 	"github.com/leqnode/leqnode/buffer/record"
-	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/web"
 )
 
@@ -79,8 +78,8 @@ func TestMetrics(t *testing.T) {
 			Started: testNow().Add(-2 * time.Hour), Source: "file: street.wav", SampleRate: 48000,
 			Counters:    &web.Counters{Seconds: 7200, Minutes: 120, Gaps: 1, DroppedSamples: 9600, QueueOverflows: 2, Reopens: 1},
 			ClockSynced: &synced,
-			MQTT: web.MQTTFrom(publish.Status{Connected: true, Broker: "tcp://127.0.0.1:1883",
-				Pending: map[string]uint64{"second": 41, "minute": 1}, LastPublish: testNow().Add(-2 * time.Second)}),
+			MQTT: &web.MQTTStatus{Connected: true, Broker: "tcp://127.0.0.1:1883", Pending: 42,
+				PendingKind: map[string]uint64{"second": 41, "minute": 1}, LastPublish: testNow().Add(-2 * time.Second)},
 			Calibration: &web.CalibrationStatus{SensitivityDBFS: -38.31},
 			SelfCheck:   &web.SelfCheckStatus{At: selfAt, Pass: false, Checks: 120, Failed: []string{"A weighting at 63 Hz"}},
 		}

@@ -5,21 +5,12 @@ import (
 	"math"
 	"strconv"
 	"time"
-
-	"github.com/leqnode/leqnode/dsp/selftest"
-	"github.com/leqnode/leqnode/node"
-	"github.com/leqnode/leqnode/node/publish"
 )
 
 // Live is the current A-weighted Fast level.
 type Live struct {
 	LAF float64   // dB; NaN when there is none (before the first block, digital silence)
 	At  time.Time // when it was read
-}
-
-// LiveFrom returns a Live function reading the level a running node keeps in its counters.
-func LiveFrom(c *node.Counters) func() Live {
-	return func() Live { return Live{LAF: c.Level(), At: time.Now()} }
 }
 
 // Status is what the running node reports about itself. Every field is optional: a field the
@@ -59,15 +50,6 @@ type Counters struct {
 	Reopens        int64 `json:"source_reopens"`  // times the source was re-opened after a failure
 }
 
-// CountersFrom copies a running node's counters.
-func CountersFrom(c *node.Counters) *Counters {
-	return &Counters{
-		Seconds: c.Seconds.Load(), Minutes: c.Minutes.Load(), Gaps: c.Gaps.Load(),
-		DroppedSamples: c.DroppedSamples.Load(), QueueOverflows: c.QueueOverflows.Load(),
-		Reopens: c.Reopens.Load(),
-	}
-}
-
 // StoreStatus describes the store file. The server fills it from Store.Stats.
 type StoreStatus struct {
 	Path         string            `json:"path,omitempty"`
@@ -92,19 +74,6 @@ type MQTTStatus struct {
 	LastError   string            `json:"last_error,omitempty"`
 }
 
-// MQTTFrom converts a publisher's status. The publisher keeps no credentials in it.
-func MQTTFrom(st publish.Status) *MQTTStatus {
-	m := &MQTTStatus{
-		Connected: st.Connected, Broker: st.Broker, Since: st.Since, LastPublish: st.LastPublish,
-		LastError: st.LastError, PendingKind: map[string]uint64{},
-	}
-	for k, n := range st.Pending {
-		m.Pending += n
-		m.PendingKind[k] = n
-	}
-	return m
-}
-
 // CalibrationStatus is the sensitivity in use and where it came from. The checks themselves
 // are read from the store.
 type CalibrationStatus struct {
@@ -124,15 +93,6 @@ type SelfCheckStatus struct {
 	Failed     []string  `json:"failed,omitempty"` // the tests that failed, by name
 	SampleRate float64   `json:"sample_rate_Hz"`
 	Error      string    `json:"error,omitempty"`
-}
-
-// SelfCheckFrom summarises a self-test report run at time at.
-func SelfCheckFrom(at time.Time, r selftest.Report) *SelfCheckStatus {
-	s := &SelfCheckStatus{At: at, Pass: r.Pass, Checks: len(r.Checks), SampleRate: r.SampleRate, Error: r.Error}
-	for _, c := range r.Failed() {
-		s.Failed = append(s.Failed, c.Test)
-	}
-	return s
 }
 
 // level is a decibel value written with 0.01 dB resolution, and as null when it is NaN or

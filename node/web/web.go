@@ -49,8 +49,8 @@ type Options struct {
 	// calibration checks, health snapshots, gaps) and the store's size.
 	Store *buffer.Store
 
-	// Live returns the current A-weighted Fast level; nil sends no levels. LiveFrom reads a
-	// node's counters.
+	// Live returns the current A-weighted Fast level; nil sends no levels. The daemon reads
+	// it from the running node's counters.
 	Live func() Live
 	// LiveInterval is the time between live level events on /api/live. Default 200 ms (five
 	// a second); at least 50 ms.
