@@ -213,21 +213,43 @@ type bankStage struct {
 	filters []bankFilter
 	count   int            // samples seen since the last MeanSquare
 	in      []float64      // input scratch of stages k ≥ 1
+	u       []float64      // scratch: the input after the shared numerator
+	hist    []float64      // the shared numerator's input: its last bankNumeratorLen samples, then the chunk
 	dec     *bankDecimator // feeds the next stage; nil for the last
 }
 
+// bankMaxSections is the largest number of sections of a band filter.
+const bankMaxSections = bankOrderTop
+
 // bankFilter is one band-pass filter: sections with numerator 1 - z⁻² (coefficients B0 = 1,
-// B2 = -1) and an overall gain applied to the mean square, run in direct form II.
+// B2 = -1) and an overall gain applied to the mean square. The numerators commute with the
+// poles, so they run first: the stage applies the factors (1 - z⁻²) that all its bands have
+// once for all of them, the filter any further ones (extra), and then its all-pole sections in
+// direct form II.
 type bankFilter struct {
 	band   int
-	sec    []Section
+	sec    []Section                   // the sections as designed (Response, settling)
+	nsec   int                         // len(sec)
+	extra  int                         // numerator factors of its own
+	a      [bankMaxSections][2]float64 // A1, A2 per section
+	w      [bankMaxSections][2]float64 // w[n-1], w[n-2] per section
+	num    [bankMaxSections][2]float64 // last two inputs, newest first, per numerator factor of its own
 	gain   float64
-	state  [][2]float64 // w[n-1], w[n-2] per section
-	sum    float64      // sum of squared (unscaled) outputs since the last MeanSquare
-	early  float64      // the part of sum from before the filter had settled
-	nEarly int          // outputs in early
-	settle int          // outputs, at the stage's rate, from rest until the filter has settled
-	skip   int          // outputs still to come before the filter has settled
+	sum    float64 // sum of squared (unscaled) outputs since the last MeanSquare
+	early  float64 // the part of sum from before the filter had settled
+	nEarly int     // outputs in early
+	settle int     // outputs, at the stage's rate, from rest until the filter has settled
+	skip   int     // outputs still to come before the filter has settled
+}
+
+// newBankFilter returns a filter for band of the sections sec at rest, for a stage whose shared
+// numerator has m factors.
+func newBankFilter(band int, sec []Section, gain float64, m, settle int) bankFilter {
+	f := bankFilter{band: band, sec: sec, nsec: len(sec), extra: len(sec) - m, gain: gain, settle: settle, skip: settle}
+	for i, c := range sec {
+		f.a[i] = [2]float64{c.A1, c.A2}
+	}
+	return f
 }
 
 // bankDecimator is a half-band IIR low-pass that keeps every second sample, in polyphase form:
@@ -282,10 +304,18 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 			n = (n + 1) / 2
 			st.in = make([]float64, n)
 		}
+		st.u = make([]float64, n)
+		st.hist = make([]float64, bankNumeratorLen+n)
 		if k+1 < nstage {
 			st.dec = newBankDecimator(half)
 		}
 	}
+	type design struct {
+		sec    []Section
+		gain   float64
+		settle int
+	}
+	designs := make([]design, len(bands))
 	for i, bd := range bands {
 		k := stageOf[i]
 		st := &fb.stages[k]
@@ -300,15 +330,13 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 			// its output samples, all of them within 2·decSettle at this stage's rate.
 			settle += 2 * decSettle
 		}
-		fb.where[i] = bankWhere{stage: k, filter: len(st.filters)}
-		st.filters = append(st.filters, bankFilter{
-			band:   i,
-			sec:    sec,
-			gain:   gain,
-			state:  make([][2]float64, len(sec)),
-			settle: settle,
-			skip:   settle,
-		})
+		designs[i] = design{sec, gain, settle}
+	}
+	for i := range bands {
+		st := &fb.stages[stageOf[i]]
+		d := designs[i]
+		fb.where[i] = bankWhere{stage: stageOf[i], filter: len(st.filters)}
+		st.filters = append(st.filters, newBankFilter(i, d.sec, d.gain, bankOrder, d.settle))
 	}
 	return fb, nil
 }
@@ -590,8 +618,12 @@ func (b *FilterBank) Process(x []float64) {
 func (b *FilterBank) chunk(x []float64) {
 	for k := range b.stages {
 		st := &b.stages[k]
-		for i := range st.filters {
-			st.filters[i].run(x)
+		if len(st.filters) > 0 {
+			u := st.u[:len(x)]
+			bankNumerator4(st.hist, x, u, 4, 6)
+			for i := range st.filters {
+				st.filters[i].run(u)
+			}
 		}
 		st.count += len(x)
 		if st.dec == nil {
@@ -605,14 +637,15 @@ func (b *FilterBank) chunk(x []float64) {
 	}
 }
 
-// run filters x through f's sections in direct form II,
+// run filters x, the stage's input after the stage's shared numerator (1 - z⁻²)^m, through
+// f's remaining numerator factors and its all-pole sections,
 //
-//	w[n] = x[n] - a2·w[n-2] - a1·w[n-1],  y[n] = w[n] - w[n-2],
+//	w[n] = v[n] - a2·w[n-2] - a1·w[n-1],
 //
-// section after section for each sample, and adds y² to f.sum. The sections of one band run
-// in the same loop so that the processor can overlap them across samples (their recursions are
-// independent chains), and the a1 term comes last so that the recursion through w[n-1] costs
-// one multiplication and one subtraction of latency per sample.
+// section after section for each sample, and adds the last section's w² to f.sum. The sections
+// of one band run in the same loop so that the processor can overlap them across samples (their
+// recursions are independent chains), and the a1 term comes last so that the recursion through
+// w[n-1] costs one multiplication and one subtraction of latency per sample.
 func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
@@ -628,97 +661,137 @@ func (f *bankFilter) run(x []float64) {
 }
 
 func (f *bankFilter) runSections(x []float64) {
-	switch len(f.sec) {
-	case 4:
+	switch {
+	case f.nsec == 4 && f.extra == 0:
 		f.run4(x)
 		return
-	case 5:
+	case f.nsec == 5 && f.extra == 1:
 		f.run5(x)
 		return
 	}
 	f.runAny(x)
 }
 
-// runAny is run for any number of sections.
+// runAny is run for any number of sections and numerator factors.
 func (f *bankFilter) runAny(x []float64) {
 	sum := f.sum
 	for _, v := range x {
-		for i := range f.sec {
-			s := &f.sec[i]
-			st := &f.state[i]
-			w := v - s.A2*st[1] - s.A1*st[0]
-			v = w - st[1]
-			st[1] = st[0]
-			st[0] = w
+		for i := range f.extra {
+			e := &f.num[i]
+			v, e[0], e[1] = v-e[1], v, e[0]
+		}
+		for i := range f.nsec {
+			c, st := &f.a[i], &f.w[i]
+			w := v - c[1]*st[1] - c[0]*st[0]
+			st[1], st[0] = st[0], w
+			v = w
 		}
 		sum += v * v
 	}
 	f.sum = sum
 }
 
+// run4 is run for four sections and no numerator factor of its own. It takes two samples per
+// turn, so that the two state registers of each section swap roles instead of being copied:
+// the first sample's w overwrites w[n-2], the second's w[n-1]. It computes the same bits as
+// runAny.
 func (f *bankFilter) run4(x []float64) {
 	// The coefficients stay in memory (the loop reads them as operands) and the state in
-	// registers: with both in registers the loop would spill and reload them, which costs more.
-	c1, c2, c3, c4 := &f.sec[0], &f.sec[1], &f.sec[2], &f.sec[3]
-	p1, q1 := f.state[0][0], f.state[0][1]
-	p2, q2 := f.state[1][0], f.state[1][1]
-	p3, q3 := f.state[2][0], f.state[2][1]
-	p4, q4 := f.state[3][0], f.state[3][1]
+	// registers.
+	a := f.a[:]
+	c1, c2, c3, c4 := &a[0], &a[1], &a[2], &a[3]
+	p1, q1 := f.w[0][0], f.w[0][1]
+	p2, q2 := f.w[1][0], f.w[1][1]
+	p3, q3 := f.w[2][0], f.w[2][1]
+	p4, q4 := f.w[3][0], f.w[3][1]
 	sum := f.sum
-	for _, v := range x {
-		w := v - c1.A2*q1 - c1.A1*p1
-		v = w - q1
-		q1, p1 = p1, w
-		w = v - c2.A2*q2 - c2.A1*p2
-		v = w - q2
-		q2, p2 = p2, w
-		w = v - c3.A2*q3 - c3.A1*p3
-		v = w - q3
-		q3, p3 = p3, w
-		w = v - c4.A2*q4 - c4.A1*p4
-		v = w - q4
-		q4, p4 = p4, w
-		sum += v * v
+	n := len(x) &^ 1
+	for y := x[:n]; len(y) >= 2; y = y[2:] {
+		q1 = y[0] - c1[1]*q1 - c1[0]*p1
+		q2 = q1 - c2[1]*q2 - c2[0]*p2
+		q3 = q2 - c3[1]*q3 - c3[0]*p3
+		q4 = q3 - c4[1]*q4 - c4[0]*p4
+		sum += q4 * q4
+		p1 = y[1] - c1[1]*p1 - c1[0]*q1
+		p2 = p1 - c2[1]*p2 - c2[0]*q2
+		p3 = p2 - c3[1]*p3 - c3[0]*q3
+		p4 = p3 - c4[1]*p4 - c4[0]*q4
+		sum += p4 * p4
 	}
-	f.state[0] = [2]float64{p1, q1}
-	f.state[1] = [2]float64{p2, q2}
-	f.state[2] = [2]float64{p3, q3}
-	f.state[3] = [2]float64{p4, q4}
+	f.w[0] = [2]float64{p1, q1}
+	f.w[1] = [2]float64{p2, q2}
+	f.w[2] = [2]float64{p3, q3}
+	f.w[3] = [2]float64{p4, q4}
 	f.sum = sum
+	if n < len(x) {
+		f.runAny(x[n:])
+	}
 }
 
+// run5 is run4 for five sections and one numerator factor (1 - z⁻²) of its own.
 func (f *bankFilter) run5(x []float64) {
-	c1, c2, c3, c4, c5 := &f.sec[0], &f.sec[1], &f.sec[2], &f.sec[3], &f.sec[4]
-	p1, q1 := f.state[0][0], f.state[0][1]
-	p2, q2 := f.state[1][0], f.state[1][1]
-	p3, q3 := f.state[2][0], f.state[2][1]
-	p4, q4 := f.state[3][0], f.state[3][1]
-	p5, q5 := f.state[4][0], f.state[4][1]
+	c1, c2, c3, c4, c5 := &f.a[0], &f.a[1], &f.a[2], &f.a[3], &f.a[4]
+	e0, e1 := f.num[0][0], f.num[0][1]
+	p1, q1 := f.w[0][0], f.w[0][1]
+	p2, q2 := f.w[1][0], f.w[1][1]
+	p3, q3 := f.w[2][0], f.w[2][1]
+	p4, q4 := f.w[3][0], f.w[3][1]
+	p5, q5 := f.w[4][0], f.w[4][1]
 	sum := f.sum
-	for _, v := range x {
-		w := v - c1.A2*q1 - c1.A1*p1
-		v = w - q1
-		q1, p1 = p1, w
-		w = v - c2.A2*q2 - c2.A1*p2
-		v = w - q2
-		q2, p2 = p2, w
-		w = v - c3.A2*q3 - c3.A1*p3
-		v = w - q3
-		q3, p3 = p3, w
-		w = v - c4.A2*q4 - c4.A1*p4
-		v = w - q4
-		q4, p4 = p4, w
-		w = v - c5.A2*q5 - c5.A1*p5
-		v = w - q5
-		q5, p5 = p5, w
-		sum += v * v
+	n := len(x) &^ 1
+	for i := 0; i < n; i += 2 {
+		v := x[i] - e1
+		e1 = x[i]
+		q1 = v - c1[1]*q1 - c1[0]*p1
+		q2 = q1 - c2[1]*q2 - c2[0]*p2
+		q3 = q2 - c3[1]*q3 - c3[0]*p3
+		q4 = q3 - c4[1]*q4 - c4[0]*p4
+		q5 = q4 - c5[1]*q5 - c5[0]*p5
+		sum += q5 * q5
+		v = x[i+1] - e0
+		e0 = x[i+1]
+		p1 = v - c1[1]*p1 - c1[0]*q1
+		p2 = p1 - c2[1]*p2 - c2[0]*q2
+		p3 = p2 - c3[1]*p3 - c3[0]*q3
+		p4 = p3 - c4[1]*p4 - c4[0]*q4
+		p5 = p4 - c5[1]*p5 - c5[0]*q5
+		sum += p5 * p5
 	}
-	f.state[0] = [2]float64{p1, q1}
-	f.state[1] = [2]float64{p2, q2}
-	f.state[2] = [2]float64{p3, q3}
-	f.state[3] = [2]float64{p4, q4}
-	f.state[4] = [2]float64{p5, q5}
+	f.num[0] = [2]float64{e0, e1}
+	f.w[0] = [2]float64{p1, q1}
+	f.w[1] = [2]float64{p2, q2}
+	f.w[2] = [2]float64{p3, q3}
+	f.w[3] = [2]float64{p4, q4}
+	f.w[4] = [2]float64{p5, q5}
 	f.sum = sum
+	if n < len(x) {
+		f.runAny(x[n:])
+	}
+}
+
+// bankNumeratorLen is the number of past input samples the shared numerator reads.
+const bankNumeratorLen = 8
+
+// bankNumerator4 writes x filtered by (1 - z⁻²)⁴ = 1 - 4z⁻² + 6z⁻⁴ - 4z⁻⁶ + z⁻⁸, the numerator
+// that the band filters of a stage share, to u. buf holds the last bankNumeratorLen input
+// samples, then room for x: the filter reads the samples from there, as a direct-form FIR, so
+// that it keeps no state in registers across samples.
+//
+// The binomial coefficients come in as arguments (four and six, 4 and 6), so that they stay in
+// registers instead of being loaded as constants from memory for every sample.
+//
+//go:noinline
+func bankNumerator4(buf, x, u []float64, four, six float64) {
+	const h = bankNumeratorLen
+	w := buf[:h+len(x)]
+	copy(w[h:], x)
+	u = u[:len(x)]
+	n := len(u)
+	w0, w2, w4, w6, w8 := w[:n], w[2:2+n], w[4:4+n], w[6:6+n], w[8:8+n]
+	for i := range u {
+		u[i] = (w8[i] + w0[i]) - four*(w6[i]+w2[i]) + six*w4[i]
+	}
+	copy(buf[:h], w[len(x):])
 }
 
 // MeanSquare returns, for each band in the order of Bands, the mean square of the band's
@@ -792,10 +865,11 @@ func (b *FilterBank) Reset() {
 		st := &b.stages[k]
 		for i := range st.filters {
 			f := &st.filters[i]
-			clear(f.state)
+			f.w, f.num = [bankMaxSections][2]float64{}, [bankMaxSections][2]float64{}
 			f.sum, f.early, f.nEarly, f.skip = 0, 0, 0, f.settle
 		}
 		st.count = 0
+		clear(st.hist)
 		if st.dec != nil {
 			clear(st.dec.s0)
 			clear(st.dec.s1)
