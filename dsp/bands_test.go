@@ -831,13 +831,14 @@ func BenchmarkFilterBank(b *testing.B) {
 // TestBandEdgeCrossing: adjacent bands cross at -3.0 dB (within 0.25 dB; the design goal of
 // issue 18, so that a sine on the edge reads half its energy in each band) at the exact band
 // edge fm·G^(1/(2b)) = f(m+1)·G^(-1/(2b)) with fm = 1000·G^(x/b), G = 10^(3/10) (IEC
-// 61260-1:2014 Eq. 1, 2, 4, 5), written out here, for every pair at rates from 8 to 192 kHz. The
-// IEC 61260-1:2014 Table 1 class 1 limits at the edge are 1.2 to 5.3 dB (via phonometry
-// filters.py). Before, a sine on the 1000/1250 Hz edge read 3.64 dB down in each band.
+// 61260-1:2014 Eq. 1, 2, 4, 5), written out here, for every pair at the common rates from 8 to
+// 192 kHz. The IEC 61260-1:2014 Table 1 class 1 limits at the edge are 1.2 to 5.3 dB (via
+// phonometry filters.py). The bank crosses at -3.1 dB (see bankEdgeDB). Before issue 18, a sine
+// on the 1000/1250 Hz edge read 3.64 dB down in each band.
 func TestBandEdgeCrossing(t *testing.T) {
 	for _, set := range []BandSet{Third, Octave} {
 		b := float64(set)
-		for _, fs := range []float64{8000, 11025, 44100, 48000, 96000, 192000} {
+		for _, fs := range []float64{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000} {
 			fb, err := NewFilterBank(set, fs)
 			if err != nil {
 				t.Fatal(err)
@@ -879,19 +880,21 @@ func TestBandEdgeCrossing(t *testing.T) {
 }
 
 // TestBandSineEnergySum: for sines across every band, the energies of all bands sum to the
-// sine's within -0.9/+0.75 dB, inside the class 1 limits of IEC 61260-1:2014 5.16 for the sum of
-// adjacent bands, +0.8/-1.8 dB (via phonometry filters.py). The bound is this design's: bands of
-// Butterworth band-pass filters are not power complementary, so a sine a little inside a band
-// still reads 7 to 9 dB down in its neighbour (fourth order, analog: up to +0.2 dB), and the
-// warping of the bilinear transform near each stage's Nyquist frequency adds to it (the earlier
-// third-order bank: -0.88/+0.54 dB for one-third octaves; the octave bank at 8 kHz reaches
-// -0.84 dB, where each stage holds one octave band whose edges lie at 0.18 and 0.36 of its
-// rate). The sum uses the analytic responses at 16 frequencies per
-// band from its lower to its upper edge, at rates from 8 to 192 kHz, and Process for a sine at
-// each of 5 frequencies across the 1 kHz band at 48 kHz.
+// sine's within -0.86/+0.72 dB, inside the class 1 limits of IEC 61260-1:2014 5.16 for the sum
+// of adjacent bands, +0.8/-1.8 dB (via phonometry filters.py). The design goal of issue 18 is a
+// sum of 0 dB (power-complementary bands); this bank does not reach it, and the bound is the
+// honest one for its design, 0.02 dB outside the worst figures (computed at the rates below:
+// one-third octaves -0.55/+0.68 dB, at 48 kHz -0.50/+0.59 dB; octaves -0.84/+0.70 dB at 8, 16
+// and 32 kHz, where each stage holds one octave band whose edges lie at 0.18 and 0.36 of its
+// rate). Bands of Butterworth band-pass filters are not power complementary: a sine a little
+// inside a band still reads 7 to 9 dB down in its neighbour (fourth order, analog: up to
+// +0.2 dB), and the warping of the bilinear transform near each stage's Nyquist frequency adds
+// to it. The sum uses the analytic responses at 16 frequencies per band from its lower to its
+// upper edge, at rates from 8 to 192 kHz, and Process for a sine at each of 5 frequencies
+// across the 1 kHz band at 48 kHz.
 func TestBandSineEnergySum(t *testing.T) {
 	for _, set := range []BandSet{Third, Octave} {
-		for _, fs := range []float64{8000, 44100, 48000, 192000} {
+		for _, fs := range []float64{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000} {
 			fb, err := NewFilterBank(set, fs)
 			if err != nil {
 				t.Fatal(err)
@@ -911,7 +914,7 @@ func TestBandSineEnergySum(t *testing.T) {
 					}
 					d := 10 * math.Log10(sum)
 					lo, hi = min(lo, d), max(hi, d)
-					if d < -0.9 || d > 0.75 {
+					if d < -0.86 || d > 0.72 {
 						t.Errorf("%v at %g Hz: a sine at %.1f Hz (band %s) sums to %.3f dB over all bands", set, fs, f, bd.Nominal, d)
 					}
 				}
@@ -929,7 +932,7 @@ func TestBandSineEnergySum(t *testing.T) {
 		for _, v := range ms {
 			sum += v
 		}
-		if d := 10 * math.Log10(sum/0.5); d < -0.9 || d > 0.75 {
+		if d := 10 * math.Log10(sum/0.5); d < -0.86 || d > 0.72 {
 			t.Errorf("sine of amplitude 1 at %.1f Hz through Process: the bands sum to %.3f dB of its mean square", f, d)
 		}
 	}
