@@ -122,6 +122,11 @@ const (
 	// least 86 dB down.
 	bankHalfPass  = 0.2
 	bankHalfCoefs = 5
+
+	// bankUpperFloor is the lowest lower band edge, as a fraction of fs, of a band computed in
+	// the upper branch at fs/2, and bankOrderUpper the order of its band-pass prototype.
+	bankUpperFloor = 0.29
+	bankOrderUpper = 4
 )
 
 // FilterBank is a bank of octave or one-third-octave band-pass filters per IEC 61260-1:2014,
@@ -202,6 +207,7 @@ type FilterBank struct {
 	fs     float64
 	bands  []Band
 	stages []bankStage
+	chain  int         // the stages fed one from the next: stages[:chain]; stages[chain], if any, is the upper branch
 	where  []bankWhere // per band: its stage and filter index
 }
 
@@ -287,17 +293,32 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		stageOf[i] = k
 		nstage = max(nstage, k+1)
 	}
+	// The bands of stage 0 whose lower edge lies at least bankUpperFloor·fs up go to the upper
+	// branch, a stage at fs/2 fed by the first decimator's high-pass output.
+	upper := false
+	if nstage > 1 {
+		for i, bd := range bands {
+			if stageOf[i] == 0 && bd.Lower >= bankUpperFloor*fs {
+				stageOf[i] = nstage
+				upper = true
+			}
+		}
+	}
 	fb := &FilterBank{
 		set:    set,
 		fs:     fs,
 		bands:  bands,
 		stages: make([]bankStage, nstage),
+		chain:  nstage,
 		where:  make([]bankWhere, len(bands)),
+	}
+	if upper {
+		fb.stages = append(fb.stages, bankStage{})
 	}
 	half := bankHalfBand(bankHalfCoefs, bankHalfPass)
 	decSettle := bankDecimatorSettle(half)
 	n := bankChunk
-	for k := range fb.stages {
+	for k := range fb.stages[:nstage] {
 		st := &fb.stages[k]
 		st.rate = fs / math.Ldexp(1, k)
 		if k > 0 {
@@ -309,6 +330,14 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		if k+1 < nstage {
 			st.dec = newBankDecimator(half)
 		}
+	}
+	if upper {
+		st := &fb.stages[nstage]
+		st.rate = fs / 2
+		n = (bankChunk + 1) / 2
+		st.in = make([]float64, n)
+		st.u = make([]float64, n)
+		st.hist = make([]float64, bankNumeratorLen+n)
 	}
 	type design struct {
 		sec    []Section
@@ -323,7 +352,15 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		if k == 0 && bd.Upper > bankTopEdge*fs {
 			order = bankOrderTop
 		}
-		sec, gain := bankBandPass(order, bd.Lower, bd.Upper, bd.Mid, st.rate)
+		var sec []Section
+		var gain float64
+		if k == nstage {
+			// In the upper branch a sine of frequency f appears at fs/2 - f.
+			h := fs / 2
+			sec, gain = bankBandPass(bankOrderUpper, h-bd.Upper, h-bd.Lower, h-bd.Mid, st.rate)
+		} else {
+			sec, gain = bankBandPass(order, bd.Lower, bd.Upper, bd.Mid, st.rate)
+		}
 		settle := bankSettle(sec, st.rate/(bd.Upper-bd.Lower))
 		if k > 0 {
 			// The decimators above start from rest too: each rings down within decSettle of
@@ -526,6 +563,87 @@ func (d *bankDecimator) response(f, fs float64) complex128 {
 	return 0.5 * (chain(d.a0) + z1*chain(d.a1))
 }
 
+// responseHigh returns the frequency response of the decimator's complementary high-pass,
+// ½·[A0(z²) - z⁻¹·A1(z²)], at f for input rate fs.
+func (d *bankDecimator) responseHigh(f, fs float64) complex128 {
+	z1 := cmplx.Exp(complex(0, -2*math.Pi*f/fs)) // z⁻¹
+	z2 := z1 * z1
+	chain := func(a []float64) complex128 {
+		h := complex(1, 0)
+		for _, c := range a {
+			h *= (complex(c, 0) + z2) / (1 + complex(c, 0)*z2)
+		}
+		return h
+	}
+	return 0.5 * (chain(d.a0) - z1*chain(d.a1))
+}
+
+// decimateBoth is decimate that also writes the complementary high-pass output,
+// ½·[A0(z²) - z⁻¹·A1(z²)], of each kept sample to high.
+func (d *bankDecimator) decimateBoth(x, out, high []float64) int {
+	if len(d.a0) == 3 && len(d.a1) == 2 {
+		return d.decimate5Both(x, out, high)
+	}
+	return d.decimateBothAny(x, out, high)
+}
+
+func (d *bankDecimator) decimateBothAny(x, out, high []float64) int {
+	k := 0
+	for _, v := range x {
+		if d.phase == 1 {
+			d.odd = allpassChain(d.a1, d.s1, v)
+			d.phase = 0
+			continue
+		}
+		e := allpassChain(d.a0, d.s0, v)
+		out[k] = 0.5 * (e + d.odd)
+		high[k] = 0.5 * (e - d.odd)
+		k++
+		d.phase = 1
+	}
+	return k
+}
+
+// decimate5Both is decimate5 with the high-pass output; it computes the same bits as
+// decimateBothAny.
+func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
+	k := 0
+	if d.phase == 1 && len(x) > 0 {
+		d.decimateBothAny(x[:1], out, high) // a skipped sample: nothing kept
+		x = x[1:]
+	}
+	c0, c1, c2 := d.a0[0], d.a0[1], d.a0[2]
+	e0, e1 := d.a1[0], d.a1[1]
+	s := (*[4]float64)(d.s0)
+	t := (*[3]float64)(d.s1)
+	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
+	t0, t1, t2 := t[0], t[1], t[2]
+	odd := d.odd
+	n := len(x) &^ 1
+	out, high = out[:n/2], high[:n/2]
+	for i := 0; i < n; i += 2 {
+		v := x[i]
+		y := c0*(v-s1) + s0
+		s0 = v
+		u := c1*(y-s2) + s1
+		s1 = y
+		s3 = c2*(u-s3) + s2
+		s2 = u
+		out[k] = 0.5 * (s3 + odd)
+		high[k] = 0.5 * (s3 - odd)
+		k++
+		v = x[i+1]
+		y = e0*(v-t1) + t0
+		t0 = v
+		t1, t2 = y, e1*(y-t2)+t1
+		odd = t2
+	}
+	*s = [4]float64{s0, s1, s2, s3}
+	*t = [3]float64{t0, t1, t2}
+	d.odd = odd
+	return k + d.decimateBothAny(x[n:], out[k:cap(out)], high[k:cap(high)])
+}
+
 // decimate filters x and writes the kept samples to out, returning their number.
 func (d *bankDecimator) decimate(x, out []float64) int {
 	if len(d.a0) == 3 && len(d.a1) == 2 {
@@ -616,25 +734,37 @@ func (b *FilterBank) Process(x []float64) {
 }
 
 func (b *FilterBank) chunk(x []float64) {
-	for k := range b.stages {
+	for k := range b.stages[:b.chain] {
 		st := &b.stages[k]
-		if len(st.filters) > 0 {
-			u := st.u[:len(x)]
-			bankNumerator4(st.hist, x, u, 4, 6)
-			for i := range st.filters {
-				st.filters[i].run(u)
-			}
-		}
-		st.count += len(x)
+		st.run(x)
 		if st.dec == nil {
 			return
 		}
 		next := &b.stages[k+1]
-		x = next.in[:st.dec.decimate(x, next.in)]
+		if k == 0 && b.chain < len(b.stages) {
+			up := &b.stages[b.chain]
+			m := st.dec.decimateBoth(x, next.in, up.in)
+			up.run(up.in[:m])
+			x = next.in[:m]
+		} else {
+			x = next.in[:st.dec.decimate(x, next.in)]
+		}
 		if len(x) == 0 {
 			return
 		}
 	}
+}
+
+// run filters x through the stage's shared numerator and its band filters.
+func (st *bankStage) run(x []float64) {
+	if len(st.filters) > 0 {
+		u := st.u[:len(x)]
+		bankNumerator4(st.hist, x, u, 4, 6)
+		for i := range st.filters {
+			st.filters[i].run(u)
+		}
+	}
+	st.count += len(x)
 }
 
 // run filters x, the stage's input after the stage's shared numerator (1 - z⁻²)^m, through
@@ -901,6 +1031,13 @@ func (b *FilterBank) Response(i int, f float64) complex128 {
 	w := b.where[i]
 	h := complex(1, 0)
 	f, h = bankFold(f, b.fs, h)
+	if w.stage == b.chain {
+		h *= b.stages[0].dec.responseHigh(f, b.fs)
+		f, h = bankFold(f, b.fs/2, h)
+		st := &b.stages[w.stage]
+		flt := &st.filters[w.filter]
+		return h * complex(flt.gain, 0) * CascadeResponse(flt.sec, f, st.rate)
+	}
 	for k := 0; k < w.stage; k++ {
 		st := &b.stages[k]
 		h *= st.dec.response(f, st.rate)
