@@ -237,7 +237,8 @@ type bankFilter struct {
 	sec    []Section                   // the sections as designed (Response, settling)
 	nsec   int                         // len(sec)
 	extra  int                         // numerator factors of its own
-	a      [bankMaxSections][2]float64 // A1, A2 per section
+	a      [bankMaxSections][2]float64 // -A1, -A2 per section
+	a2     [bankMaxSections][2]float64 // a copy of a for the kernels' second sample (see run4)
 	w      [bankMaxSections][2]float64 // w[n-1], w[n-2] per section
 	num    [bankMaxSections][2]float64 // last two inputs, newest first, per numerator factor of its own
 	gain   float64
@@ -253,7 +254,8 @@ type bankFilter struct {
 func newBankFilter(band int, sec []Section, gain float64, m, settle int) bankFilter {
 	f := bankFilter{band: band, sec: sec, nsec: len(sec), extra: len(sec) - m, gain: gain, settle: settle, skip: settle}
 	for i, c := range sec {
-		f.a[i] = [2]float64{c.A1, c.A2}
+		f.a[i] = [2]float64{-c.A1, -c.A2}
+		f.a2[i] = f.a[i]
 	}
 	return f
 }
@@ -767,15 +769,14 @@ func (st *bankStage) run(x []float64) {
 	st.count += len(x)
 }
 
-// run filters x, the stage's input after the stage's shared numerator (1 - z⁻²)^m, through
-// f's remaining numerator factors and its all-pole sections,
+// run filters x, the stage's input after the stage's shared numerator (1 - z⁻²)⁴, through f's
+// remaining numerator factors and its all-pole sections,
 //
-//	w[n] = v[n] - a2·w[n-2] - a1·w[n-1],
+//	w[n] = (-a2)·w[n-2] + (-a1)·w[n-1] + v[n],
 //
 // section after section for each sample, and adds the last section's w² to f.sum. The sections
 // of one band run in the same loop so that the processor can overlap them across samples (their
-// recursions are independent chains), and the a1 term comes last so that the recursion through
-// w[n-1] costs one multiplication and one subtraction of latency per sample.
+// recursions are independent chains).
 func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
@@ -812,7 +813,7 @@ func (f *bankFilter) runAny(x []float64) {
 		}
 		for i := range f.nsec {
 			c, st := &f.a[i], &f.w[i]
-			w := v - c[1]*st[1] - c[0]*st[0]
+			w := c[1]*st[1] + c[0]*st[0] + v
 			st[1], st[0] = st[0], w
 			v = w
 		}
@@ -823,29 +824,31 @@ func (f *bankFilter) runAny(x []float64) {
 
 // run4 is run for four sections and no numerator factor of its own. It takes two samples per
 // turn, so that the two state registers of each section swap roles instead of being copied:
-// the first sample's w overwrites w[n-2], the second's w[n-1]. It computes the same bits as
-// runAny.
+// the first sample's w overwrites w[n-2], the second's w[n-1]. Each section computes
+// w = (-a2)·w[n-2] + (-a1)·w[n-1] + v, so that its input v, which the section before keeps as
+// its state, is only read, never copied; the second sample reads its coefficients from a copy
+// (a2), so that the compiler loads them afresh instead of keeping all eight in registers, which
+// would not leave room for the state. It computes the same bits as runAny.
 func (f *bankFilter) run4(x []float64) {
-	// The coefficients stay in memory (the loop reads them as operands) and the state in
-	// registers.
-	a := f.a[:]
-	c1, c2, c3, c4 := &a[0], &a[1], &a[2], &a[3]
+	c1, c2, c3, c4 := &f.a[0], &f.a[1], &f.a[2], &f.a[3]
+	d1, d2, d3, d4 := &f.a2[0], &f.a2[1], &f.a2[2], &f.a2[3]
 	p1, q1 := f.w[0][0], f.w[0][1]
 	p2, q2 := f.w[1][0], f.w[1][1]
 	p3, q3 := f.w[2][0], f.w[2][1]
 	p4, q4 := f.w[3][0], f.w[3][1]
 	sum := f.sum
 	n := len(x) &^ 1
-	for y := x[:n]; len(y) >= 2; y = y[2:] {
-		q1 = y[0] - c1[1]*q1 - c1[0]*p1
-		q2 = q1 - c2[1]*q2 - c2[0]*p2
-		q3 = q2 - c3[1]*q3 - c3[0]*p3
-		q4 = q3 - c4[1]*q4 - c4[0]*p4
+	y := x[:n]
+	for i := 1; i < len(y); i += 2 { // i is the second sample: one bounds check for both
+		q1 = c1[1]*q1 + c1[0]*p1 + y[i-1]
+		q2 = c2[1]*q2 + c2[0]*p2 + q1
+		q3 = c3[1]*q3 + c3[0]*p3 + q2
+		q4 = c4[1]*q4 + c4[0]*p4 + q3
 		sum += q4 * q4
-		p1 = y[1] - c1[1]*p1 - c1[0]*q1
-		p2 = p1 - c2[1]*p2 - c2[0]*q2
-		p3 = p2 - c3[1]*p3 - c3[0]*q3
-		p4 = p3 - c4[1]*p4 - c4[0]*q4
+		p1 = d1[1]*p1 + d1[0]*q1 + y[i]
+		p2 = d2[1]*p2 + d2[0]*q2 + p1
+		p3 = d3[1]*p3 + d3[0]*q3 + p2
+		p4 = d4[1]*p4 + d4[0]*q4 + p3
 		sum += p4 * p4
 	}
 	f.w[0] = [2]float64{p1, q1}
@@ -861,6 +864,7 @@ func (f *bankFilter) run4(x []float64) {
 // run5 is run4 for five sections and one numerator factor (1 - z⁻²) of its own.
 func (f *bankFilter) run5(x []float64) {
 	c1, c2, c3, c4, c5 := &f.a[0], &f.a[1], &f.a[2], &f.a[3], &f.a[4]
+	d1, d2, d3, d4, d5 := &f.a2[0], &f.a2[1], &f.a2[2], &f.a2[3], &f.a2[4]
 	e0, e1 := f.num[0][0], f.num[0][1]
 	p1, q1 := f.w[0][0], f.w[0][1]
 	p2, q2 := f.w[1][0], f.w[1][1]
@@ -872,19 +876,19 @@ func (f *bankFilter) run5(x []float64) {
 	for i := 0; i < n; i += 2 {
 		v := x[i] - e1
 		e1 = x[i]
-		q1 = v - c1[1]*q1 - c1[0]*p1
-		q2 = q1 - c2[1]*q2 - c2[0]*p2
-		q3 = q2 - c3[1]*q3 - c3[0]*p3
-		q4 = q3 - c4[1]*q4 - c4[0]*p4
-		q5 = q4 - c5[1]*q5 - c5[0]*p5
+		q1 = c1[1]*q1 + c1[0]*p1 + v
+		q2 = c2[1]*q2 + c2[0]*p2 + q1
+		q3 = c3[1]*q3 + c3[0]*p3 + q2
+		q4 = c4[1]*q4 + c4[0]*p4 + q3
+		q5 = c5[1]*q5 + c5[0]*p5 + q4
 		sum += q5 * q5
 		v = x[i+1] - e0
 		e0 = x[i+1]
-		p1 = v - c1[1]*p1 - c1[0]*q1
-		p2 = p1 - c2[1]*p2 - c2[0]*q2
-		p3 = p2 - c3[1]*p3 - c3[0]*q3
-		p4 = p3 - c4[1]*p4 - c4[0]*q4
-		p5 = p4 - c5[1]*p5 - c5[0]*q5
+		p1 = d1[1]*p1 + d1[0]*q1 + v
+		p2 = d2[1]*p2 + d2[0]*q2 + p1
+		p3 = d3[1]*p3 + d3[0]*q3 + p2
+		p4 = d4[1]*p4 + d4[0]*q4 + p3
+		p5 = d5[1]*p5 + d5[0]*q5 + p4
 		sum += p5 * p5
 	}
 	f.num[0] = [2]float64{e0, e1}
