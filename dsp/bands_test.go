@@ -469,13 +469,15 @@ func TestBandAdjacentSum(t *testing.T) {
 		fs     float64
 		lo, hi string
 	}{
-		{Third, 48000, "4000", "5000"},  // stages 2 and 1
-		{Third, 48000, "2000", "2500"},  // stages 3 and 2
-		{Third, 48000, "125", "160"},    // stages 7 and 6
-		{Third, 44100, "3150", "4000"},  // stages 2 and 1
-		{Octave, 48000, "1000", "2000"}, // stages 3 and 2
-		{Octave, 48000, "2000", "4000"}, // stages 2 and 1
-		{Octave, 8000, "500", "1000"},   // stages 2 and 1
+		{Third, 48000, "12500", "16000"}, // stage 0 and the upper branch
+		{Third, 44100, "12500", "16000"}, // stage 0 and the upper branch
+		{Third, 48000, "4000", "5000"},   // stages 2 and 1
+		{Third, 48000, "2000", "2500"},   // stages 3 and 2
+		{Third, 48000, "125", "160"},     // stages 7 and 6
+		{Third, 44100, "3150", "4000"},   // stages 2 and 1
+		{Octave, 48000, "1000", "2000"},  // stages 3 and 2
+		{Octave, 48000, "2000", "4000"},  // stages 2 and 1
+		{Octave, 8000, "500", "1000"},    // stages 2 and 1
 	} {
 		fb, err := NewFilterBank(c.set, c.fs)
 		if err != nil {
