@@ -103,7 +103,8 @@ const (
 	// bankOrder and bankOrderTop are the Butterworth orders of the band-pass prototypes:
 	// bankOrderTop for the bands of the full-rate stage whose upper edge lies above
 	// bankTopEdge·fs, where the warping of the bilinear transform needs the steeper skirt, and
-	// bankOrder for all others.
+	// bankOrder for all others (the upper branch has its own, bankOrderUpper). The kernels are
+	// unrolled for bankOrder sections and a stage's shared numerator is (1 - z⁻²)^bankOrder.
 	bankOrder    = 4
 	bankOrderTop = 5
 	bankTopEdge  = 0.45
@@ -124,7 +125,15 @@ const (
 	bankHalfCoefs = 5
 
 	// bankUpperFloor is the lowest lower band edge, as a fraction of fs, of a band computed in
-	// the upper branch at fs/2, and bankOrderUpper the order of its band-pass prototype.
+	// the upper branch at fs/2, and bankOrderUpper the order of its band-pass prototype. A sine
+	// of frequency f > fs/4 reaches the upper branch at fs/2 - f, and so does one of frequency
+	// fs/2 - f < fs/4, attenuated by the high-pass: with the band's lower edge at 0.29 fs or
+	// above, what lands in the band comes from below 0.21 fs, where the high-pass is 86 dB down
+	// (from 0.2 fs) or close to it. The band filters there are designed for the folded band
+	// edges, and the bilinear transform's warping, which works against a band close to the
+	// Nyquist frequency at the full rate, steepens the skirt that faces fs/4; order 4 then
+	// meets the class 1 limits with the same margins as the other bands (the tests check them
+	// with the folding included).
 	bankUpperFloor = 0.29
 	bankOrderUpper = 4
 )
@@ -149,11 +158,12 @@ const (
 // at 3.1 dB it is 0.09 dB. Table 1 allows 1.2 to 5.3 dB at the edges. The gain is set so that
 // the response at the exact midband frequency is 0 dB. A Butterworth bank is not power
 // complementary: a sine a little inside a band still reads 7 to 9 dB down in its neighbour,
-// so the bands of a sine add up to between -0.6 and +0.7 dB of it (IEC 61260-1 allows
-// -1.8/+0.8 dB for two adjacent bands).
+// so the bands of a sine add up to between -0.33 and +0.49 dB of it for one-third octaves
+// and between -0.84 and +0.70 dB for octaves (IEC 61260-1 allows -1.8/+0.8 dB for two
+// adjacent bands).
 //
-// N is 4, and 5 for the band whose upper edge lies above 0.45 fs (the 20 kHz one-third octave
-// at 48 kHz, the 16 kHz octave): close to the Nyquist frequency the warping of the bilinear
+// N is 4, and 5 for a band of the full-rate stage whose upper edge lies above 0.45 fs (the
+// 16 kHz octave at 48 kHz): close to the Nyquist frequency the warping of the bilinear
 // transform flattens the lower skirt and tilts the lower pass band, and the higher order
 // restores the margins.
 //
@@ -168,6 +178,19 @@ const (
 // the lower stage's rate, where the band filters attenuate it; Response includes that
 // folding, so the tests check it against the mask.
 //
+// The bands of stage 0 whose lower edge lies at 0.29 fs or above (the 16 and 20 kHz
+// one-third octaves at 48 kHz, 16 kHz at 44.1 kHz) run at fs/2 instead, in the upper branch:
+// the first decimator's two all-pass branches give, besides the low-pass ½·[A0(z²) + z⁻¹A1(z²)],
+// its power-complementary high-pass ½·[A0(z²) - z⁻¹A1(z²)] for one subtraction more, and that
+// high-pass, kept at every second sample, carries the top of the spectrum folded about fs/4: a
+// sine of frequency f appears at fs/2 - f. The band filters there are designed for the folded
+// band edges. The folding also brings in what lies at fs/2 - f below fs/4, which the high-pass
+// holds 86 dB down below 0.2 fs; the band's lower edge at 0.29 fs keeps that out of the band.
+//
+// The numerators (1 - z⁻²) of all sections commute with their poles, so each stage applies
+// (1 - z⁻²)⁴ once to its input, as a direct-form FIR, for all its bands; each band then runs
+// its all-pole sections (and a fifth-order band one more numerator factor of its own).
+//
 // # Delay and settling
 //
 // A band of stage k lags the input by the group delays of the decimators above it (a few
@@ -178,20 +201,29 @@ const (
 //
 // # Cost
 //
-// A section costs 2 multiplications and 3 additions per sample at its stage's rate, the mean
-// square 2 more operations per band, and a half-band decimator 5 multiplications and 11
-// additions per kept sample. For one-third octaves at 48 kHz stage 0 holds 4 bands (17
-// sections) and each lower stage 3 bands (12 sections) at half the rate of the one above, so
-// the bank costs about 29 section updates per input sample (the earlier design, with a FIR
-// decimator and bands only up to 0.2 of each stage's rate, needed 35); the octave bank (stage
-// 0 with 2 bands, 9 sections; 4 sections in each lower stage) about 13.
-// The fourth order that the -3.1 dB crossing needs (the earlier bank used third-order bands
-// and crossed at -3.4 to -3.7 dB) takes back most of what the fewer sections save: measured
-// with callgrind on amd64 (Go 1.26, GOAMD64=v1), the meter with one-third-octave bands costs
-// 406 instructions per input sample more than without them (434 for the earlier bank), and
-// about as much time. Running the sections two at a time over each block with all state in
-// registers took more time (40 against 27 ns per sample): the sections of one band in one loop
-// overlap their recursions.
+// A section costs 2 multiplications and 2 additions per sample at its stage's rate, the
+// shared numerator 2 multiplications and 4 additions, the mean square 2 more operations per
+// band, and a half-band decimator 5 multiplications and 11 additions per kept sample. For
+// one-third octaves at 48 kHz stage 0 holds 2 bands (8 sections), the upper branch 2 bands at
+// half rate, and each lower stage 3 bands (12 sections) at half the rate of the one above, so
+// the bank costs about 24 section updates per input sample (29, with 17 at the full rate,
+// before the upper branch); the octave bank (stage 0 with 2 bands, 9 sections; 4 sections in
+// each lower stage) about 13. Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1;
+// .ci/callgrind-meter), the meter with one-third-octave bands costs 578 instructions per input
+// sample, of which the bank takes about 300 (the section kernels about 200, the shared
+// numerators 35, the decimators 55); before issue 18's work it cost 677, the bank about 400.
+// The section kernels take two samples per turn so that no state is copied; running the
+// sections two at a time over each block with all state in registers took more time (40
+// against 27 ns per sample): the sections of one band in one loop overlap their recursions.
+//
+// A bank of power-complementary low/high splits (pairs of all-pass branches, as the upper
+// branch uses) would sum a sine's energy exactly, but it does not cost less for class 1
+// one-third octaves: a split at a band edge must fall from 1.4 dB down at 0.97 of the edge
+// (Table 1, x = 3/8) to 16.6 dB down at 1.15 of it (x = 1) on its own, and the outer splits
+// of each octave must reach 70 dB (x = 4) alone. A Butterworth split would need order 16 for
+// the first (computed from |H|² = 1/(1 + ω^2N)); an elliptic one about order 7 (an estimate
+// from the elliptic degree equation, not a design), one multiplication per order, so three
+// splits per octave cost about as many multiplications as the twelve sections they replace.
 //
 // # Block size
 //
@@ -721,7 +753,7 @@ func (b *FilterBank) Set() BandSet { return b.set }
 func (b *FilterBank) SampleRate() float64 { return b.fs }
 
 // BandRate returns the sample rate in Hz at which band i (an index into Bands) is computed:
-// fs/2^k for a band in stage k.
+// fs/2^k for a band in stage k, fs/2 for a band in the upper branch.
 func (b *FilterBank) BandRate(i int) float64 { return b.stages[b.where[i].stage].rate }
 
 // Process filters the samples x (Z-weighted, with the DC offset already removed: every band
