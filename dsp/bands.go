@@ -804,11 +804,12 @@ func (st *bankStage) run(x []float64) {
 // run filters x, the stage's input after the stage's shared numerator (1 - z⁻²)⁴, through f's
 // remaining numerator factors and its all-pole sections,
 //
-//	w[n] = (-a2)·w[n-2] + (-a1)·w[n-1] + v[n],
+//	w[n] = ((-a2)·w[n-2] + v[n]) + (-a1)·w[n-1],
 //
 // section after section for each sample, and adds the last section's w² to f.sum. The sections
 // of one band run in the same loop so that the processor can overlap them across samples (their
-// recursions are independent chains).
+// recursions are independent chains), and the a1 term comes last so that the recursion through
+// w[n-1] costs one multiplication and one addition of latency per sample.
 func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
@@ -845,7 +846,7 @@ func (f *bankFilter) runAny(x []float64) {
 		}
 		for i := range f.nsec {
 			c, st := &f.a[i], &f.w[i]
-			w := c[1]*st[1] + c[0]*st[0] + v
+			w := c[1]*st[1] + v + c[0]*st[0]
 			st[1], st[0] = st[0], w
 			v = w
 		}
@@ -856,9 +857,9 @@ func (f *bankFilter) runAny(x []float64) {
 
 // run4 is run for four sections and no numerator factor of its own. It takes two samples per
 // turn, so that the two state registers of each section swap roles instead of being copied:
-// the first sample's w overwrites w[n-2], the second's w[n-1]. Each section computes
-// w = (-a2)·w[n-2] + (-a1)·w[n-1] + v, so that its input v, which the section before keeps as
-// its state, is only read, never copied; the second sample reads its coefficients from a copy
+// the first sample's w overwrites w[n-2], the second's w[n-1]. Each section adds the products
+// of negated coefficients to its input v, which the section before keeps as its state, so that
+// v is only read, never copied; the second sample reads its coefficients from a copy
 // (a2), so that the compiler loads them afresh instead of keeping all eight in registers, which
 // would not leave room for the state. It computes the same bits as runAny.
 func (f *bankFilter) run4(x []float64) {
@@ -872,15 +873,15 @@ func (f *bankFilter) run4(x []float64) {
 	n := len(x) &^ 1
 	y := x[:n]
 	for i := 1; i < len(y); i += 2 { // i is the second sample: one bounds check for both
-		q1 = c1[1]*q1 + c1[0]*p1 + y[i-1]
-		q2 = c2[1]*q2 + c2[0]*p2 + q1
-		q3 = c3[1]*q3 + c3[0]*p3 + q2
-		q4 = c4[1]*q4 + c4[0]*p4 + q3
+		q1 = c1[1]*q1 + y[i-1] + c1[0]*p1
+		q2 = c2[1]*q2 + q1 + c2[0]*p2
+		q3 = c3[1]*q3 + q2 + c3[0]*p3
+		q4 = c4[1]*q4 + q3 + c4[0]*p4
 		sum += q4 * q4
-		p1 = d1[1]*p1 + d1[0]*q1 + y[i]
-		p2 = d2[1]*p2 + d2[0]*q2 + p1
-		p3 = d3[1]*p3 + d3[0]*q3 + p2
-		p4 = d4[1]*p4 + d4[0]*q4 + p3
+		p1 = d1[1]*p1 + y[i] + d1[0]*q1
+		p2 = d2[1]*p2 + p1 + d2[0]*q2
+		p3 = d3[1]*p3 + p2 + d3[0]*q3
+		p4 = d4[1]*p4 + p3 + d4[0]*q4
 		sum += p4 * p4
 	}
 	f.w[0] = [2]float64{p1, q1}
@@ -908,19 +909,19 @@ func (f *bankFilter) run5(x []float64) {
 	for i := 0; i < n; i += 2 {
 		v := x[i] - e1
 		e1 = x[i]
-		q1 = c1[1]*q1 + c1[0]*p1 + v
-		q2 = c2[1]*q2 + c2[0]*p2 + q1
-		q3 = c3[1]*q3 + c3[0]*p3 + q2
-		q4 = c4[1]*q4 + c4[0]*p4 + q3
-		q5 = c5[1]*q5 + c5[0]*p5 + q4
+		q1 = c1[1]*q1 + v + c1[0]*p1
+		q2 = c2[1]*q2 + q1 + c2[0]*p2
+		q3 = c3[1]*q3 + q2 + c3[0]*p3
+		q4 = c4[1]*q4 + q3 + c4[0]*p4
+		q5 = c5[1]*q5 + q4 + c5[0]*p5
 		sum += q5 * q5
 		v = x[i+1] - e0
 		e0 = x[i+1]
-		p1 = d1[1]*p1 + d1[0]*q1 + v
-		p2 = d2[1]*p2 + d2[0]*q2 + p1
-		p3 = d3[1]*p3 + d3[0]*q3 + p2
-		p4 = d4[1]*p4 + d4[0]*q4 + p3
-		p5 = d5[1]*p5 + d5[0]*q5 + p4
+		p1 = d1[1]*p1 + v + d1[0]*q1
+		p2 = d2[1]*p2 + p1 + d2[0]*q2
+		p3 = d3[1]*p3 + p2 + d3[0]*q3
+		p4 = d4[1]*p4 + p3 + d4[0]*q4
+		p5 = d5[1]*p5 + p4 + d5[0]*q5
 		sum += p5 * p5
 	}
 	f.num[0] = [2]float64{e0, e1}
