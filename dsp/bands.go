@@ -299,6 +299,7 @@ type bankDecimator struct {
 	a0, a1 []float64 // coefficients of the two branches
 	s0, s1 []float64 // branch states: the last input, then the last output of each section
 	odd    float64   // A1's output for the last skipped sample
+	half   float64   // ½, held in a field so that the unrolled loops keep it in a register
 	phase  int       // 0: the next input sample is kept; 1: it is skipped
 }
 
@@ -535,7 +536,7 @@ func bankHalfBand(n int, fp float64) []float64 {
 }
 
 func newBankDecimator(coef []float64) *bankDecimator {
-	d := &bankDecimator{}
+	d := &bankDecimator{half: 0.5}
 	for i, a := range coef {
 		if i%2 == 0 {
 			d.a0 = append(d.a0, a)
@@ -641,7 +642,6 @@ func (d *bankDecimator) decimateBothAny(x, out, high []float64) int {
 // decimate5Both is decimate5 with the high-pass output; it computes the same bits as
 // decimateBothAny.
 func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
-	k := 0
 	if d.phase == 1 && len(x) > 0 {
 		d.decimateBothAny(x[:1], out, high) // a skipped sample: nothing kept
 		x = x[1:]
@@ -653,29 +653,30 @@ func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
 	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
 	t0, t1, t2 := t[0], t[1], t[2]
 	odd := d.odd
+	half := d.half
 	n := len(x) &^ 1
-	out, high = out[:n/2], high[:n/2]
-	for i := 0; i < n; i += 2 {
-		v := x[i]
-		y := c0*(v-s1) + s0
+	y := x[:n]
+	o, h := out[:n/2], high[:n/2]
+	for i := 1; i < len(y); i += 2 {
+		v := y[i-1]
+		w := c0*(v-s1) + s0
 		s0 = v
-		u := c1*(y-s2) + s1
-		s1 = y
+		u := c1*(w-s2) + s1
+		s1 = w
 		s3 = c2*(u-s3) + s2
 		s2 = u
-		out[k] = 0.5 * (s3 + odd)
-		high[k] = 0.5 * (s3 - odd)
-		k++
-		v = x[i+1]
-		y = e0*(v-t1) + t0
+		o[i>>1] = half * (s3 + odd)
+		h[i>>1] = half * (s3 - odd)
+		v = y[i]
+		w = e0*(v-t1) + t0
 		t0 = v
-		t1, t2 = y, e1*(y-t2)+t1
+		t1, t2 = w, e1*(w-t2)+t1
 		odd = t2
 	}
 	*s = [4]float64{s0, s1, s2, s3}
 	*t = [3]float64{t0, t1, t2}
 	d.odd = odd
-	return k + d.decimateBothAny(x[n:], out[k:cap(out)], high[k:cap(high)])
+	return n/2 + d.decimateBothAny(x[n:], out[n/2:], high[n/2:])
 }
 
 // decimate filters x and writes the kept samples to out, returning their number.
@@ -706,7 +707,6 @@ func (d *bankDecimator) decimateAny(x, out []float64) int {
 // registers and a kept and a skipped sample per turn; an odd sample at either end goes through
 // decimateAny. It computes the same bits as decimateAny.
 func (d *bankDecimator) decimate5(x, out []float64) int {
-	k := 0
 	if d.phase == 1 && len(x) > 0 {
 		d.decimateAny(x[:1], out) // a skipped sample: nothing kept
 		x = x[1:]
@@ -718,29 +718,31 @@ func (d *bankDecimator) decimate5(x, out []float64) int {
 	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
 	t0, t1, t2 := t[0], t[1], t[2]
 	odd := d.odd
+	half := d.half
 	n := len(x) &^ 1
-	for i := 0; i < n; i += 2 {
+	y := x[:n]
+	o := out[:n/2]
+	for i := 1; i < len(y); i += 2 { // i is the skipped sample: one bounds check for both
 		// The kept sample through A0.
-		v := x[i]
-		y := c0*(v-s1) + s0
+		v := y[i-1]
+		w := c0*(v-s1) + s0
 		s0 = v
-		u := c1*(y-s2) + s1
-		s1 = y
+		u := c1*(w-s2) + s1
+		s1 = w
 		s3 = c2*(u-s3) + s2
 		s2 = u
-		out[k] = 0.5 * (s3 + odd)
-		k++
+		o[i>>1] = half * (s3 + odd)
 		// The skipped sample through A1.
-		v = x[i+1]
-		y = e0*(v-t1) + t0
+		v = y[i]
+		w = e0*(v-t1) + t0
 		t0 = v
-		t1, t2 = y, e1*(y-t2)+t1
+		t1, t2 = w, e1*(w-t2)+t1
 		odd = t2
 	}
 	*s = [4]float64{s0, s1, s2, s3}
 	*t = [3]float64{t0, t1, t2}
 	d.odd = odd
-	return k + d.decimateAny(x[n:], out[k:])
+	return n/2 + d.decimateAny(x[n:], out[n/2:])
 }
 
 // Bands returns the bands of the bank, lowest first, as a fresh slice.
