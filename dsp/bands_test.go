@@ -354,16 +354,18 @@ func TestBandSinesThroughProcess(t *testing.T) {
 		fs      float64
 		nominal string
 	}{
-		{Third, 48000, "20000"}, // stage 0, order 4
-		{Third, 48000, "5000"},  // stage 0, order 3
-		{Third, 48000, "4000"},  // stage 1
-		{Third, 48000, "1000"},  // stage 3
-		{Third, 48000, "100"},   // stage 6
-		{Third, 44100, "16000"}, // stage 0, order 4
+		{Third, 48000, "20000"}, // upper branch
+		{Third, 48000, "16000"}, // upper branch, lower edge 0.294 fs
+		{Third, 48000, "12500"}, // stage 0, across fs/4
+		{Third, 48000, "5000"},  // stage 1
+		{Third, 48000, "4000"},  // stage 2
+		{Third, 48000, "1000"},  // stage 4
+		{Third, 48000, "100"},   // stage 7
+		{Third, 44100, "16000"}, // upper branch
 		{Third, 44100, "2000"},  // stage 2
 		{Octave, 48000, "63"},   // stage 7
 		{Octave, 48000, "16000"},
-		{Third, 8000, "3150"},
+		{Third, 8000, "3150"}, // upper branch
 		{Third, 8000, "250"},
 	} {
 		fb, err := NewFilterBank(c.set, c.fs)
@@ -467,13 +469,15 @@ func TestBandAdjacentSum(t *testing.T) {
 		fs     float64
 		lo, hi string
 	}{
-		{Third, 48000, "4000", "5000"},  // stages 2 and 1
-		{Third, 48000, "2000", "2500"},  // stages 3 and 2
-		{Third, 48000, "125", "160"},    // stages 7 and 6
-		{Third, 44100, "3150", "4000"},  // stages 2 and 1
-		{Octave, 48000, "1000", "2000"}, // stages 3 and 2
-		{Octave, 48000, "2000", "4000"}, // stages 2 and 1
-		{Octave, 8000, "500", "1000"},   // stages 2 and 1
+		{Third, 48000, "12500", "16000"}, // stage 0 and the upper branch
+		{Third, 44100, "12500", "16000"}, // stage 0 and the upper branch
+		{Third, 48000, "4000", "5000"},   // stages 2 and 1
+		{Third, 48000, "2000", "2500"},   // stages 3 and 2
+		{Third, 48000, "125", "160"},     // stages 7 and 6
+		{Third, 44100, "3150", "4000"},   // stages 2 and 1
+		{Octave, 48000, "1000", "2000"},  // stages 3 and 2
+		{Octave, 48000, "2000", "4000"},  // stages 2 and 1
+		{Octave, 8000, "500", "1000"},    // stages 2 and 1
 	} {
 		fb, err := NewFilterBank(c.set, c.fs)
 		if err != nil {
@@ -565,7 +569,7 @@ func TestBandTimeInvariance(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, nominal := range []string{"4000", "5000", "1000", "100"} {
+	for _, nominal := range []string{"20000", "16000", "4000", "5000", "1000", "100"} {
 		i := bankIndex(t, fb, nominal)
 		fm := fb.bands[i].Mid
 		f0, f1 := fm/8, math.Min(fm*8, 0.49*fs)
@@ -660,19 +664,40 @@ func TestBandNoAllocation(t *testing.T) {
 	}
 }
 
-// TestBandKernels checks that the unrolled kernels for four and five sections compute the same
-// bits as the general loop.
+// TestBandKernels checks that the unrolled kernels for four and five sections and for the
+// shared numerator compute the same bits as the general loops, whatever the block cut.
 func TestBandKernels(t *testing.T) {
-	x := bankTestSignal(3000, 48000)
+	x := bankTestSignal(3001, 48000)
+	cuts := [][2]int{{0, 1}, {1, 4}, {4, 7}, {7, 1000}, {1000, 3001}}
 	for _, n := range []int{4, 5} {
-		sec, _ := bankBandPass(n, 8913, 11220, 10000, 48000)
-		f := bankFilter{sec: sec, state: make([][2]float64, n)}
-		g := bankFilter{sec: sec, state: make([][2]float64, n)}
-		f.run(x[:1000])
-		f.run(x[1000:])
+		sec, gain := bankBandPass(n, 8913, 11220, 10000, 48000)
+		f := newBankFilter(0, sec, gain, 4, 0)
+		g := newBankFilter(0, sec, gain, 4, 0)
+		for _, c := range cuts {
+			f.run(x[c[0]:c[1]])
+		}
 		g.runAny(x)
-		if f.sum != g.sum || f.state[n-1] != g.state[n-1] {
-			t.Errorf("%d sections: unrolled sum %g state %v, general %g %v", n, f.sum, f.state[n-1], g.sum, g.state[n-1])
+		if f.sum != g.sum || f.w != g.w || f.num != g.num {
+			t.Errorf("%d sections: unrolled sum %g state %v, general %g %v", n, f.sum, f.w[n-1], g.sum, g.w[n-1])
+		}
+	}
+	// The shared numerator (1 - z⁻²)⁴ against four differences in turn, whatever the block cut.
+	st := make([][2]float64, 4)
+	buf := make([]float64, bankNumeratorLen+len(x))
+	u, u4 := make([]float64, len(x)), make([]float64, len(x))
+	for j, v := range x {
+		for i := range st {
+			e := &st[i]
+			v, e[0], e[1] = v-e[1], v, e[0]
+		}
+		u[j] = v
+	}
+	for _, c := range cuts {
+		bankNumerator4(buf, x[c[0]:c[1]], u4[c[0]:c[1]], 4, 6)
+	}
+	for i := range u {
+		if math.Abs(u[i]-u4[i]) > 1e-14 {
+			t.Fatalf("numerator, sample %d: %g, four differences give %g", i, u4[i], u[i])
 		}
 	}
 }
@@ -810,13 +835,14 @@ func BenchmarkFilterBank(b *testing.B) {
 // TestBandEdgeCrossing: adjacent bands cross at -3.0 dB (within 0.25 dB; the design goal of
 // issue 18, so that a sine on the edge reads half its energy in each band) at the exact band
 // edge fm·G^(1/(2b)) = f(m+1)·G^(-1/(2b)) with fm = 1000·G^(x/b), G = 10^(3/10) (IEC
-// 61260-1:2014 Eq. 1, 2, 4, 5), written out here, for every pair at rates from 8 to 192 kHz. The
-// IEC 61260-1:2014 Table 1 class 1 limits at the edge are 1.2 to 5.3 dB (via phonometry
-// filters.py). Before, a sine on the 1000/1250 Hz edge read 3.64 dB down in each band.
+// 61260-1:2014 Eq. 1, 2, 4, 5), written out here, for every pair at the common rates from 8 to
+// 192 kHz. The IEC 61260-1:2014 Table 1 class 1 limits at the edge are 1.2 to 5.3 dB (via
+// phonometry filters.py). The bank crosses at -3.1 dB (see bankEdgeDB). Before issue 18, a sine
+// on the 1000/1250 Hz edge read 3.64 dB down in each band.
 func TestBandEdgeCrossing(t *testing.T) {
 	for _, set := range []BandSet{Third, Octave} {
 		b := float64(set)
-		for _, fs := range []float64{8000, 11025, 44100, 48000, 96000, 192000} {
+		for _, fs := range []float64{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000} {
 			fb, err := NewFilterBank(set, fs)
 			if err != nil {
 				t.Fatal(err)
@@ -858,19 +884,21 @@ func TestBandEdgeCrossing(t *testing.T) {
 }
 
 // TestBandSineEnergySum: for sines across every band, the energies of all bands sum to the
-// sine's within -0.9/+0.75 dB, inside the class 1 limits of IEC 61260-1:2014 5.16 for the sum of
-// adjacent bands, +0.8/-1.8 dB (via phonometry filters.py). The bound is this design's: bands of
-// Butterworth band-pass filters are not power complementary, so a sine a little inside a band
-// still reads 7 to 9 dB down in its neighbour (fourth order, analog: up to +0.2 dB), and the
-// warping of the bilinear transform near each stage's Nyquist frequency adds to it (the earlier
-// third-order bank: -0.88/+0.54 dB for one-third octaves; the octave bank at 8 kHz reaches
-// -0.84 dB, where each stage holds one octave band whose edges lie at 0.18 and 0.36 of its
-// rate). The sum uses the analytic responses at 16 frequencies per
-// band from its lower to its upper edge, at rates from 8 to 192 kHz, and Process for a sine at
-// each of 5 frequencies across the 1 kHz band at 48 kHz.
+// sine's within -0.86/+0.72 dB, inside the class 1 limits of IEC 61260-1:2014 5.16 for the sum
+// of adjacent bands, +0.8/-1.8 dB (via phonometry filters.py). The design goal of issue 18 is a
+// sum of 0 dB (power-complementary bands); this bank does not reach it, and the bound is the
+// honest one for its design, 0.02 dB outside the worst figures (computed at the rates below:
+// one-third octaves -0.33/+0.49 dB, at 48 kHz too, where the bank of issue 18's start reached
+// -0.50/+0.59 dB; octaves -0.84/+0.70 dB at 8, 16 and 32 kHz, where each stage holds one octave
+// band whose edges lie at 0.18 and 0.36 of its rate). Bands of Butterworth band-pass filters are not power complementary: a sine a little
+// inside a band still reads 7 to 9 dB down in its neighbour (fourth order, analog: up to
+// +0.2 dB), and the warping of the bilinear transform near each stage's Nyquist frequency adds
+// to it. The sum uses the analytic responses at 16 frequencies per band from its lower to its
+// upper edge, at rates from 8 to 192 kHz, and Process for a sine at each of 5 frequencies
+// across the 1 kHz band at 48 kHz.
 func TestBandSineEnergySum(t *testing.T) {
 	for _, set := range []BandSet{Third, Octave} {
-		for _, fs := range []float64{8000, 44100, 48000, 192000} {
+		for _, fs := range []float64{8000, 11025, 16000, 22050, 32000, 44100, 48000, 88200, 96000, 176400, 192000} {
 			fb, err := NewFilterBank(set, fs)
 			if err != nil {
 				t.Fatal(err)
@@ -890,7 +918,7 @@ func TestBandSineEnergySum(t *testing.T) {
 					}
 					d := 10 * math.Log10(sum)
 					lo, hi = min(lo, d), max(hi, d)
-					if d < -0.9 || d > 0.75 {
+					if d < -0.86 || d > 0.72 {
 						t.Errorf("%v at %g Hz: a sine at %.1f Hz (band %s) sums to %.3f dB over all bands", set, fs, f, bd.Nominal, d)
 					}
 				}
@@ -908,30 +936,45 @@ func TestBandSineEnergySum(t *testing.T) {
 		for _, v := range ms {
 			sum += v
 		}
-		if d := 10 * math.Log10(sum/0.5); d < -0.9 || d > 0.75 {
+		if d := 10 * math.Log10(sum/0.5); d < -0.86 || d > 0.72 {
 			t.Errorf("sine of amplitude 1 at %.1f Hz through Process: the bands sum to %.3f dB of its mean square", f, d)
 		}
 	}
 }
 
 // TestBandDecimatorKernel checks that the unrolled five-coefficient decimator computes the same
-// bits as the general loop, whatever the phase and the block cut.
+// bits as the general loop, with and without the high-pass output, whatever the phase and the
+// block cut.
 func TestBandDecimatorKernel(t *testing.T) {
 	coef := bankHalfBand(5, bankHalfPass)
 	x := bankTestSignal(1001, 48000)
 	a, b := newBankDecimator(coef), newBankDecimator(coef)
+	c, d := newBankDecimator(coef), newBankDecimator(coef)
 	ya, yb := make([]float64, len(x)), make([]float64, len(x))
-	na, nb := 0, 0
+	yc, yd := make([]float64, len(x)), make([]float64, len(x))
+	hc, hd := make([]float64, len(x)), make([]float64, len(x))
+	na, nb, nc, nd := 0, 0, 0, 0
 	for _, cut := range [][2]int{{0, 1}, {1, 4}, {4, 7}, {7, 500}, {500, 1001}} {
 		na += a.decimate5(x[cut[0]:cut[1]], ya[na:])
 		nb += b.decimateAny(x[cut[0]:cut[1]], yb[nb:])
+		m := c.decimate5Both(x[cut[0]:cut[1]], yc[nc:], hc[nc:])
+		nc += m
+		nd += d.decimateBothAny(x[cut[0]:cut[1]], yd[nd:], hd[nd:])
 	}
-	if na != nb || na != 501 {
-		t.Fatalf("kept %d and %d samples, want 501", na, nb)
+	if na != nb || na != 501 || nc != 501 || nd != 501 {
+		t.Fatalf("kept %d, %d, %d and %d samples, want 501", na, nb, nc, nd)
 	}
 	for i := range na {
-		if ya[i] != yb[i] {
-			t.Fatalf("sample %d: unrolled %g, general %g", i, ya[i], yb[i])
+		if ya[i] != yb[i] || yc[i] != yb[i] || yd[i] != yb[i] || hc[i] != hd[i] {
+			t.Fatalf("sample %d: unrolled %g, general %g; with the high-pass %g %g, %g %g", i, ya[i], yb[i], yc[i], hc[i], yd[i], hd[i])
+		}
+	}
+	// The two outputs are power complementary: |H_lo|² + |H_hi|² = 1 (the allpass sum and
+	// difference, common practice for such half-band pairs).
+	for _, f := range []float64{100, 9000, 12000, 15000, 23000} {
+		lo, hi := cmplx.Abs(a.response(f, 48000)), cmplx.Abs(a.responseHigh(f, 48000))
+		if e := lo*lo + hi*hi - 1; math.Abs(e) > 1e-12 {
+			t.Errorf("at %g Hz: |H_lo|² + |H_hi|² - 1 = %g", f, e)
 		}
 	}
 }
