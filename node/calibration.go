@@ -9,7 +9,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
-	"github.com/leqnode/leqnode/node/calibrate"
+	"github.com/leqnode/leqnode/node/lib/calibrate"
 )
 
 // CalibrationOptions set up the detection of sound calibrators while the node runs. Every

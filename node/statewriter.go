@@ -1,6 +1,6 @@
 package node
 
-import "github.com/leqnode/leqnode/node/calibrate"
+import "github.com/leqnode/leqnode/node/lib/calibrate"
 
 // stateWriter writes the sensitivity state file (calibrate.SaveState) on a goroutine of its
 // own, so that the processing goroutine never waits for a file system: an fsync on a memory

@@ -8,9 +8,9 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/dsp"
-	"github.com/leqnode/leqnode/node/analyze"
-	"github.com/leqnode/leqnode/node/strict"
-	"github.com/leqnode/leqnode/node/termprogress"
+	"github.com/leqnode/leqnode/node/lib/analyze"
+	"github.com/leqnode/leqnode/node/lib/strict"
+	"github.com/leqnode/leqnode/node/lib/termprogress"
 )
 
 func runAnalyze(ctx context.Context, std stdio, args []string) error {

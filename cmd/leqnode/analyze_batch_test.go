@@ -8,7 +8,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // TestAnalyzeBatch: several files and a directory at once, on two workers, give each recording

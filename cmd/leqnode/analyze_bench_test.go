@@ -16,7 +16,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // benchSeconds is the length of the benchmark recordings: LEQNODE_BENCH_SECONDS, 300 in

@@ -10,8 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/leqnode/leqnode/node/lib/wav"
 	"github.com/leqnode/leqnode/node/testrig"
-	"github.com/leqnode/leqnode/node/wav"
 )
 
 // TestAnalyzeStartUp: no level reports the filters' start-up from rest (issue 13, finding 6:

@@ -6,10 +6,10 @@ import (
 	"context"
 	"errors"
 
-	"github.com/leqnode/leqnode/node/analyze"
-	"github.com/leqnode/leqnode/node/analyze/resultwriter"
-	"github.com/leqnode/leqnode/node/termprogress"
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/analyze"
+	"github.com/leqnode/leqnode/node/lib/analyze/resultwriter"
+	"github.com/leqnode/leqnode/node/lib/termprogress"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // one measures one recording and returns its output. file, when not empty, is written into

@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // runCmd runs the command in-process and returns its exit status, stdout and stderr.

@@ -13,8 +13,8 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/dsp"
-	"github.com/leqnode/leqnode/node/calibrate"
-	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/lib/calibrate"
+	"github.com/leqnode/leqnode/node/lib/config"
 )
 
 // optFloat is a float flag that remembers whether it was given.

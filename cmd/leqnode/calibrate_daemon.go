@@ -5,8 +5,8 @@ import (
 	"fmt"
 	"math"
 
-	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/control"
+	"github.com/leqnode/leqnode/node/lib/calibrate"
 )
 
 // calibrateDaemon asks the running node to take the next stable calibrator tone through its

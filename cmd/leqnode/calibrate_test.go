@@ -11,7 +11,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // calibratorRecording returns a 16-bit recording of 1 s of background, a 2 s fade-in, hold

@@ -4,7 +4,7 @@ import (
 	"context"
 	"fmt"
 
-	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/lib/config"
 )
 
 const configUsage = `usage: leqnode config check FILE

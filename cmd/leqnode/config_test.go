@@ -9,7 +9,7 @@ import (
 // lists every problem at once, and warns about a page served to the network without a token;
 // `config --help` is help (exit 0), not a usage error.
 func TestConfigCheck(t *testing.T) {
-	// The shared files of testdata/config, which node/config's tests read too.
+	// The shared files of testdata/config, which node/lib/config's tests read too.
 	good := sharedTestdata("config", "node-open-page.toml")
 	code, out, errOut := runCmd(t, nil, "config", "check", good)
 	if code != 0 {

@@ -18,9 +18,9 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/lib/wav"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/testrig"
-	"github.com/leqnode/leqnode/node/wav"
 )
 
 // TestOneTruthMQTT: the minute records of TestOneTruth's signal, published by the node's

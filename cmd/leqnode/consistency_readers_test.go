@@ -16,8 +16,8 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
-	"github.com/leqnode/leqnode/node/report"
-	"github.com/leqnode/leqnode/node/report/indicator"
+	"github.com/leqnode/leqnode/node/lib/report"
+	"github.com/leqnode/leqnode/node/lib/report/indicator"
 	"github.com/leqnode/leqnode/node/web"
 )
 

@@ -12,7 +12,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // The parts of TestOneTruth: one run of the node over the consistency signal, then each reader

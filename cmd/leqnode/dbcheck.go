@@ -3,7 +3,7 @@ package main
 import (
 	"context"
 
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // runDB dispatches the store maintenance subcommands.

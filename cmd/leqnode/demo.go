@@ -14,9 +14,9 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node"
-	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
 	"github.com/leqnode/leqnode/node/demobroker"
+	"github.com/leqnode/leqnode/node/lib/config"
 )
 
 func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {

@@ -3,7 +3,7 @@ package main
 import (
 	"context"
 
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // runExport writes stored records of one kind (package export, through package query).

@@ -13,7 +13,7 @@ import (
 
 	"github.com/leqnode/leqnode/node/collect"
 	"github.com/leqnode/leqnode/node/fleetdb"
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // runFleet dispatches the fleet subcommands.

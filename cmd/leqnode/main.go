@@ -23,7 +23,7 @@ import (
 	"strings"
 	"syscall"
 
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // stdio is what a command reads and writes; tests swap it.

@@ -14,7 +14,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/control"
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // holdStore opens the store at path for writing, as the daemon does, and answers reading

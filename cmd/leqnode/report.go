@@ -9,8 +9,8 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/configs/profiles"
-	"github.com/leqnode/leqnode/node/query"
-	"github.com/leqnode/leqnode/node/report/indicator"
+	"github.com/leqnode/leqnode/node/lib/query"
+	"github.com/leqnode/leqnode/node/lib/report/indicator"
 )
 
 func runReport(ctx context.Context, std stdio, args []string) error {

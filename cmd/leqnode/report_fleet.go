@@ -16,7 +16,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node/collect"
 	"github.com/leqnode/leqnode/node/fleetdb"
-	"github.com/leqnode/leqnode/node/report"
+	"github.com/leqnode/leqnode/node/lib/report"
 )
 
 // manyFlags collects a repeated flag.

@@ -10,8 +10,8 @@ import (
 	"runtime/debug"
 	"syscall"
 
-	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/daemon"
+	"github.com/leqnode/leqnode/node/lib/config"
 )
 
 // softwareVersion returns the module version and VCS revision the binary was built from.

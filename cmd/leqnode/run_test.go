@@ -14,8 +14,8 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/lib/wav"
 	"github.com/leqnode/leqnode/node/testrig"
-	"github.com/leqnode/leqnode/node/wav"
 )
 
 func TestRunPortAudioEndToEnd(t *testing.T) {
@@ -130,7 +130,7 @@ func TestRunArecordEndToEnd(t *testing.T) {
 	x := e2eSignal()
 	raw := make([]byte, 4*len(x))
 	for i, v := range x {
-		// S32_LE full scale 2^31, the scaling of node/wav and node/capture.
+		// S32_LE full scale 2^31, the scaling of node/lib/wav and node/capture.
 		binary.LittleEndian.PutUint32(raw[4*i:], uint32(int32(math.Round(float64(v)*(1<<31)))))
 	}
 	rawPath := filepath.Join(dir, "signal.raw")

@@ -8,9 +8,9 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer"
-	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/config"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // storeFlags are the flags every reading command uses to find its store.

@@ -34,7 +34,7 @@ import (
 	"strings"
 	"time"
 
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 //go:embed *.toml

@@ -17,7 +17,7 @@ import (
 
 	"github.com/santhosh-tekuri/jsonschema/v6"
 
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 //go:embed *.schema.json

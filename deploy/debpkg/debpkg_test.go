@@ -30,7 +30,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/lib/config"
 	"github.com/leqnode/leqnode/node/testrig"
 )
 

@@ -6,8 +6,8 @@ import (
 	"strconv"
 	"strings"
 
-	"github.com/leqnode/leqnode/node/scene"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/scene"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // Config selects and sets up a source; it is one section of the node's TOML config file

@@ -9,7 +9,7 @@ import (
 	"os"
 	"sync"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // fileSource replays a WAV file as fast as possible or in real time.

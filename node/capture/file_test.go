@@ -9,7 +9,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // writeWAV writes x (mono) as a 32-bit float WAV file and returns its path.

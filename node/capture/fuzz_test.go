@@ -8,7 +8,7 @@ import (
 	"math"
 	"testing"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // FuzzStdin feeds arbitrary bytes to the stdin source, detecting WAV or reading raw PCM of

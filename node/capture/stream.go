@@ -10,7 +10,7 @@ import (
 	"log/slog"
 	"sync/atomic"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 // stream is the stdin source: raw PCM or a WAV stream from an io.Reader.

@@ -12,7 +12,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/leqnode/leqnode/node/wav"
+	"github.com/leqnode/leqnode/node/lib/wav"
 )
 
 func TestStdinRaw(t *testing.T) {

@@ -9,8 +9,8 @@ import (
 	"sync"
 	"time"
 
-	"github.com/leqnode/leqnode/node/scene"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/scene"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // synthetic delivers the invented street scene of package scene.

@@ -6,7 +6,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/node/scene"
+	"github.com/leqnode/leqnode/node/lib/scene"
 )
 
 func TestSyntheticDeterministicAndBlockFree(t *testing.T) {

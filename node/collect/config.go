@@ -11,8 +11,8 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/node/fleetdb"
+	"github.com/leqnode/leqnode/node/lib/strict"
 	"github.com/leqnode/leqnode/node/publish"
-	"github.com/leqnode/leqnode/node/strict"
 )
 
 // ConfigVersion is the collector configuration format this release reads.

@@ -37,8 +37,8 @@ import (
 
 	"golang.org/x/sys/unix"
 
-	"github.com/leqnode/leqnode/node/query"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/query"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // Handlers answer the requests. Nil handlers answer 404.

@@ -14,7 +14,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // TestMain lets the tests run this binary as a client under another user (a child process

@@ -9,8 +9,8 @@ import (
 	"net/http"
 	"strings"
 
-	"github.com/leqnode/leqnode/node/query"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/query"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // ErrBadRequest marks a reading command the daemon refused as given: it is query.ErrBadRequest,

@@ -12,10 +12,10 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/node"
-	"github.com/leqnode/leqnode/node/calibrate"
-	"github.com/leqnode/leqnode/node/config"
 	"github.com/leqnode/leqnode/node/control"
-	"github.com/leqnode/leqnode/node/query"
+	"github.com/leqnode/leqnode/node/lib/calibrate"
+	"github.com/leqnode/leqnode/node/lib/config"
+	"github.com/leqnode/leqnode/node/lib/query"
 )
 
 // startControl opens the control socket of a running node.

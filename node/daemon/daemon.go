@@ -2,7 +2,7 @@
 // every long-running part of `leqnode run` and `leqnode demo`, and wires them together: the
 // store (package buffer), the measuring node (package node), MQTT publishing (node/publish), the
 // control socket (node/control), the status page and metrics (node/web), the daily
-// self-verification (dsp/selftest) and the period indicators (node/report). cmd/leqnode only
+// self-verification (dsp/selftest) and the period indicators (node/lib/report). cmd/leqnode only
 // parses flags, loads the configuration and calls Run.
 //
 // # Goroutines
@@ -27,14 +27,14 @@ import (
 
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
-	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/lib/config"
 	"github.com/leqnode/leqnode/node/publish"
 	"github.com/leqnode/leqnode/node/web"
 )
 
 // Options set up Run.
 type Options struct {
-	// Config is the node's configuration (node/config), already loaded and checked.
+	// Config is the node's configuration (node/lib/config), already loaded and checked.
 	Config *config.Config
 	// Stdin is the standard input, for the stdin capture source.
 	Stdin io.Reader

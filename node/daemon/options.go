@@ -9,9 +9,9 @@ import (
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node"
-	"github.com/leqnode/leqnode/node/calibrate"
 	"github.com/leqnode/leqnode/node/capture"
-	"github.com/leqnode/leqnode/node/config"
+	"github.com/leqnode/leqnode/node/lib/calibrate"
+	"github.com/leqnode/leqnode/node/lib/config"
 )
 
 // nodeOptions maps a configuration onto the node's options.

@@ -8,9 +8,9 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/configs/profiles"
 	"github.com/leqnode/leqnode/node/internal/when"
+	"github.com/leqnode/leqnode/node/lib/report"
+	"github.com/leqnode/leqnode/node/lib/report/indicator"
 	"github.com/leqnode/leqnode/node/publish"
-	"github.com/leqnode/leqnode/node/report"
-	"github.com/leqnode/leqnode/node/report/indicator"
 )
 
 // publishPeriods computes the indicators of each period of the configured profile once it has

@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"time"
 
-	"github.com/leqnode/leqnode/node/report"
+	"github.com/leqnode/leqnode/node/lib/report"
 )
 
 // FleetReport computes a fleet report (package report) over every node with minute records in

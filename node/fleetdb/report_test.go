@@ -11,7 +11,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/profiles"
-	"github.com/leqnode/leqnode/node/report"
+	"github.com/leqnode/leqnode/node/lib/report"
 )
 
 // reportMinute is one minute of the test fleet: node i's level in minute k.

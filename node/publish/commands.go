@@ -11,7 +11,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // command is a remote command as it arrives on PREFIX/NODE/command:

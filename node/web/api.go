@@ -15,7 +15,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/dsp/reference"
-	"github.com/leqnode/leqnode/node/strict"
+	"github.com/leqnode/leqnode/node/lib/strict"
 )
 
 // maxMinutes bounds /api/seconds: three hours of seconds is about 1 MB of JSON.

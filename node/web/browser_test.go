@@ -22,8 +22,8 @@ import (
 	"github.com/leqnode/leqnode/dsp"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
+	"github.com/leqnode/leqnode/node/lib/wav"
 	"github.com/leqnode/leqnode/node/testrig"
-	"github.com/leqnode/leqnode/node/wav"
 	"github.com/leqnode/leqnode/node/web"
 )
 

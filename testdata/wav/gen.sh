@@ -2,7 +2,7 @@
 # Makes the shared bad recordings of testdata/wav: `testdata/wav/gen.sh [DIR]` writes them to
 # DIR (default: this directory). Every file comes from sox (Debian package sox, SoX v14.4.2 in
 # Debian 12) or from a sox file cut or patched with coreutils, so they do not depend on
-# leqnode's own WAV writer; node/wav's TestSharedRecordingsReproducible runs this script and
+# leqnode's own WAV writer; node/lib/wav's TestSharedRecordingsReproducible runs this script and
 # compares its output with the committed files byte for byte.
 set -euo pipefail
 out=${1:-$(dirname "$0")}
