@@ -13,7 +13,6 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
-	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/daemon"
 	"github.com/leqnode/leqnode/node/demobroker"
 	"github.com/leqnode/leqnode/node/lib/config"
@@ -99,12 +98,16 @@ func runDemo(ctx context.Context, std stdio, args []string) (rerr error) {
 	out.printf("while it runs, read the store with: %s export --config %s --kind second\n", prog(), cfgPath)
 	out.printf("levels are indicative: see the README's cautions\n\n")
 	log := newLogger(std.err, std.errIsTTY, slog.LevelWarn)
-	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, Hooks: func(o *node.Options) {
-		o.SampleOrigin = origin
-		// Called on the node's processing goroutine while this one waits in runDaemon.
-		o.OnSecond = func(s *record.Second) { out.println(liveLine(s)) }
-		o.OnMinute = func(m *record.Minute) { out.println(minuteLine(m)) }
-	}})
+	err = runDaemon(ctx, std, daemon.Options{Config: cfg, Logger: log, SampleOrigin: origin,
+		// Called on a goroutine of the daemon's while this one waits in runDaemon.
+		Display: func(r record.Record) {
+			switch r := r.(type) {
+			case *record.Second:
+				out.println(liveLine(r))
+			case *record.Minute:
+				out.println(minuteLine(r))
+			}
+		}})
 	if err != nil {
 		return err
 	}

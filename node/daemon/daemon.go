@@ -25,6 +25,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node"
 	"github.com/leqnode/leqnode/node/capture"
 	"github.com/leqnode/leqnode/node/lib/config"
@@ -42,8 +43,15 @@ type Options struct {
 	Logger *slog.Logger
 	// Version is the software version stored in session records and shown on the page.
 	Version string
-	// Hooks, when set, adjusts the node's options before it starts (the demo's live display).
-	Hooks func(*node.Options)
+	// SampleOrigin, with a sample-timed capture, is the time of the first sample (see
+	// node.Options.SampleOrigin); zero means now.
+	SampleOrigin time.Time
+	// Display, when set, receives every second and minute record after the node stored it
+	// (the demo's live display). It runs on a goroutine of the daemon's own, never on the
+	// processing goroutine, so a slow terminal cannot hold up the measurement. Trade-off: while
+	// it is slower than the records come, up to displayQueue of them wait and the ones after
+	// are skipped for the display (counted in the log at the end); the store has them all.
+	Display func(record.Record)
 	// Reload, when set, asks for the configuration to be read again from ConfigPath (SIGHUP):
 	// the microphone settings apply at once; other changes are named as needing a restart.
 	Reload     <-chan os.Signal
@@ -71,7 +79,7 @@ type daemon struct{ o Options }
 // wrapping ErrConfig names a problem of the configuration.
 func Run(ctx context.Context, o Options) (err error) {
 	d := &daemon{o: o}
-	cfg, stdin, log, hooks := o.Config, o.Stdin, o.Logger, o.Hooks
+	cfg, stdin, log := o.Config, o.Stdin, o.Logger
 	st, err := d.openStore()
 	if err != nil {
 		return err
@@ -100,8 +108,12 @@ func Run(ctx context.Context, o Options) (err error) {
 		}
 		no.Notify = pub.Notify
 	}
-	if hooks != nil {
-		hooks(&no)
+	no.SampleOrigin = o.SampleOrigin
+	var display *displayFeed
+	if o.Display != nil {
+		display = newDisplayFeed()
+		no.OnSecond = func(r *record.Second) { display.offer(r) }
+		no.OnMinute = func(r *record.Minute) { display.offer(cloneMinute(r)) }
 	}
 	n, err := node.New(no)
 	if err != nil {
@@ -112,6 +124,15 @@ func Run(ctx context.Context, o Options) (err error) {
 	var bg sync.WaitGroup
 	defer bg.Wait()
 	defer cancel()
+	if display != nil {
+		bg.Go(func() { display.run(o.Display) })
+		defer func() {
+			display.close() // n.Run has returned or never started: nothing more is offered
+			if k := display.skipped.Load(); k > 0 {
+				log.Warn("the live display skipped records it could not show in time (all are stored)", "records", k)
+			}
+		}()
+	}
 	if path := cfg.ControlSocket(); path != "" {
 		srv, err := d.startControl(path, n, st)
 		if err != nil {
