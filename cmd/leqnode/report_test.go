@@ -9,6 +9,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // reportStore writes two hours of second records at 56 dB for the invented node
@@ -17,7 +18,7 @@ func reportStore(t *testing.T) string {
 	t.Helper()
 	ist, err := time.LoadLocation("Asia/Kolkata")
 	if err != nil {
-		t.Skip("no time zone data:", err)
+		testrig.Missing(t, "no time zone data ("+err.Error()+"): install the Debian package tzdata (make test-deps does, as root)")
 	}
 	path := filepath.Join(t.TempDir(), "harrowby-lane-1.db")
 	start := time.Date(2026, 5, 3, 21, 0, 0, 0, ist)

@@ -23,7 +23,7 @@ func TestRunPortAudioEndToEnd(t *testing.T) {
 	// writes in real time (no sound card needed); the node stores seconds that must match the
 	// measurement chain run over the same samples.
 	if _, err := capture.New(capture.Config{Kind: capture.KindPortAudio}, nil); err != nil && strings.Contains(err.Error(), "PortAudio") {
-		t.Skip("this build has no PortAudio:", err)
+		testrig.Missing(t, "this build has no PortAudio ("+err.Error()+"): install gcc and portaudio19-dev (make test-deps does, as root) and build with cgo")
 	}
 	dir := t.TempDir()
 	asound := filepath.Join(dir, "asound.conf")

@@ -15,6 +15,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/node/lib/query"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestMain lets the tests run this binary as a client under another user (a child process
@@ -165,7 +166,7 @@ func TestOtherUsersRefused(t *testing.T) {
 	// A user outside the service's group is refused; a member of the group is served. This
 	// needs root to start clients under other users.
 	if os.Getuid() != 0 {
-		t.Skip("needs root to run a client as another user")
+		testrig.Missing(t, "needs root to run a client as another user: run the tests as root (CI does)")
 	}
 	dir, err := os.MkdirTemp("", "leqnode-control-")
 	if err != nil {

@@ -13,6 +13,7 @@ import (
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/node/lib/query"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 var t0 = time.Date(2031, 5, 3, 18, 30, 0, 0, time.UTC) // 2031-05-04 00:00 in Asia/Kolkata (UTC+05:30)
@@ -43,7 +44,7 @@ func store(t *testing.T) *buffer.Store {
 func TestParseWhen(t *testing.T) {
 	ist, err := time.LoadLocation("Asia/Kolkata")
 	if err != nil {
-		t.Skip("no time zone data:", err)
+		testrig.Missing(t, "no time zone data ("+err.Error()+"): install the Debian package tzdata (make test-deps does, as root)")
 	}
 	for _, tc := range []struct {
 		v    string
