@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/csv"
 	"os"
-	"sync"
 	"testing"
 
 	"github.com/leqnode/leqnode/node/collect"
@@ -51,22 +50,4 @@ func orNull(p *float64) any {
 		return nil
 	}
 	return *p
-}
-
-// lockedBuffer is a bytes.Buffer safe for one writer and one reader at once.
-type lockedBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *lockedBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *lockedBuffer) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
 }

@@ -55,7 +55,7 @@ max_wait = "50ms"
 
 	ctx, cancel := context.WithCancel(context.Background())
 	done := make(chan int, 1)
-	var colLog lockedBuffer
+	var colLog testrig.SyncBuffer
 	go func() {
 		done <- run(ctx, stdio{in: strings.NewReader(""), out: &colLog, err: &colLog}, []string{"collect", "--config", colCfg})
 	}()

@@ -11,7 +11,6 @@ import (
 	"os/signal"
 	"path/filepath"
 	"strings"
-	"sync"
 	"syscall"
 	"testing"
 	"time"
@@ -125,24 +124,7 @@ func runCollector(t testing.TB, c *Config, opts Options) (col *Collector, stop f
 	if err != nil {
 		t.Fatal(err)
 	}
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- col.Run(ctx) }()
-	var once sync.Once
-	stop = func() {
-		once.Do(func() {
-			cancel()
-			select {
-			case err := <-done:
-				if err != nil {
-					t.Errorf("collector: %v", err)
-				}
-			case <-time.After(15 * time.Second):
-				t.Errorf("collector did not stop 15 s after its context ended")
-			}
-		})
-	}
-	t.Cleanup(stop)
+	stop = testrig.Background(t, "collector", 15*time.Second, col.Run)
 	waitUntil(t, 30*time.Second, "the collector's subscriptions", func() (bool, string) { return col.Subscribed(), "" })
 	return col, stop
 }

@@ -9,6 +9,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // benchHours is the backlog size of BenchmarkBacklog in hours of records: 1 by default (cheap
@@ -53,7 +54,7 @@ func BenchmarkBacklog(b *testing.B) {
 					b.Fatal(err)
 				}
 				p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", BacklogMessagesPerSecond: bc.rate},
-					store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
+					store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(testrig.SyncBuffer)))
 				if err != nil {
 					b.Fatal(err)
 				}

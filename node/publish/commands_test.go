@@ -16,6 +16,7 @@ import (
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/santhosh-tekuri/jsonschema/v6"
 )
 
@@ -276,7 +277,7 @@ func TestRemoteCommands(t *testing.T) {
 		}
 	}
 	store.Flush()
-	var logs logBuffer
+	var logs testrig.SyncBuffer
 	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Commands: CommandsConfig{Enabled: true}},
 		store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
@@ -396,7 +397,7 @@ func TestCommandsOffByDefault(t *testing.T) {
 	col := newCollector(t, m.url("tcp"), "wendlecross/wendle-cross-03/reply", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -422,7 +423,7 @@ func TestCommandsAfterReconnect(t *testing.T) {
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
 	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", ReconnectMaxDelay: Duration(time.Second),
-		Commands: CommandsConfig{Enabled: true}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
+		Commands: CommandsConfig{Enabled: true}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}

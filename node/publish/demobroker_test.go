@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/node/demobroker"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestDemoBroker: the in-process broker of leqnode demo (node/demobroker) carries the node's
@@ -30,7 +31,7 @@ func TestDemoBroker(t *testing.T) {
 	col := newCollector(t, url, "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{url}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{url}, TopicPrefix: "wendlecross"}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}

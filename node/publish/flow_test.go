@@ -13,6 +13,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer/record"
 	"github.com/leqnode/leqnode/configs/schema"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // schemas compiles the JSON Schema files of configs/schema (the documented payload formats),
@@ -58,7 +59,7 @@ func TestNormalFlow(t *testing.T) {
 			col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 			store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 			defer store.Close()
-			var logs logBuffer
+			var logs testrig.SyncBuffer
 			p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Spectra: mode},
 				store, Identity{NodeID: "wendle-cross-03", Site: "Harrowby Lane, Wendle Cross", Location: &Location{10.04, -20.17}, SoftwareVersion: "0.1.0-test"}, newLogger(&logs))
 			if err != nil {
@@ -154,7 +155,7 @@ func TestSelectedKindsAndQuantities(t *testing.T) {
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
 	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", Kinds: []string{"second", "minute"},
-		SecondQuantities: []string{"LAFmax", "LAeq"}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(logBuffer)))
+		SecondQuantities: []string{"LAFmax", "LAeq"}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -203,7 +204,7 @@ func TestBrokerFailover(t *testing.T) {
 	dead := fmt.Sprintf("tcp://127.0.0.1:%d", freePort(t))
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	var logs logBuffer
+	var logs testrig.SyncBuffer
 	p, err := New(Config{Brokers: []string{dead, m.url("tcp")}, ReconnectMaxDelay: Duration(time.Second)}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)
@@ -246,7 +247,7 @@ func TestAbsorb(t *testing.T) {
 func TestStoreClosedUnderneath(t *testing.T) {
 	m := startMosquitto(t, brokerOpts{})
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
-	var logs logBuffer
+	var logs testrig.SyncBuffer
 	p, err := New(Config{Brokers: []string{m.url("tcp")}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 	if err != nil {
 		t.Fatal(err)

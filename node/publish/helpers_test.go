@@ -1,8 +1,6 @@
 package publish
 
 import (
-	"bytes"
-	"context"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -231,46 +229,10 @@ func mustAppend(t testing.TB, s *buffer.Store, r record.Record) uint64 {
 // runPublisher starts p.Run in the background and stops it at the end of the test.
 func runPublisher(t testing.TB, p *Publisher) (stop func()) {
 	t.Helper()
-	ctx, cancel := context.WithCancel(context.Background())
-	done := make(chan error, 1)
-	go func() { done <- p.Run(ctx) }()
-	var once sync.Once
-	stop = func() {
-		once.Do(func() {
-			cancel()
-			select {
-			case err := <-done:
-				if err != nil {
-					t.Errorf("Run: %v", err)
-				}
-			case <-time.After(10 * time.Second):
-				t.Errorf("Run did not return 10 s after its context ended")
-			}
-		})
-	}
-	t.Cleanup(stop)
-	return stop
+	return testrig.Background(t, "Run", 10*time.Second, p.Run)
 }
 
-// logBuffer collects slog output for inspection.
-type logBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *logBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *logBuffer) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
-}
-
-func newLogger(w *logBuffer) *slog.Logger {
+func newLogger(w *testrig.SyncBuffer) *slog.Logger {
 	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: slog.LevelDebug}))
 }
 

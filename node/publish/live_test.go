@@ -10,6 +10,7 @@ import (
 
 	"github.com/leqnode/leqnode/buffer"
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestLiveBeforeCommit: with the store committing once an hour, a second record reaches the
@@ -28,7 +29,7 @@ func TestLiveBeforeCommit(t *testing.T) {
 	// The first record after Open is committed at once: append one and let it go.
 	at := time.Date(2031, 5, 4, 8, 0, 0, 0, time.UTC)
 	st.Append(&record.Second{Start: at, Duration: time.Second, LAeq: 50})
-	p, err := New(Config{Brokers: []string{url}}.WithDefaults("wendle-cross-05"), st, Identity{NodeID: "wendle-cross-05"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{url}}.WithDefaults("wendle-cross-05"), st, Identity{NodeID: "wendle-cross-05"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // TestOutage: the broker is stopped while the node keeps storing records, then restarted.
@@ -25,7 +26,7 @@ func TestOutage(t *testing.T) {
 	col := newCollector(t, m.url("tcp"), "wendlecross/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	var logs logBuffer
+	var logs testrig.SyncBuffer
 	const window = 8
 	p, err := New(Config{Brokers: []string{m.url("tcp")}, TopicPrefix: "wendlecross", ReconnectMaxDelay: Duration(time.Second),
 		MaxInFlight: window, BacklogMessagesPerSecond: 500, KeepAlive: Duration(5 * time.Second)},

@@ -1,12 +1,14 @@
 package publish
 
 import (
-	"github.com/leqnode/leqnode/buffer/record"
 	"math"
 	"path/filepath"
 	"strings"
 	"testing"
 	"time"
+
+	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 func TestPeriodMessage(t *testing.T) {
@@ -17,7 +19,7 @@ func TestPeriodMessage(t *testing.T) {
 	col := newCollector(t, url, "leqnode/#", nil)
 	store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 	defer store.Close()
-	p, err := New(Config{Brokers: []string{url}}, store, Identity{NodeID: "wendle-cross-01"}, newLogger(new(logBuffer)))
+	p, err := New(Config{Brokers: []string{url}}, store, Identity{NodeID: "wendle-cross-01"}, newLogger(new(testrig.SyncBuffer)))
 	if err != nil {
 		t.Fatal(err)
 	}

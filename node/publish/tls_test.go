@@ -10,6 +10,7 @@ import (
 	"time"
 
 	mqtt "github.com/eclipse/paho.mqtt.golang"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 // pki is a test certificate authority made with openssl, a broker certificate for 127.0.0.1
@@ -80,7 +81,7 @@ func TestTLSWithPassword(t *testing.T) {
 		})
 		store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 		defer store.Close()
-		var logs logBuffer
+		var logs testrig.SyncBuffer
 		p, err := New(Config{Brokers: []string{url}, TopicPrefix: "wendlecross", Username: user, PasswordFile: k.pass,
 			TLS: TLSConfig{CAFile: k.ca, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 		if err != nil {
@@ -103,7 +104,7 @@ func TestTLSWithPassword(t *testing.T) {
 	t.Run("insecure is warned about", func(t *testing.T) {
 		store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 		defer store.Close()
-		var logs logBuffer
+		var logs testrig.SyncBuffer
 		p, err := New(Config{Brokers: []string{url}, Username: user, PasswordFile: k.pass,
 			TLS: TLSConfig{InsecureSkipVerify: true, CertFile: k.clientCert, KeyFile: k.clientKey}}, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
 		if err != nil {
@@ -132,7 +133,7 @@ func TestTLSWithPassword(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			store := openStore(t, filepath.Join(t.TempDir(), "node.db"))
 			defer store.Close()
-			var logs logBuffer
+			var logs testrig.SyncBuffer
 			cfg := c.cfg
 			cfg.Brokers, cfg.TopicPrefix, cfg.ReconnectMaxDelay = []string{url}, "wendlecross", Duration(time.Second)
 			p, err := New(cfg, store, Identity{NodeID: "wendle-cross-03"}, newLogger(&logs))
@@ -162,7 +163,7 @@ func TestTLSWithPassword(t *testing.T) {
 }
 
 // noSecret checks that no password reached the log or the status.
-func noSecret(t *testing.T, logs *logBuffer, p *Publisher, secrets ...string) {
+func noSecret(t *testing.T, logs *testrig.SyncBuffer, p *Publisher, secrets ...string) {
 	t.Helper()
 	st := fmt.Sprintf("%+v", p.Status())
 	for _, s := range secrets {

@@ -94,7 +94,7 @@ func TestBrowser(t *testing.T) {
 	writeSignal(t, wavPath, 60)
 	st := openStore(t)
 	fillHistory(t, st, time.Now().Add(-20*time.Second), true)
-	log := debugLogger(&logBuffer{})
+	log := debugLogger(&testrig.SyncBuffer{})
 	src, err := capture.New(capture.Config{Kind: capture.KindFile, File: wavPath, Realtime: true}, log)
 	if err != nil {
 		t.Fatal(err)

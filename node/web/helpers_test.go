@@ -1,7 +1,6 @@
 package web_test
 
 import (
-	"bytes"
 	"encoding/json"
 	"io"
 	"log/slog"
@@ -9,7 +8,6 @@ import (
 	"net/http"
 	"net/http/httptest"
 	"path/filepath"
-	"sync"
 	"testing"
 	"time"
 
@@ -138,24 +136,6 @@ func decode(t testing.TB, body []byte, v any) {
 	if err := json.Unmarshal(body, v); err != nil {
 		t.Fatalf("decoding %q: %v", body, err)
 	}
-}
-
-// logBuffer is a concurrency-safe buffer for slog output.
-type logBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *logBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
-func (l *logBuffer) String() string {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.String()
 }
 
 func debugLogger(w io.Writer) *slog.Logger {

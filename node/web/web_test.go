@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"github.com/leqnode/leqnode/buffer/record"
+	"github.com/leqnode/leqnode/node/testrig"
 	"github.com/leqnode/leqnode/node/web"
 )
 
@@ -138,7 +139,7 @@ func TestAccessToken(t *testing.T) {
 	const token = "wendle-cross-0a9d4c"
 	st := openStore(t)
 	fillHistory(t, st, testNow(), true)
-	var logs logBuffer
+	var logs testrig.SyncBuffer
 	s := newServer(t, web.Options{Store: st, Token: token, Logger: debugLogger(&logs)})
 	h := s.Handler()
 	for _, path := range endpoints() {
@@ -232,7 +233,7 @@ func TestRunAndWarnings(t *testing.T) {
 		{"127.0.0.1:0", "", ""},
 		{"127.0.0.1:0", "harrowby-lane-7f3a", "clear text"},
 	} {
-		var logs logBuffer
+		var logs testrig.SyncBuffer
 		s := newServer(t, web.Options{Addr: tc.addr, Token: tc.token, Logger: debugLogger(&logs)})
 		ctx, cancel := context.WithCancel(context.Background())
 		done := make(chan error, 1)

@@ -8,6 +8,7 @@ import (
 	"testing"
 
 	"github.com/leqnode/leqnode/node/lib/termprogress"
+	"github.com/leqnode/leqnode/node/testrig"
 )
 
 func TestBar(t *testing.T) {
@@ -28,22 +29,10 @@ func TestBar(t *testing.T) {
 	}
 }
 
-// lockedBuffer is a bytes.Buffer safe for the writes of several goroutines.
-type lockedBuffer struct {
-	mu sync.Mutex
-	b  bytes.Buffer
-}
-
-func (l *lockedBuffer) Write(p []byte) (int, error) {
-	l.mu.Lock()
-	defer l.mu.Unlock()
-	return l.b.Write(p)
-}
-
 // TestBatch: recordings read at once share one bar; one of unknown length counts as the mean
 // of the known ones until it finishes.
 func TestBatch(t *testing.T) {
-	var out lockedBuffer
+	var out testrig.SyncBuffer
 	b := termprogress.NewBatch(&out, 3)
 	var wg sync.WaitGroup
 	for i := range 3 {
@@ -59,7 +48,7 @@ func TestBatch(t *testing.T) {
 	b.Finish(1)
 	b.Finish(2)
 	b.Clear()
-	s := out.b.String()
+	s := out.String()
 	if !strings.Contains(s, "] 100%  3/3 recordings") || !strings.HasSuffix(s, "\r\033[K") {
 		t.Errorf("batch bar output ends %q", s[max(0, len(s)-80):])
 	}
