@@ -23,6 +23,10 @@
 // flag while the node measures on, and any other store error stops the node and comes back
 // from Run.
 //
-// Sub-packages hold the parts: capture (audio sources), wav (WAV codec), scene (the synthetic
-// demo scene), analyze (offline analysis with the same chain) and publish (MQTT).
+// The services around it are sub-packages: daemon (the composition root that starts and stops
+// them all), capture (audio sources), publish (MQTT), control (the Unix socket), web (the status
+// page and metrics), collect and fleetdb (the central collector), demobroker (the demo's MQTT
+// broker). The libraries they and the commands build on, usable without a running node, are
+// under node/lib: wav, scene, analyze, report, calibrate, config, strict, query, export and
+// termprogress.
 package node
