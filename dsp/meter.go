@@ -115,7 +115,7 @@ type Meter struct {
 	dc, cw, aw *Cascade
 	bank       *FilterBank
 	tap        func(z, c, a []float64)
-	z, c, a    [chunk]float64
+	a          [chunk]float64 // A-weighted chunk (Z and C live in peakZ and peakC's windows)
 
 	kF, kS, kI, decI float64 // time-weighting coefficients
 	f, s, r, d       float64 // Fast, Slow, Impulse-rise and Impulse-detector states
@@ -238,7 +238,8 @@ func (m *Meter) Process(x []float32) {
 
 func (m *Meter) processChunk(x []float32) {
 	n := len(x)
-	z, c, a := m.z[:n], m.c[:n], m.a[:n]
+	// z and c are filtered where the peak detectors read them, a in the meter's scratch.
+	z, c, a := m.peakZ.buf(n), m.peakC.buf(n), m.a[:n]
 	lo, hi := m.rawMin, m.rawMax
 	var sum float64
 	for i, v := range x {
