@@ -1,0 +1,132 @@
+package dsp
+
+// The meter's per-sample loops, written for the Go compiler: each keeps few values in
+// registers, and the updates of extremes, which most samples do not make, leave the inner loop
+// (a branch out and back) instead of being merged into it, where the register allocator would
+// shuffle registers on every sample. The arithmetic, and the order of every sum, is that of a
+// plain loop over the samples, so the results are the same to the bit.
+
+// convertRaw converts x to float64 into z (len(z) ≥ len(x)) and returns the raw extremes lo and
+// hi, the count of clipped samples (ClipThreshold) and the sum of x, updating the extremes and
+// count given. A NaN sample is converted and summed but counts neither as an extreme nor as
+// clipped.
+//
+// A sample inside [lb, ub], where ub is the smaller of hi and the largest float32 below
+// ClipThreshold and lb the mirror image, changes neither extreme nor the count: the inner loop
+// tests only that.
+func convertRaw(z []float64, x []float32, lo, hi float32, clipped int64) (float32, float32, int64, float64) {
+	const below = float32(ClipThreshold - 0x1p-24) // the largest float32 below ClipThreshold
+	z = z[:len(x)]
+	var sum float64
+	ub, lb := min(hi, below), max(lo, -below)
+	for i := 0; i < len(x); i++ {
+		for ; i < len(x); i++ {
+			v := x[i]
+			if v > ub || v < lb {
+				break
+			}
+			f := float64(v)
+			z[i] = f
+			sum += f
+		}
+		if i == len(x) {
+			break
+		}
+		v := x[i]
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
+		if v >= ClipThreshold || v <= -ClipThreshold {
+			clipped++
+		}
+		f := float64(v)
+		z[i] = f
+		sum += f
+		ub, lb = min(hi, below), max(lo, -below)
+	}
+	return lo, hi, clipped, sum
+}
+
+// timeWeighting holds the exponential time weightings of the squared A-weighted signal a²
+// (IEC 61672-1:2013, 3.7 and 5.8), each the recursion
+//
+//	y ← y + k·(a² - y),  k = 1 - e^(-1/(fs·τ)),
+//
+// for Fast (f, τ = TauFast) and Slow (s, τ = TauSlow), and the Impulse detector of IEC 60651:1979
+// (described in IEC 61672-1:2013 Annex C): r, the same recursion with τ = TauImpulseRise, held by
+// d, which decays by e^(-1/(fs·TauImpulseDecay)) per sample and takes r wherever r exceeds it.
+// With them it keeps the interval's extremes of f and s, the maximum of d, and Σa².
+type timeWeighting struct {
+	f, s, r, d       float64
+	kF, kS, kI, decI float64
+	maxF, minF       float64
+	maxS, minS, maxI float64
+	sumA             float64
+}
+
+// run processes a span of A-weighted samples. A minimum set to -Inf is not tracked.
+//
+// The maximum of d needs no test on the samples where d decays: d then falls below its previous
+// value, which maxI already holds, so only a sample where d takes r can raise it, and the first
+// sample of an interval (maxI = -Inf), whose d is at least the decayed previous one, d·decI: run
+// starts maxI there.
+func (t *timeWeighting) run(a []float64) {
+	f, s, r, d := t.f, t.s, t.r, t.d
+	hiF, loF, hiS, loS, hiI := t.maxF, t.minF, t.maxS, t.minS, t.maxI
+	sA := t.sumA
+	if len(a) > 0 {
+		if x := d * t.decI; x > hiI {
+			hiI = x
+		}
+	}
+	for i := 0; i < len(a); i++ {
+		for ; i < len(a); i++ {
+			a2 := a[i] * a[i]
+			sA += a2
+			f += t.kF * (a2 - f)
+			s += t.kS * (a2 - s)
+			r += t.kI * (a2 - r)
+			d *= t.decI
+			if f > hiF || f < loF || s > hiS || s < loS || r > d {
+				break
+			}
+		}
+		if i == len(a) {
+			break
+		}
+		if r > d {
+			d = r
+			if d > hiI {
+				hiI = d
+			}
+		}
+		if f > hiF {
+			hiF = f
+		}
+		if f < loF {
+			loF = f
+		}
+		if s > hiS {
+			hiS = s
+		}
+		if s < loS {
+			loS = s
+		}
+	}
+	t.f, t.s, t.r, t.d = f, s, r, d
+	t.maxF, t.minF, t.maxS, t.minS, t.maxI = hiF, loF, hiS, loS, hiI
+	t.sumA = sA
+}
+
+// sumSquares returns Σx² and Σy² over x and y (of one length), each summed in order.
+func sumSquares(x, y []float64) (sx, sy float64) {
+	y = y[:len(x)]
+	for i, v := range x {
+		sx += v * v
+		sy += y[i] * y[i]
+	}
+	return sx, sy
+}

@@ -1,0 +1,156 @@
+package dsp
+
+import (
+	"math"
+	"math/rand/v2"
+	"testing"
+)
+
+// TestTimeWeightingKernel checks that the break-out loops of the meter compute the same bits
+// as plain loops over the samples (the meter's arithmetic before issue 18: every comparison on
+// every sample), for noise, level steps, decays to silence, impulses and a NaN, in spans of
+// several lengths, with and without minima.
+func TestTimeWeightingKernel(t *testing.T) {
+	plain := func(tw *timeWeighting, a []float64) {
+		for _, v := range a {
+			a2 := v * v
+			tw.sumA += a2
+			tw.f += tw.kF * (a2 - tw.f)
+			tw.s += tw.kS * (a2 - tw.s)
+			tw.r += tw.kI * (a2 - tw.r)
+			tw.d *= tw.decI
+			if tw.r > tw.d {
+				tw.d = tw.r
+			}
+			if tw.f > tw.maxF {
+				tw.maxF = tw.f
+			}
+			if tw.s > tw.maxS {
+				tw.maxS = tw.s
+			}
+			if tw.d > tw.maxI {
+				tw.maxI = tw.d
+			}
+			if tw.f < tw.minF {
+				tw.minF = tw.f
+			}
+			if tw.s < tw.minS {
+				tw.minS = tw.s
+			}
+		}
+	}
+	rng := rand.New(rand.NewPCG(5, 6))
+	const n = 30000
+	signals := map[string][]float64{}
+	for _, name := range []string{"noise", "steps", "decay", "impulses", "nan"} {
+		x := make([]float64, n)
+		for i := range x {
+			switch name {
+			case "noise":
+				x[i] = rng.NormFloat64()
+			case "steps":
+				x[i] = rng.NormFloat64() * math.Pow(10, float64((i/3000)%4))
+			case "decay":
+				if i < n/3 {
+					x[i] = math.Sin(float64(i))
+				}
+			case "impulses":
+				if i%4001 == 0 {
+					x[i] = float64(1 + i/4001)
+				}
+			case "nan":
+				x[i] = rng.NormFloat64()
+				if i == n/2 {
+					x[i] = math.NaN()
+				}
+			}
+		}
+		signals[name] = x
+	}
+	sameTW := func(a, b *timeWeighting) bool {
+		x := []float64{a.f, a.s, a.r, a.d, a.maxF, a.minF, a.maxS, a.minS, a.maxI, a.sumA}
+		y := []float64{b.f, b.s, b.r, b.d, b.maxF, b.minF, b.maxS, b.minS, b.maxI, b.sumA}
+		for i := range x {
+			if math.Float64bits(x[i]) != math.Float64bits(y[i]) {
+				return false
+			}
+		}
+		return true
+	}
+	for name, x := range signals {
+		for _, span := range []int{1, 5, 256, 4000} {
+			for _, minima := range []bool{false, true} {
+				lo := math.Inf(-1) // not tracked
+				if minima {
+					lo = math.Inf(1)
+				}
+				fs := 8000.0 // short time constants: the recursions move fast
+				init := timeWeighting{kF: -math.Expm1(-1 / (fs * TauFast)), kS: -math.Expm1(-1 / (fs * TauSlow)),
+					kI: -math.Expm1(-1 / (fs * TauImpulseRise)), decI: math.Exp(-1 / (fs * TauImpulseDecay))}
+				a, b := init, init
+				for i := 0; i < len(x); i += span {
+					if i%12000 < span { // a new interval
+						for _, tw := range []*timeWeighting{&a, &b} {
+							tw.maxF, tw.maxS, tw.maxI, tw.minF, tw.minS, tw.sumA = math.Inf(-1), math.Inf(-1), math.Inf(-1), lo, lo, 0
+						}
+					}
+					blk := x[i:min(i+span, len(x))]
+					a.run(blk)
+					plain(&b, blk)
+					if !sameTW(&a, &b) {
+						t.Fatalf("%s, spans of %d, minima %v, at %d: kernel %+v, plain loop %+v", name, span, minima, i, a, b)
+					}
+				}
+			}
+		}
+	}
+}
+
+// TestConvertRaw checks the raw-sample loop against a plain one: extremes, clipped count and sum
+// to the bit, at and around the clip threshold, with NaN and infinities.
+func TestConvertRaw(t *testing.T) {
+	const below = float32(ClipThreshold - 0x1p-24)
+	special := []float32{0, 0.5, -0.5, below, -below, ClipThreshold, -ClipThreshold, 1, -1, 1.5, -1.5,
+		float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1)), 0.999, -0.999}
+	rng := rand.New(rand.NewPCG(7, 8))
+	x := make([]float32, 20000)
+	for i := range x {
+		if i%97 == 0 {
+			x[i] = special[(i/97)%len(special)]
+		} else {
+			x[i] = float32(rng.NormFloat64() * 0.3 * float64(1+i/5000))
+		}
+	}
+	for _, block := range []int{1, 7, 256} {
+		lo, hi, clipped := float32(math.Inf(1)), float32(math.Inf(-1)), int64(0)
+		plo, phi, pclipped := lo, hi, clipped
+		var sum, psum float64
+		z := make([]float64, block)
+		for i := 0; i < len(x); i += block {
+			blk := x[i:min(i+block, len(x))]
+			var s float64
+			lo, hi, clipped, s = convertRaw(z, blk, lo, hi, clipped)
+			sum += s
+			s = 0
+			for j, v := range blk {
+				if v < plo {
+					plo = v
+				}
+				if v > phi {
+					phi = v
+				}
+				if v >= ClipThreshold || v <= -ClipThreshold {
+					pclipped++
+				}
+				if z[j] != float64(v) && v == v {
+					t.Fatalf("block %d, sample %d: converted %v, want %v", block, i+j, z[j], v)
+				}
+				s += float64(v)
+			}
+			psum += s
+		}
+		if lo != plo || hi != phi || clipped != pclipped || math.Float64bits(sum) != math.Float64bits(psum) {
+			t.Errorf("blocks of %d: lo %v hi %v clipped %d sum %v, plain loop %v %v %d %v", block, lo, hi, clipped, sum, plo, phi, pclipped, psum)
+		}
+	}
+}
