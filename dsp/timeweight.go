@@ -90,7 +90,15 @@ func (t *timeWeighting) run(a []float64) {
 			s += t.kS * (a2 - s)
 			r += t.kI * (a2 - r)
 			d *= t.decI
-			if f > hiF || f < loF || s > hiS || s < loS || r > d {
+			// A decay sets a new minimum on every sample, for seconds: the minima are kept in
+			// the loop, the rarer changes leave it.
+			if f < loF {
+				loF = f
+			}
+			if s < loS {
+				loS = s
+			}
+			if f > hiF || s > hiS || r > d {
 				break
 			}
 		}
@@ -106,14 +114,8 @@ func (t *timeWeighting) run(a []float64) {
 		if f > hiF {
 			hiF = f
 		}
-		if f < loF {
-			loF = f
-		}
 		if s > hiS {
 			hiS = s
-		}
-		if s < loS {
-			loS = s
 		}
 	}
 	t.f, t.s, t.r, t.d = f, s, r, d
