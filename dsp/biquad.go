@@ -160,6 +160,70 @@ func (c *Cascade) highPass2(i int, buf []float64) {
 	c.state[i+1] = [2]float64{t0, t1}
 }
 
+// processTo filters src into dst (len(dst) ≥ len(src); they may be one slice) and returns
+// Σy² of the outputs y, summed in order: the same bits as copying src to dst, Process(dst) and
+// summing the squares of dst, without the copy and the second pass for the shapes the meter
+// uses (a high-pass section alone, or followed by one other section).
+func (c *Cascade) processTo(dst, src []float64) float64 {
+	dst = dst[:len(src)]
+	if c.hp != nil && c.hp[0] {
+		switch len(c.sec) {
+		case 1:
+			return c.highPass1To(dst, src)
+		case 2:
+			return c.highPass2To(dst, src)
+		}
+	}
+	if len(src) > 0 && &dst[0] != &src[0] {
+		copy(dst, src)
+	}
+	c.Process(dst)
+	var sum float64
+	for _, v := range dst {
+		sum += v * v
+	}
+	return sum
+}
+
+// highPass2To is highPass2 for sections 0 and 1 from src into dst (of one length), with Σy².
+func (c *Cascade) highPass2To(dst, src []float64) (sum float64) {
+	s, t := &c.sec[0], &c.sec[1]
+	s0, s1 := c.state[0][0], c.state[0][1]
+	t0, t1 := c.state[1][0], c.state[1][1]
+	dst = dst[:len(src)]
+	for n, x := range src {
+		g := s.B0 * x
+		y := g + s0
+		s0 = s1 - (g + g + s.A1*y)
+		s1 = g - s.A2*y
+		z := t.B0*y + t0
+		t0 = t.B1*y - t.A1*z + t1
+		t1 = t.B2*y - t.A2*z
+		dst[n] = z
+		sum += z * z
+	}
+	c.state[0] = [2]float64{s0, s1}
+	c.state[1] = [2]float64{t0, t1}
+	return sum
+}
+
+// highPass1To is highPass1 for section 0 from src into dst (of one length), with Σy².
+func (c *Cascade) highPass1To(dst, src []float64) (sum float64) {
+	s := &c.sec[0]
+	s0, s1 := c.state[0][0], c.state[0][1]
+	dst = dst[:len(src)]
+	for n, x := range src {
+		g := s.B0 * x
+		y := g + s0
+		s0 = s1 - (g + g + s.A1*y)
+		s1 = g - s.A2*y
+		dst[n] = y
+		sum += y * y
+	}
+	c.state[0] = [2]float64{s0, s1}
+	return sum
+}
+
 // highPass1 is highPass2's first section alone.
 func (c *Cascade) highPass1(i int, buf []float64) {
 	s := &c.sec[i]

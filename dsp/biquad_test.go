@@ -45,3 +45,52 @@ func TestCascadeHighPassKernels(t *testing.T) {
 		t.Error("a general section passes for a high-pass numerator")
 	}
 }
+
+// TestCascadeProcessTo checks that processTo gives the bits of a copy, Process and a sum of
+// squares in order, for the meter's chains and for longer ones (the general path), in place and
+// out of place.
+func TestCascadeProcessTo(t *testing.T) {
+	rng := rand.New(rand.NewPCG(11, 12))
+	x := make([]float64, 3000)
+	for i := range x {
+		x[i] = rng.NormFloat64()
+	}
+	c, a, err := WeightingSections(48000)
+	if err != nil {
+		t.Fatal(err)
+	}
+	corr := Section{B0: 1.01, B1: -0.3, B2: 0.05, A1: -0.29, A2: 0.04}
+	chains := map[string][]Section{"dc": DCBlockSections(48000), "C": c, "A": a,
+		"dc+correction": append(DCBlockSections(48000), corr), "dc+2 corrections": append(DCBlockSections(48000), corr, corr),
+		"correction": {corr}}
+	for name, sec := range chains {
+		for _, inPlace := range []bool{false, true} {
+			p, q := NewCascade(sec...), NewCascade(sec...)
+			for i := 0; i < len(x); i += 256 {
+				src := x[i:min(i+256, len(x))]
+				want := append([]float64(nil), src...)
+				q.Process(want)
+				var wantSum float64
+				for _, v := range want {
+					wantSum += v * v
+				}
+				got := make([]float64, len(src))
+				var sum float64
+				if inPlace {
+					copy(got, src)
+					sum = p.processTo(got, got)
+				} else {
+					sum = p.processTo(got, src)
+				}
+				for j := range got {
+					if math.Float64bits(got[j]) != math.Float64bits(want[j]) {
+						t.Fatalf("%s, in place %v, sample %d: %v, want %v", name, inPlace, i+j, got[j], want[j])
+					}
+				}
+				if math.Float64bits(sum) != math.Float64bits(wantSum) {
+					t.Fatalf("%s, in place %v, block at %d: sum %v, want %v", name, inPlace, i, sum, wantSum)
+				}
+			}
+		}
+	}
+}

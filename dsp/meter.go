@@ -244,14 +244,12 @@ func (m *Meter) processChunk(x []float32) {
 	var sum float64
 	m.rawMin, m.rawMax, m.clipped, sum = convertRaw(z, x, m.rawMin, m.rawMax, m.clipped)
 	m.rawSum += sum
-	m.dc.Process(z)
+	sumZ := m.dc.processTo(z, z)
 	if m.bank != nil {
 		m.bank.Process(z)
 	}
-	copy(c, z)
-	m.cw.Process(c)
-	copy(a, c)
-	m.aw.Process(a)
+	sumC := m.cw.processTo(c, z)
+	m.aw.processTo(a, c)
 	if m.tap != nil {
 		m.tap(z, c, a)
 	}
@@ -294,7 +292,6 @@ func (m *Meter) processChunk(x []float32) {
 		i = end
 	}
 	m.sumA = sumA + m.sumA // the interval's sum plus the chunk's, as before the spans
-	sumC, sumZ := sumSquares(c, z)
 	m.sumC += sumC
 	m.sumZ += sumZ
 

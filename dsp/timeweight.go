@@ -122,13 +122,3 @@ func (t *timeWeighting) run(a []float64) {
 	t.maxF, t.minF, t.maxS, t.minS, t.maxI = hiF, loF, hiS, loS, hiI
 	t.sumA = sA
 }
-
-// sumSquares returns Σx² and Σy² over x and y (of one length), each summed in order.
-func sumSquares(x, y []float64) (sx, sy float64) {
-	y = y[:len(x)]
-	for i, v := range x {
-		sx += v * v
-		sy += y[i] * y[i]
-	}
-	return sx, sy
-}
