@@ -295,8 +295,7 @@ func (m *Meter) processChunk(x []float32) {
 	m.sumC += sumC
 	m.sumZ += sumZ
 
-	m.peakC.process(c)
-	m.peakZ.process(z)
+	processPeakPair(&m.peakC, &m.peakZ, n) // c and z are in their windows
 	m.n += int64(n)
 }
 

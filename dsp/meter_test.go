@@ -1,8 +1,10 @@
 package dsp
 
 import (
+	"maps"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"github.com/leqnode/leqnode/dsp/reference"
@@ -698,6 +700,28 @@ func TestPeakCandidates(t *testing.T) {
 				if i%5000 < size {
 					if pa, pb := a.take(), b.take(); pa != pb {
 						t.Fatalf("%s, blocks of %d: peak %v, plain scan %v", name, size, pa, pb)
+					}
+				}
+			}
+		}
+	}
+	// Two detectors scanned in one loop (processPeakPair), as the meter runs C and Z.
+	names := slices.Sorted(maps.Keys(signals))
+	for k, name := range names {
+		other := names[(k+1)%len(names)]
+		x, y := signals[name], signals[other]
+		for _, size := range []int{1, 7, 256} {
+			a1, a2, b1, b2 := newPeakDetector(), newPeakDetector(), newPeakDetector(), newPeakDetector()
+			for i := 0; i < len(x); i += size {
+				bx, by := x[i:min(i+size, len(x))], y[i:min(i+size, len(y))]
+				copy(a1.buf(len(bx)), bx)
+				copy(a2.buf(len(by)), by)
+				processPeakPair(&a1, &a2, len(bx))
+				plain(&b1, bx)
+				plain(&b2, by)
+				if i%5000 < size {
+					if p1, q1, p2, q2 := a1.take(), b1.take(), a2.take(), b2.take(); p1 != q1 || p2 != q2 {
+						t.Fatalf("%s with %s, blocks of %d: peaks %v and %v, plain scans %v and %v", name, other, size, p1, p2, q1, q2)
 					}
 				}
 			}

@@ -84,39 +84,88 @@ func (d *peakDetector) process(x []float64) {
 	if &x[0] != &w[h] {
 		copy(w[h:], x)
 	}
-	// The pair starting at w[j] uses w[j-(peakTaps-1-peakHalfLen) : j+peakHalfLen+1];
-	// with h samples of history, j runs from lo to lo+n-1.
-	const lo = peakTaps - 1 - peakHalfLen
-	// One pass finds the running peak of the samples and, as candidates, the samples that reach
-	// 1/√2 of the running peak so far: a superset of those that reach 1/√2 of the chunk's final
-	// peak, which are the only ones near which the waveform can rise above it. w[lo] ends the
-	// previous chunk and is already in d.max.
-	m := d.max
-	g := m * math.Sqrt2 / 2
-	nc := 0
-	if math.Abs(w[lo]) >= g {
-		d.cand[0] = lo
-		nc = 1
-	}
-	cand := d.cand[:n+1]
-	for i := lo + 1; i <= lo+n; i++ {
-		i += firstReaching(w[i:lo+n+1], g)
-		if i > lo+n {
+	m, g, nc := d.begin()
+	for i := peakLo + 1; i <= peakLo+n; i++ {
+		i += firstReaching(w[i:peakLo+n+1], g)
+		if i > peakLo+n {
 			break
 		}
-		cand[nc] = int32(i)
-		nc++
-		if a := math.Abs(w[i]); a > m {
-			m = a
-			g = m * math.Sqrt2 / 2
+		m, g, nc = d.note(i, m, nc)
+	}
+	d.finish(n, m, nc)
+}
+
+// processPeakPair is process for two detectors whose chunks of n samples have been written in
+// place (buf): one loop scans both, with the same candidates for each as process finds.
+func processPeakPair(a, b *peakDetector, n int) {
+	if n == 0 {
+		return
+	}
+	const h = peakTaps - 1
+	wa, wb := a.win[:h+n], b.win[:h+n]
+	ma, ga, nca := a.begin()
+	mb, gb, ncb := b.begin()
+	wa, wb = wa[:peakLo+n+1], wb[:peakLo+n+1]
+	for i := peakLo + 1; i <= peakLo+n; i++ {
+		i = firstReaching2(wa, wb, i, ga, gb)
+		if i > peakLo+n {
+			break
+		}
+		if math.Abs(wa[i]) >= ga {
+			ma, ga, nca = a.note(i, ma, nca)
+		}
+		if math.Abs(wb[i]) >= gb {
+			mb, gb, ncb = b.note(i, mb, ncb)
 		}
 	}
+	a.finish(n, ma, nca)
+	b.finish(n, mb, ncb)
+}
+
+// peakLo is the window index of the first sample of the first pair a chunk examines: the pair
+// starting at w[j] uses w[j-peakLo : j+peakHalfLen+1], and with peakTaps-1 samples of history, j
+// runs from peakLo to peakLo+n-1.
+const peakLo = peakTaps - 1 - peakHalfLen
+
+// begin starts the scan of a chunk in the window. The scan finds the running peak of the
+// samples and, as candidates, the samples that reach 1/√2 of the running peak so far: a superset
+// of those that reach 1/√2 of the chunk's final peak, which are the only ones near which the
+// waveform can rise above it. w[peakLo] ends the previous chunk and is already in d.max; it is a
+// candidate if it reaches the gate. begin returns the running peak, its gate and the number of
+// candidates.
+func (d *peakDetector) begin() (m, g float64, nc int) {
+	m = d.max
+	g = m * math.Sqrt2 / 2
+	if math.Abs(d.win[peakLo]) >= g {
+		d.cand[0] = peakLo
+		nc = 1
+	}
+	return m, g, nc
+}
+
+// note records the sample at window index i, which reaches the gate, as a candidate, and returns
+// the running peak, its gate and the number of candidates.
+func (d *peakDetector) note(i int, m float64, nc int) (float64, float64, int) {
+	d.cand[nc] = int32(i)
+	if a := math.Abs(d.win[i]); a > m {
+		m = a
+	}
+	return m, m * math.Sqrt2 / 2, nc + 1
+}
+
+// finish examines the candidates of a chunk of n samples whose scan ended with the running peak
+// m, keeps the interval's peak and moves the window's history along.
+func (d *peakDetector) finish(n int, m float64, nc int) {
+	const h = peakTaps - 1
+	const lo = peakLo
+	w := d.win[:h+n]
+	cand := d.cand[:nc]
 	// The waveform's peak lies next to a sample whose magnitude is a local maximum: examine
 	// the pairs on either side of such samples, when they reach 1/√2 of the peak. The pair
 	// (j, j+1) is examined once, in order of j, exactly when one of its samples reaches that.
 	gate := m * math.Sqrt2 / 2
 	last := lo - 1 // the last pair examined
-	for _, c := range cand[:nc] {
+	for _, c := range cand {
 		i := int(c)
 		if math.Abs(w[i]) < gate {
 			continue
@@ -145,6 +194,19 @@ func firstReaching(x []float64, g float64) int {
 	ng := -g
 	for i, v := range x {
 		if v >= g || v <= ng {
+			return i
+		}
+	}
+	return len(x)
+}
+
+// firstReaching2 is firstReaching for two signals of one length, from index i on: the first
+// index at which either reaches its gate, or len(x).
+func firstReaching2(x, y []float64, i int, gx, gy float64) int {
+	y = y[:len(x)]
+	ngx, ngy := -gx, -gy
+	for i = max(i, 0); i < len(x); i++ {
+		if v, u := x[i], y[i]; v >= gx || v <= ngx || u >= gy || u <= ngy {
 			return i
 		}
 	}
