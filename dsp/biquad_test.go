@@ -48,7 +48,7 @@ func TestCascadeHighPassKernels(t *testing.T) {
 
 // TestCascadeProcessTo checks that processTo gives the bits of a copy, Process and a sum of
 // squares in order, for the meter's chains and for longer ones (the general path), in place and
-// out of place.
+// out of place, in blocks of even and odd lengths.
 func TestCascadeProcessTo(t *testing.T) {
 	rng := rand.New(rand.NewPCG(11, 12))
 	x := make([]float64, 3000)
@@ -64,10 +64,14 @@ func TestCascadeProcessTo(t *testing.T) {
 		"dc+correction": append(DCBlockSections(48000), corr), "dc+2 corrections": append(DCBlockSections(48000), corr, corr),
 		"correction": {corr}}
 	for name, sec := range chains {
-		for _, inPlace := range []bool{false, true} {
+		for k, inPlace := range []bool{false, true, false, true} {
+			size := 256 // even and odd blocks: the kernels take two samples per turn
+			if k >= 2 {
+				size = 7
+			}
 			p, q := NewCascade(sec...), NewCascade(sec...)
-			for i := 0; i < len(x); i += 256 {
-				src := x[i:min(i+256, len(x))]
+			for i := 0; i < len(x); i += size {
+				src := x[i:min(i+size, len(x))]
 				want := append([]float64(nil), src...)
 				q.Process(want)
 				var wantSum float64
