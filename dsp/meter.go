@@ -241,10 +241,14 @@ func (m *Meter) processChunk(x []float32) {
 	n := len(x)
 	// z and c are filtered where the peak detectors read them, a in the meter's scratch.
 	z, c, a := m.peakZ.buf(n), m.peakC.buf(n), m.a[:n]
-	var sum float64
-	m.rawMin, m.rawMax, m.clipped, sum = convertRaw(z, x, m.rawMin, m.rawMax, m.clipped)
+	var sum, sumZ float64
+	if len(m.dc.sec) == 1 && m.dc.hp[0] { // the DC blocker alone, in the loop over the raw samples
+		m.rawMin, m.rawMax, m.clipped, sum, sumZ = convertHighPass1(m.dc, z, x, m.rawMin, m.rawMax, m.clipped)
+	} else {
+		m.rawMin, m.rawMax, m.clipped, sum = convertRaw(z, x, m.rawMin, m.rawMax, m.clipped)
+		sumZ = m.dc.processTo(z, z)
+	}
 	m.rawSum += sum
-	sumZ := m.dc.processTo(z, z)
 	if m.bank != nil {
 		m.bank.Process(z)
 	}

@@ -50,6 +50,59 @@ func convertRaw(z []float64, x []float32, lo, hi float32, clipped int64) (float3
 	return lo, hi, clipped, sum
 }
 
+// convertHighPass1 is convertRaw followed by the cascade c's processTo(z, z) when c is a single
+// section with a high-pass numerator (highPassNumerator): one loop converts each sample, keeps
+// the raw statistics and runs the section, with the same bits as the two passes. It returns the
+// raw statistics as convertRaw does, and Σy² of the filtered samples.
+func convertHighPass1(c *Cascade, z []float64, x []float32, lo, hi float32, clipped int64) (float32, float32, int64, float64, float64) {
+	const below = float32(ClipThreshold - 0x1p-24)
+	z = z[:len(x)]
+	s := &c.sec[0]
+	s0, s1 := c.state[0][0], c.state[0][1]
+	var sum, sumY float64
+	ub, lb := min(hi, below), max(lo, -below)
+	for i := 0; i < len(x); i++ {
+		for ; i < len(x); i++ {
+			v := x[i]
+			if v > ub || v < lb {
+				break
+			}
+			f := float64(v)
+			sum += f
+			g := s.B0 * f
+			y := g + s0
+			s0 = s1 - (g + g + s.A1*y)
+			s1 = g - s.A2*y
+			z[i] = y
+			sumY += y * y
+		}
+		if i == len(x) {
+			break
+		}
+		v := x[i]
+		if v < lo {
+			lo = v
+		}
+		if v > hi {
+			hi = v
+		}
+		if v >= ClipThreshold || v <= -ClipThreshold {
+			clipped++
+		}
+		f := float64(v)
+		sum += f
+		g := s.B0 * f
+		y := g + s0
+		s0 = s1 - (g + g + s.A1*y)
+		s1 = g - s.A2*y
+		z[i] = y
+		sumY += y * y
+		ub, lb = min(hi, below), max(lo, -below)
+	}
+	c.state[0] = [2]float64{s0, s1}
+	return lo, hi, clipped, sum, sumY
+}
+
 // timeWeighting holds the exponential time weightings of the squared A-weighted signal a²
 // (IEC 61672-1:2013, 3.7 and 5.8), each the recursion
 //

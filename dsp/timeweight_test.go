@@ -154,3 +154,40 @@ func TestConvertRaw(t *testing.T) {
 		}
 	}
 }
+
+// TestConvertHighPass1 checks that the raw-sample loop with the DC blocker in it computes the
+// same bits as convertRaw followed by the blocker's own pass, for the same samples as
+// TestConvertRaw (NaN and infinities left out: they would make every later output NaN).
+func TestConvertHighPass1(t *testing.T) {
+	rng := rand.New(rand.NewPCG(13, 14))
+	x := make([]float32, 20000)
+	for i := range x {
+		x[i] = float32(rng.NormFloat64() * 0.3 * float64(1+i/5000))
+		if i%97 == 0 {
+			x[i] = []float32{1, -1, ClipThreshold, -ClipThreshold, 0.999, 1.5}[(i/97)%6]
+		}
+	}
+	for _, fs := range []float64{8000, 48000, 192000} {
+		for _, block := range []int{1, 7, 256} {
+			p, q := NewCascade(DCBlockSections(fs)...), NewCascade(DCBlockSections(fs)...)
+			lo, hi, clipped := float32(math.Inf(1)), float32(math.Inf(-1)), int64(0)
+			qlo, qhi, qclipped := lo, hi, clipped
+			zp, zq := make([]float64, block), make([]float64, block)
+			for i := 0; i < len(x); i += block {
+				blk := x[i:min(i+block, len(x))]
+				var sum, sumY, qsum, qsumY float64
+				lo, hi, clipped, sum, sumY = convertHighPass1(p, zp, blk, lo, hi, clipped)
+				qlo, qhi, qclipped, qsum = convertRaw(zq, blk, qlo, qhi, qclipped)
+				qsumY = q.processTo(zq[:len(blk)], zq[:len(blk)])
+				for j := range blk {
+					if math.Float64bits(zp[j]) != math.Float64bits(zq[j]) {
+						t.Fatalf("%g Hz, blocks of %d, sample %d: %v, two passes %v", fs, block, i+j, zp[j], zq[j])
+					}
+				}
+				if lo != qlo || hi != qhi || clipped != qclipped || math.Float64bits(sum) != math.Float64bits(qsum) || math.Float64bits(sumY) != math.Float64bits(qsumY) {
+					t.Fatalf("%g Hz, blocks of %d, at %d: %v %v %d %v %v, two passes %v %v %d %v %v", fs, block, i, lo, hi, clipped, sum, sumY, qlo, qhi, qclipped, qsum, qsumY)
+				}
+			}
+		}
+	}
+}
