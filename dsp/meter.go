@@ -118,7 +118,7 @@ type Meter struct {
 	a          [chunk]float64 // A-weighted chunk (Z and C live in peakZ and peakC's windows)
 
 	// The time weightings: coefficients kF, kS, kI, decI; states f, s, r, d; the interval's
-	// maxF, minF, maxS, minS, maxI and sumA.
+	// maxF, minF, maxS, minS and maxI.
 	timeWeighting
 
 	step, tick int // percentile sampling period and countdown, in samples
@@ -129,14 +129,14 @@ type Meter struct {
 	peakC, peakZ peakDetector
 
 	// Interval accumulators (and those of timeWeighting).
-	n              int64
-	sumC, sumZ     float64
-	rawMin, rawMax float32 // extremes of the raw samples
-	rawSum         float64 // sum of the raw samples (DC offset)
-	clipped        int64
-	hist           Histogram
-	bandScratch    []float64
-	shareScratch   []float64
+	n                int64
+	sumA, sumC, sumZ float64
+	rawMin, rawMax   float32 // extremes of the raw samples
+	rawSum           float64 // sum of the raw samples (DC offset)
+	clipped          int64
+	hist             Histogram
+	bandScratch      []float64
+	shareScratch     []float64
 }
 
 // NewMeter designs the filters for the configured sample rate and returns a meter at rest.
@@ -253,7 +253,7 @@ func (m *Meter) processChunk(x []float32) {
 		m.bank.Process(z)
 	}
 	sumC := m.cw.processTo(c, z)
-	m.aw.processTo(a, c)
+	sumA := m.aw.processTo(a, c)
 	if m.tap != nil {
 		m.tap(z, c, a)
 	}
@@ -261,13 +261,10 @@ func (m *Meter) processChunk(x []float32) {
 	// Minima count only from the sample at which their detector has settled: fromF and fromS
 	// are the first such indices in this chunk (n when none is). The time weightings run in
 	// spans that end where a detector settles or where the Fast level is sampled for the
-	// percentiles; a span before a detector has settled tracks no minimum of it. ΣA² is summed
-	// over the chunk, then added to the interval's.
+	// percentiles; a span before a detector has settled tracks no minimum of it.
 	fromF := int(min(max(m.settleF-m.age, 0), int64(n)))
 	fromS := int(min(max(m.settleS-m.age, 0), int64(n)))
 	m.age += int64(n)
-	sumA := m.sumA
-	m.sumA = 0
 	for i := 0; i < n; {
 		end := min(n, i+m.tick)
 		minF, minS := m.minF, m.minS
@@ -295,7 +292,7 @@ func (m *Meter) processChunk(x []float32) {
 		}
 		i = end
 	}
-	m.sumA = sumA + m.sumA // the interval's sum plus the chunk's, as before the spans
+	m.sumA += sumA
 	m.sumC += sumC
 	m.sumZ += sumZ
 

@@ -111,13 +111,12 @@ func convertHighPass1(c *Cascade, z []float64, x []float32, lo, hi float32, clip
 // for Fast (f, τ = TauFast) and Slow (s, τ = TauSlow), and the Impulse detector of IEC 60651:1979
 // (described in IEC 61672-1:2013 Annex C): r, the same recursion with τ = TauImpulseRise, held by
 // d, which decays by e^(-1/(fs·TauImpulseDecay)) per sample and takes r wherever r exceeds it.
-// With them it keeps the interval's extremes of f and s, the maximum of d, and Σa².
+// With them it keeps the interval's extremes of f and s and the maximum of d.
 type timeWeighting struct {
 	f, s, r, d       float64
 	kF, kS, kI, decI float64
 	maxF, minF       float64
 	maxS, minS, maxI float64
-	sumA             float64
 }
 
 // run processes a span of A-weighted samples. A minimum set to -Inf is not tracked.
@@ -129,7 +128,6 @@ type timeWeighting struct {
 func (t *timeWeighting) run(a []float64) {
 	f, s, r, d := t.f, t.s, t.r, t.d
 	hiF, loF, hiS, loS, hiI := t.maxF, t.minF, t.maxS, t.minS, t.maxI
-	sA := t.sumA
 	if len(a) > 0 {
 		if x := d * t.decI; x > hiI {
 			hiI = x
@@ -138,7 +136,6 @@ func (t *timeWeighting) run(a []float64) {
 	for i := 0; i < len(a); i++ {
 		for ; i < len(a); i++ {
 			a2 := a[i] * a[i]
-			sA += a2
 			f += t.kF * (a2 - f)
 			s += t.kS * (a2 - s)
 			r += t.kI * (a2 - r)
@@ -173,5 +170,4 @@ func (t *timeWeighting) run(a []float64) {
 	}
 	t.f, t.s, t.r, t.d = f, s, r, d
 	t.maxF, t.minF, t.maxS, t.minS, t.maxI = hiF, loF, hiS, loS, hiI
-	t.sumA = sA
 }

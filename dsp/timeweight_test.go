@@ -14,7 +14,6 @@ func TestTimeWeightingKernel(t *testing.T) {
 	plain := func(tw *timeWeighting, a []float64) {
 		for _, v := range a {
 			a2 := v * v
-			tw.sumA += a2
 			tw.f += tw.kF * (a2 - tw.f)
 			tw.s += tw.kS * (a2 - tw.s)
 			tw.r += tw.kI * (a2 - tw.r)
@@ -68,8 +67,8 @@ func TestTimeWeightingKernel(t *testing.T) {
 		signals[name] = x
 	}
 	sameTW := func(a, b *timeWeighting) bool {
-		x := []float64{a.f, a.s, a.r, a.d, a.maxF, a.minF, a.maxS, a.minS, a.maxI, a.sumA}
-		y := []float64{b.f, b.s, b.r, b.d, b.maxF, b.minF, b.maxS, b.minS, b.maxI, b.sumA}
+		x := []float64{a.f, a.s, a.r, a.d, a.maxF, a.minF, a.maxS, a.minS, a.maxI}
+		y := []float64{b.f, b.s, b.r, b.d, b.maxF, b.minF, b.maxS, b.minS, b.maxI}
 		for i := range x {
 			if math.Float64bits(x[i]) != math.Float64bits(y[i]) {
 				return false
@@ -91,7 +90,7 @@ func TestTimeWeightingKernel(t *testing.T) {
 				for i := 0; i < len(x); i += span {
 					if i%12000 < span { // a new interval
 						for _, tw := range []*timeWeighting{&a, &b} {
-							tw.maxF, tw.maxS, tw.maxI, tw.minF, tw.minS, tw.sumA = math.Inf(-1), math.Inf(-1), math.Inf(-1), lo, lo, 0
+							tw.maxF, tw.maxS, tw.maxI, tw.minF, tw.minS = math.Inf(-1), math.Inf(-1), math.Inf(-1), lo, lo
 						}
 					}
 					blk := x[i:min(i+span, len(x))]
