@@ -168,23 +168,18 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 		}
 	}
 	m := &Meter{
-		fs:     fs,
-		offset: LevelOffset(cfg.SensitivityDBFS),
-		dc:     NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
-		cw:     NewCascade(cs...),
-		aw:     NewCascade(as...),
-		timeWeighting: timeWeighting{
-			kF:   -math.Expm1(-1 / (fs * TauFast)),
-			kS:   -math.Expm1(-1 / (fs * TauSlow)),
-			kI:   -math.Expm1(-1 / (fs * TauImpulseRise)),
-			decI: math.Exp(-1 / (fs * TauImpulseDecay)),
-		},
-		step:    int(math.Round(fs * PercentileStep)),
-		settleF: int64(math.Ceil(SettleTimeConstants * TauFast * fs)),
-		settleS: int64(math.Ceil(SettleTimeConstants * TauSlow * fs)),
-		tap:     cfg.Tap,
-		peakC:   newPeakDetector(),
-		peakZ:   newPeakDetector(),
+		fs:            fs,
+		offset:        LevelOffset(cfg.SensitivityDBFS),
+		dc:            NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
+		cw:            NewCascade(cs...),
+		aw:            NewCascade(as...),
+		timeWeighting: newTimeWeighting(fs),
+		step:          int(math.Round(fs * PercentileStep)),
+		settleF:       int64(math.Ceil(SettleTimeConstants * TauFast * fs)),
+		settleS:       int64(math.Ceil(SettleTimeConstants * TauSlow * fs)),
+		tap:           cfg.Tap,
+		peakC:         newPeakDetector(),
+		peakZ:         newPeakDetector(),
 	}
 	m.tick = m.step
 	if cfg.Bands != 0 {

@@ -84,8 +84,7 @@ func TestTimeWeightingKernel(t *testing.T) {
 					lo = math.Inf(1)
 				}
 				fs := 8000.0 // short time constants: the recursions move fast
-				init := timeWeighting{kF: -math.Expm1(-1 / (fs * TauFast)), kS: -math.Expm1(-1 / (fs * TauSlow)),
-					kI: -math.Expm1(-1 / (fs * TauImpulseRise)), decI: math.Exp(-1 / (fs * TauImpulseDecay))}
+				init := newTimeWeighting(fs)
 				a, b := init, init
 				for i := 0; i < len(x); i += span {
 					if i%12000 < span { // a new interval
@@ -185,6 +184,37 @@ func TestConvertHighPass1(t *testing.T) {
 				}
 				if lo != qlo || hi != qhi || clipped != qclipped || math.Float64bits(sum) != math.Float64bits(qsum) || math.Float64bits(sumY) != math.Float64bits(qsumY) {
 					t.Fatalf("%g Hz, blocks of %d, at %d: %v %v %d %v %v, two passes %v %v %d %v %v", fs, block, i, lo, hi, clipped, sum, sumY, qlo, qhi, qclipped, qsum, qsumY)
+				}
+			}
+		}
+	}
+}
+
+// TestFallBound checks fallBound against the recursion itself: from many starting values, with
+// a² = 0 (the steepest fall) and with random a², twBlock steps never end below fallBound·y0,
+// for the Fast and Slow coefficients from 8 to 192 kHz; and the bound is close (the Fast level
+// may fall by little more than the exact (1-k)ⁿ).
+func TestFallBound(t *testing.T) {
+	rng := rand.New(rand.NewPCG(15, 16))
+	for _, fs := range []float64{8000, 44100, 48000, 192000} {
+		tw := newTimeWeighting(fs)
+		for _, c := range []struct {
+			name string
+			k, b float64
+		}{{"Fast", tw.kF, tw.fallF}, {"Slow", tw.kS, tw.fallS}} {
+			if exact := math.Pow(1-c.k, twBlock); !(c.b < exact && c.b > exact*(1-1e-9)) {
+				t.Errorf("%g Hz, %s: bound %v, (1-k)^%d = %v", fs, c.name, c.b, twBlock, exact)
+			}
+			for range 20000 {
+				y0 := math.Exp(rng.NormFloat64() * 100)
+				y, z := y0, y0
+				for range twBlock {
+					y += c.k * (0 - y)
+					a2 := y0 * math.Exp(rng.NormFloat64()*5)
+					z += c.k * (a2 - z)
+				}
+				if lo := y0 * c.b; y <= lo || z <= lo {
+					t.Fatalf("%g Hz, %s: from %v to %v (falling) and %v (random) in %d steps, below %v", fs, c.name, y0, y, z, twBlock, lo)
 				}
 			}
 		}
