@@ -209,10 +209,10 @@ const (
 // the bank costs about 24 section updates per input sample (29, with 17 at the full rate,
 // before the upper branch); the octave bank (stage 0 with 2 bands, 9 sections; 4 sections in
 // each lower stage) about 13. Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1;
-// .ci/callgrind-meter), the meter with one-third-octave bands costs 565 instructions per input
-// sample, of which the bank takes about 290 (the section kernels 190, the shared numerators 35,
+// .ci/callgrind-meter), the meter with one-third-octave bands costs 468 instructions per input
+// sample, of which the bank takes about 288 (the section kernels 190, the shared numerators 35,
 // the decimators 50, calls and copies the rest); before issue 18's work it cost 677, the bank
-// about 405.
+// about 405, and 565 with this bank before the rest of the chain was made cheaper.
 // The section kernels take two samples per turn so that no state is copied; running the
 // sections two at a time over each block with all state in registers took more time (40
 // against 27 ns per sample): the sections of one band in one loop overlap their recursions.

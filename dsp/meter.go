@@ -115,10 +115,11 @@ type Meter struct {
 	dc, cw, aw *Cascade
 	bank       *FilterBank
 	tap        func(z, c, a []float64)
-	z, c, a    [chunk]float64
+	a          [chunk]float64 // A-weighted chunk (Z and C live in peakZ and peakC's windows)
 
-	kF, kS, kI, decI float64 // time-weighting coefficients
-	f, s, r, d       float64 // Fast, Slow, Impulse-rise and Impulse-detector states
+	// The time weightings: coefficients kF, kS, kI, decI; states f, s, r, d; the interval's
+	// maxF, minF, maxS, minS and maxI.
+	timeWeighting
 
 	step, tick int // percentile sampling period and countdown, in samples
 
@@ -127,11 +128,9 @@ type Meter struct {
 
 	peakC, peakZ peakDetector
 
-	// Interval accumulators.
+	// Interval accumulators (and those of timeWeighting).
 	n                int64
 	sumA, sumC, sumZ float64
-	maxF, minF       float64
-	maxS, minS, maxI float64
 	rawMin, rawMax   float32 // extremes of the raw samples
 	rawSum           float64 // sum of the raw samples (DC offset)
 	clipped          int64
@@ -169,21 +168,18 @@ func NewMeter(cfg MeterConfig) (*Meter, error) {
 		}
 	}
 	m := &Meter{
-		fs:      fs,
-		offset:  LevelOffset(cfg.SensitivityDBFS),
-		dc:      NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
-		cw:      NewCascade(cs...),
-		aw:      NewCascade(as...),
-		kF:      -math.Expm1(-1 / (fs * TauFast)),
-		kS:      -math.Expm1(-1 / (fs * TauSlow)),
-		kI:      -math.Expm1(-1 / (fs * TauImpulseRise)),
-		decI:    math.Exp(-1 / (fs * TauImpulseDecay)),
-		step:    int(math.Round(fs * PercentileStep)),
-		settleF: int64(math.Ceil(SettleTimeConstants * TauFast * fs)),
-		settleS: int64(math.Ceil(SettleTimeConstants * TauSlow * fs)),
-		tap:     cfg.Tap,
-		peakC:   newPeakDetector(),
-		peakZ:   newPeakDetector(),
+		fs:            fs,
+		offset:        LevelOffset(cfg.SensitivityDBFS),
+		dc:            NewCascade(append(DCBlockSections(fs), cfg.Correction...)...),
+		cw:            NewCascade(cs...),
+		aw:            NewCascade(as...),
+		timeWeighting: newTimeWeighting(fs),
+		step:          int(math.Round(fs * PercentileStep)),
+		settleF:       int64(math.Ceil(SettleTimeConstants * TauFast * fs)),
+		settleS:       int64(math.Ceil(SettleTimeConstants * TauSlow * fs)),
+		tap:           cfg.Tap,
+		peakC:         newPeakDetector(),
+		peakZ:         newPeakDetector(),
 	}
 	m.tick = m.step
 	if cfg.Bands != 0 {
@@ -238,91 +234,64 @@ func (m *Meter) Process(x []float32) {
 
 func (m *Meter) processChunk(x []float32) {
 	n := len(x)
-	z, c, a := m.z[:n], m.c[:n], m.a[:n]
-	lo, hi := m.rawMin, m.rawMax
-	var sum float64
-	for i, v := range x {
-		if v < lo {
-			lo = v
-		}
-		if v > hi {
-			hi = v
-		}
-		if v >= ClipThreshold || v <= -ClipThreshold {
-			m.clipped++
-		}
-		z[i] = float64(v)
-		sum += z[i]
+	// z and c are filtered where the peak detectors read them, a in the meter's scratch.
+	z, c, a := m.peakZ.buf(n), m.peakC.buf(n), m.a[:n]
+	var sum, sumZ float64
+	if len(m.dc.sec) == 1 && m.dc.hp[0] { // the DC blocker alone, in the loop over the raw samples
+		m.rawMin, m.rawMax, m.clipped, sum, sumZ = convertHighPass1(m.dc, z, x, m.rawMin, m.rawMax, m.clipped)
+	} else {
+		m.rawMin, m.rawMax, m.clipped, sum = convertRaw(z, x, m.rawMin, m.rawMax, m.clipped)
+		sumZ = m.dc.processTo(z, z)
 	}
-	m.rawMin, m.rawMax = lo, hi
 	m.rawSum += sum
-	m.dc.Process(z)
 	if m.bank != nil {
 		m.bank.Process(z)
 	}
-	copy(c, z)
-	m.cw.Process(c)
-	copy(a, c)
-	m.aw.Process(a)
+	sumC := m.cw.processTo(c, z)
+	sumA := m.aw.processTo(a, c)
 	if m.tap != nil {
 		m.tap(z, c, a)
 	}
 
-	f, s, r, d := m.f, m.s, m.r, m.d
-	kF, kS, kI, decI := m.kF, m.kS, m.kI, m.decI
-	maxF, minF, maxS, minS, maxI := m.maxF, m.minF, m.maxS, m.minS, m.maxI
 	// Minima count only from the sample at which their detector has settled: fromF and fromS
-	// are the first such indices in this chunk (n when none is).
+	// are the first such indices in this chunk (n when none is). The time weightings run in
+	// spans that end where a detector settles or where the Fast level is sampled for the
+	// percentiles; a span before a detector has settled tracks no minimum of it.
 	fromF := int(min(max(m.settleF-m.age, 0), int64(n)))
 	fromS := int(min(max(m.settleS-m.age, 0), int64(n)))
 	m.age += int64(n)
-	var sumA, sumC, sumZ float64
-	tick := m.tick
-	for i := range n {
-		a2 := a[i] * a[i]
-		sumA += a2
-		sumC += c[i] * c[i]
-		sumZ += z[i] * z[i]
-		f += kF * (a2 - f)
-		s += kS * (a2 - s)
-		r += kI * (a2 - r)
-		d *= decI
-		if r > d {
-			d = r
+	for i := 0; i < n; {
+		end := min(n, i+m.tick)
+		minF, minS := m.minF, m.minS
+		if i < fromF {
+			end = min(end, fromF)
+			m.minF = math.Inf(-1) // f < -Inf never holds
 		}
-		// Comparisons rather than the max and min builtins, whose NaN and signed-zero rules
-		// cost several instructions each; the values here are finite and not negative.
-		if f > maxF {
-			maxF = f
+		if i < fromS {
+			end = min(end, fromS)
+			m.minS = math.Inf(-1)
 		}
-		if s > maxS {
-			maxS = s
+		m.timeWeighting.run(a[i:end])
+		if i < fromF {
+			m.minF = minF
 		}
-		if d > maxI {
-			maxI = d
+		if i < fromS {
+			m.minS = minS
 		}
-		if f < minF && i >= fromF {
-			minF = f
-		}
-		if s < minS && i >= fromS {
-			minS = s
-		}
-		tick--
-		if tick == 0 {
-			tick = m.step
+		m.tick -= end - i
+		if m.tick == 0 {
+			m.tick = m.step
 			if i >= fromF { // percentiles, like minima, only from the settled Fast level
-				m.hist.Add(PowerLevel(f, m.offset))
+				m.hist.Add(PowerLevel(m.f, m.offset))
 			}
 		}
+		i = end
 	}
-	m.tick = tick
-	m.peakC.process(c)
-	m.peakZ.process(z)
-	m.f, m.s, m.r, m.d = f, s, r, d
-	m.maxF, m.minF, m.maxS, m.minS, m.maxI = maxF, minF, maxS, minS, maxI
 	m.sumA += sumA
 	m.sumC += sumC
 	m.sumZ += sumZ
+
+	processPeakPair(&m.peakC, &m.peakZ, n) // c and z are in their windows
 	m.n += int64(n)
 }
 

@@ -1,8 +1,10 @@
 package dsp
 
 import (
+	"maps"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"testing"
 
 	"github.com/leqnode/leqnode/dsp/reference"
@@ -638,8 +640,9 @@ func TestMeterSettling(t *testing.T) {
 
 // TestPeakCandidates checks that the peak detector's single pass over the samples examines the
 // same pairs as a plain scan of every pair against the final gate (1/√2 of the chunk's peak,
-// local maxima only), so it finds the same peak to the bit, for noise, tones and bursts cut
-// into chunks of several sizes.
+// local maxima only), and interpolates them to the same sums, so it finds the same peak to the
+// bit, for noise, tones (near fs/4 and fs/2 too), bursts and impulses cut into chunks of several
+// sizes, copied in or written in place.
 func TestPeakCandidates(t *testing.T) {
 	plain := func(d *peakDetector, x []float64) {
 		const h, lo = peakTaps - 1, peakTaps - 1 - peakHalfLen
@@ -668,24 +671,57 @@ func TestPeakCandidates(t *testing.T) {
 		copy(d.win[:h], w[n:])
 	}
 	noise := noisy(20000)
-	signals := map[string][]float64{"noise": make([]float64, len(noise)), "tone": make([]float64, 20000), "bursts": make([]float64, 20000)}
+	signals := map[string][]float64{"noise": make([]float64, len(noise)), "tone": make([]float64, 20000), "bursts": make([]float64, 20000),
+		"impulses": make([]float64, 20000), "near fs/4": make([]float64, 20000), "near fs/2": make([]float64, 20000)}
 	for i := range 20000 {
 		signals["noise"][i] = float64(noise[i])
 		signals["tone"][i] = math.Sin(2*math.Pi*7919*float64(i)/48000) * (1 + float64(i)/20000)
 		if i%3000 < 200 {
 			signals["bursts"][i] = float64(noise[i]) * float64(1+i/3000)
 		}
+		if i%1777 == 5 || i%1777 == 6 { // single impulses and close pairs, of either sign, growing
+			signals["impulses"][i] = float64(1-2*(i%2)) * float64(1+i/1777)
+		}
+		signals["near fs/4"][i] = math.Sin(2*math.Pi*11987*float64(i)/48000+0.3) * (1 + float64(i)/20000)
+		signals["near fs/2"][i] = math.Sin(2*math.Pi*23950*float64(i)/48000+0.7) * (1 + float64(i)/20000)
 	}
 	for name, x := range signals {
 		for _, size := range []int{1, 7, 256} {
 			a, b := newPeakDetector(), newPeakDetector()
 			for i := 0; i < len(x); i += size {
 				blk := x[i:min(i+size, len(x))]
-				a.process(blk)
+				if size == 7 {
+					a.process(blk)
+				} else { // written in place, as the meter does
+					copy(a.buf(len(blk)), blk)
+					a.process(a.buf(len(blk)))
+				}
 				plain(&b, blk)
 				if i%5000 < size {
 					if pa, pb := a.take(), b.take(); pa != pb {
 						t.Fatalf("%s, blocks of %d: peak %v, plain scan %v", name, size, pa, pb)
+					}
+				}
+			}
+		}
+	}
+	// Two detectors scanned in one loop (processPeakPair), as the meter runs C and Z.
+	names := slices.Sorted(maps.Keys(signals))
+	for k, name := range names {
+		other := names[(k+1)%len(names)]
+		x, y := signals[name], signals[other]
+		for _, size := range []int{1, 7, 256} {
+			a1, a2, b1, b2 := newPeakDetector(), newPeakDetector(), newPeakDetector(), newPeakDetector()
+			for i := 0; i < len(x); i += size {
+				bx, by := x[i:min(i+size, len(x))], y[i:min(i+size, len(y))]
+				copy(a1.buf(len(bx)), bx)
+				copy(a2.buf(len(by)), by)
+				processPeakPair(&a1, &a2, len(bx))
+				plain(&b1, bx)
+				plain(&b2, by)
+				if i%5000 < size {
+					if p1, q1, p2, q2 := a1.take(), b1.take(), a2.take(), b2.take(); p1 != q1 || p2 != q2 {
+						t.Fatalf("%s with %s, blocks of %d: peaks %v and %v, plain scans %v and %v", name, other, size, p1, p2, q1, q2)
 					}
 				}
 			}
