@@ -94,6 +94,13 @@ const (
 	// buffers and has no effect on the results.
 	bankChunk = 1024
 
+	// bankBatch is the number of input samples a decimated stage gathers before it runs (all of
+	// them run before MeanSquare reads the sums). It has no effect on the results: it spares
+	// the deep stages, which receive a sample or two per call of a small block, the cost of a
+	// call per filter for each. A larger value costs memory (stage k holds up to about
+	// bankChunk/2^k + 2·bankBatch samples) for little more saving.
+	bankBatch = 128
+
 	// bankStageTop is the highest upper band edge, as a fraction of its stage's rate, that a
 	// band in a decimated stage may have: each decimated stage holds the bands whose upper
 	// edges lie in (bankStageTop/2, bankStageTop] of its rate, one octave. It is twice the pass
@@ -211,10 +218,12 @@ const (
 // the bank costs about 24 section updates per input sample (29, with 17 at the full rate,
 // before the upper branch); the octave bank (stage 0 with 2 bands, 9 sections; 4 sections in
 // each lower stage) about 13. Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1;
-// .ci/callgrind-meter), the meter with one-third-octave bands costs 468 instructions per input
-// sample, of which the bank takes about 288 (the section kernels 190, the shared numerators 35,
-// the decimators 50, calls and copies the rest); before issue 18's work it cost 677, the bank
-// about 405, and 565 with this bank before the rest of the chain was made cheaper.
+// .ci/callgrind-meter), the meter with one-third-octave bands costs 446 instructions per input
+// sample, of which the bank takes about 267 (the section kernels 187, the shared numerators 34,
+// the decimators 42, calls and copies the rest); before issue 18's work it cost 677, the bank
+// about 405, and 565 with this bank before the rest of the chain was made cheaper. The
+// decimated stages gather bankBatch samples before they run, so that the deep stages, which
+// receive a sample or two per block of the meter, do not pay a call per filter for each.
 // The section kernels take two samples per turn so that no state is copied; running the
 // sections two at a time over each block with all state in registers took more time (40
 // against 27 ns per sample): the sections of one band in one loop overlap their recursions.
@@ -231,9 +240,10 @@ const (
 // # Block size
 //
 // Process takes blocks of any length. All filter state, including the position of each
-// decimator in its two-sample cycle, is carried across calls, and every sum is accumulated
-// sample by sample in the same order, so the results are bit-for-bit the same whatever the
-// block cut. Neither Process nor MeanSquare (given a large enough dst) allocates.
+// decimator in its two-sample cycle and the samples a decimated stage has gathered, is carried
+// across calls (MeanSquare and SettledMeanSquare first run what has been gathered), and every
+// sum, the settling part of SettledMeanSquare's included, is accumulated sample by sample in
+// the same order, so the results are bit-for-bit the same whatever the block cut. Neither Process nor MeanSquare (given a large enough dst) allocates.
 //
 // A NaN or infinite sample makes the state of every filter NaN until Reset; callers reject
 // such samples before they reach the bank. A FilterBank is not safe for concurrent use.
@@ -253,7 +263,8 @@ type bankStage struct {
 	rate    float64
 	filters []bankFilter
 	count   int            // samples seen since the last MeanSquare
-	in      []float64      // input scratch of stages k ≥ 1
+	in      []float64      // input of stages k ≥ 1: the samples gathered (pending), then room for more
+	pending int            // samples in in not yet run (stages k ≥ 1 of the chain)
 	u       []float64      // scratch: the input after the shared numerator
 	hist    []float64      // the shared numerator's input: its last bankNumeratorLen samples, then the chunk
 	dec     *bankDecimator // feeds the next stage; nil for the last
@@ -360,7 +371,9 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		st := &fb.stages[k]
 		st.rate = fs / math.Ldexp(1, k)
 		if k > 0 {
-			n = (n + 1) / 2
+			// What the stage above sends at a time (at most half of what it runs at a time,
+			// rounded up for its phase) added to fewer than bankBatch samples gathered before.
+			n = (n+1)/2 + bankBatch
 			st.in = make([]float64, n)
 		}
 		st.u = make([]float64, n)
@@ -761,14 +774,25 @@ func (b *FilterBank) BandRate(i int) float64 { return b.stages[b.where[i].stage]
 func (b *FilterBank) Process(x []float64) {
 	for len(x) > 0 {
 		n := min(len(x), bankChunk)
-		b.chunk(x[:n])
+		b.chunk(x[:n], false)
 		x = x[n:]
 	}
 }
 
-func (b *FilterBank) chunk(x []float64) {
+// chunk runs x through stage 0 and the upper branch, and the decimated stages of the chain
+// that have gathered bankBatch samples or more (all of them, with whatever they hold, if all
+// is set). Each filter sees the same samples in the same order whenever its stage runs, so
+// the results do not depend on when that is.
+func (b *FilterBank) chunk(x []float64, all bool) {
 	for k := range b.stages[:b.chain] {
 		st := &b.stages[k]
+		if k > 0 {
+			if st.pending < bankBatch && !all {
+				return
+			}
+			x = st.in[:st.pending]
+			st.pending = 0
+		}
 		st.run(x)
 		if st.dec == nil {
 			return
@@ -776,17 +800,17 @@ func (b *FilterBank) chunk(x []float64) {
 		next := &b.stages[k+1]
 		if k == 0 && b.chain < len(b.stages) {
 			up := &b.stages[b.chain]
-			m := st.dec.decimateBoth(x, next.in, up.in)
+			m := st.dec.decimateBoth(x, next.in[next.pending:], up.in)
 			up.run(up.in[:m])
-			x = next.in[:m]
+			next.pending += m
 		} else {
-			x = next.in[:st.dec.decimate(x, next.in)]
-		}
-		if len(x) == 0 {
-			return
+			next.pending += st.dec.decimate(x, next.in[next.pending:])
 		}
 	}
 }
+
+// flush runs the samples the decimated stages have gathered.
+func (b *FilterBank) flush() { b.chunk(nil, true) }
 
 // run filters x through the stage's shared numerator and its band filters.
 func (st *bankStage) run(x []float64) {
@@ -813,9 +837,7 @@ func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
 		k := min(f.skip, len(x))
-		sum := f.sum
-		f.runSections(x[:k])
-		f.early += f.sum - sum
+		f.runSettling(x[:k])
 		f.nEarly += k
 		f.skip -= k
 		x = x[k:]
@@ -852,6 +874,28 @@ func (f *bankFilter) runAny(x []float64) {
 		sum += v * v
 	}
 	f.sum = sum
+}
+
+// runSettling is runAny that also adds each output's square to early, sample by sample, so
+// that early, like sum, does not depend on how the samples were cut into blocks. It runs only
+// while the filter settles.
+func (f *bankFilter) runSettling(x []float64) {
+	sum, early := f.sum, f.early
+	for _, v := range x {
+		for i := range f.extra {
+			e := &f.num[i]
+			v, e[0], e[1] = v-e[1], v, e[0]
+		}
+		for i := range f.nsec {
+			c, st := &f.a[i], &f.w[i]
+			w := c[1]*st[1] + v + c[0]*st[0]
+			st[1], st[0] = st[0], w
+			v = w
+		}
+		sum += v * v
+		early += v * v
+	}
+	f.sum, f.early = sum, early
 }
 
 // run4 is run for four sections and no numerator factor of its own. It takes two samples per
@@ -972,6 +1016,7 @@ func bankNumerator4(buf, x, u []float64, four, six float64) {
 // signal between the lowest and the highest band edge (within the effective-bandwidth
 // deviation, at most 0.09 dB for these filters).
 func (b *FilterBank) MeanSquare(dst []float64) []float64 {
+	b.flush()
 	if cap(dst) < len(b.bands) {
 		dst = make([]float64, len(b.bands))
 	}
@@ -999,6 +1044,7 @@ func (b *FilterBank) MeanSquare(dst []float64) []float64 {
 // MeanSquare does. ms and share are written to if they have room for every band, else to new
 // slices.
 func (b *FilterBank) SettledMeanSquare(ms, share []float64) ([]float64, []float64) {
+	b.flush()
 	if cap(ms) < len(b.bands) {
 		ms = make([]float64, len(b.bands))
 	}
@@ -1034,7 +1080,7 @@ func (b *FilterBank) Reset() {
 			f.w, f.num = [bankMaxSections][2]float64{}, [bankMaxSections][2]float64{}
 			f.sum, f.early, f.nEarly, f.skip = 0, 0, 0, f.settle
 		}
-		st.count = 0
+		st.count, st.pending = 0, 0
 		clear(st.hist)
 		if st.dec != nil {
 			clear(st.dec.s0)

@@ -602,15 +602,17 @@ func TestBandTimeInvariance(t *testing.T) {
 	}
 }
 
-// TestBandBlockSizeIndependence feeds the same samples in blocks of 1, 7, 480 and 48000 and
-// requires bit-identical mean squares at the same sample positions (project requirement).
+// TestBandBlockSizeIndependence feeds the same samples in blocks of 1, 7, 256 (the meter's),
+// 480, 1500 (more than the bank's chunk) and 48000 and requires bit-identical mean squares at
+// the same sample positions (project requirement), also where the decimated stages still hold
+// samples they have gathered (bankBatch) when MeanSquare is called.
 func TestBandBlockSizeIndependence(t *testing.T) {
 	const fs = 48000
 	x := bankTestSignal(2*48000+1234, fs)
-	spans := []int{48000, 1, 48000 + 1233} // MeanSquare after each span
+	spans := []int{48000, 1, 48000 + 1233} // SettledMeanSquare, MeanSquare, SettledMeanSquare after each
 	for _, set := range []BandSet{Third, Octave} {
 		var want [][]float64
-		for _, block := range []int{48000, 1, 7, 480} {
+		for _, block := range []int{48000, 1, 7, 256, 480, 1500} {
 			fb, err := NewFilterBank(set, fs)
 			if err != nil {
 				t.Fatal(err)
@@ -624,7 +626,14 @@ func TestBandBlockSizeIndependence(t *testing.T) {
 					fb.Process(x[pos : pos+n])
 					pos += n
 				}
-				got = append(got, fb.MeanSquare(nil))
+				if span == 1 {
+					got = append(got, fb.MeanSquare(nil))
+				} else {
+					// The low bands are still settling: SettledMeanSquare's split of
+					// each sum must not depend on the blocks either.
+					ms, share := fb.SettledMeanSquare(nil, nil)
+					got = append(got, ms, share)
+				}
 			}
 			if want == nil {
 				want = got
@@ -641,8 +650,8 @@ func TestBandBlockSizeIndependence(t *testing.T) {
 		}
 		// After the one-sample span only stage 0 (and stages whose decimators kept that
 		// sample) have a result; the 12.5 Hz or 16 Hz band's stage kept none.
-		if !math.IsNaN(want[1][0]) || math.IsNaN(want[1][len(want[1])-1]) {
-			t.Errorf("%v: after one sample, lowest band %g (want NaN), highest %g (want a number)", set, want[1][0], want[1][len(want[1])-1])
+		if !math.IsNaN(want[2][0]) || math.IsNaN(want[2][len(want[2])-1]) {
+			t.Errorf("%v: after one sample, lowest band %g (want NaN), highest %g (want a number)", set, want[2][0], want[2][len(want[2])-1])
 		}
 	}
 }
