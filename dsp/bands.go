@@ -94,6 +94,13 @@ const (
 	// buffers and has no effect on the results.
 	bankChunk = 1024
 
+	// bankBatch is the number of input samples a decimated stage gathers before it runs (all of
+	// them run before MeanSquare reads the sums). It has no effect on the results: it spares
+	// the deep stages, which receive a sample or two per call of a small block, the cost of a
+	// call per filter for each. A larger value costs memory (stage k holds up to about
+	// bankChunk/2^k + 2·bankBatch samples) for little more saving.
+	bankBatch = 128
+
 	// bankStageTop is the highest upper band edge, as a fraction of its stage's rate, that a
 	// band in a decimated stage may have: each decimated stage holds the bands whose upper
 	// edges lie in (bankStageTop/2, bankStageTop] of its rate, one octave. It is twice the pass
@@ -119,16 +126,18 @@ const (
 
 	// bankHalfPass is the pass band edge of the half-band decimators, as a fraction of their
 	// input rate (the stop band starts at 0.5 - bankHalfPass), and bankHalfCoefs the number of
-	// their all-pass coefficients: 5 give a pass band flat within 1e-8 dB and a stop band at
-	// least 86 dB down.
+	// their all-pass coefficients: 4 (order 9) give a pass band flat within 5e-7 dB and a stop
+	// band at least 70 dB down, which keeps every band 8 dB or more inside the class 1 limits
+	// (the tests measure the margins); 5 (order 11) would give 1e-8 dB and 86 dB for about 6
+	// instructions per input sample more, 3 (order 7) only 53 dB, which fails class 1.
 	bankHalfPass  = 0.2
-	bankHalfCoefs = 5
+	bankHalfCoefs = 4
 
 	// bankUpperFloor is the lowest lower band edge, as a fraction of fs, of a band computed in
 	// the upper branch at fs/2, and bankOrderUpper the order of its band-pass prototype. A sine
 	// of frequency f > fs/4 reaches the upper branch at fs/2 - f, and so does one of frequency
 	// fs/2 - f < fs/4, attenuated by the high-pass: with the band's lower edge at 0.29 fs or
-	// above, what lands in the band comes from below 0.21 fs, where the high-pass is 86 dB down
+	// above, what lands in the band comes from below 0.21 fs, where the high-pass is 70 dB down
 	// (from 0.2 fs) or close to it. The band filters there are designed for the folded band
 	// edges, and the bilinear transform's warping, which works against a band close to the
 	// Nyquist frequency at the full rate, steepens the skirt that faces fs/4; order 4 then
@@ -168,13 +177,13 @@ const (
 // restores the margins.
 //
 // The bank is multirate. Stage 0 runs at the input rate fs; stage k runs at fs/2^k and is fed
-// from stage k-1 through a half-band decimator: an elliptic IIR low-pass of order 11 in
-// polyphase form (two branches of first-order all-pass sections, five coefficients, run at the
-// output rate), flat within 10⁻⁸ dB up to 0.2 of its input rate and at least 86 dB down from
+// from stage k-1 through a half-band decimator: an elliptic IIR low-pass of order 9 in
+// polyphase form (two branches of first-order all-pass sections, four coefficients, run at the
+// output rate), flat within 5·10⁻⁷ dB up to 0.2 of its input rate and at least 70 dB down from
 // 0.3 of it. A band is computed in the lowest-rate stage k in which its upper edge is at most
 // 0.4 fs/2^k, so every decimated stage holds one octave of bands with upper edges between 0.2
 // and 0.4 of its rate, and stage 0 holds the rest (upper edges from 0.2 fs to 0.47 fs: the top
-// four one-third octaves). What a decimator folds back lands either 86 dB down or above 0.4 of
+// four one-third octaves). What a decimator folds back lands either 70 dB down or above 0.4 of
 // the lower stage's rate, where the band filters attenuate it; Response includes that
 // folding, so the tests check it against the mask.
 //
@@ -185,7 +194,7 @@ const (
 // high-pass, kept at every second sample, carries the top of the spectrum folded about fs/4: a
 // sine of frequency f appears at fs/2 - f. The band filters there are designed for the folded
 // band edges. The folding also brings in what lies at fs/2 - f below fs/4, which the high-pass
-// holds 86 dB down below 0.2 fs; the band's lower edge at 0.29 fs keeps that out of the band.
+// holds 70 dB down below 0.2 fs; the band's lower edge at 0.29 fs keeps that out of the band.
 //
 // The numerators (1 - z⁻²) of all sections commute with their poles, so each stage applies
 // (1 - z⁻²)⁴ once to its input, as a direct-form FIR, for all its bands; each band then runs
@@ -203,16 +212,18 @@ const (
 //
 // A section costs 2 multiplications and 2 additions per sample at its stage's rate, the
 // shared numerator 2 multiplications and 4 additions, the mean square 2 more operations per
-// band, and a half-band decimator 5 multiplications and 11 additions per kept sample. For
+// band, and a half-band decimator 5 multiplications and 9 additions per kept sample. For
 // one-third octaves at 48 kHz stage 0 holds 2 bands (8 sections), the upper branch 2 bands at
 // half rate, and each lower stage 3 bands (12 sections) at half the rate of the one above, so
 // the bank costs about 24 section updates per input sample (29, with 17 at the full rate,
 // before the upper branch); the octave bank (stage 0 with 2 bands, 9 sections; 4 sections in
 // each lower stage) about 13. Measured with callgrind on amd64 (Go 1.26, GOAMD64=v1;
-// .ci/callgrind-meter), the meter with one-third-octave bands costs 468 instructions per input
-// sample, of which the bank takes about 288 (the section kernels 190, the shared numerators 35,
-// the decimators 50, calls and copies the rest); before issue 18's work it cost 677, the bank
-// about 405, and 565 with this bank before the rest of the chain was made cheaper.
+// .ci/callgrind-meter), the meter with one-third-octave bands costs 446 instructions per input
+// sample, of which the bank takes about 267 (the section kernels 187, the shared numerators 34,
+// the decimators 42, calls and copies the rest); before issue 18's work it cost 677, the bank
+// about 405, and 565 with this bank before the rest of the chain was made cheaper. The
+// decimated stages gather bankBatch samples before they run, so that the deep stages, which
+// receive a sample or two per block of the meter, do not pay a call per filter for each.
 // The section kernels take two samples per turn so that no state is copied; running the
 // sections two at a time over each block with all state in registers took more time (40
 // against 27 ns per sample): the sections of one band in one loop overlap their recursions.
@@ -229,9 +240,10 @@ const (
 // # Block size
 //
 // Process takes blocks of any length. All filter state, including the position of each
-// decimator in its two-sample cycle, is carried across calls, and every sum is accumulated
-// sample by sample in the same order, so the results are bit-for-bit the same whatever the
-// block cut. Neither Process nor MeanSquare (given a large enough dst) allocates.
+// decimator in its two-sample cycle and the samples a decimated stage has gathered, is carried
+// across calls (MeanSquare and SettledMeanSquare first run what has been gathered), and every
+// sum, the settling part of SettledMeanSquare's included, is accumulated sample by sample in
+// the same order, so the results are bit-for-bit the same whatever the block cut. Neither Process nor MeanSquare (given a large enough dst) allocates.
 //
 // A NaN or infinite sample makes the state of every filter NaN until Reset; callers reject
 // such samples before they reach the bank. A FilterBank is not safe for concurrent use.
@@ -251,7 +263,8 @@ type bankStage struct {
 	rate    float64
 	filters []bankFilter
 	count   int            // samples seen since the last MeanSquare
-	in      []float64      // input scratch of stages k ≥ 1
+	in      []float64      // input of stages k ≥ 1: the samples gathered (pending), then room for more
+	pending int            // samples in in not yet run (stages k ≥ 1 of the chain)
 	u       []float64      // scratch: the input after the shared numerator
 	hist    []float64      // the shared numerator's input: its last bankNumeratorLen samples, then the chunk
 	dec     *bankDecimator // feeds the next stage; nil for the last
@@ -358,7 +371,9 @@ func NewFilterBank(set BandSet, fs float64) (*FilterBank, error) {
 		st := &fb.stages[k]
 		st.rate = fs / math.Ldexp(1, k)
 		if k > 0 {
-			n = (n + 1) / 2
+			// What the stage above sends at a time (at most half of what it runs at a time,
+			// rounded up for its phase) added to fewer than bankBatch samples gathered before.
+			n = (n+1)/2 + bankBatch
 			st.in = make([]float64, n)
 		}
 		st.u = make([]float64, n)
@@ -617,8 +632,8 @@ func (d *bankDecimator) responseHigh(f, fs float64) complex128 {
 // decimateBoth is decimate that also writes the complementary high-pass output,
 // ½·[A0(z²) - z⁻¹·A1(z²)], of each kept sample to high.
 func (d *bankDecimator) decimateBoth(x, out, high []float64) int {
-	if len(d.a0) == 3 && len(d.a1) == 2 {
-		return d.decimate5Both(x, out, high)
+	if len(d.a0) == 2 && len(d.a1) == 2 {
+		return d.decimate4Both(x, out, high)
 	}
 	return d.decimateBothAny(x, out, high)
 }
@@ -640,18 +655,18 @@ func (d *bankDecimator) decimateBothAny(x, out, high []float64) int {
 	return k
 }
 
-// decimate5Both is decimate5 with the high-pass output; it computes the same bits as
+// decimate4Both is decimate4 with the high-pass output; it computes the same bits as
 // decimateBothAny.
-func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
+func (d *bankDecimator) decimate4Both(x, out, high []float64) int {
 	if d.phase == 1 && len(x) > 0 {
 		d.decimateBothAny(x[:1], out, high) // a skipped sample: nothing kept
 		x = x[1:]
 	}
-	c0, c1, c2 := d.a0[0], d.a0[1], d.a0[2]
+	c0, c1 := d.a0[0], d.a0[1]
 	e0, e1 := d.a1[0], d.a1[1]
-	s := (*[4]float64)(d.s0)
+	s := (*[3]float64)(d.s0)
 	t := (*[3]float64)(d.s1)
-	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
+	s0, s1, s2 := s[0], s[1], s[2]
 	t0, t1, t2 := t[0], t[1], t[2]
 	odd := d.odd
 	half := d.half
@@ -662,19 +677,16 @@ func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
 		v := y[i-1]
 		w := c0*(v-s1) + s0
 		s0 = v
-		u := c1*(w-s2) + s1
-		s1 = w
-		s3 = c2*(u-s3) + s2
-		s2 = u
-		o[i>>1] = half * (s3 + odd)
-		h[i>>1] = half * (s3 - odd)
+		s1, s2 = w, c1*(w-s2)+s1
+		o[i>>1] = half * (s2 + odd)
+		h[i>>1] = half * (s2 - odd)
 		v = y[i]
 		w = e0*(v-t1) + t0
 		t0 = v
 		t1, t2 = w, e1*(w-t2)+t1
 		odd = t2
 	}
-	*s = [4]float64{s0, s1, s2, s3}
+	*s = [3]float64{s0, s1, s2}
 	*t = [3]float64{t0, t1, t2}
 	d.odd = odd
 	return n/2 + d.decimateBothAny(x[n:], out[n/2:], high[n/2:])
@@ -682,8 +694,8 @@ func (d *bankDecimator) decimate5Both(x, out, high []float64) int {
 
 // decimate filters x and writes the kept samples to out, returning their number.
 func (d *bankDecimator) decimate(x, out []float64) int {
-	if len(d.a0) == 3 && len(d.a1) == 2 {
-		return d.decimate5(x, out)
+	if len(d.a0) == 2 && len(d.a1) == 2 {
+		return d.decimate4(x, out)
 	}
 	return d.decimateAny(x, out)
 }
@@ -704,19 +716,19 @@ func (d *bankDecimator) decimateAny(x, out []float64) int {
 	return k
 }
 
-// decimate5 is decimate for five coefficients (three in A0, two in A1), with the states in
+// decimate4 is decimate for four coefficients (two in each branch), with the states in
 // registers and a kept and a skipped sample per turn; an odd sample at either end goes through
 // decimateAny. It computes the same bits as decimateAny.
-func (d *bankDecimator) decimate5(x, out []float64) int {
+func (d *bankDecimator) decimate4(x, out []float64) int {
 	if d.phase == 1 && len(x) > 0 {
 		d.decimateAny(x[:1], out) // a skipped sample: nothing kept
 		x = x[1:]
 	}
-	c0, c1, c2 := d.a0[0], d.a0[1], d.a0[2]
+	c0, c1 := d.a0[0], d.a0[1]
 	e0, e1 := d.a1[0], d.a1[1]
-	s := (*[4]float64)(d.s0)
+	s := (*[3]float64)(d.s0)
 	t := (*[3]float64)(d.s1)
-	s0, s1, s2, s3 := s[0], s[1], s[2], s[3]
+	s0, s1, s2 := s[0], s[1], s[2]
 	t0, t1, t2 := t[0], t[1], t[2]
 	odd := d.odd
 	half := d.half
@@ -728,11 +740,8 @@ func (d *bankDecimator) decimate5(x, out []float64) int {
 		v := y[i-1]
 		w := c0*(v-s1) + s0
 		s0 = v
-		u := c1*(w-s2) + s1
-		s1 = w
-		s3 = c2*(u-s3) + s2
-		s2 = u
-		o[i>>1] = half * (s3 + odd)
+		s1, s2 = w, c1*(w-s2)+s1
+		o[i>>1] = half * (s2 + odd)
 		// The skipped sample through A1.
 		v = y[i]
 		w = e0*(v-t1) + t0
@@ -740,7 +749,7 @@ func (d *bankDecimator) decimate5(x, out []float64) int {
 		t1, t2 = w, e1*(w-t2)+t1
 		odd = t2
 	}
-	*s = [4]float64{s0, s1, s2, s3}
+	*s = [3]float64{s0, s1, s2}
 	*t = [3]float64{t0, t1, t2}
 	d.odd = odd
 	return n/2 + d.decimateAny(x[n:], out[n/2:])
@@ -765,14 +774,25 @@ func (b *FilterBank) BandRate(i int) float64 { return b.stages[b.where[i].stage]
 func (b *FilterBank) Process(x []float64) {
 	for len(x) > 0 {
 		n := min(len(x), bankChunk)
-		b.chunk(x[:n])
+		b.chunk(x[:n], false)
 		x = x[n:]
 	}
 }
 
-func (b *FilterBank) chunk(x []float64) {
+// chunk runs x through stage 0 and the upper branch, and the decimated stages of the chain
+// that have gathered bankBatch samples or more (all of them, with whatever they hold, if all
+// is set). Each filter sees the same samples in the same order whenever its stage runs, so
+// the results do not depend on when that is.
+func (b *FilterBank) chunk(x []float64, all bool) {
 	for k := range b.stages[:b.chain] {
 		st := &b.stages[k]
+		if k > 0 {
+			if st.pending < bankBatch && !all {
+				return
+			}
+			x = st.in[:st.pending]
+			st.pending = 0
+		}
 		st.run(x)
 		if st.dec == nil {
 			return
@@ -780,17 +800,17 @@ func (b *FilterBank) chunk(x []float64) {
 		next := &b.stages[k+1]
 		if k == 0 && b.chain < len(b.stages) {
 			up := &b.stages[b.chain]
-			m := st.dec.decimateBoth(x, next.in, up.in)
+			m := st.dec.decimateBoth(x, next.in[next.pending:], up.in)
 			up.run(up.in[:m])
-			x = next.in[:m]
+			next.pending += m
 		} else {
-			x = next.in[:st.dec.decimate(x, next.in)]
-		}
-		if len(x) == 0 {
-			return
+			next.pending += st.dec.decimate(x, next.in[next.pending:])
 		}
 	}
 }
+
+// flush runs the samples the decimated stages have gathered.
+func (b *FilterBank) flush() { b.chunk(nil, true) }
 
 // run filters x through the stage's shared numerator and its band filters.
 func (st *bankStage) run(x []float64) {
@@ -817,9 +837,7 @@ func (f *bankFilter) run(x []float64) {
 	if f.skip > 0 {
 		// Still settling: the outputs count in sum, and in early too.
 		k := min(f.skip, len(x))
-		sum := f.sum
-		f.runSections(x[:k])
-		f.early += f.sum - sum
+		f.runSettling(x[:k])
 		f.nEarly += k
 		f.skip -= k
 		x = x[k:]
@@ -856,6 +874,28 @@ func (f *bankFilter) runAny(x []float64) {
 		sum += v * v
 	}
 	f.sum = sum
+}
+
+// runSettling is runAny that also adds each output's square to early, sample by sample, so
+// that early, like sum, does not depend on how the samples were cut into blocks. It runs only
+// while the filter settles.
+func (f *bankFilter) runSettling(x []float64) {
+	sum, early := f.sum, f.early
+	for _, v := range x {
+		for i := range f.extra {
+			e := &f.num[i]
+			v, e[0], e[1] = v-e[1], v, e[0]
+		}
+		for i := range f.nsec {
+			c, st := &f.a[i], &f.w[i]
+			w := c[1]*st[1] + v + c[0]*st[0]
+			st[1], st[0] = st[0], w
+			v = w
+		}
+		sum += v * v
+		early += v * v
+	}
+	f.sum, f.early = sum, early
 }
 
 // run4 is run for four sections and no numerator factor of its own. It takes two samples per
@@ -976,6 +1016,7 @@ func bankNumerator4(buf, x, u []float64, four, six float64) {
 // signal between the lowest and the highest band edge (within the effective-bandwidth
 // deviation, at most 0.09 dB for these filters).
 func (b *FilterBank) MeanSquare(dst []float64) []float64 {
+	b.flush()
 	if cap(dst) < len(b.bands) {
 		dst = make([]float64, len(b.bands))
 	}
@@ -1003,6 +1044,7 @@ func (b *FilterBank) MeanSquare(dst []float64) []float64 {
 // MeanSquare does. ms and share are written to if they have room for every band, else to new
 // slices.
 func (b *FilterBank) SettledMeanSquare(ms, share []float64) ([]float64, []float64) {
+	b.flush()
 	if cap(ms) < len(b.bands) {
 		ms = make([]float64, len(b.bands))
 	}
@@ -1038,7 +1080,7 @@ func (b *FilterBank) Reset() {
 			f.w, f.num = [bankMaxSections][2]float64{}, [bankMaxSections][2]float64{}
 			f.sum, f.early, f.nEarly, f.skip = 0, 0, 0, f.settle
 		}
-		st.count = 0
+		st.count, st.pending = 0, 0
 		clear(st.hist)
 		if st.dec != nil {
 			clear(st.dec.s0)
