@@ -112,7 +112,7 @@ func Run(ctx context.Context, o Options) (err error) {
 	var display *displayFeed
 	if o.Display != nil {
 		display = newDisplayFeed()
-		no.OnSecond = func(r *record.Second) { display.offer(r) }
+		no.OnSecond = func(r *record.Second) { display.offer(cloneSecond(r)) }
 		no.OnMinute = func(r *record.Minute) { display.offer(cloneMinute(r)) }
 	}
 	n, err := node.New(no)

@@ -41,8 +41,15 @@ func (f *displayFeed) run(show func(record.Record)) {
 // started); run shows what is still queued and returns.
 func (f *displayFeed) close() { close(f.ch) }
 
-// cloneMinute copies a minute record for the display: the node may reuse the record's
-// slices once the call returns.
+// cloneSecond and cloneMinute copy a record for the display, which reads it on another
+// goroutine: the node owns the record it passes to its hooks and may change or reuse it (and
+// its slices) once the hook returns.
+func cloneSecond(r *record.Second) *record.Second {
+	c := *r
+	c.Spectrum = slices.Clone(r.Spectrum)
+	return &c
+}
+
 func cloneMinute(r *record.Minute) *record.Minute {
 	c := *r
 	c.Spectrum = slices.Clone(r.Spectrum)

@@ -44,8 +44,14 @@ func TestDisplayFeedNeverBlocks(t *testing.T) {
 	}
 }
 
-// TestCloneMinute: the display's copy of a minute shares no slice with the node's record.
-func TestCloneMinute(t *testing.T) {
+// TestCloneRecords: the display's copies share no field or slice with the node's records.
+func TestCloneRecords(t *testing.T) {
+	sec := &record.Second{LAeq: 50, Spectrum: []float64{30, 31}}
+	cs := cloneSecond(sec)
+	sec.LAeq, sec.Spectrum[0] = 99, 99
+	if cs.LAeq != 50 || cs.Spectrum[0] != 30 {
+		t.Errorf("the copy changed with the original: LAeq %v, spectrum %v", cs.LAeq, cs.Spectrum)
+	}
 	m := &record.Minute{Spectrum: []float64{40, 41}, Histogram: record.LevelHistogram{First: 400, Counts: []uint32{1, 2}}}
 	c := cloneMinute(m)
 	m.Spectrum[0], m.Histogram.Counts[0] = 99, 99
